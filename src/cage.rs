@@ -1,0 +1,497 @@
+//! Cage geometry: nodes, members and hull faces, with stable ids.
+//!
+//! Id rules (the logbook refers to them, so they are a contract):
+//! - Nodes `N1..`: for an explicit cage, the profile's own ids, in file
+//!   order. For the parametric six-strut cage, ordered by height in the
+//!   upright body frame (highest first, i.e. smallest body z), then by
+//!   azimuth of the node measured from body forward (x) towards right (y),
+//!   in [0, 360) degrees.
+//! - Rods `R1..` and strings `S1..`: each kind sorted by the positions of
+//!   its end nodes in the node order (lower index first, then higher).
+//! - Faces `F1..`: sorted by tilt when the vehicle sits upright (the face
+//!   most level first), then by azimuth of the outward normal in the body
+//!   frame, from forward towards right, in [0, 360).
+//!
+//! Ties are broken at 1e-6 of the cage size (positions) or 1e-6 degrees.
+
+use crate::attitude::{angle_between_deg, rotation_from_rpy_deg};
+use crate::hull::{Hull, HullError};
+use crate::profile::{CageShape, Profile, TakeoffFaces};
+use nalgebra::{Rotation3, Vector3};
+use serde::Serialize;
+
+/// Why a cage could not be built from a valid profile.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum CageError {
+    /// The nodes do not enclose a volume.
+    #[error("cage nodes: {0}")]
+    Hull(#[from] HullError),
+    /// The rods alone weigh more than the vehicle.
+    #[error(
+        "the rods weigh {rods_kg:.3} kg by their section and density, more than the vehicle's mass_kg {mass_kg:.3} kg"
+    )]
+    RodsTooHeavy {
+        /// Mass of the rods.
+        rods_kg: f64,
+        /// Vehicle mass.
+        mass_kg: f64,
+    },
+    /// A take-off face id the cage does not have.
+    #[error("righting.takeoff_faces: {0} is not a face of this cage (it has F1..F{1})")]
+    UnknownFace(String, usize),
+}
+
+/// Rod (compression) or string (tension only).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum MemberKind {
+    /// Compression member.
+    Rod,
+    /// Tension-only member.
+    String,
+}
+
+/// A node of the cage.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Node {
+    /// Stable id.
+    pub id: String,
+    /// Position, cage frame.
+    pub pos_cage: Vector3<f64>,
+    /// Position, body frame (after the mount rotation).
+    pub pos_body: Vector3<f64>,
+}
+
+/// A rod or string.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Member {
+    /// Stable id (`R1..` or `S1..`).
+    pub id: String,
+    /// Rod or string.
+    pub kind: MemberKind,
+    /// End node indices (lower first).
+    pub nodes: [usize; 2],
+    /// Physical tag from the profile, shown beside the id.
+    pub tag: Option<String>,
+    /// Length between node centres.
+    pub length_m: f64,
+}
+
+/// One edge of a hull face.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FaceEdge {
+    /// End nodes, in the face's counter-clockwise order.
+    pub nodes: [usize; 2],
+    /// The member along this edge, if any (none: a gap between rod ends).
+    pub member: Option<usize>,
+}
+
+/// A face of the cage hull, the thing the vehicle rests on.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Face {
+    /// Stable id.
+    pub id: String,
+    /// Node indices, counter-clockwise seen from outside.
+    pub nodes: Vec<usize>,
+    /// Edges in order.
+    pub edges: Vec<FaceEdge>,
+    /// Unit outward normal, body frame.
+    pub normal_body: Vector3<f64>,
+    /// Centroid of the vertices, body frame.
+    pub centroid_body: Vector3<f64>,
+    /// Number of edges that are strings.
+    pub string_edges: usize,
+    /// Whether the centre of mass projects inside the face.
+    pub stable: bool,
+    /// Smallest distance from the projected centre of mass to an edge
+    /// (negative when it projects outside): the static stability margin.
+    pub margin_m: f64,
+    /// Angle of the normal from straight down when the vehicle sits upright.
+    pub tilt_deg: f64,
+}
+
+/// The cage with everything derived from its geometry.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Cage {
+    /// Nodes in id order.
+    pub nodes: Vec<Node>,
+    /// Rods then strings, each in id order.
+    pub members: Vec<Member>,
+    /// Faces in id order.
+    pub faces: Vec<Face>,
+    /// Cage -> body rotation.
+    pub mount: Rotation3<f64>,
+    /// Centre of mass, body frame.
+    pub com_body: Vector3<f64>,
+    /// Vehicle mass.
+    pub mass_kg: f64,
+    /// Lumped mass at each node (rod mass at its ends plus payload share).
+    pub node_mass_kg: Vec<f64>,
+}
+
+/// Node positions of the six-strut icosahedral tensegrity (REFERENCES.md):
+/// (+-s/2, 0, +-L/2), (+-L/2, +-s/2, 0), (0, +-L/2, +-s/2). Rods join the
+/// pairs (2k, 2k+1).
+pub fn icosa6_positions(rod_length_m: f64, spacing_m: f64) -> [[f64; 3]; 12] {
+    let (h, s) = (rod_length_m / 2.0, spacing_m / 2.0);
+    [
+        [s, 0.0, h],
+        [s, 0.0, -h],
+        [-s, 0.0, h],
+        [-s, 0.0, -h],
+        [h, s, 0.0],
+        [-h, s, 0.0],
+        [h, -s, 0.0],
+        [-h, -s, 0.0],
+        [0.0, h, s],
+        [0.0, -h, s],
+        [0.0, h, -s],
+        [0.0, -h, -s],
+    ]
+}
+
+/// Short hull edges of the six-strut cage that carry no member: between the
+/// same ends of two parallel rods (index pairs into [`icosa6_positions`]).
+const ICOSA6_GAPS: [[usize; 2]; 6] = [[0, 2], [1, 3], [4, 6], [5, 7], [8, 10], [9, 11]];
+
+fn azimuth_deg(v: &Vector3<f64>) -> f64 {
+    if v.x.hypot(v.y) < 1e-9 * v.norm().max(1e-300) {
+        return 0.0;
+    }
+    v.y.atan2(v.x).to_degrees().rem_euclid(360.0)
+}
+
+/// Round to a grid so near-ties sort the same way on every machine.
+fn quantise(x: f64, step: f64) -> i64 {
+    (x / step).round() as i64
+}
+
+impl Cage {
+    /// Build the cage of a validated profile.
+    pub fn from_profile(profile: &Profile) -> Result<Cage, CageError> {
+        let [r, p, y] = profile.mount_rpy_deg;
+        let mount = rotation_from_rpy_deg(r, p, y);
+        // Positions (cage frame), ids, and member pairs as indices.
+        let (mut pos, ids, mut rods, mut strings, tags): (
+            Vec<Vector3<f64>>,
+            Vec<String>,
+            Vec<[usize; 2]>,
+            Vec<[usize; 2]>,
+            Vec<Option<String>>,
+        );
+        match &profile.cage {
+            CageShape::Icosa6 {
+                rod_length_m,
+                rod_spacing_m,
+            } => {
+                pos = icosa6_positions(*rod_length_m, *rod_spacing_m)
+                    .iter()
+                    .map(|q| Vector3::from(*q))
+                    .collect();
+                rods = (0..6).map(|k| [2 * k, 2 * k + 1]).collect();
+                let pts: Vec<[f64; 3]> = pos.iter().map(|v| [v.x, v.y, v.z]).collect();
+                let hull = Hull::new(&pts)?;
+                strings = Vec::new();
+                for f in &hull.faces {
+                    for i in 0..f.vertices.len() {
+                        let (a, b) = (f.vertices[i], f.vertices[(i + 1) % f.vertices.len()]);
+                        let e = [a.min(b), a.max(b)];
+                        if a < b && !ICOSA6_GAPS.contains(&e) && !rods.contains(&e) {
+                            strings.push(e);
+                        }
+                    }
+                }
+                tags = vec![None; rods.len() + strings.len()];
+                // Renumber nodes by the documented rule.
+                let size = rod_length_m.max(1e-9);
+                let mut order: Vec<usize> = (0..pos.len()).collect();
+                order.sort_by_key(|&i| {
+                    let b = mount * pos[i];
+                    (quantise(b.z, 1e-6 * size), quantise(azimuth_deg(&b), 1e-6))
+                });
+                let mut new_index = vec![0; pos.len()];
+                for (new, &old) in order.iter().enumerate() {
+                    new_index[old] = new;
+                }
+                pos = order.iter().map(|&i| pos[i]).collect();
+                ids = (1..=pos.len()).map(|i| format!("N{i}")).collect();
+                for m in rods.iter_mut().chain(strings.iter_mut()) {
+                    *m = [new_index[m[0]], new_index[m[1]]];
+                }
+            }
+            CageShape::Explicit {
+                nodes,
+                rods: r,
+                strings: s,
+            } => {
+                pos = nodes.iter().map(|n| Vector3::from(n.pos_m)).collect();
+                ids = nodes.iter().map(|n| n.id.clone()).collect();
+                rods = r.iter().map(|m| m.nodes).collect();
+                strings = s.iter().map(|m| m.nodes).collect();
+                tags = r.iter().chain(s.iter()).map(|m| m.tag.clone()).collect();
+            }
+        }
+        let (rod_tags, string_tags) = tags.split_at(rods.len());
+        let mut members = Vec::new();
+        for (kind, list, tags, prefix) in [
+            (MemberKind::Rod, &rods, rod_tags, "R"),
+            (MemberKind::String, &strings, string_tags, "S"),
+        ] {
+            let mut sorted: Vec<([usize; 2], Option<String>)> = list
+                .iter()
+                .zip(tags)
+                .map(|(m, t)| ([m[0].min(m[1]), m[0].max(m[1])], t.clone()))
+                .collect();
+            sorted.sort_by_key(|(m, _)| *m);
+            for (k, (m, tag)) in sorted.into_iter().enumerate() {
+                members.push(Member {
+                    id: format!("{prefix}{}", k + 1),
+                    kind,
+                    nodes: m,
+                    tag,
+                    length_m: (pos[m[0]] - pos[m[1]]).norm(),
+                });
+            }
+        }
+
+        let nodes: Vec<Node> = pos
+            .iter()
+            .zip(&ids)
+            .map(|(p, id)| Node {
+                id: id.clone(),
+                pos_cage: *p,
+                pos_body: mount * p,
+            })
+            .collect();
+        let com_body = mount * Vector3::from(profile.vehicle.com_m);
+
+        let pts: Vec<[f64; 3]> = nodes
+            .iter()
+            .map(|n| [n.pos_body.x, n.pos_body.y, n.pos_body.z])
+            .collect();
+        let hull = Hull::new(&pts)?;
+        let size = pts
+            .iter()
+            .flat_map(|p| p.iter().map(|x| x.abs()))
+            .fold(0.0_f64, f64::max);
+        let member_on = |a: usize, b: usize| {
+            let e = [a.min(b), a.max(b)];
+            members.iter().position(|m| m.nodes == e)
+        };
+        let mut faces: Vec<Face> = hull
+            .faces
+            .iter()
+            .map(|hf| {
+                let k = hf.vertices.len();
+                let edges: Vec<FaceEdge> = (0..k)
+                    .map(|i| {
+                        let (a, b) = (hf.vertices[i], hf.vertices[(i + 1) % k]);
+                        FaceEdge {
+                            nodes: [a, b],
+                            member: member_on(a, b),
+                        }
+                    })
+                    .collect();
+                let string_edges = edges
+                    .iter()
+                    .filter(|e| {
+                        e.member
+                            .is_some_and(|m| members[m].kind == MemberKind::String)
+                    })
+                    .count();
+                let margin_m = edges
+                    .iter()
+                    .map(|e| {
+                        let (a, b) = (nodes[e.nodes[0]].pos_body, nodes[e.nodes[1]].pos_body);
+                        let along = b - a;
+                        along.cross(&(com_body - a)).dot(&hf.normal) / along.norm()
+                    })
+                    .fold(f64::INFINITY, f64::min);
+                let centroid_body = hf
+                    .vertices
+                    .iter()
+                    .map(|&v| nodes[v].pos_body)
+                    .sum::<Vector3<f64>>()
+                    / k as f64;
+                Face {
+                    id: String::new(),
+                    nodes: hf.vertices.clone(),
+                    edges,
+                    normal_body: hf.normal,
+                    centroid_body,
+                    string_edges,
+                    stable: margin_m > 1e-9 * size.max(1e-9),
+                    margin_m,
+                    tilt_deg: angle_between_deg(&hf.normal, &Vector3::z()),
+                }
+            })
+            .collect();
+        faces.sort_by_key(|f| {
+            (
+                quantise(f.tilt_deg, 1e-6),
+                quantise(azimuth_deg(&f.normal_body), 1e-6),
+                f.nodes.iter().min().copied().unwrap_or(0),
+            )
+        });
+        for (i, f) in faces.iter_mut().enumerate() {
+            f.id = format!("F{}", i + 1);
+            // Start each polygon at its lowest node index, keeping orientation,
+            // so the listing is a function of the geometry alone.
+            if let Some(start) = (0..f.nodes.len()).min_by_key(|&i| f.nodes[i]) {
+                f.nodes.rotate_left(start);
+                f.edges.rotate_left(start);
+            }
+        }
+
+        let mut cage = Cage {
+            nodes,
+            members,
+            faces,
+            mount,
+            com_body,
+            mass_kg: profile.vehicle.mass_kg,
+            node_mass_kg: Vec::new(),
+        };
+        cage.node_mass_kg = cage.lumped_masses(profile)?;
+        Ok(cage)
+    }
+
+    /// Rod mass split to the rod ends; the rest of the vehicle mass spread
+    /// evenly over the payload nodes (all nodes when none are named).
+    fn lumped_masses(&self, profile: &Profile) -> Result<Vec<f64>, CageError> {
+        let mut m = vec![0.0; self.nodes.len()];
+        let mut rods_kg = 0.0;
+        for mem in self.members.iter().filter(|m| m.kind == MemberKind::Rod) {
+            let mass = profile.rod_mass_kg(mem.length_m);
+            rods_kg += mass;
+            m[mem.nodes[0]] += mass / 2.0;
+            m[mem.nodes[1]] += mass / 2.0;
+        }
+        let rest = profile.vehicle.mass_kg - rods_kg;
+        if rest < 0.0 {
+            return Err(CageError::RodsTooHeavy {
+                rods_kg,
+                mass_kg: profile.vehicle.mass_kg,
+            });
+        }
+        let carriers: Vec<usize> = if profile.payload_nodes.is_empty() {
+            (0..self.nodes.len()).collect()
+        } else {
+            profile
+                .payload_nodes
+                .iter()
+                .filter_map(|id| self.node_index(id))
+                .collect()
+        };
+        for &i in &carriers {
+            m[i] += rest / carriers.len() as f64;
+        }
+        Ok(m)
+    }
+
+    /// Index of a node id.
+    pub fn node_index(&self, id: &str) -> Option<usize> {
+        self.nodes.iter().position(|n| n.id == id)
+    }
+
+    /// Index of a member id.
+    pub fn member_index(&self, id: &str) -> Option<usize> {
+        self.members.iter().position(|m| m.id == id)
+    }
+
+    /// Index of a face id.
+    pub fn face_index(&self, id: &str) -> Option<usize> {
+        self.faces.iter().position(|f| f.id == id)
+    }
+
+    /// Number of rods.
+    pub fn rod_count(&self) -> usize {
+        self.members
+            .iter()
+            .filter(|m| m.kind == MemberKind::Rod)
+            .count()
+    }
+
+    /// Faces the vehicle may take off from, by index.
+    pub fn takeoff_faces(&self, rule: &TakeoffFaces) -> Result<Vec<usize>, CageError> {
+        match rule {
+            TakeoffFaces::Auto { max_tilt_deg } => Ok(self
+                .faces
+                .iter()
+                .enumerate()
+                .filter(|(_, f)| f.stable && f.tilt_deg <= max_tilt_deg + 1e-9)
+                .map(|(i, _)| i)
+                .collect()),
+            TakeoffFaces::List(ids) => ids
+                .iter()
+                .map(|id| {
+                    self.face_index(id)
+                        .ok_or_else(|| CageError::UnknownFace(id.clone(), self.faces.len()))
+                })
+                .collect(),
+        }
+    }
+
+    /// A length scale for tolerances: the largest node distance from the origin.
+    pub fn size_m(&self) -> f64 {
+        self.nodes
+            .iter()
+            .map(|n| n.pos_body.norm())
+            .fold(0.0, f64::max)
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    fn demo() -> Cage {
+        Cage::from_profile(&Profile::demo().unwrap()).unwrap()
+    }
+
+    #[test]
+    fn icosa6_counts_match_references() {
+        let c = demo();
+        assert_eq!(c.nodes.len(), 12);
+        assert_eq!(c.rod_count(), 6);
+        assert_eq!(c.members.len(), 30);
+        assert_eq!(c.faces.len(), 20);
+        // REFERENCES.md (Pellegrino & Calladine 1986; Tibert & Pellegrino 2003):
+        // 8 faces bounded by three strings, 12 by two strings and a rod gap.
+        let three = c.faces.iter().filter(|f| f.string_edges == 3).count();
+        let two = c.faces.iter().filter(|f| f.string_edges == 2).count();
+        assert_eq!((three, two), (8, 12));
+    }
+
+    #[test]
+    fn icosa6_string_length_is_sqrt6_over_4() {
+        // REFERENCES.md: at s = L/2, string length sqrt(6)/4 L (Tibert &
+        // Pellegrino 2003; Burkhardt 2008, 2.3).
+        let p = Profile::demo().unwrap();
+        let CageShape::Icosa6 { rod_length_m, .. } = p.cage else {
+            panic!("demo is parametric")
+        };
+        let c = demo();
+        for m in c.members.iter().filter(|m| m.kind == MemberKind::String) {
+            assert_relative_eq!(
+                m.length_m,
+                6f64.sqrt() / 4.0 * rod_length_m,
+                epsilon = 1e-12
+            );
+        }
+    }
+
+    #[test]
+    fn ids_follow_the_documented_rule() {
+        let c = demo();
+        for w in c.faces.windows(2) {
+            assert!(w[0].tilt_deg <= w[1].tilt_deg + 1e-6);
+        }
+        for w in c.nodes.windows(2) {
+            assert!(w[0].pos_body.z <= w[1].pos_body.z + 1e-6);
+        }
+        assert_eq!(c.faces[0].id, "F1");
+        assert!(c.faces[0].tilt_deg < 1e-6, "demo mount puts a face level");
+    }
+}

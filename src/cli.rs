@@ -1,0 +1,116 @@
+//! The command line: what the user typed (clap structs), turned into ready
+//! objects (a loaded profile, an opened link) before a command runs.
+//! Errors become a message on stderr and an exit code: 2 for bad usage or
+//! bad input, 1 for a runtime failure.
+
+use crate::cage::Cage;
+use crate::profile::Profile;
+use anyhow::Context;
+use clap::{Parser, Subcommand};
+use std::path::{Path, PathBuf};
+use std::process::ExitCode;
+
+mod cage_cmd;
+mod profile_cmd;
+
+/// Bad input or usage: the command exits with code 2.
+#[derive(Debug, thiserror::Error)]
+#[error("{0}")]
+pub struct BadInput(pub String);
+
+/// Wrap a message as bad input (exit code 2).
+pub fn bad_input(msg: impl Into<String>) -> anyhow::Error {
+    anyhow::Error::new(BadInput(msg.into()))
+}
+
+/// Field companion for vehicles in a protective tensegrity or polyhedral cage.
+#[derive(Debug, Parser)]
+#[command(name = "cagehand", version, about, long_about = None)]
+pub struct Cli {
+    #[command(subcommand)]
+    command: Option<Command>,
+}
+
+#[derive(Debug, Subcommand)]
+enum Command {
+    /// Cage geometry, faces, members and statics report.
+    Cage(cage_cmd::Args),
+    /// Profile tools.
+    Profile(profile_cmd::Args),
+}
+
+/// The profile a command works on: a file, or the built-in demo.
+#[derive(Debug, Clone, clap::Args)]
+pub struct ProfileArg {
+    /// Vehicle profile (TOML); the built-in demo profile when omitted.
+    #[arg(long, value_name = "FILE")]
+    pub profile: Option<PathBuf>,
+}
+
+/// A validated profile and the cage built from it.
+pub struct Loaded {
+    /// The profile.
+    pub profile: Profile,
+    /// Its cage.
+    pub cage: Cage,
+}
+
+impl ProfileArg {
+    /// Load and validate the profile, and build its cage.
+    pub fn load(&self) -> anyhow::Result<Loaded> {
+        load_profile(self.profile.as_deref())
+    }
+}
+
+/// Load a profile file (or the demo) and build its cage; every failure is bad input.
+pub fn load_profile(path: Option<&Path>) -> anyhow::Result<Loaded> {
+    let profile = match path {
+        None => Profile::demo().map_err(|e| bad_input(e.to_string()))?,
+        Some(p) => {
+            let text = std::fs::read_to_string(p)
+                .with_context(|| format!("cannot read profile {}", p.display()))
+                .map_err(|e| bad_input(format!("{e:#}")))?;
+            Profile::parse(&text, &p.display().to_string()).map_err(|e| bad_input(e.to_string()))?
+        }
+    };
+    let cage =
+        Cage::from_profile(&profile).map_err(|e| bad_input(format!("{}: {e}", profile.source)))?;
+    Ok(Loaded { profile, cage })
+}
+
+/// Print a value as pretty JSON on stdout.
+pub fn print_json(value: &impl serde::Serialize) -> anyhow::Result<()> {
+    println!("{}", serde_json::to_string_pretty(value)?);
+    Ok(())
+}
+
+/// Parse arguments, run the command, and map errors to exit codes.
+pub fn main() -> ExitCode {
+    let cli = match Cli::try_parse() {
+        Ok(c) => c,
+        Err(e) => {
+            let code = if e.use_stderr() { 2 } else { 0 };
+            let _ = e.print();
+            return ExitCode::from(code);
+        }
+    };
+    match run(cli) {
+        Ok(code) => code,
+        Err(e) => {
+            eprintln!("cagehand: {e:#}");
+            if e.downcast_ref::<BadInput>().is_some() {
+                ExitCode::from(2)
+            } else {
+                ExitCode::from(1)
+            }
+        }
+    }
+}
+
+fn run(cli: Cli) -> anyhow::Result<ExitCode> {
+    match cli.command {
+        None => cage_cmd::run(&cage_cmd::Args::demo()),
+        Some(Command::Cage(a)) => cage_cmd::run(&a),
+        Some(Command::Profile(a)) => profile_cmd::run(&a),
+    }
+}

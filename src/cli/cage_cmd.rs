@@ -1,0 +1,176 @@
+//! `cagehand cage`: the cage's geometry, faces and members, as a readable
+//! report or as JSON (a contract: scripts parse it).
+
+use super::{ProfileArg, print_json};
+use crate::cage::{Cage, MemberKind};
+use crate::profile::Profile;
+use serde::Serialize;
+use std::process::ExitCode;
+
+/// Report on the cage of a profile.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    #[command(flatten)]
+    profile: ProfileArg,
+    /// Print JSON instead of the readable report.
+    #[arg(long)]
+    json: bool,
+}
+
+impl Args {
+    /// The report on the built-in demo profile.
+    pub fn demo() -> Args {
+        Args {
+            profile: ProfileArg { profile: None },
+            json: false,
+        }
+    }
+}
+
+#[derive(Debug, Serialize)]
+struct VehicleJson<'a> {
+    id: &'a str,
+    name: &'a str,
+    mass_kg: f64,
+}
+
+#[derive(Debug, Serialize)]
+struct NodeJson<'a> {
+    id: &'a str,
+    pos_m: [f64; 3],
+}
+
+#[derive(Debug, Serialize)]
+struct MemberJson<'a> {
+    id: &'a str,
+    kind: MemberKind,
+    nodes: [&'a str; 2],
+    tag: Option<&'a str>,
+    length_m: f64,
+    capacity_n: f64,
+}
+
+#[derive(Debug, Serialize)]
+struct FaceJson<'a> {
+    id: &'a str,
+    nodes: Vec<&'a str>,
+    normal: [f64; 3],
+    strings: usize,
+    stable: bool,
+    margin_m: f64,
+    tilt_deg: f64,
+}
+
+/// The cage report: what `cage --json` prints.
+#[derive(Debug, Serialize)]
+struct Report<'a> {
+    vehicle: VehicleJson<'a>,
+    nodes: Vec<NodeJson<'a>>,
+    members: Vec<MemberJson<'a>>,
+    faces: Vec<FaceJson<'a>>,
+}
+
+/// Capacity of a member: rods the smaller of Euler buckling and crushing,
+/// strings the breaking load times termination efficiency.
+pub fn capacity_n(profile: &Profile, kind: MemberKind, length_m: f64) -> f64 {
+    match kind {
+        MemberKind::Rod => profile.rod.capacity_n(length_m),
+        MemberKind::String => profile.string.capacity_n(),
+    }
+}
+
+fn report<'a>(p: &'a Profile, c: &'a Cage) -> Report<'a> {
+    let nid = |i: usize| c.nodes[i].id.as_str();
+    Report {
+        vehicle: VehicleJson {
+            id: &p.vehicle.id,
+            name: &p.vehicle.name,
+            mass_kg: p.vehicle.mass_kg,
+        },
+        nodes: c
+            .nodes
+            .iter()
+            .map(|n| NodeJson {
+                id: &n.id,
+                pos_m: n.pos_cage.into(),
+            })
+            .collect(),
+        members: c
+            .members
+            .iter()
+            .map(|m| MemberJson {
+                id: &m.id,
+                kind: m.kind,
+                nodes: [nid(m.nodes[0]), nid(m.nodes[1])],
+                tag: m.tag.as_deref(),
+                length_m: m.length_m,
+                capacity_n: capacity_n(p, m.kind, m.length_m),
+            })
+            .collect(),
+        faces: c
+            .faces
+            .iter()
+            .map(|f| FaceJson {
+                id: &f.id,
+                nodes: f.nodes.iter().map(|&i| nid(i)).collect(),
+                normal: f.normal_body.into(),
+                strings: f.string_edges,
+                stable: f.stable,
+                margin_m: f.margin_m,
+                tilt_deg: f.tilt_deg,
+            })
+            .collect(),
+    }
+}
+
+/// Run the cage command.
+pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
+    let l = args.profile.load()?;
+    let r = report(&l.profile, &l.cage);
+    if args.json {
+        print_json(&r)?;
+        return Ok(ExitCode::SUCCESS);
+    }
+    println!(
+        "{} ({}), {:.3} kg",
+        r.vehicle.id, r.vehicle.name, r.vehicle.mass_kg
+    );
+    println!(
+        "{} nodes, {} rods, {} strings, {} faces",
+        r.nodes.len(),
+        l.cage.rod_count(),
+        r.members.len() - l.cage.rod_count(),
+        r.faces.len()
+    );
+    println!();
+    println!("face  nodes               strings  rest  tilt(deg)  margin(mm)");
+    for f in &r.faces {
+        println!(
+            "{:<5} {:<19} {:>7}  {:<4}  {:>9.1}  {:>10.1}",
+            f.id,
+            f.nodes.join(" "),
+            f.strings,
+            if f.stable { "yes" } else { "no" },
+            f.tilt_deg,
+            f.margin_m * 1e3
+        );
+    }
+    println!();
+    println!("member  kind    nodes     length(mm)  capacity(N)  tag");
+    for m in &r.members {
+        let kind = match m.kind {
+            MemberKind::Rod => "rod",
+            MemberKind::String => "string",
+        };
+        println!(
+            "{:<7} {:<7} {:<9} {:>10.1}  {:>11.1}  {}",
+            m.id,
+            kind,
+            m.nodes.join("-"),
+            m.length_m * 1e3,
+            m.capacity_n,
+            m.tag.unwrap_or("")
+        );
+    }
+    Ok(ExitCode::SUCCESS)
+}

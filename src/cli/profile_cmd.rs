@@ -1,0 +1,72 @@
+//! `cagehand profile check FILE`: validate a profile and summarise it.
+
+use super::load_profile;
+use crate::cage::MemberKind;
+use std::path::PathBuf;
+use std::process::ExitCode;
+
+/// Profile tools.
+#[derive(Debug, clap::Args)]
+pub struct Args {
+    #[command(subcommand)]
+    action: Action,
+}
+
+#[derive(Debug, clap::Subcommand)]
+enum Action {
+    /// Validate a profile and print a summary.
+    Check {
+        /// Profile file (TOML).
+        file: PathBuf,
+        /// Print the summary as JSON.
+        #[arg(long)]
+        json: bool,
+    },
+}
+
+/// Run the profile command.
+pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
+    match &args.action {
+        Action::Check { file, json } => {
+            let l = load_profile(Some(file))?;
+            let (p, c) = (&l.profile, &l.cage);
+            let strings = c
+                .members
+                .iter()
+                .filter(|m| m.kind == MemberKind::String)
+                .count();
+            let stable = c.faces.iter().filter(|f| f.stable).count();
+            if *json {
+                super::print_json(&serde_json::json!({
+                    "ok": true,
+                    "file": p.source,
+                    "vehicle": {"id": p.vehicle.id, "name": p.vehicle.name, "mass_kg": p.vehicle.mass_kg},
+                    "nodes": c.nodes.len(),
+                    "rods": c.rod_count(),
+                    "strings": strings,
+                    "faces": c.faces.len(),
+                    "stable_faces": stable,
+                    "rotors": p.rotors.len(),
+                    "preflight_items": p.preflight.items.len(),
+                }))?;
+            } else {
+                println!("{}: ok", p.source);
+                println!(
+                    "  vehicle   {} ({}), {:.3} kg",
+                    p.vehicle.id, p.vehicle.name, p.vehicle.mass_kg
+                );
+                println!(
+                    "  cage      {} nodes, {} rods, {} strings, {} faces ({} the vehicle can rest on)",
+                    c.nodes.len(),
+                    c.rod_count(),
+                    strings,
+                    c.faces.len(),
+                    stable
+                );
+                println!("  rotors    {}", p.rotors.len());
+                println!("  preflight {} items", p.preflight.items.len());
+            }
+            Ok(ExitCode::SUCCESS)
+        }
+    }
+}

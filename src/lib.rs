@@ -1,0 +1,12 @@
+//! cagehand: a field companion for vehicles inside a tensegrity or convex
+//! polyhedral protective cage. The library is the core: no terminal, no
+//! sockets, no files opened behind the caller's back (`link` and `tui` sit
+//! at the edge and say so).
+
+#![deny(missing_docs)]
+
+pub mod attitude;
+pub mod cage;
+pub mod cli;
+pub mod hull;
+pub mod profile;

@@ -10,3 +10,4 @@ pub mod cage;
 pub mod cli;
 pub mod hull;
 pub mod profile;
+pub mod sample;

@@ -80,7 +80,10 @@ pub fn load_profile(path: Option<&Path>) -> anyhow::Result<Loaded> {
 
 /// Print a value as pretty JSON on stdout.
 pub fn print_json(value: &impl serde::Serialize) -> anyhow::Result<()> {
-    println!("{}", serde_json::to_string_pretty(value)?);
+    use std::io::Write;
+    let mut out = std::io::stdout().lock();
+    serde_json::to_writer_pretty(&mut out, value)?;
+    writeln!(out)?;
     Ok(())
 }
 
@@ -96,6 +99,7 @@ pub fn main() -> ExitCode {
     };
     match run(cli) {
         Ok(code) => code,
+        Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
             eprintln!("cagehand: {e:#}");
             if e.downcast_ref::<BadInput>().is_some() {
@@ -105,6 +109,14 @@ pub fn main() -> ExitCode {
             }
         }
     }
+}
+
+/// A reader that closed our stdout early (`| head`) is not a failure.
+fn is_broken_pipe(e: &anyhow::Error) -> bool {
+    e.chain().any(|c| {
+        c.downcast_ref::<std::io::Error>()
+            .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe)
+    })
 }
 
 fn run(cli: Cli) -> anyhow::Result<ExitCode> {

@@ -490,20 +490,31 @@ pub fn line_col(text: &str, offset: usize) -> (usize, usize) {
     (line, column)
 }
 
-/// The key written before `=` on the line of a span, or the table header.
+/// The dotted key of a span: the enclosing table header (if any) joined
+/// with the key written before `=` on the span's line.
 fn key_at(text: &str, span: &Range<usize>) -> Option<String> {
     let start = span.start.min(text.len());
     let line_start = text[..start].rfind('\n').map_or(0, |p| p + 1);
     let line_end = text[start..].find('\n').map_or(text.len(), |p| start + p);
     let line = text.get(line_start..line_end)?.trim();
-    if let Some((key, _)) = line.split_once('=') {
-        let key = key.trim();
-        if !key.is_empty() && !key.starts_with('#') {
-            return Some(key.to_string());
-        }
+    let header = |l: &str| {
+        let l = l.split('#').next().unwrap_or("").trim();
+        (l.starts_with('[') && l.ends_with(']'))
+            .then(|| l.trim_matches(|c| c == '[' || c == ']').trim().to_string())
+    };
+    if let Some(h) = header(line) {
+        return (!h.is_empty()).then_some(h);
     }
-    let header = line.trim_matches(|c| c == '[' || c == ']').trim();
-    (!header.is_empty()).then(|| header.to_string())
+    let (key, _) = line.split_once('=')?;
+    let key = key.trim();
+    if key.is_empty() || key.starts_with('#') {
+        return None;
+    }
+    let table = text[..line_start].lines().rev().find_map(header);
+    Some(match table {
+        Some(t) if !t.is_empty() => format!("{t}.{key}"),
+        _ => key.to_string(),
+    })
 }
 
 #[cfg(test)]
@@ -544,6 +555,6 @@ mod tests {
     #[test]
     fn key_at_finds_assignment() {
         let t = "[x]\nmass_kg = \"a\"\n";
-        assert_eq!(key_at(t, &(14..15)).as_deref(), Some("mass_kg"));
+        assert_eq!(key_at(t, &(14..15)).as_deref(), Some("x.mass_kg"));
     }
 }

@@ -5,6 +5,7 @@ use super::{ProfileArg, print_json};
 use crate::cage::{Cage, MemberKind};
 use crate::profile::Profile;
 use serde::Serialize;
+use std::io::Write;
 use std::process::ExitCode;
 
 /// Report on the cage of a profile.
@@ -125,27 +126,34 @@ fn report<'a>(p: &'a Profile, c: &'a Cage) -> Report<'a> {
 
 /// Run the cage command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
+    let mut out = std::io::stdout().lock();
     let l = args.profile.load()?;
     let r = report(&l.profile, &l.cage);
     if args.json {
         print_json(&r)?;
         return Ok(ExitCode::SUCCESS);
     }
-    println!(
+    writeln!(
+        out,
         "{} ({}), {:.3} kg",
         r.vehicle.id, r.vehicle.name, r.vehicle.mass_kg
-    );
-    println!(
+    )?;
+    writeln!(
+        out,
         "{} nodes, {} rods, {} strings, {} faces",
         r.nodes.len(),
         l.cage.rod_count(),
         r.members.len() - l.cage.rod_count(),
         r.faces.len()
-    );
-    println!();
-    println!("face  nodes               strings  rest  tilt(deg)  margin(mm)");
+    )?;
+    writeln!(out)?;
+    writeln!(
+        out,
+        "face  nodes               strings  rest  tilt(deg)  margin(mm)"
+    )?;
     for f in &r.faces {
-        println!(
+        writeln!(
+            out,
             "{:<5} {:<19} {:>7}  {:<4}  {:>9.1}  {:>10.1}",
             f.id,
             f.nodes.join(" "),
@@ -153,16 +161,20 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             if f.stable { "yes" } else { "no" },
             f.tilt_deg,
             f.margin_m * 1e3
-        );
+        )?;
     }
-    println!();
-    println!("member  kind    nodes     length(mm)  capacity(N)  tag");
+    writeln!(out)?;
+    writeln!(
+        out,
+        "member  kind    nodes     length(mm)  capacity(N)  tag"
+    )?;
     for m in &r.members {
         let kind = match m.kind {
             MemberKind::Rod => "rod",
             MemberKind::String => "string",
         };
-        println!(
+        writeln!(
+            out,
             "{:<7} {:<7} {:<9} {:>10.1}  {:>11.1}  {}",
             m.id,
             kind,
@@ -170,7 +182,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             m.length_m * 1e3,
             m.capacity_n,
             m.tag.unwrap_or("")
-        );
+        )?;
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -2,6 +2,7 @@
 
 use super::load_profile;
 use crate::cage::MemberKind;
+use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
 
@@ -26,6 +27,7 @@ enum Action {
 
 /// Run the profile command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
+    let mut out = std::io::stdout().lock();
     match &args.action {
         Action::Check { file, json } => {
             let l = load_profile(Some(file))?;
@@ -50,21 +52,23 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     "preflight_items": p.preflight.items.len(),
                 }))?;
             } else {
-                println!("{}: ok", p.source);
-                println!(
+                writeln!(out, "{}: ok", p.source)?;
+                writeln!(
+                    out,
                     "  vehicle   {} ({}), {:.3} kg",
                     p.vehicle.id, p.vehicle.name, p.vehicle.mass_kg
-                );
-                println!(
+                )?;
+                writeln!(
+                    out,
                     "  cage      {} nodes, {} rods, {} strings, {} faces ({} the vehicle can rest on)",
                     c.nodes.len(),
                     c.rod_count(),
                     strings,
                     c.faces.len(),
                     stable
-                );
-                println!("  rotors    {}", p.rotors.len());
-                println!("  preflight {} items", p.preflight.items.len());
+                )?;
+                writeln!(out, "  rotors    {}", p.rotors.len())?;
+                writeln!(out, "  preflight {} items", p.preflight.items.len())?;
             }
             Ok(ExitCode::SUCCESS)
         }

@@ -166,71 +166,95 @@ fn quantise(x: f64, step: f64) -> i64 {
     (x / step).round() as i64
 }
 
+/// Node positions (cage frame) in id order, ids, and member end pairs.
+struct Layout {
+    pos: Vec<Vector3<f64>>,
+    ids: Vec<String>,
+    rods: Vec<[usize; 2]>,
+    strings: Vec<[usize; 2]>,
+    tags: Vec<Option<String>>,
+}
+
+fn layout(profile: &Profile, mount: &Rotation3<f64>) -> Result<Layout, CageError> {
+    let mut pos: Vec<Vector3<f64>>;
+    let ids: Vec<String>;
+    let mut rods: Vec<[usize; 2]>;
+    let mut strings: Vec<[usize; 2]>;
+    let tags: Vec<Option<String>>;
+    match &profile.cage {
+        CageShape::Icosa6 {
+            rod_length_m,
+            rod_spacing_m,
+        } => {
+            pos = icosa6_positions(*rod_length_m, *rod_spacing_m)
+                .iter()
+                .map(|q| Vector3::from(*q))
+                .collect();
+            rods = (0..6).map(|k| [2 * k, 2 * k + 1]).collect();
+            let pts: Vec<[f64; 3]> = pos.iter().map(|v| [v.x, v.y, v.z]).collect();
+            let hull = Hull::new(&pts)?;
+            strings = Vec::new();
+            for f in &hull.faces {
+                for i in 0..f.vertices.len() {
+                    let (a, b) = (f.vertices[i], f.vertices[(i + 1) % f.vertices.len()]);
+                    let e = [a.min(b), a.max(b)];
+                    if a < b && !ICOSA6_GAPS.contains(&e) && !rods.contains(&e) {
+                        strings.push(e);
+                    }
+                }
+            }
+            tags = vec![None; rods.len() + strings.len()];
+            // Renumber nodes by the documented rule.
+            let size = rod_length_m.max(1e-9);
+            let mut order: Vec<usize> = (0..pos.len()).collect();
+            order.sort_by_key(|&i| {
+                let b = *mount * pos[i];
+                (quantise(b.z, 1e-6 * size), quantise(azimuth_deg(&b), 1e-6))
+            });
+            let mut new_index = vec![0; pos.len()];
+            for (new, &old) in order.iter().enumerate() {
+                new_index[old] = new;
+            }
+            pos = order.iter().map(|&i| pos[i]).collect();
+            ids = (1..=pos.len()).map(|i| format!("N{i}")).collect();
+            for m in rods.iter_mut().chain(strings.iter_mut()) {
+                *m = [new_index[m[0]], new_index[m[1]]];
+            }
+        }
+        CageShape::Explicit {
+            nodes,
+            rods: r,
+            strings: s,
+        } => {
+            pos = nodes.iter().map(|n| Vector3::from(n.pos_m)).collect();
+            ids = nodes.iter().map(|n| n.id.clone()).collect();
+            rods = r.iter().map(|m| m.nodes).collect();
+            strings = s.iter().map(|m| m.nodes).collect();
+            tags = r.iter().chain(s.iter()).map(|m| m.tag.clone()).collect();
+        }
+    }
+    Ok(Layout {
+        pos,
+        ids,
+        rods,
+        strings,
+        tags,
+    })
+}
+
 impl Cage {
     /// Build the cage of a validated profile.
     pub fn from_profile(profile: &Profile) -> Result<Cage, CageError> {
         let [r, p, y] = profile.mount_rpy_deg;
         let mount = rotation_from_rpy_deg(r, p, y);
         // Positions (cage frame), ids, and member pairs as indices.
-        let (mut pos, ids, mut rods, mut strings, tags): (
-            Vec<Vector3<f64>>,
-            Vec<String>,
-            Vec<[usize; 2]>,
-            Vec<[usize; 2]>,
-            Vec<Option<String>>,
-        );
-        match &profile.cage {
-            CageShape::Icosa6 {
-                rod_length_m,
-                rod_spacing_m,
-            } => {
-                pos = icosa6_positions(*rod_length_m, *rod_spacing_m)
-                    .iter()
-                    .map(|q| Vector3::from(*q))
-                    .collect();
-                rods = (0..6).map(|k| [2 * k, 2 * k + 1]).collect();
-                let pts: Vec<[f64; 3]> = pos.iter().map(|v| [v.x, v.y, v.z]).collect();
-                let hull = Hull::new(&pts)?;
-                strings = Vec::new();
-                for f in &hull.faces {
-                    for i in 0..f.vertices.len() {
-                        let (a, b) = (f.vertices[i], f.vertices[(i + 1) % f.vertices.len()]);
-                        let e = [a.min(b), a.max(b)];
-                        if a < b && !ICOSA6_GAPS.contains(&e) && !rods.contains(&e) {
-                            strings.push(e);
-                        }
-                    }
-                }
-                tags = vec![None; rods.len() + strings.len()];
-                // Renumber nodes by the documented rule.
-                let size = rod_length_m.max(1e-9);
-                let mut order: Vec<usize> = (0..pos.len()).collect();
-                order.sort_by_key(|&i| {
-                    let b = mount * pos[i];
-                    (quantise(b.z, 1e-6 * size), quantise(azimuth_deg(&b), 1e-6))
-                });
-                let mut new_index = vec![0; pos.len()];
-                for (new, &old) in order.iter().enumerate() {
-                    new_index[old] = new;
-                }
-                pos = order.iter().map(|&i| pos[i]).collect();
-                ids = (1..=pos.len()).map(|i| format!("N{i}")).collect();
-                for m in rods.iter_mut().chain(strings.iter_mut()) {
-                    *m = [new_index[m[0]], new_index[m[1]]];
-                }
-            }
-            CageShape::Explicit {
-                nodes,
-                rods: r,
-                strings: s,
-            } => {
-                pos = nodes.iter().map(|n| Vector3::from(n.pos_m)).collect();
-                ids = nodes.iter().map(|n| n.id.clone()).collect();
-                rods = r.iter().map(|m| m.nodes).collect();
-                strings = s.iter().map(|m| m.nodes).collect();
-                tags = r.iter().chain(s.iter()).map(|m| m.tag.clone()).collect();
-            }
-        }
+        let Layout {
+            pos,
+            ids,
+            rods,
+            strings,
+            tags,
+        } = layout(profile, &mount)?;
         let (rod_tags, string_tags) = tags.split_at(rods.len());
         let mut members = Vec::new();
         for (kind, list, tags, prefix) in [

@@ -300,3 +300,14 @@ proptest! {
         }
     }
 }
+
+#[test]
+fn icosahedron_net_does_not_overlap() {
+    // No edge unfolding of the icosahedron overlaps (Horiyama & Shoji,
+    // CCCG 2011), so the breadth-first net from F1 must not either.
+    let p = icosahedron(0.3);
+    let c = build(&p, &shortest_edges(&p), [0.0, 0.0, 0.0], [0.0, 0.0, 0.0]);
+    let net = cagehand::net::Net::unfold(&c);
+    assert_eq!(net.faces.len(), 20);
+    assert!(!net.overlaps);
+}

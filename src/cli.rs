@@ -12,6 +12,7 @@ use std::process::ExitCode;
 
 mod cage_cmd;
 mod profile_cmd;
+mod tui_cmd;
 
 /// Bad input or usage: the command exits with code 2.
 #[derive(Debug, thiserror::Error)]
@@ -121,7 +122,7 @@ fn is_broken_pipe(e: &anyhow::Error) -> bool {
 
 fn run(cli: Cli) -> anyhow::Result<ExitCode> {
     match cli.command {
-        None => cage_cmd::run(&cage_cmd::Args::demo()),
+        None => tui_cmd::run(load_profile(None)?, "sim"),
         Some(Command::Cage(a)) => cage_cmd::run(&a),
         Some(Command::Profile(a)) => profile_cmd::run(&a),
     }

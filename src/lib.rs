@@ -12,3 +12,4 @@ pub mod hull;
 pub mod net;
 pub mod profile;
 pub mod sample;
+pub mod tui;

@@ -18,16 +18,6 @@ pub struct Args {
     json: bool,
 }
 
-impl Args {
-    /// The report on the built-in demo profile.
-    pub fn demo() -> Args {
-        Args {
-            profile: ProfileArg { profile: None },
-            json: false,
-        }
-    }
-}
-
 #[derive(Debug, Serialize)]
 struct VehicleJson<'a> {
     id: &'a str,

@@ -9,5 +9,7 @@ pub mod attitude;
 pub mod cage;
 pub mod cli;
 pub mod hull;
+pub mod impact;
 pub mod profile;
 pub mod sample;
+pub mod statics;

@@ -5,7 +5,7 @@
 use super::{Loaded, ProfileArg, bad_input};
 use crate::cage::MemberKind;
 use crate::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
-use crate::statics::StaticsError;
+use crate::statics::{StaticsError, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -138,7 +138,19 @@ pub fn analyse(l: &Loaded, r: &Resolved) -> anyhow::Result<ImpactAnalysis> {
         | StaticsError::UnknownSurface { .. }
         | StaticsError::NotPositive { .. }
         | StaticsError::LoadSize { .. } => bad_input(e.to_string()),
-        other => anyhow::Error::new(other).context("impact analysis failed"),
+        other => {
+            // Say plainly when the cage carries no prestress: that is the
+            // usual reason a tensegrity finds no equilibrium.
+            let why = self_stress(
+                &Structure::from_cage(&l.cage, &l.profile),
+                l.profile.string.pretension_n,
+            )
+            .ok()
+            .filter(|ss| !ss.prestress_ok)
+            .map(|ss| format!(" ({})", ss.message))
+            .unwrap_or_default();
+            anyhow::Error::new(other).context(format!("impact analysis failed{why}"))
+        }
     })
 }
 
@@ -162,6 +174,7 @@ struct Report<'a> {
     face_displacement_m: f64,
     slack_strings: Vec<&'a str>,
     iterations: usize,
+    prestress_ok: bool,
     members: Vec<MemberJson<'a>>,
     recorded: bool,
 }
@@ -188,6 +201,10 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     }
     let a = analyse(&l, &resolved)?;
     let cage = &l.cage;
+    let ss = self_stress(
+        &Structure::from_cage(cage, &l.profile),
+        l.profile.string.pretension_n,
+    )?;
     let report = Report {
         vehicle: &l.profile.vehicle.id,
         strike: &resolved.strike_id,
@@ -202,6 +219,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             .map(|&j| cage.members[j].id.as_str())
             .collect(),
         iterations: a.iterations,
+        prestress_ok: ss.prestress_ok,
         members: a
             .members
             .iter()
@@ -249,6 +267,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         a.residual_n,
         a.iterations
     )?;
+    if !ss.prestress_ok {
+        writeln!(out, "note: {}", ss.message)?;
+    }
     writeln!(out)?;
     let mut order: Vec<&MemberJson> = report.members.iter().collect();
     order.sort_by(|x, y| y.utilisation.total_cmp(&x.utilisation));

@@ -22,6 +22,8 @@ pub type LoadFn<'l> = dyn Fn(&[Vector3<f64>], f64, &mut [Vector3<f64>]) + 'l;
 
 /// Newton iterations allowed for one load step.
 const MAX_NEWTON: usize = 40;
+/// Full steps taken per load step when the line search finds no decrease.
+const MAX_FORCED: usize = 3;
 /// Smallest load step, as a fraction of the whole load change.
 const MIN_STEP: f64 = 1e-4;
 /// Residual accepted, as a fraction of the force scale (load and prestress).
@@ -264,6 +266,7 @@ impl<'a> NonlinearModel<'a> {
         let size = self.structure.size_m().max(1e-9);
         self.residual(pos, load, factor, &mut ws.force, &mut ws.f_buf, &mut ws.r);
         let mut rn = ws.r.norm();
+        let mut forced = 0;
         for it in 0..MAX_NEWTON {
             if rn <= tol {
                 return Ok((rn, it));
@@ -318,7 +321,18 @@ impl<'a> NonlinearModel<'a> {
                 alpha /= 2.0;
             }
             if !accepted {
-                return Err((rn, it + 1));
+                // The residual is not smooth where a string goes slack or
+                // taut, so no step along dx may lower it; take the full
+                // step once in a while so the slack set can change.
+                if forced >= MAX_FORCED {
+                    return Err((rn, it + 1));
+                }
+                forced += 1;
+                for (i, p) in pos.iter_mut().enumerate() {
+                    *p += dx.fixed_rows::<3>(3 * i);
+                }
+                self.residual(pos, load, factor, &mut ws.force, &mut ws.f_buf, &mut ws.r);
+                rn = ws.r.norm();
             }
         }
         if rn <= tol {

@@ -210,7 +210,18 @@ pub(crate) fn svd(
     m: DMatrix<f64>,
     what: &'static str,
 ) -> Result<SVD<f64, nalgebra::Dyn, nalgebra::Dyn>, StaticsError> {
-    SVD::try_new(m, true, true, f64::EPSILON, 10_000).ok_or(StaticsError::NoDecomposition { what })
+    svd_with(m, true, what)
+}
+
+/// Sorted SVD, with U only when asked for (it is needed to solve, not for
+/// the null space, and costs as much again on large cages).
+pub(crate) fn svd_with(
+    m: DMatrix<f64>,
+    compute_u: bool,
+    what: &'static str,
+) -> Result<SVD<f64, nalgebra::Dyn, nalgebra::Dyn>, StaticsError> {
+    SVD::try_new(m, compute_u, true, f64::EPSILON, 10_000)
+        .ok_or(StaticsError::NoDecomposition { what })
 }
 
 /// Orthonormal basis (columns) of the six rigid-body motions of the points:

@@ -49,7 +49,7 @@ pub fn linear_load_case(
     let mut total = vec![0.0; b];
     loop {
         let a = DMatrix::from_fn(3 * n, active.len(), |r, c| a_full[(r, active[c])]);
-        let d = Decomposed::new(&a)?;
+        let d = Decomposed::new(&a, true)?;
         let mut t = d.pseudo_solve(&f)?;
         let sn = &d.null;
         if sn.ncols() > 0 {

@@ -272,21 +272,16 @@ impl<'a> NonlinearModel<'a> {
                 return Ok((rn, it));
             }
             self.tangent(pos, &ws.force, &mut ws.k);
-            let k = std::mem::replace(&mut ws.k, DMatrix::zeros(0, 0));
-            let mut dx = match k.clone().lu().solve(&ws.r) {
+            let mut dx = match ws.k.clone().lu().solve(&ws.r) {
                 Some(dx) if dx.iter().all(|v| v.is_finite()) => dx,
-                _ => match super::svd(k.clone(), "tangent stiffness")
+                _ => match super::svd(ws.k.clone(), "tangent stiffness")
                     .ok()
                     .and_then(|s| s.solve(&ws.r, 1e-12).ok())
                 {
                     Some(dx) => dx,
-                    None => {
-                        ws.k = k;
-                        return Err((rn, it));
-                    }
+                    None => return Err((rn, it)),
                 },
             };
-            ws.k = k;
             let modes = rigid_modes(pos);
             remove_rigid(&modes, &mut dx);
             // Cap the step: no node moves more than a tenth of the cage size.

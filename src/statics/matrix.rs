@@ -86,6 +86,21 @@ impl Decomposed {
                 what: "equilibrium matrix",
             })
     }
+
+    /// Least-norm nodal displacements d (length `nodes3`) whose member
+    /// elongations A^T d best match `e`: d = (A^T)+ e.
+    pub(crate) fn compatible_displacements(
+        &self,
+        e: &DVector<f64>,
+        nodes3: usize,
+    ) -> Option<DVector<f64>> {
+        let (u, vt) = (self.svd.u.as_ref()?, self.svd.v_t.as_ref()?);
+        let mut y = vt * e;
+        for (yi, &sv) in y.iter_mut().zip(self.svd.singular_values.iter()) {
+            *yi = if sv > self.tol { *yi / sv } else { 0.0 };
+        }
+        Some((u * y).rows(0, nodes3).into_owned())
+    }
 }
 
 /// What the equilibrium matrix says about the cage, and the prestress.

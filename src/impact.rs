@@ -134,11 +134,9 @@ impl ContactLoad {
                     count: cage.nodes.len(),
                 })?;
                 let d = cage.com_body - node.pos_body;
-                let dir = if d.norm() > 0.0 {
-                    d / d.norm()
-                } else {
-                    -node.pos_body.normalize()
-                };
+                // The centre of mass is strictly inside the hull (the profile
+                // is refused otherwise), so d is not zero; guard all the same.
+                let dir = d.try_normalize(1e-12).unwrap_or_else(Vector3::z);
                 vec![(i, dir)]
             }
         };

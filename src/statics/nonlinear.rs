@@ -34,12 +34,13 @@ const TOLERANCE: f64 = 1e-10;
 const SLACK_STIFFNESS: f64 = 1e-6;
 
 /// Rest lengths for which the unloaded cage carries `prestress_n`:
-/// L0 = L / (1 + t0 / EA).
+/// L0 = L / (1 + t0 / EA). A compression beyond half of EA (no real member
+/// survives it) is capped there so the rest length stays finite.
 pub fn rest_lengths_m(s: &Structure, prestress_n: &[f64]) -> Vec<f64> {
     s.bars
         .iter()
         .zip(prestress_n)
-        .map(|(b, &t0)| b.length_m / (1.0 + t0 / b.ea_n))
+        .map(|(b, &t0)| b.length_m / (1.0 + t0 / b.ea_n).max(0.5))
         .collect()
 }
 
@@ -180,7 +181,9 @@ impl<'a> NonlinearModel<'a> {
         }
         let scale = (0..k.nrows()).map(|i| k[(i, i)].abs()).fold(0.0, f64::max);
         let modes = rigid_modes(pos);
-        *k += &modes * modes.transpose() * scale.max(1.0);
+        for phi in modes.column_iter() {
+            k.ger(scale.max(1.0), &phi, &phi, 1.0);
+        }
     }
 
     /// Follow the load from the state `start` to load factor `to`, in load

@@ -18,7 +18,7 @@ use crate::statics::{
     Equilibrium, NonlinearModel, StaticsError, Structure, centroid_weighted, self_stress,
 };
 use nalgebra::{Matrix3, Vector3};
-use serde::Serialize;
+use serde::{Deserialize, Serialize};
 
 /// Standard gravity, for accelerations given in g.
 pub const STANDARD_GRAVITY_M_S2: f64 = 9.80665;
@@ -27,7 +27,7 @@ pub const STANDARD_GRAVITY_M_S2: f64 = 9.80665;
 const PATH_STEPS: usize = 24;
 
 /// Where the cage was struck.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum Strike {
     /// A hull face, by index into `cage.faces`; the force is shared
@@ -39,7 +39,7 @@ pub enum Strike {
 }
 
 /// What is known about the impact.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum ImpactInput {
     /// Approach speed; the surface preset by name (the profile's default
@@ -65,7 +65,7 @@ pub enum ImpactInput {
 }
 
 /// How the peak force was estimated.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum ImpactMethod {
     /// F = m a from a measured peak acceleration.
@@ -77,7 +77,7 @@ pub enum ImpactMethod {
 }
 
 /// The force in one member and how much of its capacity it uses.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct MemberLoad {
     /// Member index into `cage.members`.
     pub member: usize,
@@ -90,7 +90,7 @@ pub struct MemberLoad {
 }
 
 /// The result of an impact analysis.
-#[derive(Debug, Clone, PartialEq, Serialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct ImpactAnalysis {
     /// Peak contact force.
     pub force_n: f64,
@@ -455,6 +455,31 @@ mod tests {
             lin.residual_n > 0.01 * stack(&f).norm(),
             "linear residual {}",
             lin.residual_n
+        );
+    }
+
+    #[test]
+    fn slow_impact_matches_the_linear_spring_formula() {
+        // Goldsmith 1960 (REFERENCES.md): in the linear range the peak is
+        // F = v sqrt(m k), k the cage's face stiffness in series with the
+        // surface's. The cage's stiffness is taken from a small static load.
+        let (p, c) = demo();
+        let small =
+            analyse_impact(&c, &p, Strike::Face(0), &ImpactInput::PeakAccel { g: 0.05 }).unwrap();
+        let k_cage = small.force_n / small.face_displacement_m;
+        let k_surface = 4.0e4;
+        let k = k_cage * k_surface / (k_cage + k_surface);
+        let v = 0.01;
+        let input = ImpactInput::Speed {
+            speed_m_per_s: v,
+            surface: Some("grass".into()),
+        };
+        let r = analyse_impact(&c, &p, Strike::Face(0), &input).unwrap();
+        let expect = v * (c.mass_kg * k).sqrt();
+        assert!(
+            (r.force_n / expect - 1.0).abs() < 0.01,
+            "{} vs {expect}",
+            r.force_n
         );
     }
 

@@ -212,9 +212,9 @@ pub fn half_sine_peak_n(
 /// `deflection_m(F)` is called with increasing forces up to `upper_n` and
 /// returns the cage's deflection at F. The work is integrated by the
 /// trapezoid rule and the last interval is solved exactly for a
-/// piecewise-linear path. The answer cannot exceed `upper_n` when that is
-/// the surface-only estimate sqrt(2 E k). Returns the force and the
-/// number of the path points used.
+/// piecewise-linear path. When `upper_n` is the surface-only estimate
+/// sqrt(2 E k) the answer lies below it, since the cage only adds
+/// compliance; the walk stops at the first path point past the energy.
 pub fn energy_balance_force_n(
     energy_j: f64,
     surface_n_per_m: f64,

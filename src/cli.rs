@@ -11,6 +11,7 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 mod cage_cmd;
+pub mod impact_cmd;
 mod profile_cmd;
 mod tui_cmd;
 
@@ -38,6 +39,8 @@ enum Command {
     Cage(cage_cmd::Args),
     /// Profile tools.
     Profile(profile_cmd::Args),
+    /// Analyse an impact on the cage (--dry-run: without recording it).
+    Impact(impact_cmd::Args),
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -125,5 +128,6 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         None => tui_cmd::run(load_profile(None)?, "sim"),
         Some(Command::Cage(a)) => cage_cmd::run(&a),
         Some(Command::Profile(a)) => profile_cmd::run(&a),
+        Some(Command::Impact(a)) => impact_cmd::run(&a),
     }
 }

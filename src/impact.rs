@@ -20,8 +20,7 @@ use crate::statics::{
 use nalgebra::{Matrix3, Vector3};
 use serde::{Deserialize, Serialize};
 
-/// Standard gravity, for accelerations given in g.
-pub const STANDARD_GRAVITY_M_S2: f64 = 9.80665;
+pub use crate::sample::STANDARD_GRAVITY_M_S2;
 
 /// Load steps along the load-deflection path for the energy balance.
 const PATH_STEPS: usize = 24;

@@ -10,4 +10,5 @@ pub mod cage;
 pub mod cli;
 pub mod hull;
 pub mod profile;
+pub mod rest;
 pub mod sample;

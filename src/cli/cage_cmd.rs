@@ -4,6 +4,7 @@
 use super::{ProfileArg, print_json};
 use crate::cage::{Cage, MemberKind};
 use crate::profile::Profile;
+use crate::righting::{MoveKind, RightingModel};
 use serde::Serialize;
 use std::process::ExitCode;
 
@@ -61,6 +62,21 @@ struct FaceJson<'a> {
     tilt_deg: f64,
 }
 
+/// One move between resting faces (see `righting`).
+#[derive(Debug, Serialize)]
+struct MoveJson<'a> {
+    from: &'a str,
+    to: &'a str,
+    kind: MoveKind,
+    pivot: Vec<&'a str>,
+    angle_deg: f64,
+    feasible: bool,
+    /// needed / available moment at the worst angle; null when the rotors
+    /// give no helping moment at all.
+    thrust_fraction: Option<f64>,
+    settles_on: &'a str,
+}
+
 /// The cage report: what `cage --json` prints.
 #[derive(Debug, Serialize)]
 struct Report<'a> {
@@ -68,6 +84,7 @@ struct Report<'a> {
     nodes: Vec<NodeJson<'a>>,
     members: Vec<MemberJson<'a>>,
     faces: Vec<FaceJson<'a>>,
+    moves: Vec<MoveJson<'a>>,
 }
 
 /// Capacity of a member: rods the smaller of Euler buckling and crushing,
@@ -79,8 +96,9 @@ pub fn capacity_n(profile: &Profile, kind: MemberKind, length_m: f64) -> f64 {
     }
 }
 
-fn report<'a>(p: &'a Profile, c: &'a Cage) -> Report<'a> {
+fn report<'a>(p: &'a Profile, c: &'a Cage, model: &RightingModel) -> Report<'a> {
     let nid = |i: usize| c.nodes[i].id.as_str();
+    let fid = |i: usize| c.faces[i].id.as_str();
     Report {
         vehicle: VehicleJson {
             id: &p.vehicle.id,
@@ -120,13 +138,29 @@ fn report<'a>(p: &'a Profile, c: &'a Cage) -> Report<'a> {
                 tilt_deg: f.tilt_deg,
             })
             .collect(),
+        moves: model
+            .moves
+            .iter()
+            .map(|m| MoveJson {
+                from: fid(m.roll.from),
+                to: fid(m.roll.to),
+                kind: m.roll.kind,
+                pivot: m.roll.pivot.iter().map(|&i| nid(i)).collect(),
+                angle_deg: m.roll.angle_deg,
+                feasible: m.feasibility.feasible,
+                thrust_fraction: m.feasibility.thrust_fraction,
+                settles_on: fid(m.settles_on),
+            })
+            .collect(),
     }
 }
 
 /// Run the cage command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
-    let r = report(&l.profile, &l.cage);
+    let model = RightingModel::new(&l.profile, &l.cage)
+        .map_err(|e| super::bad_input(format!("{}: {e}", l.profile.source)))?;
+    let r = report(&l.profile, &l.cage, &model);
     if args.json {
         print_json(&r)?;
         return Ok(ExitCode::SUCCESS);
@@ -170,6 +204,25 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             m.length_m * 1e3,
             m.capacity_n,
             m.tag.unwrap_or("")
+        );
+    }
+    println!();
+    println!("move        kind    pivot     angle(deg)  thrust  ok   settles");
+    for m in &r.moves {
+        let kind = match m.kind {
+            MoveKind::Edge => "edge",
+            MoveKind::Vertex => "vertex",
+        };
+        println!(
+            "{:<11} {:<7} {:<9} {:>10.1}  {:>6}  {:<4} {}",
+            format!("{}->{}", m.from, m.to),
+            kind,
+            m.pivot.join("-"),
+            m.angle_deg,
+            m.thrust_fraction
+                .map_or("none".to_string(), |f| format!("{:.0}%", f * 100.0)),
+            if m.feasible { "yes" } else { "no" },
+            m.settles_on
         );
     }
     Ok(ExitCode::SUCCESS)

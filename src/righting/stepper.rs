@@ -1,0 +1,1 @@
+//! Stepping through a plan by hand (written next).

@@ -13,6 +13,9 @@ pub mod moves;
 pub mod plan;
 pub mod stepper;
 
+#[cfg(test)]
+mod checks;
+
 use crate::cage::{Cage, CageError};
 use crate::profile::Profile;
 pub use feasibility::{Feasibility, Limits};

@@ -297,7 +297,8 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
         }
         let g = gravity_at(cage, roll, b_deg.to_radians());
         let avail = best_moment_nm(cage, limits, &arms, &g);
-        let ratio = if avail > 0.0 {
+        // A moment below a millionth of the need is rounding, not help.
+        let ratio = if avail > 1e-6 * needed {
             needed / avail
         } else {
             f64::INFINITY

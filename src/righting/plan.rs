@@ -305,16 +305,26 @@ impl RightingModel {
                 reach[pg.graph[x]] = true;
             }
         }
-        let candidate = self
+        // Prefer a missing move after which a route exists (one move short);
+        // otherwise any move out of the faces the rotors can reach.
+        let to_go = self.cost_to_go();
+        let out: Vec<&Move> = self
             .moves
             .iter()
             .filter(|m| reach[m.roll.from] && !reach[m.settles_on] && !m.feasibility.feasible)
-            .min_by(|a, b| {
-                let fa = a.feasibility.thrust_fraction.unwrap_or(f64::INFINITY);
-                let fb = b.feasibility.thrust_fraction.unwrap_or(f64::INFINITY);
-                fa.total_cmp(&fb)
-                    .then(a.roll.angle_deg.total_cmp(&b.roll.angle_deg))
-            });
+            .collect();
+        let short: Vec<&Move> = out
+            .iter()
+            .copied()
+            .filter(|m| to_go[m.settles_on].is_some())
+            .collect();
+        let pool = if short.is_empty() { out } else { short };
+        let candidate = pool.into_iter().min_by(|a, b| {
+            let fa = a.feasibility.thrust_fraction.unwrap_or(f64::INFINITY);
+            let fb = b.feasibility.thrust_fraction.unwrap_or(f64::INFINITY);
+            fa.total_cmp(&fb)
+                .then(a.roll.angle_deg.total_cmp(&b.roll.angle_deg))
+        });
         let count = reach.iter().filter(|r| **r).count();
         let within = if count > 1 {
             format!(" (the rotors can move it among {count} faces, none of them a take-off face)")
@@ -351,10 +361,18 @@ impl RightingModel {
                 100.0 / self.limits.torque_margin,
                 self.limits.torque_margin
             ),
-            None => format!(
-                "gets no helping moment from the rotors at {:.0} deg into the roll: their thrust presses the cage into the ground or would lift or slide it (reversible motors would help)",
-                m.feasibility.worst_angle_deg
-            ),
+            None => {
+                let forward_only = self.limits.rotors.iter().all(|r| r.reverse_thrust_n <= 0.0);
+                format!(
+                    "gets no helping moment from the rotors at {:.0} deg into the roll: their thrust turns the cage the other way, presses it into the ground, or would lift or slide it{}",
+                    m.feasibility.worst_angle_deg,
+                    if forward_only {
+                        " (these motors cannot reverse; reversible motors may open this move)"
+                    } else {
+                        ""
+                    }
+                )
+            }
         };
         format!(
             "no take-off face can be reached{within}; the closest missing move is {what}, which {lack}"

@@ -209,12 +209,12 @@ fn merge_coplanar(p: &[Vector3<f64>], tris: &[Tri], eps: f64) -> Vec<HullFace> {
     };
     for (ti, t) in tris.iter().enumerate() {
         for e in 0..3 {
-            if let Some(&o) = owner.get(&(t.v[(e + 1) % 3], t.v[e])) {
-                if coplanar(t, &tris[o]) {
-                    let (ra, rb) = (find(&mut parent, ti), find(&mut parent, o));
-                    if ra != rb {
-                        parent[ra.max(rb)] = ra.min(rb);
-                    }
+            if let Some(&o) = owner.get(&(t.v[(e + 1) % 3], t.v[e]))
+                && coplanar(t, &tris[o])
+            {
+                let (ra, rb) = (find(&mut parent, ti), find(&mut parent, o));
+                if ra != rb {
+                    parent[ra.max(rb)] = ra.min(rb);
                 }
             }
         }

@@ -13,8 +13,9 @@ use std::io::Write;
 use std::process::ExitCode;
 
 /// The caution printed under every readable plan.
-pub const CAUTION: &str = "CAUTION: estimates from a quasi-static model, not guarantees. Disarm \
-between steps, keep hands and faces clear of the propellers, and follow local aviation rules.";
+pub const CAUTION: &str = "CAUTION: estimates from a quasi-static model, not guarantees.\n\
+Disarm between steps and keep hands and faces clear of the propellers.\n\
+Follow local aviation rules.";
 
 /// Plan the roll back to a take-off face.
 #[derive(Debug, clap::Args)]
@@ -176,8 +177,21 @@ fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()
     Ok(())
 }
 
-/// Run the plan command.
+/// Run the plan command. A reader that closes the pipe early (`| head`)
+/// is not a failure.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
+    match run_inner(args) {
+        Err(e)
+            if e.downcast_ref::<std::io::Error>()
+                .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe) =>
+        {
+            Ok(ExitCode::SUCCESS)
+        }
+        other => other,
+    }
+}
+
+fn run_inner(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
     let model = RightingModel::new(&l.profile, &l.cage)
         .map_err(|e| bad_input(format!("{}: {e}", l.profile.source)))?;

@@ -168,7 +168,6 @@ fn quantise(x: f64, step: f64) -> i64 {
 
 impl Cage {
     /// Build the cage of a validated profile.
-    #[allow(clippy::type_complexity)] // one local tuple, named field by field below
     pub fn from_profile(profile: &Profile) -> Result<Cage, CageError> {
         let [r, p, y] = profile.mount_rpy_deg;
         let mount = rotation_from_rpy_deg(r, p, y);

@@ -206,24 +206,5 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             m.tag.unwrap_or("")
         );
     }
-    println!();
-    println!("move        kind    pivot     angle(deg)  thrust  ok   settles");
-    for m in &r.moves {
-        let kind = match m.kind {
-            MoveKind::Edge => "edge",
-            MoveKind::Vertex => "vertex",
-        };
-        println!(
-            "{:<11} {:<7} {:<9} {:>10.1}  {:>6}  {:<4} {}",
-            format!("{}->{}", m.from, m.to),
-            kind,
-            m.pivot.join("-"),
-            m.angle_deg,
-            m.thrust_fraction
-                .map_or("none".to_string(), |f| format!("{:.0}%", f * 100.0)),
-            if m.feasible { "yes" } else { "no" },
-            m.settles_on
-        );
-    }
     Ok(ExitCode::SUCCESS)
 }

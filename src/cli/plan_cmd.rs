@@ -177,21 +177,8 @@ fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()
     Ok(())
 }
 
-/// Run the plan command. A reader that closes the pipe early (`| head`)
-/// is not a failure.
+/// Run the plan command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
-    match run_inner(args) {
-        Err(e)
-            if e.downcast_ref::<std::io::Error>()
-                .is_some_and(|io| io.kind() == std::io::ErrorKind::BrokenPipe) =>
-        {
-            Ok(ExitCode::SUCCESS)
-        }
-        other => other,
-    }
-}
-
-fn run_inner(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
     let model = RightingModel::new(&l.profile, &l.cage)
         .map_err(|e| bad_input(format!("{}: {e}", l.profile.source)))?;

@@ -541,3 +541,64 @@ fn demo_profiles_show_what_reverse_thrust_buys() {
     assert_eq!(demo_routes, 20);
     assert!(fwd_routes < demo_routes / 2, "{fwd_routes}");
 }
+
+#[test]
+fn unstable_faces_settle_and_plans_start_where_the_vehicle_settles() {
+    // Octahedron with the centre of mass pushed towards one vertex: the
+    // faces around the opposite vertex cannot hold it.
+    let extra = quad_rotors(0.05, -0.02, 6.0, 3.0)
+        + "[righting]\ntakeoff_faces = \"auto\"\nmax_takeoff_tilt_deg = 60.0\nvertex_pivots = true\nfriction_coefficient = 0.8\n";
+    let (_, c, m) = build(&explicit_toml(
+        &octahedron(0.15),
+        [0.0, 0.0, 0.09],
+        1.0,
+        &extra,
+    ));
+    let unstable: Vec<usize> = (0..c.faces.len()).filter(|&f| !c.faces[f].stable).collect();
+    assert!(
+        !unstable.is_empty(),
+        "the offset centre of mass leaves some faces unstable"
+    );
+    for &f in &unstable {
+        let end = m.settle_face(f);
+        assert!(c.faces[end].stable);
+        assert!(
+            m.moves.iter().all(|x| x.roll.from != f),
+            "no moves start on {f}"
+        );
+        let plan = m.plan(f, &resting_attitude(&c, f));
+        assert!(
+            plan.note
+                .as_deref()
+                .is_some_and(|n| n.contains("settles on"))
+        );
+        if let Some(first) = plan.steps.first() {
+            assert_eq!(first.from, end);
+        }
+    }
+    assert!(
+        m.moves.iter().any(|x| !x.settle.is_empty()),
+        "some rolls land on an unstable face"
+    );
+    let json_like: Vec<(usize, usize, usize)> = m
+        .moves
+        .iter()
+        .filter(|x| !x.settle.is_empty())
+        .map(|x| (x.roll.from, x.roll.to, x.settles_on))
+        .collect();
+    assert!(json_like.iter().all(|(_, to, end)| to != end));
+    // Every move's settle chain ends on a stable face and the heights of
+    // the centre of mass above the support plane fall along it.
+    for mv in &m.moves {
+        assert!(c.faces[mv.settles_on].stable);
+        let mut h = f64::INFINITY;
+        for r in std::iter::once(&mv.roll).chain(&mv.settle) {
+            let f = &c.faces[r.to];
+            let height = f.normal_body.dot(&(f.centroid_body - c.com_body));
+            if r.from != mv.roll.from {
+                assert!(height < h + 1e-12);
+            }
+            h = height;
+        }
+    }
+}

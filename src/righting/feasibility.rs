@@ -363,7 +363,7 @@ mod tests {
             arms in proptest::collection::vec(-0.2..0.2f64, 1..5),
             maxs in proptest::collection::vec(0.5..5.0f64, 5),
             revs in proptest::collection::vec(0.0..3.0f64, 5),
-            tilt in 0.0..3.1f64, az in 0.0..6.28f64,
+            tilt in 0.0..3.1f64, az in 0.0..std::f64::consts::TAU,
             mu in 0.1..1.5f64, seed in any::<u64>(),
         ) {
             let n = arms.len();

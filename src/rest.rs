@@ -413,4 +413,39 @@ mod tests {
         let s = d.update(&c, f64::NAN, &UnitQuaternion::identity());
         assert_eq!(s.state, RestState::Moving);
     }
+
+    mod props {
+        use super::*;
+        use proptest::prelude::*;
+
+        proptest! {
+            #![proptest_config(ProptestConfig::with_cases(64))]
+
+            /// Held still at any attitude (yaw spinning freely), the detector
+            /// rests after the dwell exactly when the nearest face is within
+            /// the tolerance, and always names the nearest face.
+            #[test]
+            fn still_attitude_rests_iff_within_tolerance(
+                r in -180.0..180.0f64, p in -89.0..89.0f64,
+                yaws in proptest::collection::vec(-180.0..180.0f64, 12..20),
+            ) {
+                let (prof, c) = demo();
+                let mut d = RestDetector::new(&prof.watch);
+                let mut last = None;
+                for (k, y) in yaws.iter().enumerate() {
+                    let q = quat_from_rpy_deg(r, p, *y);
+                    last = Some(d.update(&c, k as f64 * 0.1, &q));
+                }
+                let s = last.unwrap();
+                let fit = fit_face(&c, &gravity_body(&quat_from_rpy_deg(r, p, 0.0)));
+                prop_assert_eq!(s.face, fit.face);
+                let want = if fit.error_deg <= prof.watch.rest_tolerance_deg {
+                    RestState::Resting
+                } else {
+                    RestState::Moving
+                };
+                prop_assert_eq!(s.state, want);
+            }
+        }
+    }
 }

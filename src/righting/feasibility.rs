@@ -9,7 +9,9 @@
 //! maximise sum c_k T_k with -reverse_k <= T_k <= max_k, the contact force
 //! pressing into the ground (no lift-off) and inside the friction cone (no
 //! sliding). The move is feasible when available / needed >= the torque
-//! margin at every angle up to the tip angle.
+//! margin at every angle up to the tip angle, checked every
+//! [`ANGLE_STEP_DEG`] and at both ends (the tip angle itself is exact, from
+//! the closed form of the gravity moment).
 //!
 //! Two solvers:
 //! - All rotors along one axis (the usual multirotor): the contact force

@@ -446,6 +446,21 @@ mod props {
                 if let Some(d) = d {
                     prop_assert!(m.heuristic_deg(f) <= d + 1e-9);
                 }
+                // Every plan that exists ends on a take-off face, its steps
+                // chain, and it costs what Dijkstra says.
+                if !m.cage.faces[f].stable {
+                    continue;
+                }
+                let plan = m.plan(f, &resting_attitude(&m.cage, f));
+                prop_assert_eq!(plan.reachable, d.is_some());
+                if let Some(d) = d {
+                    prop_assert!((plan.cost_deg - d).abs() < 1e-9);
+                    let end = plan.steps.last().map_or(f, |s| s.to);
+                    prop_assert!(m.goals().contains(&end));
+                    for w in plan.steps.windows(2) {
+                        prop_assert_eq!(w[0].to, w[1].from);
+                    }
+                }
             }
         }
 

@@ -12,6 +12,7 @@ use std::process::ExitCode;
 
 mod cage_cmd;
 pub mod impact_cmd;
+mod plan_cmd;
 mod profile_cmd;
 mod tui_cmd;
 
@@ -41,6 +42,8 @@ enum Command {
     Profile(profile_cmd::Args),
     /// Analyse an impact on the cage (--dry-run: without recording it).
     Impact(impact_cmd::Args),
+    /// Roll plan from a face or attitude to a take-off face.
+    Plan(plan_cmd::Args),
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -129,5 +132,6 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Cage(a)) => cage_cmd::run(&a),
         Some(Command::Profile(a)) => profile_cmd::run(&a),
         Some(Command::Impact(a)) => impact_cmd::run(&a),
+        Some(Command::Plan(a)) => plan_cmd::run(&a),
     }
 }

@@ -12,6 +12,8 @@ pub mod hull;
 pub mod impact;
 pub mod net;
 pub mod profile;
+pub mod rest;
+pub mod righting;
 pub mod sample;
 pub mod statics;
 pub mod tui;

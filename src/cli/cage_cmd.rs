@@ -4,6 +4,7 @@
 use super::ProfileArg;
 use crate::cage::{Cage, MemberKind};
 use crate::profile::Profile;
+use crate::righting::{MoveKind, RightingModel};
 use crate::statics::{SelfStress, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
@@ -63,6 +64,21 @@ struct SelfStressJson<'a> {
     message: &'a str,
 }
 
+/// One move between resting faces (see `righting`).
+#[derive(Debug, Serialize)]
+struct MoveJson<'a> {
+    from: &'a str,
+    to: &'a str,
+    kind: MoveKind,
+    pivot: Vec<&'a str>,
+    angle_deg: f64,
+    feasible: bool,
+    /// needed / available moment at the worst angle; null when the rotors
+    /// give no helping moment at all.
+    thrust_fraction: Option<f64>,
+    settles_on: &'a str,
+}
+
 /// The cage report: what `cage --json` prints.
 #[derive(Debug, Serialize)]
 struct Report<'a> {
@@ -71,6 +87,7 @@ struct Report<'a> {
     members: Vec<MemberJson<'a>>,
     faces: Vec<FaceJson<'a>>,
     self_stress: SelfStressJson<'a>,
+    moves: Vec<MoveJson<'a>>,
 }
 
 /// Capacity of a member: rods the smaller of Euler buckling and crushing,
@@ -79,8 +96,14 @@ pub fn capacity_n(profile: &Profile, kind: MemberKind, length_m: f64) -> f64 {
     crate::statics::capacity_n(profile, kind, length_m)
 }
 
-fn report<'a>(p: &'a Profile, c: &'a Cage, ss: &'a SelfStress) -> Report<'a> {
+fn report<'a>(
+    p: &'a Profile,
+    c: &'a Cage,
+    ss: &'a SelfStress,
+    model: &RightingModel,
+) -> Report<'a> {
     let nid = |i: usize| c.nodes[i].id.as_str();
+    let fid = |i: usize| c.faces[i].id.as_str();
     Report {
         vehicle: VehicleJson {
             id: &p.vehicle.id,
@@ -129,6 +152,20 @@ fn report<'a>(p: &'a Profile, c: &'a Cage, ss: &'a SelfStress) -> Report<'a> {
             prestress_ok: ss.prestress_ok,
             message: &ss.message,
         },
+        moves: model
+            .moves
+            .iter()
+            .map(|m| MoveJson {
+                from: fid(m.roll.from),
+                to: fid(m.roll.to),
+                kind: m.roll.kind,
+                pivot: m.roll.pivot.iter().map(|&i| nid(i)).collect(),
+                angle_deg: m.roll.angle_deg,
+                feasible: m.feasibility.feasible,
+                thrust_fraction: m.feasibility.thrust_fraction,
+                settles_on: fid(m.settles_on),
+            })
+            .collect(),
     }
 }
 
@@ -139,7 +176,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         &Structure::from_cage(&l.cage, &l.profile),
         l.profile.string.pretension_n,
     )?;
-    let r = report(&l.profile, &l.cage, &ss);
+    let model = RightingModel::new(&l.profile, &l.cage)
+        .map_err(|e| super::bad_input(format!("{}: {e}", l.profile.source)))?;
+    let r = report(&l.profile, &l.cage, &ss, &model);
     let mut out = std::io::stdout().lock();
     if args.json {
         writeln!(out, "{}", serde_json::to_string_pretty(&r)?)?;

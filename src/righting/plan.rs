@@ -1,0 +1,381 @@
+//! Roll plans: a petgraph graph of resting faces and feasible moves, the
+//! recovery map from every face (multi-goal Dijkstra on the reversed graph)
+//! and single queries by A*.
+//!
+//! Cost of a move = its rotation angle in degrees (commanded plus the
+//! passive rolls until it settles), times `vertex_pivot_weight` for vertex
+//! pivots. The A* heuristic is the angle between the current face's normal
+//! and the nearest take-off face's normal (REFERENCES.md; Hart, Nilsson &
+//! Raphael 1968): every roll turns the gravity direction by exactly its
+//! angle along a great circle, so the sum of the angles can never be less
+//! than the angle between the first and last normals, and weights >= 1
+//! only raise the cost. Admissible and consistent.
+
+use super::{Move, MoveKind, RightingModel};
+use crate::attitude::{angle_between_deg, rotate_about_world};
+use crate::rest::resting_attitude;
+use nalgebra::UnitQuaternion;
+use petgraph::graph::{DiGraph, NodeIndex};
+use petgraph::visit::EdgeRef;
+use std::collections::HashMap;
+
+/// One step of a plan: a commanded roll and where it should end.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Step {
+    /// Face the step starts on.
+    pub from: usize,
+    /// Face the vehicle should settle on.
+    pub to: usize,
+    /// Edge roll or vertex pivot.
+    pub kind: MoveKind,
+    /// Pivot node indices.
+    pub pivot: Vec<usize>,
+    /// Commanded roll angle, degrees.
+    pub angle_deg: f64,
+    /// Needed / available moment at the worst angle of the roll.
+    pub thrust_fraction: f64,
+    /// Attitude to expect after the step: the attitude before it, rotated
+    /// about the world-frame pivot axis by the roll angle (and by any
+    /// passive rolls that follow).
+    pub target: UnitQuaternion<f64>,
+    /// Index into [`RightingModel::moves`].
+    pub move_index: usize,
+}
+
+/// A route from one face to a take-off face, or the reason there is none.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Plan {
+    /// Face the plan starts from.
+    pub from: usize,
+    /// Take-off face it ends on.
+    pub goal: Option<usize>,
+    /// Whether a take-off face can be reached.
+    pub reachable: bool,
+    /// Why not, when it cannot.
+    pub reason: Option<String>,
+    /// Something the operator should know first (e.g. the start face is not
+    /// one the vehicle can rest on).
+    pub note: Option<String>,
+    /// Sum of the rotation angles, degrees.
+    pub total_angle_deg: f64,
+    /// Planning cost (angles with vertex pivots weighted), degrees.
+    pub cost_deg: f64,
+    /// The steps in order.
+    pub steps: Vec<Step>,
+}
+
+/// The graph of resting faces (node weight: face index) and feasible moves
+/// (edge weight: move index), one edge per ordered pair of faces, the
+/// cheapest.
+#[derive(Debug, Clone)]
+pub struct PlanGraph {
+    /// The graph.
+    pub graph: DiGraph<usize, usize>,
+    /// Graph node of each face (none for faces the vehicle cannot rest on).
+    pub node: Vec<Option<NodeIndex>>,
+}
+
+impl RightingModel {
+    /// Build the graph of feasible moves.
+    pub fn graph(&self) -> PlanGraph {
+        let mut graph = DiGraph::new();
+        let node: Vec<Option<NodeIndex>> = self
+            .cage
+            .faces
+            .iter()
+            .enumerate()
+            .map(|(i, f)| f.stable.then(|| graph.add_node(i)))
+            .collect();
+        let mut best: HashMap<(usize, usize), usize> = HashMap::new();
+        for (k, m) in self.moves.iter().enumerate() {
+            if !m.feasibility.feasible {
+                continue;
+            }
+            let key = (m.roll.from, m.settles_on);
+            match best.get(&key) {
+                Some(&j) if self.cost_deg(&self.moves[j]) <= self.cost_deg(m) => {}
+                _ => {
+                    best.insert(key, k);
+                }
+            }
+        }
+        let mut edges: Vec<((usize, usize), usize)> = best.into_iter().collect();
+        edges.sort();
+        for ((a, b), k) in edges {
+            if let (Some(na), Some(nb)) = (node[a], node[b]) {
+                graph.add_edge(na, nb, k);
+            }
+        }
+        PlanGraph { graph, node }
+    }
+
+    /// Take-off faces the vehicle can rest on: the goals of every plan.
+    pub fn goals(&self) -> Vec<usize> {
+        self.takeoff
+            .iter()
+            .copied()
+            .filter(|&f| self.cage.faces.get(f).is_some_and(|x| x.stable))
+            .collect()
+    }
+
+    /// The A* heuristic: angle from `face`'s normal to the nearest goal's.
+    pub fn heuristic_deg(&self, face: usize) -> f64 {
+        let n = self.cage.faces[face].normal_body;
+        self.goals()
+            .iter()
+            .map(|&g| angle_between_deg(&n, &self.cage.faces[g].normal_body))
+            .fold(f64::INFINITY, f64::min)
+    }
+
+    /// Cost to the nearest goal from every face (`None`: unreachable), by
+    /// one Dijkstra run from a virtual source joined to every goal, on the
+    /// reversed graph.
+    pub fn cost_to_go(&self) -> Vec<Option<f64>> {
+        let pg = self.graph();
+        let mut rev: DiGraph<(), f64> = DiGraph::new();
+        let nodes: Vec<NodeIndex> = pg.graph.node_indices().map(|_| rev.add_node(())).collect();
+        for e in pg.graph.edge_references() {
+            let cost = self.cost_deg(&self.moves[*e.weight()]);
+            rev.add_edge(nodes[e.target().index()], nodes[e.source().index()], cost);
+        }
+        let source = rev.add_node(());
+        for g in self.goals() {
+            if let Some(n) = pg.node[g] {
+                rev.add_edge(source, nodes[n.index()], 0.0);
+            }
+        }
+        let dist = petgraph::algo::dijkstra(&rev, source, None, |e| *e.weight());
+        pg.node
+            .iter()
+            .map(|n| n.and_then(|n| dist.get(&nodes[n.index()]).copied()))
+            .collect()
+    }
+
+    /// The recovery map: a plan from every face, each starting at the
+    /// face's zero-yaw resting attitude.
+    pub fn recovery_map(&self) -> Vec<Plan> {
+        let pg = self.graph();
+        let to_go = self.cost_to_go();
+        let goals = self.goals();
+        (0..self.cage.faces.len())
+            .map(|face| {
+                let start = self.settle_face(face);
+                let attitude = resting_attitude(&self.cage, face);
+                let mut moves = Vec::new();
+                let mut at = start;
+                if to_go[start].is_some() {
+                    // Follow the next hop that realises the cost to go.
+                    while !goals.contains(&at) && moves.len() <= self.cage.faces.len() {
+                        let Some(n) = pg.node[at] else { break };
+                        let here = to_go[at].unwrap_or(f64::INFINITY);
+                        let next = pg
+                            .graph
+                            .edges(n)
+                            .filter_map(|e| {
+                                let m = *e.weight();
+                                let to = pg.graph[e.target()];
+                                to_go[to].map(|d| (m, to, d + self.cost_deg(&self.moves[m])))
+                            })
+                            .min_by(|a, b| a.2.total_cmp(&b.2));
+                        match next {
+                            Some((m, to, c)) if c <= here + 1e-6 => {
+                                moves.push(m);
+                                at = to;
+                            }
+                            _ => break,
+                        }
+                    }
+                }
+                self.assemble(face, start, &attitude, &moves)
+            })
+            .collect()
+    }
+
+    /// One plan by A* from `face`, the steps' target attitudes starting from
+    /// `attitude` (the live attitude, or the face's resting attitude).
+    pub fn plan(&self, face: usize, attitude: &UnitQuaternion<f64>) -> Plan {
+        if face >= self.cage.faces.len() {
+            return Plan {
+                from: face,
+                goal: None,
+                reachable: false,
+                reason: Some(format!(
+                    "no face {} on this cage (it has F1..F{})",
+                    face + 1,
+                    self.cage.faces.len()
+                )),
+                note: None,
+                total_angle_deg: 0.0,
+                cost_deg: 0.0,
+                steps: Vec::new(),
+            };
+        }
+        let start = self.settle_face(face);
+        let pg = self.graph();
+        let goals = self.goals();
+        let moves = pg.node[start]
+            .and_then(|s| {
+                petgraph::algo::astar(
+                    &pg.graph,
+                    s,
+                    |n| goals.contains(&pg.graph[n]),
+                    |e| self.cost_deg(&self.moves[*e.weight()]),
+                    |n| self.heuristic_deg(pg.graph[n]),
+                )
+            })
+            .map(|(_, path)| {
+                path.windows(2)
+                    .filter_map(|w| pg.graph.find_edge(w[0], w[1]).map(|e| pg.graph[e]))
+                    .collect::<Vec<usize>>()
+            });
+        match moves {
+            Some(m) => self.assemble(face, start, attitude, &m),
+            None => self.assemble(face, start, attitude, &[]),
+        }
+    }
+
+    /// Turn a list of moves into a plan with target attitudes.
+    fn assemble(
+        &self,
+        face: usize,
+        start: usize,
+        attitude: &UnitQuaternion<f64>,
+        moves: &[usize],
+    ) -> Plan {
+        let f = |i: usize| self.cage.faces[i].id.as_str();
+        let note = (start != face).then(|| {
+            format!(
+                "{} is not a face the vehicle can rest on; left alone it settles on {}, and the plan starts there",
+                f(face),
+                f(start)
+            )
+        });
+        let mut q = *attitude;
+        // Passive rolls from the requested face to where it settles.
+        for r in super::moves::settle(&self.cage, face) {
+            q = rotate_about_world(&q, &(q * r.axis_body), r.angle_deg.to_radians());
+        }
+        let mut steps = Vec::new();
+        let (mut total, mut cost) = (0.0, 0.0);
+        for &k in moves {
+            let m: &Move = &self.moves[k];
+            for r in std::iter::once(&m.roll).chain(&m.settle) {
+                q = rotate_about_world(&q, &(q * r.axis_body), r.angle_deg.to_radians());
+            }
+            total += m.total_angle_deg();
+            cost += self.cost_deg(m);
+            steps.push(Step {
+                from: m.roll.from,
+                to: m.settles_on,
+                kind: m.roll.kind,
+                pivot: m.roll.pivot.clone(),
+                angle_deg: m.roll.angle_deg,
+                thrust_fraction: m.feasibility.thrust_fraction.unwrap_or(0.0),
+                target: q,
+                move_index: k,
+            });
+        }
+        let end = steps.last().map_or(start, |s| s.to);
+        let goals = self.goals();
+        let reachable = goals.contains(&end);
+        Plan {
+            from: face,
+            goal: reachable.then_some(end),
+            reachable,
+            reason: (!reachable).then(|| self.explain(start)),
+            note,
+            total_angle_deg: total,
+            cost_deg: cost,
+            steps,
+        }
+    }
+
+    /// Why no take-off face can be reached from `face`: the move out of
+    /// the set of faces it can reach that comes closest to being feasible.
+    pub fn explain(&self, face: usize) -> String {
+        let f = |i: usize| self.cage.faces[i].id.as_str();
+        if self.goals().is_empty() {
+            return "the profile's take-off faces include none this vehicle can rest on".into();
+        }
+        let pg = self.graph();
+        let mut reach = vec![false; self.cage.faces.len()];
+        if let Some(n) = pg.node.get(face).copied().flatten() {
+            let mut dfs = petgraph::visit::Dfs::new(&pg.graph, n);
+            while let Some(x) = dfs.next(&pg.graph) {
+                reach[pg.graph[x]] = true;
+            }
+        }
+        // Prefer a missing move after which a route exists (one move short);
+        // otherwise any move out of the faces the rotors can reach.
+        let to_go = self.cost_to_go();
+        let out: Vec<&Move> = self
+            .moves
+            .iter()
+            .filter(|m| reach[m.roll.from] && !reach[m.settles_on] && !m.feasibility.feasible)
+            .collect();
+        let short: Vec<&Move> = out
+            .iter()
+            .copied()
+            .filter(|m| to_go[m.settles_on].is_some())
+            .collect();
+        let pool = if short.is_empty() { out } else { short };
+        let candidate = pool.into_iter().min_by(|a, b| {
+            let fa = a.feasibility.thrust_fraction.unwrap_or(f64::INFINITY);
+            let fb = b.feasibility.thrust_fraction.unwrap_or(f64::INFINITY);
+            fa.total_cmp(&fb)
+                .then(a.roll.angle_deg.total_cmp(&b.roll.angle_deg))
+        });
+        let count = reach.iter().filter(|r| **r).count();
+        let within = if count > 1 {
+            format!(" (the rotors can move it among {count} faces, none of them a take-off face)")
+        } else {
+            String::new()
+        };
+        let Some(m) = candidate else {
+            return format!("no roll leads from {} to any other face{within}", f(face));
+        };
+        let pivot: Vec<&str> = m
+            .roll
+            .pivot
+            .iter()
+            .map(|&i| self.cage.nodes[i].id.as_str())
+            .collect();
+        let kind = match m.roll.kind {
+            MoveKind::Edge => "across",
+            MoveKind::Vertex => "about",
+        };
+        let what = format!(
+            "{} -> {} {kind} {} ({:.0} deg)",
+            f(m.roll.from),
+            f(m.settles_on),
+            pivot.join("-"),
+            m.roll.angle_deg
+        );
+        let lack = match m.feasibility.thrust_fraction {
+            Some(frac) => format!(
+                "needs {:.0}% of the best rotor moment at {:.0} deg into the roll ({:.3} of {:.3} N m), more than the {:.0}% the torque margin of {} allows",
+                frac * 100.0,
+                m.feasibility.worst_angle_deg,
+                m.feasibility.needed_nm,
+                m.feasibility.available_nm,
+                100.0 / self.limits.torque_margin,
+                self.limits.torque_margin
+            ),
+            None => {
+                let forward_only = self.limits.rotors.iter().all(|r| r.reverse_thrust_n <= 0.0);
+                format!(
+                    "gets no helping moment from the rotors at {:.0} deg into the roll: their thrust turns the cage the other way, presses it into the ground, or would lift or slide it{}",
+                    m.feasibility.worst_angle_deg,
+                    if forward_only {
+                        " (these motors cannot reverse; reversible motors may open this move)"
+                    } else {
+                        ""
+                    }
+                )
+            }
+        };
+        format!(
+            "no take-off face can be reached{within}; the closest missing move is {what}, which {lack}"
+        )
+    }
+}

@@ -100,4 +100,56 @@ mod tests {
         let v = Vector3::new(0.3, -1.2, 2.0);
         assert_relative_eq!(r * v, q * v, epsilon = 1e-12);
     }
+
+    mod props {
+        use super::*;
+        use proptest::prelude::*;
+
+        proptest! {
+            #![proptest_config(ProptestConfig::with_cases(64))]
+
+            /// Z-Y-X angles survive a round trip through the quaternion away
+            /// from gimbal lock at pitch +-90 deg (Diebel 2006, section 5.6).
+            #[test]
+            fn rpy_round_trip(r in -179.0..179.0f64, p in -85.0..85.0f64, y in -179.0..179.0f64) {
+                let q = quat_from_rpy_deg(r, p, y);
+                let back = rpy_deg(&q);
+                prop_assert!((back[0] - r).abs() < 1e-7);
+                prop_assert!((back[1] - p).abs() < 1e-7);
+                prop_assert!((back[2] - y).abs() < 1e-7);
+            }
+
+            /// Quaternions stay unit, gravity stays a unit vector, and the
+            /// matrix and quaternion forms agree.
+            #[test]
+            fn unit_norms(r in -180.0..180.0f64, p in -90.0..90.0f64, y in -180.0..180.0f64) {
+                let q = quat_from_rpy_deg(r, p, y);
+                prop_assert!((q.quaternion().norm() - 1.0).abs() < 1e-12);
+                prop_assert!((gravity_body(&q).norm() - 1.0).abs() < 1e-12);
+                let m = rotation_from_rpy_deg(r, p, y);
+                let v = Vector3::new(0.2, -0.7, 1.1);
+                prop_assert!((m * v - q * v).norm() < 1e-12);
+            }
+
+            /// Tilt ignores yaw: spinning about the world vertical changes
+            /// nothing the rest detector looks at.
+            #[test]
+            fn tilt_ignores_yaw(r in -180.0..180.0f64, p in -89.0..89.0f64, y1 in -180.0..180.0f64, y2 in -180.0..180.0f64) {
+                let a = quat_from_rpy_deg(r, p, y1);
+                let b = quat_from_rpy_deg(r, p, y2);
+                prop_assert!(tilt_between_deg(&a, &b) < 1e-6);
+            }
+
+            /// A rotation about a world axis by an angle tilts gravity by at
+            /// most that angle, exactly that angle when the axis is level.
+            #[test]
+            fn world_rotation_tilt(r in -60.0..60.0f64, p in -60.0..60.0f64, az in 0.0..360.0f64, ang in 0.0..170.0f64) {
+                let q = quat_from_rpy_deg(r, p, 0.0);
+                let axis = Vector3::new(az.to_radians().cos(), az.to_radians().sin(), 0.0);
+                let q2 = rotate_about_world(&q, &axis, ang.to_radians());
+                prop_assert!((tilt_between_deg(&q, &q2) - ang).abs() < 1e-6);
+                prop_assert!((q2.quaternion().norm() - 1.0).abs() < 1e-12);
+            }
+        }
+    }
 }

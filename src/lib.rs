@@ -11,4 +11,5 @@ pub mod cli;
 pub mod hull;
 pub mod link;
 pub mod profile;
+pub mod rest;
 pub mod sample;

@@ -13,3 +13,4 @@ pub mod link;
 pub mod profile;
 pub mod rest;
 pub mod sample;
+pub mod tracker;

@@ -13,4 +13,5 @@ pub mod link;
 pub mod profile;
 pub mod rest;
 pub mod sample;
+pub mod sim;
 pub mod tracker;

@@ -235,11 +235,7 @@ impl Tracker {
             }
             if st.state == RestState::Resting {
                 self.faces_seen.insert(st.face);
-                if self.airborne
-                    && self
-                        .last_cue_s
-                        .is_none_or(|c| at_s - c >= AIRBORNE_QUIET_S)
-                {
+                if self.airborne && self.last_cue_s.is_none_or(|c| at_s - c >= AIRBORNE_QUIET_S) {
                     self.airborne = false;
                 }
             }

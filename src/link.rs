@@ -5,6 +5,7 @@
 pub mod line;
 pub mod mavlink;
 pub mod record;
+pub mod spec;
 pub mod transport;
 
 use crate::sample::Sample;

@@ -11,7 +11,11 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 mod cage_cmd;
+pub mod link_args;
 mod profile_cmd;
+mod record_cmd;
+mod sim_cmd;
+mod watch_cmd;
 
 /// Bad input or usage: the command exits with code 2.
 #[derive(Debug, thiserror::Error)]
@@ -37,6 +41,12 @@ enum Command {
     Cage(cage_cmd::Args),
     /// Profile tools.
     Profile(profile_cmd::Args),
+    /// Watch the vehicle live (`--headless`: JSON lines).
+    Watch(watch_cmd::Args),
+    /// Send simulated telemetry to a UDP link.
+    Sim(sim_cmd::Args),
+    /// Record a link's raw bytes with arrival times.
+    Record(record_cmd::Args),
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -112,5 +122,8 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         None => cage_cmd::run(&cage_cmd::Args::demo()),
         Some(Command::Cage(a)) => cage_cmd::run(&a),
         Some(Command::Profile(a)) => profile_cmd::run(&a),
+        Some(Command::Watch(a)) => watch_cmd::run(&a),
+        Some(Command::Sim(a)) => sim_cmd::run(&a),
+        Some(Command::Record(a)) => record_cmd::run(&a),
     }
 }

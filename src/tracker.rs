@@ -10,7 +10,8 @@
 //!   null.
 //! - **airborne**: the motors are armed and the vehicle is flying. It
 //!   becomes airborne when, while armed, it climbs or descends at
-//!   [`AIRBORNE_VERTICAL_SPEED_M_S`] or more, or the specific force stays at
+//!   [`AIRBORNE_VERTICAL_SPEED_M_S`] or more, moves over the ground at
+//!   [`AIRBORNE_GROUND_SPEED_M_S`] or more, or the specific force stays at
 //!   least [`AIRBORNE_FORCE_OFF_G`] away from 1 g for
 //!   [`AIRBORNE_FORCE_HOLD_S`]. It stays airborne until disarmed, or until
 //!   the rest detector says resting and no airborne cue has been seen for
@@ -34,6 +35,10 @@ use std::collections::{BTreeSet, VecDeque};
 /// Common practice, no published source: well above the drift of a
 /// consumer-grade velocity estimate at rest.
 pub const AIRBORNE_VERTICAL_SPEED_M_S: f64 = 0.5;
+/// Ground speed that says the vehicle is flying, not rolling, m/s: a
+/// rolling cage of half a metre covers a face or so per second, well under
+/// this (common practice, no published source).
+pub const AIRBORNE_GROUND_SPEED_M_S: f64 = 1.0;
 /// Distance of the specific force from 1 g that says thrust is carrying or
 /// accelerating the vehicle, in g (common practice, no published source).
 pub const AIRBORNE_FORCE_OFF_G: f64 = 0.25;
@@ -46,7 +51,7 @@ pub const AIRBORNE_QUIET_S: f64 = 2.0;
 const RATE_WINDOW_S: f64 = 2.0;
 
 /// What the watch shows.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, PartialOrd, Ord, Hash, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum WatchStateKind {
     /// Lying still on a face.
@@ -195,7 +200,8 @@ impl Tracker {
         let armed = self.armed == Some(true);
         if let Some(v) = s.velocity_ned_m_s
             && armed
-            && v.z.abs() >= AIRBORNE_VERTICAL_SPEED_M_S
+            && (v.z.abs() >= AIRBORNE_VERTICAL_SPEED_M_S
+                || v.x.hypot(v.y) >= AIRBORNE_GROUND_SPEED_M_S)
         {
             self.cue(at_s);
         }

@@ -29,6 +29,7 @@ pub struct Args {
 
 #[derive(Debug, Serialize)]
 struct Report {
+    event: &'static str,
     out: String,
     link: String,
     chunks: u64,
@@ -62,6 +63,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     };
     let mut w = RecordWriter::new(std::io::BufWriter::new(file), &header)
         .with_context(|| format!("writing {}", args.out.display()))?;
+    let mut out = std::io::stdout().lock();
+    // First line: the recorder is listening (tests and scripts wait for it).
+    writeln!(
+        out,
+        "{}",
+        serde_json::json!({"event": "started", "out": args.out.display().to_string(), "link": link.source})
+    )?;
+    out.flush()?;
     let (mut chunks, mut bytes, mut t) = (0u64, 0u64, 0.0f64);
     loop {
         let msg = match link.rx.recv_timeout(Duration::from_secs(2)) {
@@ -98,8 +107,8 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             break;
         }
     }
-    let mut out = std::io::stdout().lock();
     let r = Report {
+        event: "done",
         out: args.out.display().to_string(),
         link: link.source.clone(),
         chunks,

@@ -101,14 +101,18 @@ impl Decoder {
 
     /// Feed bytes that arrived at `arrival_s` (receiver clock).
     pub fn push(&mut self, data: &[u8], arrival_s: f64) {
-        if let Some(l) = self.line.as_mut() {
-            l.push(data, arrival_s);
+        // Small pieces, collected after each, so the inner queues never fill
+        // and only this decoder's queue drops (and counts) samples.
+        for piece in data.chunks(1024) {
+            if let Some(l) = self.line.as_mut() {
+                l.push(piece, arrival_s);
+            }
+            if let Some((m, _)) = self.mav.as_mut() {
+                m.push(piece);
+            }
+            self.settle();
+            self.collect(arrival_s);
         }
-        if let Some((m, _)) = self.mav.as_mut() {
-            m.push(data);
-        }
-        self.settle();
-        self.collect(arrival_s);
     }
 
     /// End of input: a last line without a newline still counts.
@@ -197,6 +201,30 @@ impl Decoder {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    use proptest::prelude::*;
+
+    #[test]
+    fn samples_nobody_takes_are_dropped_and_counted() {
+        let mut d = Decoder::new(Proto::Line, Default::default());
+        let text = "t=1 vbat=12\n".repeat(MAX_QUEUED_SAMPLES + 10);
+        d.push(text.as_bytes(), 0.0);
+        let c = d.counters();
+        assert_eq!((c.frames, c.dropped), (MAX_QUEUED_SAMPLES as u64 + 10, 10));
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(64))]
+        #[test]
+        fn auto_decoder_survives_arbitrary_bytes(data in proptest::collection::vec(any::<u8>(), 0..3000)) {
+            let mut d = Decoder::new(Proto::Auto, Default::default());
+            d.push(&data, 0.0);
+            d.finish(0.0);
+            let mut n = 0;
+            while d.pop().is_some() { n += 1; }
+            prop_assert!(n <= MAX_QUEUED_SAMPLES);
+        }
+    }
 
     #[test]
     fn auto_settles_on_lines_for_text() {

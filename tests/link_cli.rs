@@ -405,6 +405,22 @@ fn live_udp_watch_allow_list_and_recording_replays_the_same_states() {
     assert_eq!(code, 0, "{err}");
     assert_eq!(changes(&replay), live_changes);
     assert_eq!(summary(&replay)["frames_decoded"], script.len() as u64);
+    // At its recorded pace (here four times faster) it gives the same again.
+    let t0 = Instant::now();
+    let (_, paced, _) = watch(&[
+        "--headless",
+        "--profile",
+        &prof,
+        "--link",
+        &format!("file:{}", rec.display()),
+        "--replay-speed",
+        "4",
+    ]);
+    assert_eq!(changes(&paced), live_changes);
+    assert!(
+        t0.elapsed() > Duration::from_millis(250),
+        "paced replay ran at full speed"
+    );
 }
 
 #[test]

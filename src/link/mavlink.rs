@@ -215,10 +215,10 @@ impl MavDecoder {
         if self.sysid.is_some_and(|want| want != sysid) {
             return Candidate::Rejected(total);
         }
-        if let Some(v) = self.verifier.as_mut() {
-            if !signed || v.check(&b[..total], sysid, compid) != SignatureVerdict::Accepted {
-                return Candidate::Rejected(total);
-            }
+        if let Some(v) = self.verifier.as_mut()
+            && (!signed || v.check(&b[..total], sysid, compid) != SignatureVerdict::Accepted)
+        {
+            return Candidate::Rejected(total);
         }
         let mut payload = [0u8; messages::MAX_FULL_LEN];
         let n = len.min(info.full_len);

@@ -80,10 +80,10 @@ fn reference_v2_attitude_quaternion() {
         panic!("not ATTITUDE_QUATERNION");
     };
     assert_eq!(time_boot_ms, 123456);
-    assert_relative_eq!(q[0], 0.723722517, epsilon = 1e-7);
-    assert_relative_eq!(q[1], 0.104351789, epsilon = 1e-7);
-    assert_relative_eq!(q[2], -0.0390581675, epsilon = 1e-7);
-    assert_relative_eq!(q[3], 0.681036592, epsilon = 1e-7);
+    assert_relative_eq!(f64::from(q[0]), 0.723722517, epsilon = 1e-7);
+    assert_relative_eq!(f64::from(q[1]), 0.104351789, epsilon = 1e-7);
+    assert_relative_eq!(f64::from(q[2]), -0.0390581675, epsilon = 1e-7);
+    assert_relative_eq!(f64::from(q[3]), 0.681036592, epsilon = 1e-7);
     // The frame carries 36 of 48 bytes (v2 truncation); zero-filled, it decodes.
     assert_eq!(unhex(REF_V2_ATTQ)[1], 0x24);
 }

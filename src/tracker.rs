@@ -101,9 +101,9 @@ pub struct WatchState {
     pub error_deg: Option<f64>,
     /// Roll, pitch, yaw in degrees (Z-Y-X).
     pub rpy_deg: Option<[f64; 3]>,
-    /// Motors armed, where the link says.
+    /// Motors armed, where the link says (null when stale).
     pub armed: Option<bool>,
-    /// Battery voltage, where the link says.
+    /// Battery voltage, where the link says (null when stale).
     pub battery_v: Option<f64>,
     /// Link health.
     pub link: LinkHealth,
@@ -285,8 +285,8 @@ impl Tracker {
             face: None,
             error_deg: None,
             rpy_deg: None,
-            armed: self.armed,
-            battery_v: self.battery_v,
+            armed: None,
+            battery_v: None,
             link,
         };
         match self.last {
@@ -301,6 +301,8 @@ impl Tracker {
                 let r = rpy_deg(&a.q).map(round2);
                 WatchState {
                     state,
+                    armed: self.armed,
+                    battery_v: self.battery_v,
                     face: cage.faces.get(a.face).map(|f| f.id.clone()),
                     error_deg: Some(round2(a.error_deg)),
                     rpy_deg: Some(r),
@@ -358,6 +360,7 @@ mod tests {
         let s = tr.state(&c);
         assert_eq!(s.state, WatchStateKind::Stale);
         assert_eq!((s.face, s.error_deg, s.rpy_deg), (None, None, None));
+        assert_eq!((s.armed, s.battery_v), (None, None));
         assert_eq!(s.link.age_ms, Some(1510));
         // Fresh data after the gap must dwell again before resting.
         tr.update(&c, 3.0, &att(3.0, q));

@@ -646,6 +646,52 @@ mod tests {
         assert_eq!(last.rejected, 1);
     }
 
+    #[cfg(unix)]
+    #[test]
+    fn serial_link_reads_reports_busy_and_loss() {
+        use serialport::SerialPort;
+        use std::io::Write;
+        let (mut master, slave) = serialport::TTYPort::pair().expect("pseudo-terminal pair");
+        let path = slave.name().expect("pty name");
+        drop(slave);
+        let spec = LinkSpec::Serial {
+            path: path.clone(),
+            baud: 57600,
+        };
+        let link = open(&spec, LinkOptions::default(), Mode::Decode).expect("open pty");
+        // A second opener finds the port taken (serialport opens exclusively).
+        let e = open(&spec, LinkOptions::default(), Mode::Decode).expect_err("busy");
+        assert!(matches!(e, LinkError::SerialBusy { .. }), "{e}");
+        assert!(e.to_string().contains("another program"));
+        master
+            .write_all(b"t=1 roll=5 pitch=0 yaw=0\n")
+            .expect("write to pty");
+        let deadline = Instant::now() + Duration::from_secs(3);
+        let mut got = None;
+        while got.is_none() && Instant::now() < deadline {
+            if let Ok(LinkMsg::Sample { sample, .. }) =
+                link.rx.recv_timeout(Duration::from_millis(100))
+            {
+                got = Some(sample.t_s);
+            }
+        }
+        assert_eq!(got, Some(1.0));
+        // The device goes away: the reader says so (and keeps trying).
+        drop(master);
+        let mut lost = false;
+        let deadline = Instant::now() + Duration::from_secs(3);
+        while !lost && Instant::now() < deadline {
+            if let Ok(LinkMsg::Event {
+                event: LinkEvent::Lost(_),
+                ..
+            }) = link.rx.recv_timeout(Duration::from_millis(100))
+            {
+                lost = true;
+            }
+        }
+        assert!(lost, "no Lost event after the pty closed");
+    }
+
     #[test]
     fn missing_serial_port_says_so() {
         let e = open(
@@ -685,6 +731,9 @@ mod tests {
         }
         // The command reached the simulator, which answered (accepted while
         // resting, refused if the reader had already run into the flight).
-        assert!(note.as_ref().is_some_and(|s| s.starts_with("sim: Fly")), "{note:?}");
+        assert!(
+            note.as_ref().is_some_and(|s| s.starts_with("sim: Fly")),
+            "{note:?}"
+        );
     }
 }

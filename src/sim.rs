@@ -247,6 +247,8 @@ impl Sim {
         let Some(from) = self.resting_face() else {
             return Err(SimError::Busy);
         };
+        // ok: indices below are faces of this cage (resting_face, position in
+        // ids, neighbour lists), all below the face count.
         match cmd {
             SimCommand::Fly => {
                 self.arm();
@@ -369,7 +371,8 @@ impl Sim {
                         &Vector3::z_axis(),
                         std::f64::consts::PI * self.signed(),
                     );
-                    let q_end = yaw * self.rest_q[end];
+                    let rest = self.rest_q.get(end).copied().unwrap_or(self.q);
+                    let q_end = yaw * rest;
                     let dur = 0.6 + 0.6 * self.uniform();
                     self.phase = Phase::Motion(Motion {
                         from: self.q,
@@ -382,7 +385,13 @@ impl Sim {
             }
             Phase::Motion(mut m) => {
                 self.vel = Vector3::zeros();
-                let (target, dur) = m.keys[m.idx.min(m.keys.len() - 1)];
+                let Some(&(target, dur)) = m.keys.get(m.idx) else {
+                    self.phase = Phase::Resting {
+                        face: m.end_face,
+                        until_s: None,
+                    };
+                    return;
+                };
                 let s = ((t - m.t_seg0) / dur).clamp(0.0, 1.0);
                 let ease = s * s * (3.0 - 2.0 * s);
                 self.q = m.from.slerp(&target, ease);
@@ -406,7 +415,7 @@ impl Sim {
 
     /// Level with a gentle wobble of a few degrees, as a hovering vehicle is.
     fn hover_attitude(&self, t: f64) -> UnitQuaternion<f64> {
-        let up = self.rest_q[self.takeoff];
+        let up = self.rest_q.get(self.takeoff).copied().unwrap_or_default();
         let wob = UnitQuaternion::from_euler_angles(
             (4.0f64).to_radians() * (1.7 * t).sin(),
             (3.0f64).to_radians() * (1.1 * t).cos(),

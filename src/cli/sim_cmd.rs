@@ -76,6 +76,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let mut sim = Sim::new(cage, args.seed);
     let mut wire = Wire::new(args.proto);
     let neighbours = |sim: &Sim, f: usize| -> Vec<String> {
+        // ok: f comes from the simulator's resting face, an index into these faces.
         let face = &cage.faces[f];
         cage.faces
             .iter()

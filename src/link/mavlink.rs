@@ -320,8 +320,9 @@ pub struct SampleMaker {
 const MAX_BOOT_TIME_S: f64 = 1.0e8;
 
 impl SampleMaker {
-    /// The sample a frame carries, or `None` when it carries nothing we use
-    /// (a ground station's heartbeat, unknown battery voltage) or carries
+    /// The sample a frame carries, or nothing when it carries nothing we use
+    /// (the heartbeat of a ground station or of a component that is no
+    /// flight controller, an unknown battery voltage), or carries
     /// values that are not numbers (counted by the caller as malformed via
     /// [`SampleOutcome::Malformed`]).
     pub fn sample(&mut self, frame: &Frame, arrival_s: f64) -> SampleOutcome {
@@ -338,10 +339,13 @@ impl SampleMaker {
         match &frame.message {
             Message::Heartbeat {
                 mav_type,
+                autopilot,
                 base_mode,
                 ..
             } => {
-                if *mav_type == messages::MAV_TYPE_GCS {
+                if *mav_type == messages::MAV_TYPE_GCS
+                    || *autopilot == messages::MAV_AUTOPILOT_INVALID
+                {
                     return SampleOutcome::Nothing;
                 }
                 s.t_s = t(None, self);

@@ -54,6 +54,10 @@ pub const MODE_FLAG_ARMED: u8 = 0x80;
 /// `type` of a ground control station (MAV_TYPE_GCS): its heartbeat says
 /// nothing about the vehicle.
 pub const MAV_TYPE_GCS: u8 = 6;
+/// `autopilot` of a component that is no flight controller
+/// (MAV_AUTOPILOT_INVALID): cameras, gimbals, companion computers and ground
+/// stations; their heartbeats say nothing about the vehicle's arming.
+pub const MAV_AUTOPILOT_INVALID: u8 = 8;
 /// UINT16_MAX marks an unknown cell voltage or battery voltage.
 pub const UNKNOWN_U16: u16 = u16::MAX;
 

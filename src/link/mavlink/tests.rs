@@ -158,6 +158,25 @@ fn pymavlink_fixtures_decode_to_their_inputs() {
 }
 
 #[test]
+fn only_flight_controller_heartbeats_say_armed() {
+    let hb = |mav_type, autopilot, base_mode| {
+        let m = Message::Heartbeat {
+            mav_type,
+            autopilot,
+            base_mode,
+            custom_mode: 0,
+            system_status: 4,
+        };
+        let (f, _) = decode_all(MavConfig::default(), &encode_frame(2, 0, 1, 1, &m, None));
+        SampleMaker::default().sample(&f[0], 0.0)
+    };
+    // MAV_TYPE_GCS (6) and MAV_AUTOPILOT_INVALID (8), common.xml.
+    assert_eq!(hb(6, 8, 0), SampleOutcome::Nothing);
+    assert_eq!(hb(30, 8, 0), SampleOutcome::Nothing); // a camera
+    assert!(matches!(hb(2, 12, 0x80), SampleOutcome::Sample(s) if s.armed == Some(true)));
+}
+
+#[test]
 fn our_encoder_matches_pymavlink_bytes() {
     // The simulator's frames must be what an independent implementation
     // sends: compare with pymavlink 2.4.50 output (gen_frames.py).

@@ -97,6 +97,9 @@ pub struct WatchState {
     /// Face id: the resting face, the nearest face while moving or
     /// airborne, null when stale.
     pub face: Option<String>,
+    /// Index of that face in `cage.faces`, for screens (not in the JSON).
+    #[serde(skip)]
+    pub face_index: Option<usize>,
     /// Angle between that face's normal and gravity, degrees.
     pub error_deg: Option<f64>,
     /// Roll, pitch, yaw in degrees (Z-Y-X).
@@ -283,6 +286,7 @@ impl Tracker {
             t: (self.now_s * 1000.0).round() / 1000.0,
             state: WatchStateKind::Stale,
             face: None,
+            face_index: None,
             error_deg: None,
             rpy_deg: None,
             armed: None,
@@ -304,6 +308,7 @@ impl Tracker {
                     armed: self.armed,
                     battery_v: self.battery_v,
                     face: cage.faces.get(a.face).map(|f| f.id.clone()),
+                    face_index: cage.faces.get(a.face).map(|_| a.face),
                     error_deg: Some(round2(a.error_deg)),
                     rpy_deg: Some(r),
                     ..base
@@ -353,6 +358,7 @@ mod tests {
         // Still for 1 s > dwell 0.5 s, normal along gravity.
         assert_eq!(s.state, WatchStateKind::Resting);
         assert_eq!(s.face.as_deref(), Some(c.faces[4].id.as_str()));
+        assert_eq!(s.face_index, Some(4));
         assert!(s.error_deg.is_some_and(|e| e < 1e-6));
         assert!((s.link.rate_hz - 50.0).abs() < 1.0, "{}", s.link.rate_hz);
         // No data for longer than stale_after_s (1.5 s in the demo).

@@ -417,9 +417,10 @@ fn read_udp(sock: std::net::UdpSocket, allow: &[AllowEntry], sink: &mut Sink, st
     let t0 = Instant::now();
     let mut buf = vec![0u8; 65536];
     while !stop.load(Ordering::Relaxed) {
-        let now = t0.elapsed().as_secs_f64();
         let ok = match sock.recv_from(&mut buf) {
             Ok((n, from)) => {
+                // Arrival time is taken after the wait, not before it.
+                let now = t0.elapsed().as_secs_f64();
                 if allow.is_empty() || allow.iter().any(|a| a.matches(&from)) {
                     sink.data(now, &buf[..n])
                 } else {
@@ -460,11 +461,10 @@ fn read_serial(
     let t0 = Instant::now();
     let mut buf = vec![0u8; 4096];
     while !stop.load(Ordering::Relaxed) {
-        let now = t0.elapsed().as_secs_f64();
         match port.read(&mut buf) {
             Ok(0) => {}
             Ok(n) => {
-                if !sink.data(now, &buf[..n]) {
+                if !sink.data(t0.elapsed().as_secs_f64(), &buf[..n]) {
                     return;
                 }
             }

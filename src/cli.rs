@@ -12,9 +12,13 @@ use std::process::ExitCode;
 
 mod cage_cmd;
 pub mod impact_cmd;
+pub mod link_args;
 mod plan_cmd;
 mod profile_cmd;
+mod record_cmd;
+mod sim_cmd;
 mod tui_cmd;
+mod watch_cmd;
 
 /// Bad input or usage: the command exits with code 2.
 #[derive(Debug, thiserror::Error)]
@@ -44,6 +48,12 @@ enum Command {
     Impact(impact_cmd::Args),
     /// Roll plan from a face or attitude to a take-off face.
     Plan(plan_cmd::Args),
+    /// Watch the vehicle live (`--headless`: JSON lines).
+    Watch(watch_cmd::Args),
+    /// Send simulated telemetry to a UDP link.
+    Sim(sim_cmd::Args),
+    /// Record a link's raw bytes with arrival times.
+    Record(record_cmd::Args),
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -133,5 +143,8 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Profile(a)) => profile_cmd::run(&a),
         Some(Command::Impact(a)) => impact_cmd::run(&a),
         Some(Command::Plan(a)) => plan_cmd::run(&a),
+        Some(Command::Watch(a)) => watch_cmd::run(&a),
+        Some(Command::Sim(a)) => sim_cmd::run(&a),
+        Some(Command::Record(a)) => record_cmd::run(&a),
     }
 }

@@ -1,0 +1,105 @@
+//! The link flags shared by `watch` and `record`, turned into an open link.
+
+use super::bad_input;
+use crate::cage::Cage;
+use crate::link::Proto;
+use crate::link::mavlink::{MavConfig, SigningKey};
+use crate::link::spec::{AllowEntry, LinkSpec, ReplaySpeed};
+use crate::link::transport::{self, Link, LinkOptions, Mode};
+use std::io::Write;
+use std::path::{Path, PathBuf};
+
+/// Where telemetry comes from and what to accept.
+#[derive(Debug, Clone, clap::Args)]
+pub struct LinkArgs {
+    /// udp:HOST:PORT (listen; 127.0.0.1 unless named), serial:PATH@BAUD,
+    /// file:PATH (a recording), raw:PATH (a plain byte capture), sim[:SEED].
+    #[arg(long, value_name = "SPEC", default_value = "sim")]
+    pub link: String,
+    /// Protocol on the link.
+    #[arg(long, value_enum, default_value_t = Proto::Auto)]
+    pub proto: Proto,
+    /// Accept UDP only from this sender (IP or IP:PORT); repeatable.
+    #[arg(long, value_name = "ADDR")]
+    pub allow: Vec<String>,
+    /// Accept MAVLink only from this system id.
+    #[arg(long, value_name = "ID")]
+    pub sysid: Option<u8>,
+    /// MAVLink 2 signing key: 64 hexadecimal characters on one line. With
+    /// it, unsigned, badly signed and replayed frames are rejected.
+    #[arg(long, value_name = "FILE")]
+    pub signing_key: Option<PathBuf>,
+    /// Pace of file: replays and of the sim link: `max` or a factor (1 = as recorded).
+    #[arg(long, value_name = "SPEED", default_value = "1")]
+    pub replay_speed: String,
+}
+
+/// Read a signing key file, warning when others can read it.
+pub fn read_key(path: &Path) -> anyhow::Result<SigningKey> {
+    let text = std::fs::read_to_string(path)
+        .map_err(|e| bad_input(format!("cannot read signing key {}: {e}", path.display())))?;
+    #[cfg(unix)]
+    {
+        use std::os::unix::fs::PermissionsExt;
+        if let Ok(m) = std::fs::metadata(path) {
+            let mode = m.permissions().mode() & 0o777;
+            if mode & 0o077 != 0 {
+                let mut err = std::io::stderr().lock();
+                let _ = writeln!(
+                    err,
+                    "cagehand: warning: signing key {} can be read by others (mode {mode:o}); `chmod 600 {}`",
+                    path.display(),
+                    path.display()
+                );
+            }
+        }
+    }
+    SigningKey::from_hex_text(&text).map_err(|e| bad_input(format!("{}: {e}", path.display())))
+}
+
+impl LinkArgs {
+    /// The parsed spec.
+    pub fn spec(&self) -> anyhow::Result<LinkSpec> {
+        self.link
+            .parse()
+            .map_err(|e: crate::link::spec::SpecError| bad_input(e.to_string()))
+    }
+
+    /// Open the link (the cage feeds the sim link).
+    pub fn open(&self, cage: Option<Cage>, mode: Mode) -> anyhow::Result<Link> {
+        let spec = self.spec()?;
+        let allow = self
+            .allow
+            .iter()
+            .map(|a| {
+                a.parse::<AllowEntry>()
+                    .map_err(|e| bad_input(format!("--allow {e}")))
+            })
+            .collect::<anyhow::Result<Vec<_>>>()?;
+        if !allow.is_empty() && !matches!(spec, LinkSpec::Udp(_)) {
+            return Err(bad_input("--allow applies to udp: links only"));
+        }
+        let replay_speed: ReplaySpeed = self
+            .replay_speed
+            .parse()
+            .map_err(|e: String| bad_input(format!("--replay-speed {e}")))?;
+        let signing_key = self.signing_key.as_deref().map(read_key).transpose()?;
+        let opts = LinkOptions {
+            proto: self.proto,
+            mav: MavConfig {
+                sysid: self.sysid,
+                signing_key,
+            },
+            allow,
+            replay_speed,
+            cage,
+        };
+        transport::open(&spec, opts, mode).map_err(|e| {
+            if e.is_bad_input() {
+                bad_input(e.to_string())
+            } else {
+                anyhow::Error::new(e)
+            }
+        })
+    }
+}

@@ -1,0 +1,252 @@
+//! Links: where telemetry comes from. The decoders (`mavlink`, `line`) and
+//! the recording format (`record`) are pure and take bytes from the caller;
+//! `transport` sits at the edge (sockets, serial ports, files, threads).
+
+pub mod line;
+pub mod mavlink;
+pub mod record;
+pub mod spec;
+pub mod transport;
+
+use crate::sample::Sample;
+use serde::Serialize;
+
+/// What went through a decoder. The link-health line shows these.
+#[derive(Debug, Clone, Copy, Default, PartialEq, Eq, Serialize)]
+pub struct Counters {
+    /// Good frames or lines, accepted.
+    pub frames: u64,
+    /// MAVLink candidates refused: bad CRC or an impossible header.
+    pub crc_errors: u64,
+    /// MAVLink frames with an id outside the subset, skipped.
+    pub unknown: u64,
+    /// Lines (or frame values) that do not parse, skipped.
+    pub malformed: u64,
+    /// Good frames refused: wrong system id, unsigned or badly signed or
+    /// replayed when a key is set, or a UDP sender not on the allow-list.
+    pub rejected: u64,
+    /// Samples lost because nobody took them in time.
+    pub dropped: u64,
+}
+
+impl Counters {
+    /// Sum of two sets of counters.
+    pub fn plus(&self, o: &Counters) -> Counters {
+        Counters {
+            frames: self.frames + o.frames,
+            crc_errors: self.crc_errors + o.crc_errors,
+            unknown: self.unknown + o.unknown,
+            malformed: self.malformed + o.malformed,
+            rejected: self.rejected + o.rejected,
+            dropped: self.dropped + o.dropped,
+        }
+    }
+}
+
+/// Which decoder reads a link.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum, Serialize)]
+#[serde(rename_all = "lowercase")]
+pub enum Proto {
+    /// MAVLink v1/v2.
+    Mavlink,
+    /// key=value lines.
+    Line,
+    /// Decide from the data: the first protocol to give a good frame wins.
+    #[default]
+    Auto,
+}
+
+/// A decoder for one link, whichever protocol it speaks.
+#[derive(Debug)]
+pub struct Decoder {
+    mav: Option<(mavlink::MavDecoder, mavlink::SampleMaker)>,
+    line: Option<line::LineDecoder>,
+    out: std::collections::VecDeque<Sample>,
+    extra: Counters,
+}
+
+/// Samples kept for the caller before the oldest are dropped.
+const MAX_QUEUED_SAMPLES: usize = 512;
+
+impl Decoder {
+    /// A decoder for `proto` with the MAVLink filters in `cfg`.
+    pub fn new(proto: Proto, cfg: mavlink::MavConfig) -> Decoder {
+        let mav = || {
+            Some((
+                mavlink::MavDecoder::new(cfg.clone()),
+                mavlink::SampleMaker::default(),
+            ))
+        };
+        let (m, l) = match proto {
+            Proto::Mavlink => (mav(), None),
+            Proto::Line => (None, Some(line::LineDecoder::new())),
+            Proto::Auto => (mav(), Some(line::LineDecoder::new())),
+        };
+        Decoder {
+            mav: m,
+            line: l,
+            out: Default::default(),
+            extra: Counters::default(),
+        }
+    }
+
+    /// The protocol in use (auto until the data has decided).
+    pub fn proto(&self) -> Proto {
+        match (&self.mav, &self.line) {
+            (Some(_), None) => Proto::Mavlink,
+            (None, Some(_)) => Proto::Line,
+            _ => Proto::Auto,
+        }
+    }
+
+    /// Feed bytes that arrived at `arrival_s` (receiver clock).
+    pub fn push(&mut self, data: &[u8], arrival_s: f64) {
+        // Small pieces, collected after each, so the inner queues never fill
+        // and only this decoder's queue drops (and counts) samples.
+        for piece in data.chunks(1024) {
+            if let Some(l) = self.line.as_mut() {
+                l.push(piece, arrival_s);
+            }
+            if let Some((m, _)) = self.mav.as_mut() {
+                m.push(piece);
+            }
+            self.settle();
+            self.collect(arrival_s);
+        }
+    }
+
+    /// End of input: a last line without a newline still counts.
+    pub fn finish(&mut self, arrival_s: f64) {
+        if let Some(l) = self.line.as_mut() {
+            l.finish(arrival_s);
+        }
+        self.settle();
+        self.collect(arrival_s);
+    }
+
+    /// Next sample, oldest first.
+    pub fn pop(&mut self) -> Option<Sample> {
+        self.out.pop_front()
+    }
+
+    /// Counters of the protocol in use.
+    pub fn counters(&self) -> Counters {
+        let base = match (&self.mav, &self.line) {
+            (Some((m, _)), Some(l)) => {
+                // Undecided: report MAVLink's view unless lines are clearly winning.
+                if l.counters().frames > 0 {
+                    l.counters()
+                } else {
+                    m.counters()
+                }
+            }
+            (Some((m, _)), None) => m.counters(),
+            (None, Some(l)) => l.counters(),
+            (None, None) => Counters::default(),
+        };
+        base.plus(&self.extra)
+    }
+
+    /// Count a sample the caller could not deliver.
+    pub fn count_dropped(&mut self, n: u64) {
+        self.extra.dropped += n;
+    }
+
+    /// Count a datagram refused before decoding (sender not allowed).
+    pub fn count_rejected(&mut self, n: u64) {
+        self.extra.rejected += n;
+    }
+
+    fn settle(&mut self) {
+        if self.mav.is_some() && self.line.is_some() {
+            let mf = self.mav.as_ref().map_or(0, |(m, _)| m.counters().frames);
+            let lf = self.line.as_ref().map_or(0, |l| l.counters().frames);
+            if mf > 0 {
+                self.line = None;
+            } else if lf > 0 {
+                self.mav = None;
+            }
+        }
+    }
+
+    fn collect(&mut self, arrival_s: f64) {
+        let mut got = Vec::new();
+        if let Some((m, maker)) = self.mav.as_mut() {
+            while let Some(f) = m.pop() {
+                match maker.sample(&f, arrival_s) {
+                    mavlink::SampleOutcome::Sample(s) => got.push(s),
+                    mavlink::SampleOutcome::Nothing => {}
+                    mavlink::SampleOutcome::Malformed => self.extra.malformed += 1,
+                }
+            }
+        }
+        if let Some(l) = self.line.as_mut() {
+            // While undecided, line samples wait in the line decoder's queue.
+            if self.mav.is_none() {
+                while let Some(s) = l.pop() {
+                    got.push(s);
+                }
+            }
+        }
+        for s in got {
+            if self.out.len() >= MAX_QUEUED_SAMPLES {
+                self.out.pop_front();
+                self.extra.dropped += 1;
+            }
+            self.out.push_back(s);
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    use proptest::prelude::*;
+
+    #[test]
+    fn samples_nobody_takes_are_dropped_and_counted() {
+        let mut d = Decoder::new(Proto::Line, Default::default());
+        let text = "t=1 vbat=12\n".repeat(MAX_QUEUED_SAMPLES + 10);
+        d.push(text.as_bytes(), 0.0);
+        let c = d.counters();
+        assert_eq!((c.frames, c.dropped), (MAX_QUEUED_SAMPLES as u64 + 10, 10));
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(64))]
+        #[test]
+        fn auto_decoder_survives_arbitrary_bytes(data in proptest::collection::vec(any::<u8>(), 0..3000)) {
+            let mut d = Decoder::new(Proto::Auto, Default::default());
+            d.push(&data, 0.0);
+            d.finish(0.0);
+            let mut n = 0;
+            while d.pop().is_some() { n += 1; }
+            prop_assert!(n <= MAX_QUEUED_SAMPLES);
+        }
+    }
+
+    #[test]
+    fn auto_settles_on_lines_for_text() {
+        let mut d = Decoder::new(Proto::Auto, Default::default());
+        d.push(b"t=1 roll=0 pitch=0 yaw=0\n", 0.0);
+        assert_eq!(d.proto(), Proto::Line);
+        assert_eq!(d.pop().map(|s| s.t_s), Some(1.0));
+    }
+
+    #[test]
+    fn auto_settles_on_mavlink_for_frames() {
+        // REFERENCES.md v1 ATTITUDE frame (pymavlink 2.4.50 reference frames).
+        let hex = "fe1c0001011e40e20100cdcccc3dcdcc4cbe0000c03f0ad7233c0ad7a3bc8fc2f53c4c6c";
+        let bytes: Vec<u8> = (0..hex.len())
+            .step_by(2)
+            .map(|i| u8::from_str_radix(&hex[i..i + 2], 16).expect("hex"))
+            .collect();
+        let mut d = Decoder::new(Proto::Auto, Default::default());
+        d.push(&bytes, 0.0);
+        assert_eq!(d.proto(), Proto::Mavlink);
+        assert_eq!(d.counters().frames, 1);
+        // time_boot_ms 123456 -> 123.456 s (REFERENCES.md).
+        assert_eq!(d.pop().map(|s| s.t_s), Some(123.456));
+    }
+}

@@ -1,0 +1,316 @@
+//! The line protocol for custom firmware (DESIGN.md): one sample per line of
+//! whitespace-separated `key=value` pairs. Keys: `t` (s), `roll pitch yaw`
+//! (degrees, Z-Y-X) or `qw qx qy qz`, optional `ax ay az` (m/s^2, body),
+//! `vn ve vd` (m/s, NED), `vbat` (V), `armed` (0/1). Unknown keys are
+//! ignored; a line that does not parse is counted and skipped. Lines are
+//! bounded: a longer line is malformed and read past to its newline.
+//! Empty lines and lines starting with `#` are skipped silently. A line
+//! without `t` takes the arrival time.
+
+use crate::attitude::quat_from_rpy_deg;
+use crate::link::Counters;
+use crate::link::mavlink::unit_quaternion;
+use crate::sample::Sample;
+use nalgebra::Vector3;
+use std::collections::VecDeque;
+
+/// Longest line accepted, bytes.
+pub const MAX_LINE_LEN: usize = 512;
+const MAX_QUEUED: usize = 256;
+
+/// Why a line was refused.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+pub enum LineError {
+    /// A token without `=`.
+    #[error("token {0:?} is not key=value")]
+    NotPair(String),
+    /// A known key whose value is not a finite number.
+    #[error("key {key}: expected a finite number, found {found:?}")]
+    BadNumber {
+        /// Key.
+        key: String,
+        /// Value text.
+        found: String,
+    },
+    /// `armed` not 0 or 1.
+    #[error("key armed: expected 0 or 1, found {0:?}")]
+    BadArmed(String),
+    /// The same key twice.
+    #[error("key {0} given twice")]
+    Duplicate(String),
+    /// Only some of a group (roll/pitch/yaw, qw..qz, ax..az, vn..vd).
+    #[error("incomplete group: {0} must come together")]
+    Incomplete(&'static str),
+    /// Both Euler angles and a quaternion.
+    #[error("both roll/pitch/yaw and a quaternion given")]
+    BothAttitudes,
+    /// A quaternion far from unit length.
+    #[error("quaternion is not of unit length")]
+    NotUnit,
+    /// No known key at all.
+    #[error("no known key")]
+    Empty,
+    /// Longer than [`MAX_LINE_LEN`] or not UTF-8.
+    #[error("line too long or not text")]
+    NotText,
+}
+
+const KEYS: [&str; 16] = [
+    "t", "roll", "pitch", "yaw", "qw", "qx", "qy", "qz", "ax", "ay", "az", "vn", "ve", "vd",
+    "vbat", "armed",
+];
+
+/// Parse one line (without its newline). `Ok(None)` for blank or comment lines.
+pub fn parse_line(line: &str, arrival_s: f64) -> Result<Option<Sample>, LineError> {
+    let line = line.trim();
+    if line.is_empty() || line.starts_with('#') {
+        return Ok(None);
+    }
+    let mut vals: [Option<f64>; 16] = [None; 16];
+    for tok in line.split_whitespace() {
+        let (k, v) = tok
+            .split_once('=')
+            .ok_or_else(|| LineError::NotPair(tok.chars().take(40).collect()))?;
+        let Some(idx) = KEYS.iter().position(|&x| x == k) else {
+            continue; // unknown keys are ignored
+        };
+        if vals[idx].is_some() {
+            return Err(LineError::Duplicate(k.to_string()));
+        }
+        let x = if k == "armed" {
+            match v {
+                "0" => 0.0,
+                "1" => 1.0,
+                _ => return Err(LineError::BadArmed(v.chars().take(40).collect())),
+            }
+        } else {
+            match v.parse::<f64>() {
+                Ok(x) if x.is_finite() => x,
+                _ => {
+                    return Err(LineError::BadNumber {
+                        key: k.to_string(),
+                        found: v.chars().take(40).collect(),
+                    });
+                }
+            }
+        };
+        vals[idx] = Some(x);
+    }
+    if vals.iter().all(Option::is_none) {
+        return Err(LineError::Empty);
+    }
+    let group =
+        |r: std::ops::Range<usize>, name: &'static str| -> Result<Option<Vec<f64>>, LineError> {
+            let g: Vec<Option<f64>> = vals[r].to_vec();
+            if g.iter().all(Option::is_some) {
+                Ok(Some(g.into_iter().flatten().collect()))
+            } else if g.iter().all(Option::is_none) {
+                Ok(None)
+            } else {
+                Err(LineError::Incomplete(name))
+            }
+        };
+    let rpy = group(1..4, "roll pitch yaw")?;
+    let q = group(4..8, "qw qx qy qz")?;
+    let acc = group(8..11, "ax ay az")?;
+    let vel = group(11..14, "vn ve vd")?;
+    let attitude = match (rpy, q) {
+        (Some(_), Some(_)) => return Err(LineError::BothAttitudes),
+        (Some(e), None) => Some(quat_from_rpy_deg(e[0], e[1], e[2])),
+        (None, Some(q)) => {
+            Some(unit_quaternion([q[0], q[1], q[2], q[3]]).ok_or(LineError::NotUnit)?)
+        }
+        (None, None) => None,
+    };
+    Ok(Some(Sample {
+        t_s: vals[0].unwrap_or(arrival_s),
+        attitude,
+        accel_body_m_s2: acc.map(|a| Vector3::new(a[0], a[1], a[2])),
+        velocity_ned_m_s: vel.map(|v| Vector3::new(v[0], v[1], v[2])),
+        battery_v: vals[14],
+        armed: vals[15].map(|a| a > 0.5),
+    }))
+}
+
+/// Streaming line decoder: push bytes, pull samples.
+#[derive(Debug, Default)]
+pub struct LineDecoder {
+    line: Vec<u8>,
+    overflow: bool,
+    out: VecDeque<Sample>,
+    counters: Counters,
+}
+
+impl LineDecoder {
+    /// An empty decoder.
+    pub fn new() -> LineDecoder {
+        LineDecoder::default()
+    }
+
+    /// Counters so far.
+    pub fn counters(&self) -> Counters {
+        self.counters
+    }
+
+    /// Feed bytes that arrived at `arrival_s`.
+    pub fn push(&mut self, data: &[u8], arrival_s: f64) {
+        for &b in data {
+            if b == b'\n' {
+                self.end_line(arrival_s);
+            } else if self.line.len() < MAX_LINE_LEN {
+                self.line.push(b);
+            } else {
+                self.overflow = true;
+            }
+        }
+    }
+
+    /// End of input: parse a last line that has no newline.
+    pub fn finish(&mut self, arrival_s: f64) {
+        if !self.line.is_empty() || self.overflow {
+            self.end_line(arrival_s);
+        }
+    }
+
+    /// Next sample.
+    pub fn pop(&mut self) -> Option<Sample> {
+        self.out.pop_front()
+    }
+
+    fn end_line(&mut self, arrival_s: f64) {
+        let res = if self.overflow {
+            Err(LineError::NotText)
+        } else {
+            match std::str::from_utf8(&self.line) {
+                Ok(s) => parse_line(s, arrival_s),
+                Err(_) => Err(LineError::NotText),
+            }
+        };
+        self.line.clear();
+        self.overflow = false;
+        match res {
+            Ok(Some(s)) => {
+                self.counters.frames += 1;
+                if self.out.len() >= MAX_QUEUED {
+                    self.out.pop_front();
+                    self.counters.dropped += 1;
+                }
+                self.out.push_back(s);
+            }
+            Ok(None) => {}
+            Err(_) => self.counters.malformed += 1,
+        }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::attitude::rpy_deg;
+    use approx::assert_relative_eq;
+    use proptest::prelude::*;
+
+    #[test]
+    fn full_line_parses_in_degrees() {
+        let s = parse_line(
+            "t=12.5 roll=10 pitch=20 yaw=30 ax=0.1 ay=0 az=-9.8 vn=1 ve=2 vd=-0.5 vbat=11.9 armed=1 extra=7",
+            0.0,
+        )
+        .expect("parses")
+        .expect("a sample");
+        assert_eq!(s.t_s, 12.5);
+        // REFERENCES.md: roll 10, pitch 20, yaw 30 deg -> q (computed, scipy Rotation).
+        let q = s.attitude.expect("attitude").coords;
+        assert_relative_eq!(q.w, 0.951548525, epsilon = 1e-9);
+        assert_relative_eq!(q.x, 0.038134576, epsilon = 1e-9);
+        assert_relative_eq!(q.y, 0.189307857, epsilon = 1e-9);
+        assert_relative_eq!(q.z, 0.239298338, epsilon = 1e-9);
+        assert_eq!(s.accel_body_m_s2, Some(Vector3::new(0.1, 0.0, -9.8)));
+        assert_eq!(s.velocity_ned_m_s, Some(Vector3::new(1.0, 2.0, -0.5)));
+        assert_eq!(s.battery_v, Some(11.9));
+        assert_eq!(s.armed, Some(true));
+    }
+
+    #[test]
+    fn quaternion_line_and_arrival_time() {
+        let s = parse_line(
+            "qw=0.951548525 qx=0.038134576 qy=0.189307857 qz=0.239298338",
+            4.0,
+        )
+        .expect("parses")
+        .expect("a sample");
+        assert_eq!(s.t_s, 4.0);
+        let rpy = rpy_deg(&s.attitude.expect("attitude"));
+        // Same REFERENCES.md attitude vector, the other way round.
+        assert_relative_eq!(rpy[0], 10.0, epsilon = 1e-6);
+        assert_relative_eq!(rpy[1], 20.0, epsilon = 1e-6);
+        assert_relative_eq!(rpy[2], 30.0, epsilon = 1e-6);
+    }
+
+    #[test]
+    fn bad_lines_are_refused_with_a_reason() {
+        let cases = [
+            (
+                "t=1 roll=1 pitch=2",
+                LineError::Incomplete("roll pitch yaw"),
+            ),
+            ("t=1 roll", LineError::NotPair("roll".into())),
+            (
+                "t=x",
+                LineError::BadNumber {
+                    key: "t".into(),
+                    found: "x".into(),
+                },
+            ),
+            (
+                "vbat=nan",
+                LineError::BadNumber {
+                    key: "vbat".into(),
+                    found: "nan".into(),
+                },
+            ),
+            ("armed=yes", LineError::BadArmed("yes".into())),
+            ("t=1 t=2", LineError::Duplicate("t".into())),
+            ("qw=2 qx=0 qy=0 qz=0", LineError::NotUnit),
+            (
+                "roll=0 pitch=0 yaw=0 qw=1 qx=0 qy=0 qz=0",
+                LineError::BothAttitudes,
+            ),
+            ("foo=1 bar=2", LineError::Empty),
+        ];
+        for (line, want) in cases {
+            assert_eq!(parse_line(line, 0.0), Err(want), "{line}");
+        }
+        assert_eq!(parse_line("  # comment", 0.0), Ok(None));
+        assert_eq!(parse_line("", 0.0), Ok(None));
+    }
+
+    #[test]
+    fn stream_counts_and_recovers() {
+        let mut d = LineDecoder::new();
+        let mut text = b"t=1 roll=0 pitch=0 yaw=0\r\nbad line\n".to_vec();
+        text.extend(std::iter::repeat_n(b'x', MAX_LINE_LEN + 10));
+        text.extend_from_slice(b"\n\xff\xfe\nt=2 vbat=12");
+        d.push(&text, 0.0);
+        d.finish(0.0);
+        let c = d.counters();
+        assert_eq!(c.frames, 2);
+        assert_eq!(c.malformed, 3); // "bad line", the long line, the non-text line
+        assert_eq!(d.pop().map(|s| s.t_s), Some(1.0));
+        assert_eq!(d.pop().and_then(|s| s.battery_v), Some(12.0));
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(64))]
+        #[test]
+        fn arbitrary_bytes_never_panic_and_stay_bounded(data in proptest::collection::vec(any::<u8>(), 0..4000)) {
+            let mut d = LineDecoder::new();
+            d.push(&data, 0.0);
+            prop_assert!(d.line.len() <= MAX_LINE_LEN);
+            d.push(b"\nt=9 roll=1 pitch=2 yaw=3\n", 0.0);
+            let mut last = None;
+            while let Some(s) = d.pop() { last = Some(s); }
+            prop_assert_eq!(last.map(|s| s.t_s), Some(9.0));
+        }
+    }
+}

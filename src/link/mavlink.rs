@@ -1,0 +1,465 @@
+//! MAVLink v1 and v2 framing for the DESIGN.md subset, hand-written: the
+//! subset is eight messages, and a decoder we own can count every kind of
+//! trouble (bad CRC, unknown id, refused sender) the link-health line shows.
+//!
+//! The streaming decoder takes bytes as they arrive and hands back frames.
+//! Its rules (REFERENCES.md, MAVLink): the CRC is CRC-16/MCRF4XX over every
+//! byte after the start byte, then the message's CRC_EXTRA; a MAVLink 2
+//! payload may be truncated (trailing zeros dropped) and is zero-filled; a
+//! payload longer than we know is accepted and the rest ignored; after a bad
+//! candidate the search resumes one byte past its start byte; a frame with
+//! an id outside the subset cannot be checked, so it is counted and skipped
+//! whole when the byte after it starts another frame (else it is noise and
+//! the search resumes one byte on). Memory is bounded: the buffer never holds more than one chunk plus
+//! one incomplete frame, and the output queue drops (and counts) its oldest
+//! frames when nobody pulls.
+
+pub mod messages;
+pub mod signing;
+
+use crate::link::Counters;
+use crate::sample::{STANDARD_GRAVITY_M_S2, Sample};
+use crc::{CRC_16_MCRF4XX, Crc};
+pub use messages::Message;
+use nalgebra::{Quaternion, UnitQuaternion, Vector3};
+pub use signing::{SignatureVerdict, SigningKey, Verifier};
+use std::collections::VecDeque;
+
+/// MAVLink 1 start byte.
+pub const STX_V1: u8 = 0xFE;
+/// MAVLink 2 start byte.
+pub const STX_V2: u8 = 0xFD;
+/// Header bytes after and including the start byte.
+const HDR_V1: usize = 6;
+const HDR_V2: usize = 10;
+/// Longest possible frame: v2 header, 255 payload, CRC, signature.
+pub const MAX_FRAME_LEN: usize = HDR_V2 + 255 + 2 + signing::SIGNATURE_LEN;
+/// Bytes taken from the caller per parse pass (bounds the buffer).
+const CHUNK: usize = 1024;
+/// Frames kept for the caller before the oldest are dropped.
+const MAX_QUEUED: usize = 256;
+
+const X25: Crc<u16> = Crc::<u16>::new(&CRC_16_MCRF4XX);
+
+/// CRC-16/MCRF4XX of `bytes` followed by `extra` (the MAVLink checksum).
+pub fn checksum(bytes: &[u8], extra: u8) -> u16 {
+    let mut d = X25.digest();
+    d.update(bytes);
+    d.update(&[extra]);
+    d.finalize()
+}
+
+/// A frame that passed CRC, filters and signing.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Frame {
+    /// 1 or 2.
+    pub version: u8,
+    /// Sequence number.
+    pub seq: u8,
+    /// Sending system.
+    pub sysid: u8,
+    /// Sending component.
+    pub compid: u8,
+    /// Whether it carried a signature (checked only when a key is set).
+    pub signed: bool,
+    /// The decoded message.
+    pub message: Message,
+}
+
+/// What the decoder accepts.
+#[derive(Debug, Clone, Default)]
+pub struct MavConfig {
+    /// Only frames from this system id (several vehicles on one link).
+    pub sysid: Option<u8>,
+    /// With a key, only frames signed with it (and not replayed) pass.
+    pub signing_key: Option<SigningKey>,
+}
+
+/// Streaming MAVLink decoder: push bytes, pull frames.
+#[derive(Debug)]
+pub struct MavDecoder {
+    buf: Vec<u8>,
+    sysid: Option<u8>,
+    verifier: Option<Verifier>,
+    out: VecDeque<Frame>,
+    counters: Counters,
+}
+
+enum Candidate {
+    /// Not enough bytes yet.
+    Incomplete,
+    /// Not a frame: resync one byte past the start byte.
+    Bad,
+    /// A frame of an id we do not know: skip this many bytes.
+    Unknown(usize),
+    /// A frame that passed the CRC but a filter refused it.
+    Rejected(usize),
+    /// A good frame of this many bytes.
+    Good(Frame, usize),
+}
+
+impl MavDecoder {
+    /// A decoder with the given filters.
+    pub fn new(cfg: MavConfig) -> MavDecoder {
+        MavDecoder {
+            buf: Vec::with_capacity(CHUNK + MAX_FRAME_LEN),
+            sysid: cfg.sysid,
+            verifier: cfg.signing_key.map(Verifier::new),
+            out: VecDeque::new(),
+            counters: Counters::default(),
+        }
+    }
+
+    /// Counters so far.
+    pub fn counters(&self) -> Counters {
+        self.counters
+    }
+
+    /// Bytes held while waiting for the rest of a frame (bounded).
+    pub fn buffered(&self) -> usize {
+        self.buf.len()
+    }
+
+    /// Feed received bytes.
+    pub fn push(&mut self, data: &[u8]) {
+        for chunk in data.chunks(CHUNK) {
+            self.buf.extend_from_slice(chunk);
+            self.parse();
+        }
+    }
+
+    /// Next decoded frame, oldest first.
+    pub fn pop(&mut self) -> Option<Frame> {
+        self.out.pop_front()
+    }
+
+    fn parse(&mut self) {
+        let mut i = 0;
+        loop {
+            match self.buf[i..]
+                .iter()
+                .position(|&b| b == STX_V1 || b == STX_V2)
+            {
+                None => {
+                    i = self.buf.len();
+                    break;
+                }
+                Some(k) => i += k,
+            }
+            match self.candidate(i) {
+                Candidate::Incomplete => break,
+                Candidate::Bad => {
+                    self.counters.crc_errors += 1;
+                    i += 1;
+                }
+                Candidate::Unknown(n) => {
+                    self.counters.unknown += 1;
+                    i += n;
+                }
+                Candidate::Rejected(n) => {
+                    self.counters.rejected += 1;
+                    i += n;
+                }
+                Candidate::Good(f, n) => {
+                    self.counters.frames += 1;
+                    if self.out.len() >= MAX_QUEUED {
+                        self.out.pop_front();
+                        self.counters.dropped += 1;
+                    }
+                    self.out.push_back(f);
+                    i += n;
+                }
+            }
+        }
+        self.buf.drain(..i.min(self.buf.len()));
+    }
+
+    fn candidate(&mut self, i: usize) -> Candidate {
+        let b = &self.buf[i..];
+        let v2 = b[0] == STX_V2;
+        let hdr = if v2 { HDR_V2 } else { HDR_V1 };
+        if b.len() < hdr {
+            return Candidate::Incomplete;
+        }
+        let len = b[1] as usize;
+        let (incompat, seq, sysid, compid, msgid) = if v2 {
+            let id = u32::from_le_bytes([b[7], b[8], b[9], 0]);
+            (b[2], b[4], b[5], b[6], id)
+        } else {
+            (0, b[2], b[3], b[4], b[5] as u32)
+        };
+        if incompat & !signing::INCOMPAT_SIGNED != 0 {
+            // A flag we do not understand: this cannot be a frame we can read.
+            return Candidate::Bad;
+        }
+        let signed = incompat & signing::INCOMPAT_SIGNED != 0;
+        let total = hdr + len + 2 + if signed { signing::SIGNATURE_LEN } else { 0 };
+        if b.len() < total {
+            return Candidate::Incomplete;
+        }
+        let Some(info) = messages::lookup(msgid) else {
+            // Unknown ids cannot be checked. Take it as a frame only when the
+            // next byte starts another one; otherwise a stray start byte in
+            // noise would swallow the good frames after it.
+            return match b.get(total) {
+                None => Candidate::Incomplete,
+                Some(&n) if n == STX_V1 || n == STX_V2 => Candidate::Unknown(total),
+                Some(_) => Candidate::Bad,
+            };
+        };
+        let crc_at = hdr + len;
+        let crc = u16::from_le_bytes([b[crc_at], b[crc_at + 1]]);
+        if checksum(&b[1..crc_at], info.crc_extra) != crc {
+            return Candidate::Bad;
+        }
+        if self.sysid.is_some_and(|want| want != sysid) {
+            return Candidate::Rejected(total);
+        }
+        if let Some(v) = self.verifier.as_mut()
+            && (!signed || v.check(&b[..total], sysid, compid) != SignatureVerdict::Accepted)
+        {
+            return Candidate::Rejected(total);
+        }
+        let mut payload = [0u8; messages::MAX_FULL_LEN];
+        let n = len.min(info.full_len);
+        payload[..n].copy_from_slice(&b[hdr..hdr + n]);
+        match Message::decode(msgid, &payload) {
+            Some(message) => Candidate::Good(
+                Frame {
+                    version: if v2 { 2 } else { 1 },
+                    seq,
+                    sysid,
+                    compid,
+                    signed,
+                    message,
+                },
+                total,
+            ),
+            // ok-path for completeness: every id in the table decodes.
+            None => Candidate::Unknown(total),
+        }
+    }
+}
+
+/// Signing parameters for an outgoing frame.
+#[derive(Debug, Clone, Copy)]
+pub struct SignWith<'a> {
+    /// The key.
+    pub key: &'a SigningKey,
+    /// Link id.
+    pub link_id: u8,
+    /// Timestamp, 10 us units since 2015-01-01 (48 bits used).
+    pub timestamp: u64,
+}
+
+/// Encode one frame. MAVLink 2 payloads are truncated (trailing zeros,
+/// never the first byte); MAVLink 1 carries the base length.
+pub fn encode_frame(
+    version: u8,
+    seq: u8,
+    sysid: u8,
+    compid: u8,
+    msg: &Message,
+    sign: Option<SignWith<'_>>,
+) -> Vec<u8> {
+    let id = msg.id();
+    let Some(info) = messages::lookup(id) else {
+        return Vec::new(); // ok: every Message variant is in the table
+    };
+    let mut payload = msg.encode();
+    let mut out = Vec::with_capacity(MAX_FRAME_LEN);
+    if version == 1 {
+        payload.truncate(info.base_len);
+        out.extend_from_slice(&[STX_V1, payload.len() as u8, seq, sysid, compid, id as u8]);
+    } else {
+        while payload.len() > 1 && payload.last() == Some(&0) {
+            payload.pop();
+        }
+        let incompat = if sign.is_some() {
+            signing::INCOMPAT_SIGNED
+        } else {
+            0
+        };
+        let idb = id.to_le_bytes();
+        out.extend_from_slice(&[
+            STX_V2,
+            payload.len() as u8,
+            incompat,
+            0,
+            seq,
+            sysid,
+            compid,
+            idb[0],
+            idb[1],
+            idb[2],
+        ]);
+    }
+    out.extend_from_slice(&payload);
+    let crc = checksum(&out[1..], info.crc_extra);
+    out.extend_from_slice(&crc.to_le_bytes());
+    if let (2, Some(s)) = (version, sign) {
+        out.push(s.link_id);
+        out.extend_from_slice(&s.timestamp.to_le_bytes()[..6]);
+        let sig = s.key.sign(&out);
+        out.extend_from_slice(&sig);
+    }
+    out
+}
+
+/// Turns frames into samples: one sample per frame, carrying only what that
+/// message says (attitude, specific force, velocity, battery or armed), timed
+/// by the sender's boot clock. Messages without a time field take the last
+/// sender time seen, or the arrival time before any.
+#[derive(Debug, Default, Clone)]
+pub struct SampleMaker {
+    last_t_s: Option<f64>,
+}
+
+/// Sender times above this many seconds are wall-clock epochs, not boot
+/// times; they would mix two clocks, so such messages take the last time.
+const MAX_BOOT_TIME_S: f64 = 1.0e8;
+
+impl SampleMaker {
+    /// The sample a frame carries, or nothing when it carries nothing we use
+    /// (the heartbeat of a ground station or of a component that is no
+    /// flight controller, an unknown battery voltage), or carries
+    /// values that are not numbers (counted by the caller as malformed via
+    /// [`SampleOutcome::Malformed`]).
+    pub fn sample(&mut self, frame: &Frame, arrival_s: f64) -> SampleOutcome {
+        let mut s = Sample::default();
+        let t = |ms: Option<f64>, this: &mut Self| -> f64 {
+            match ms {
+                Some(v) if v < MAX_BOOT_TIME_S => {
+                    this.last_t_s = Some(v);
+                    v
+                }
+                _ => this.last_t_s.unwrap_or(arrival_s),
+            }
+        };
+        match &frame.message {
+            Message::Heartbeat {
+                mav_type,
+                autopilot,
+                base_mode,
+                ..
+            } => {
+                if *mav_type == messages::MAV_TYPE_GCS
+                    || *autopilot == messages::MAV_AUTOPILOT_INVALID
+                {
+                    return SampleOutcome::Nothing;
+                }
+                s.t_s = t(None, self);
+                s.armed = Some(base_mode & messages::MODE_FLAG_ARMED != 0);
+            }
+            Message::SysStatus {
+                voltage_battery_mv, ..
+            } => {
+                if *voltage_battery_mv == messages::UNKNOWN_U16 {
+                    return SampleOutcome::Nothing;
+                }
+                s.t_s = t(None, self);
+                s.battery_v = Some(f64::from(*voltage_battery_mv) / 1000.0);
+            }
+            Message::BatteryStatus { voltages_mv, .. } => {
+                let known: Vec<u16> = voltages_mv
+                    .iter()
+                    .copied()
+                    .filter(|&v| v != messages::UNKNOWN_U16)
+                    .collect();
+                if known.is_empty() {
+                    return SampleOutcome::Nothing;
+                }
+                s.t_s = t(None, self);
+                s.battery_v = Some(known.iter().map(|&v| f64::from(v)).sum::<f64>() / 1000.0);
+            }
+            Message::ScaledImu {
+                time_boot_ms,
+                acc_mg,
+                ..
+            } => {
+                s.t_s = t(Some(f64::from(*time_boot_ms) / 1000.0), self);
+                let k = STANDARD_GRAVITY_M_S2 / 1000.0;
+                s.accel_body_m_s2 = Some(Vector3::new(
+                    f64::from(acc_mg[0]) * k,
+                    f64::from(acc_mg[1]) * k,
+                    f64::from(acc_mg[2]) * k,
+                ));
+            }
+            Message::HighresImu {
+                time_usec,
+                acc_m_s2,
+                ..
+            } => {
+                let a = vec3(acc_m_s2);
+                if !a.iter().all(|x| x.is_finite()) {
+                    return SampleOutcome::Malformed;
+                }
+                s.t_s = t(Some(*time_usec as f64 / 1.0e6), self);
+                s.accel_body_m_s2 = Some(a);
+            }
+            Message::Attitude {
+                time_boot_ms,
+                rpy_rad,
+                ..
+            } => {
+                let r = vec3(rpy_rad);
+                if !r.iter().all(|x| x.is_finite()) {
+                    return SampleOutcome::Malformed;
+                }
+                s.t_s = t(Some(f64::from(*time_boot_ms) / 1000.0), self);
+                s.attitude = Some(UnitQuaternion::from_euler_angles(r.x, r.y, r.z));
+            }
+            Message::AttitudeQuaternion {
+                time_boot_ms, q, ..
+            } => {
+                let Some(uq) = unit_quaternion([q[0], q[1], q[2], q[3]].map(f64::from)) else {
+                    return SampleOutcome::Malformed;
+                };
+                s.t_s = t(Some(f64::from(*time_boot_ms) / 1000.0), self);
+                s.attitude = Some(uq);
+            }
+            Message::LocalPositionNed {
+                time_boot_ms,
+                vel_m_s,
+                ..
+            } => {
+                let v = vec3(vel_m_s);
+                if !v.iter().all(|x| x.is_finite()) {
+                    return SampleOutcome::Malformed;
+                }
+                s.t_s = t(Some(f64::from(*time_boot_ms) / 1000.0), self);
+                s.velocity_ned_m_s = Some(v);
+            }
+        }
+        SampleOutcome::Sample(s)
+    }
+}
+
+/// What a frame gave.
+#[derive(Debug, Clone, PartialEq)]
+pub enum SampleOutcome {
+    /// A sample.
+    Sample(Sample),
+    /// Nothing the tracker uses.
+    Nothing,
+    /// Values that are not usable numbers.
+    Malformed,
+}
+
+fn vec3(v: &[f32; 3]) -> Vector3<f64> {
+    Vector3::new(f64::from(v[0]), f64::from(v[1]), f64::from(v[2]))
+}
+
+/// A unit quaternion from (w, x, y, z) if it is finite and within 10 % of
+/// unit length (further off means a wrong field order or units, not noise).
+pub fn unit_quaternion(wxyz: [f64; 4]) -> Option<UnitQuaternion<f64>> {
+    let q = Quaternion::new(wxyz[0], wxyz[1], wxyz[2], wxyz[3]);
+    let n = q.norm();
+    if !n.is_finite() || (n - 1.0).abs() > 0.1 {
+        return None;
+    }
+    Some(UnitQuaternion::from_quaternion(q))
+}
+
+#[cfg(test)]
+mod tests;

@@ -1,0 +1,130 @@
+//! Transport checks on real sockets, a pseudo-terminal and the in-process simulator.
+
+use super::*;
+use crate::profile::Profile;
+
+fn demo_cage() -> Cage {
+    Cage::from_profile(&Profile::demo().expect("demo")).expect("cage")
+}
+
+#[test]
+fn udp_link_reads_frames_and_refuses_strangers() {
+    let probe = std::net::UdpSocket::bind("127.0.0.1:0").expect("bind probe");
+    let me = probe.local_addr().expect("addr");
+    let listen = std::net::UdpSocket::bind("127.0.0.1:0").expect("bind");
+    let addr = listen.local_addr().expect("addr");
+    drop(listen);
+    let opts = LinkOptions {
+        allow: vec![AllowEntry::Socket(me)],
+        ..Default::default()
+    };
+    let link = open(&LinkSpec::Udp(addr), opts, Mode::Decode).expect("open udp");
+    let stranger = std::net::UdpSocket::bind("127.0.0.1:0").expect("bind");
+    stranger
+        .send_to(b"t=1 roll=0 pitch=0 yaw=0\n", addr)
+        .expect("send");
+    probe
+        .send_to(b"t=2 roll=0 pitch=0 yaw=0\n", addr)
+        .expect("send");
+    let deadline = Instant::now() + Duration::from_secs(3);
+    let (mut got, mut last) = (Vec::new(), Counters::default());
+    while Instant::now() < deadline && (got.is_empty() || last.rejected == 0) {
+        match link.rx.recv_timeout(Duration::from_millis(100)) {
+            Ok(LinkMsg::Sample { sample, .. }) => got.push(sample.t_s),
+            Ok(LinkMsg::Health { counters, .. }) => last = counters,
+            _ => {}
+        }
+    }
+    assert_eq!(got, vec![2.0]);
+    assert_eq!(last.rejected, 1);
+}
+
+#[cfg(unix)]
+#[test]
+fn serial_link_reads_reports_busy_and_loss() {
+    use serialport::SerialPort;
+    use std::io::Write;
+    let (mut master, slave) = serialport::TTYPort::pair().expect("pseudo-terminal pair");
+    let path = slave.name().expect("pty name");
+    drop(slave);
+    let spec = LinkSpec::Serial {
+        path: path.clone(),
+        baud: 57600,
+    };
+    let link = open(&spec, LinkOptions::default(), Mode::Decode).expect("open pty");
+    // A second opener finds the port taken (serialport opens exclusively).
+    let e = open(&spec, LinkOptions::default(), Mode::Decode).expect_err("busy");
+    assert!(matches!(e, LinkError::SerialBusy { .. }), "{e}");
+    assert!(e.to_string().contains("another program"));
+    master
+        .write_all(b"t=1 roll=5 pitch=0 yaw=0\n")
+        .expect("write to pty");
+    let deadline = Instant::now() + Duration::from_secs(3);
+    let mut got = None;
+    while got.is_none() && Instant::now() < deadline {
+        if let Ok(LinkMsg::Sample { sample, .. }) = link.rx.recv_timeout(Duration::from_millis(100))
+        {
+            got = Some(sample.t_s);
+        }
+    }
+    assert_eq!(got, Some(1.0));
+    // The device goes away: the reader says so (and keeps trying).
+    drop(master);
+    let mut lost = false;
+    let deadline = Instant::now() + Duration::from_secs(3);
+    while !lost && Instant::now() < deadline {
+        if let Ok(LinkMsg::Event {
+            event: LinkEvent::Lost(_),
+            ..
+        }) = link.rx.recv_timeout(Duration::from_millis(100))
+        {
+            lost = true;
+        }
+    }
+    assert!(lost, "no Lost event after the pty closed");
+}
+
+#[test]
+fn missing_serial_port_says_so() {
+    let e = open(
+        &LinkSpec::Serial {
+            path: "/dev/cagehand-no-such-port".into(),
+            baud: 57600,
+        },
+        LinkOptions::default(),
+        Mode::Decode,
+    )
+    .expect_err("no such port");
+    assert!(matches!(e, LinkError::SerialMissing { .. }), "{e}");
+    assert!(e.to_string().contains("plugged in"));
+}
+
+#[test]
+fn sim_at_max_speed_gives_samples_and_takes_commands() {
+    let opts = LinkOptions {
+        cage: Some(demo_cage()),
+        replay_speed: ReplaySpeed::Max,
+        ..Default::default()
+    };
+    let link = open(&LinkSpec::Sim { seed: 2 }, opts, Mode::Decode).expect("sim");
+    assert!(link.command(SimCommand::Fly));
+    let mut n = 0;
+    let mut note = None;
+    while n < 200 || note.is_none() {
+        match link.rx.recv_timeout(Duration::from_secs(2)) {
+            Ok(LinkMsg::Sample { sample, .. }) if sample.attitude.is_some() => n += 1,
+            Ok(LinkMsg::Event {
+                event: LinkEvent::Note(s),
+                ..
+            }) => note = Some(s),
+            Ok(_) => {}
+            Err(e) => panic!("sim stopped: {e}"),
+        }
+    }
+    // The command reached the simulator, which answered (accepted while
+    // resting, refused if the reader had already run into the flight).
+    assert!(
+        note.as_ref().is_some_and(|s| s.starts_with("sim: Fly")),
+        "{note:?}"
+    );
+}

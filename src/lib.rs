@@ -9,5 +9,6 @@ pub mod attitude;
 pub mod cage;
 pub mod cli;
 pub mod hull;
+pub mod logbook;
 pub mod profile;
 pub mod sample;

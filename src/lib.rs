@@ -8,6 +8,7 @@
 pub mod attitude;
 pub mod cage;
 pub mod cli;
+pub mod health;
 pub mod hull;
 pub mod logbook;
 pub mod profile;

@@ -11,6 +11,7 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
 mod cage_cmd;
+pub mod impact_cmd;
 mod profile_cmd;
 
 /// Bad input or usage: the command exits with code 2.
@@ -37,6 +38,8 @@ enum Command {
     Cage(cage_cmd::Args),
     /// Profile tools.
     Profile(profile_cmd::Args),
+    /// Analyse an impact on the cage (--dry-run: without recording it).
+    Impact(impact_cmd::Args),
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -112,5 +115,6 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         None => cage_cmd::run(&cage_cmd::Args::demo()),
         Some(Command::Cage(a)) => cage_cmd::run(&a),
         Some(Command::Profile(a)) => profile_cmd::run(&a),
+        Some(Command::Impact(a)) => impact_cmd::run(&a),
     }
 }

@@ -10,6 +10,8 @@ pub mod cage;
 pub mod cli;
 pub mod health;
 pub mod hull;
+pub mod impact;
 pub mod logbook;
 pub mod profile;
 pub mod sample;
+pub mod statics;

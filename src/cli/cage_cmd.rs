@@ -1,10 +1,12 @@
 //! `cagehand cage`: the cage's geometry, faces and members, as a readable
 //! report or as JSON (a contract: scripts parse it).
 
-use super::{ProfileArg, print_json};
+use super::ProfileArg;
 use crate::cage::{Cage, MemberKind};
 use crate::profile::Profile;
+use crate::statics::{SelfStress, Structure, self_stress};
 use serde::Serialize;
+use std::io::Write;
 use std::process::ExitCode;
 
 /// Report on the cage of a profile.
@@ -47,6 +49,7 @@ struct MemberJson<'a> {
     nodes: [&'a str; 2],
     tag: Option<&'a str>,
     length_m: f64,
+    prestress_n: f64,
     capacity_n: f64,
 }
 
@@ -61,6 +64,15 @@ struct FaceJson<'a> {
     tilt_deg: f64,
 }
 
+#[derive(Debug, Serialize)]
+struct SelfStressJson<'a> {
+    rank: usize,
+    states: usize,
+    mechanisms: usize,
+    prestress_ok: bool,
+    message: &'a str,
+}
+
 /// The cage report: what `cage --json` prints.
 #[derive(Debug, Serialize)]
 struct Report<'a> {
@@ -68,18 +80,16 @@ struct Report<'a> {
     nodes: Vec<NodeJson<'a>>,
     members: Vec<MemberJson<'a>>,
     faces: Vec<FaceJson<'a>>,
+    self_stress: SelfStressJson<'a>,
 }
 
 /// Capacity of a member: rods the smaller of Euler buckling and crushing,
 /// strings the breaking load times termination efficiency.
 pub fn capacity_n(profile: &Profile, kind: MemberKind, length_m: f64) -> f64 {
-    match kind {
-        MemberKind::Rod => profile.rod.capacity_n(length_m),
-        MemberKind::String => profile.string.capacity_n(),
-    }
+    crate::statics::capacity_n(profile, kind, length_m)
 }
 
-fn report<'a>(p: &'a Profile, c: &'a Cage) -> Report<'a> {
+fn report<'a>(p: &'a Profile, c: &'a Cage, ss: &'a SelfStress) -> Report<'a> {
     let nid = |i: usize| c.nodes[i].id.as_str();
     Report {
         vehicle: VehicleJson {
@@ -98,12 +108,14 @@ fn report<'a>(p: &'a Profile, c: &'a Cage) -> Report<'a> {
         members: c
             .members
             .iter()
-            .map(|m| MemberJson {
+            .enumerate()
+            .map(|(j, m)| MemberJson {
                 id: &m.id,
                 kind: m.kind,
                 nodes: [nid(m.nodes[0]), nid(m.nodes[1])],
                 tag: m.tag.as_deref(),
                 length_m: m.length_m,
+                prestress_n: ss.prestress_n.get(j).copied().unwrap_or(0.0),
                 capacity_n: capacity_n(p, m.kind, m.length_m),
             })
             .collect(),
@@ -120,32 +132,50 @@ fn report<'a>(p: &'a Profile, c: &'a Cage) -> Report<'a> {
                 tilt_deg: f.tilt_deg,
             })
             .collect(),
+        self_stress: SelfStressJson {
+            rank: ss.rank,
+            states: ss.states,
+            mechanisms: ss.mechanisms,
+            prestress_ok: ss.prestress_ok,
+            message: &ss.message,
+        },
     }
 }
 
 /// Run the cage command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
-    let r = report(&l.profile, &l.cage);
+    let ss = self_stress(
+        &Structure::from_cage(&l.cage, &l.profile),
+        l.profile.string.pretension_n,
+    )?;
+    let r = report(&l.profile, &l.cage, &ss);
+    let mut out = std::io::stdout().lock();
     if args.json {
-        print_json(&r)?;
+        writeln!(out, "{}", serde_json::to_string_pretty(&r)?)?;
         return Ok(ExitCode::SUCCESS);
     }
-    println!(
+    writeln!(
+        out,
         "{} ({}), {:.3} kg",
         r.vehicle.id, r.vehicle.name, r.vehicle.mass_kg
-    );
-    println!(
+    )?;
+    writeln!(
+        out,
         "{} nodes, {} rods, {} strings, {} faces",
         r.nodes.len(),
         l.cage.rod_count(),
         r.members.len() - l.cage.rod_count(),
         r.faces.len()
-    );
-    println!();
-    println!("face  nodes               strings  rest  tilt(deg)  margin(mm)");
+    )?;
+    writeln!(out)?;
+    writeln!(
+        out,
+        "face  nodes               strings  rest  tilt(deg)  margin(mm)"
+    )?;
     for f in &r.faces {
-        println!(
+        writeln!(
+            out,
             "{:<5} {:<19} {:>7}  {:<4}  {:>9.1}  {:>10.1}",
             f.id,
             f.nodes.join(" "),
@@ -153,24 +183,38 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             if f.stable { "yes" } else { "no" },
             f.tilt_deg,
             f.margin_m * 1e3
-        );
+        )?;
     }
-    println!();
-    println!("member  kind    nodes     length(mm)  capacity(N)  tag");
+    writeln!(out)?;
+    writeln!(
+        out,
+        "member  kind    nodes     length(mm)  prestress(N)  capacity(N)  tag"
+    )?;
     for m in &r.members {
         let kind = match m.kind {
             MemberKind::Rod => "rod",
             MemberKind::String => "string",
         };
-        println!(
-            "{:<7} {:<7} {:<9} {:>10.1}  {:>11.1}  {}",
+        writeln!(
+            out,
+            "{:<7} {:<7} {:<9} {:>10.1}  {:>12.2}  {:>11.1}  {}",
             m.id,
             kind,
             m.nodes.join("-"),
             m.length_m * 1e3,
+            m.prestress_n,
             m.capacity_n,
             m.tag.unwrap_or("")
-        );
+        )?;
+    }
+    writeln!(out)?;
+    writeln!(out, "statics: {}", ss.message)?;
+    if ss.prestress_ok && ss.mechanisms > 0 {
+        writeln!(
+            out,
+            "  only the prestress stiffens the mechanism{}, so impacts are solved as a nonlinear equilibrium",
+            if ss.mechanisms == 1 { "" } else { "s" }
+        )?;
     }
     Ok(ExitCode::SUCCESS)
 }

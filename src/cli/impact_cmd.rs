@@ -1,0 +1,289 @@
+//! `cagehand impact`: analyse an impact on the cage (the peak force, the
+//! force and utilisation of every member) and, once the cage log exists,
+//! record it. For now only `--dry-run` analyses are possible.
+
+use super::{Loaded, ProfileArg, bad_input};
+use crate::cage::MemberKind;
+use crate::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
+use crate::statics::StaticsError;
+use serde::Serialize;
+use std::io::Write;
+use std::process::ExitCode;
+
+/// Members shown in the readable table.
+const TABLE_ROWS: usize = 12;
+
+/// Analyse (and, later, record) an impact.
+#[derive(Debug, clap::Args)]
+#[command(group(clap::ArgGroup::new("where").required(true).args(["face", "node"])))]
+#[command(group(clap::ArgGroup::new("how").required(true).args(["speed", "peak_accel_g"])))]
+pub struct Args {
+    /// The vehicle profile.
+    #[command(flatten)]
+    pub profile: ProfileArg,
+    /// Struck face id (F1..).
+    #[arg(long, value_name = "ID")]
+    pub face: Option<String>,
+    /// Struck node id (N1..), instead of a face.
+    #[arg(long, value_name = "ID")]
+    pub node: Option<String>,
+    /// Approach speed normal to the ground.
+    #[arg(long, value_name = "M_PER_S", allow_negative_numbers = true)]
+    pub speed: Option<f64>,
+    /// Measured peak acceleration, in g.
+    #[arg(long, value_name = "G", allow_negative_numbers = true)]
+    pub peak_accel_g: Option<f64>,
+    /// Ground surface preset (the profile's impact.surface names).
+    #[arg(long, value_name = "NAME", conflicts_with = "peak_accel_g")]
+    pub surface: Option<String>,
+    /// Contact duration for the half-sine estimate (with --speed).
+    #[arg(
+        long,
+        value_name = "S",
+        allow_negative_numbers = true,
+        conflicts_with = "peak_accel_g"
+    )]
+    pub contact_duration_s: Option<f64>,
+    /// Analyse only; do not record the impact in the cage log.
+    #[arg(long)]
+    pub dry_run: bool,
+    /// Print JSON instead of the readable report.
+    #[arg(long)]
+    pub json: bool,
+}
+
+/// The strike and the estimate inputs, resolved against the profile and cage.
+pub struct Resolved {
+    /// Where the cage was struck.
+    pub strike: Strike,
+    /// Id of the struck face or node.
+    pub strike_id: String,
+    /// The estimate inputs.
+    pub input: ImpactInput,
+}
+
+/// Turn the typed arguments into a strike and an input, or bad input
+/// naming the valid values.
+pub fn resolve(args: &Args, l: &Loaded) -> anyhow::Result<Resolved> {
+    let cage = &l.cage;
+    let (strike, strike_id) = match (&args.face, &args.node) {
+        (Some(id), _) => {
+            let i = cage.face_index(id).ok_or_else(|| {
+                bad_input(format!(
+                    "--face {id}: not a face of this cage; valid faces are F1..F{}",
+                    cage.faces.len()
+                ))
+            })?;
+            (Strike::Face(i), id.clone())
+        }
+        (None, Some(id)) => {
+            let i = cage.node_index(id).ok_or_else(|| {
+                let ids: Vec<&str> = cage.nodes.iter().map(|n| n.id.as_str()).collect();
+                bad_input(format!(
+                    "--node {id}: not a node of this cage; valid nodes are {}",
+                    ids.join(", ")
+                ))
+            })?;
+            (Strike::Node(i), id.clone())
+        }
+        (None, None) => {
+            return Err(bad_input(
+                "give the struck face (--face ID) or node (--node ID)",
+            ));
+        }
+    };
+    let settings = &l.profile.impact;
+    if let Some(name) = &args.surface {
+        if !settings.surfaces.iter().any(|s| &s.name == name) {
+            let names: Vec<&str> = settings.surfaces.iter().map(|s| s.name.as_str()).collect();
+            return Err(bad_input(format!(
+                "--surface {name}: not a surface of this profile; valid surfaces are {}",
+                names.join(", ")
+            )));
+        }
+    }
+    let input = match (args.peak_accel_g, args.speed) {
+        (Some(g), _) => ImpactInput::PeakAccel { g },
+        (None, Some(v)) => match (
+            args.contact_duration_s,
+            &args.surface,
+            settings.contact_duration_s,
+        ) {
+            (Some(dt), _, _) | (None, None, Some(dt)) => ImpactInput::SpeedAndDuration {
+                speed_m_per_s: v,
+                duration_s: dt,
+            },
+            _ => ImpactInput::Speed {
+                speed_m_per_s: v,
+                surface: args.surface.clone(),
+            },
+        },
+        (None, None) => {
+            return Err(bad_input("give --speed M_PER_S or --peak-accel-g G"));
+        }
+    };
+    Ok(Resolved {
+        strike,
+        strike_id,
+        input,
+    })
+}
+
+/// Run the analysis; input errors become bad input, a failed solution a
+/// runtime failure.
+pub fn analyse(l: &Loaded, r: &Resolved) -> anyhow::Result<ImpactAnalysis> {
+    analyse_impact(&l.cage, &l.profile, r.strike, &r.input).map_err(|e| match e {
+        StaticsError::UnknownFace { .. }
+        | StaticsError::UnknownNode { .. }
+        | StaticsError::UnknownSurface { .. }
+        | StaticsError::NotPositive { .. }
+        | StaticsError::LoadSize { .. } => bad_input(e.to_string()),
+        other => anyhow::Error::new(other).context("impact analysis failed"),
+    })
+}
+
+#[derive(Debug, Serialize)]
+struct MemberJson<'a> {
+    id: &'a str,
+    kind: MemberKind,
+    force_n: f64,
+    capacity_n: f64,
+    utilisation: f64,
+}
+
+#[derive(Debug, Serialize)]
+struct Report<'a> {
+    vehicle: &'a str,
+    strike: &'a str,
+    force_n: f64,
+    method: ImpactMethod,
+    input: &'a ImpactInput,
+    residual_n: f64,
+    face_displacement_m: f64,
+    slack_strings: Vec<&'a str>,
+    iterations: usize,
+    members: Vec<MemberJson<'a>>,
+    recorded: bool,
+}
+
+fn method_text(m: ImpactMethod) -> &'static str {
+    match m {
+        ImpactMethod::MeasuredAcceleration => "measured peak acceleration, F = m a",
+        ImpactMethod::EnergyBalance => {
+            "energy balance along the cage's load-deflection path with the surface"
+        }
+        ImpactMethod::HalfSinePulse => "impulse over the contact duration, half-sine peak",
+    }
+}
+
+/// Run the impact command.
+pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
+    let l = args.profile.load()?;
+    let resolved = resolve(args, &l)?;
+    if !args.dry_run {
+        return Err(bad_input(
+            "recording an impact needs the cage log, which this build does not have yet; \
+             add --dry-run to analyse the impact without recording it",
+        ));
+    }
+    let a = analyse(&l, &resolved)?;
+    let cage = &l.cage;
+    let report = Report {
+        vehicle: &l.profile.vehicle.id,
+        strike: &resolved.strike_id,
+        force_n: a.force_n,
+        method: a.method,
+        input: &resolved.input,
+        residual_n: a.residual_n,
+        face_displacement_m: a.face_displacement_m,
+        slack_strings: a
+            .slack_strings
+            .iter()
+            .map(|&j| cage.members[j].id.as_str())
+            .collect(),
+        iterations: a.iterations,
+        members: a
+            .members
+            .iter()
+            .map(|m| MemberJson {
+                id: &cage.members[m.member].id,
+                kind: cage.members[m.member].kind,
+                force_n: m.force_n,
+                capacity_n: m.capacity_n,
+                utilisation: m.utilisation,
+            })
+            .collect(),
+        recorded: false,
+    };
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        writeln!(out, "{}", serde_json::to_string_pretty(&report)?)?;
+        return Ok(ExitCode::SUCCESS);
+    }
+    writeln!(
+        out,
+        "impact on {} of {} (dry run, not recorded)",
+        report.strike, report.vehicle
+    )?;
+    writeln!(
+        out,
+        "peak force {:.1} N ({})",
+        a.force_n,
+        method_text(a.method)
+    )?;
+    writeln!(
+        out,
+        "moved in {:.2} mm; {} slack string{}{}; residual {:.2e} N after {} iterations",
+        a.face_displacement_m * 1e3,
+        report.slack_strings.len(),
+        if report.slack_strings.len() == 1 {
+            ""
+        } else {
+            "s"
+        },
+        if report.slack_strings.is_empty() {
+            String::new()
+        } else {
+            format!(" ({})", report.slack_strings.join(" "))
+        },
+        a.residual_n,
+        a.iterations
+    )?;
+    writeln!(out)?;
+    let mut order: Vec<&MemberJson> = report.members.iter().collect();
+    order.sort_by(|x, y| y.utilisation.total_cmp(&x.utilisation));
+    writeln!(out, "member  kind     force(N)  capacity(N)  use")?;
+    for m in order.iter().take(TABLE_ROWS) {
+        let kind = match m.kind {
+            MemberKind::Rod => "rod",
+            MemberKind::String => "string",
+        };
+        let flag = if m.utilisation >= l.profile.inspection.overload_utilisation {
+            "  OVERLOAD"
+        } else {
+            ""
+        };
+        writeln!(
+            out,
+            "{:<7} {:<7} {:>9.1}  {:>11.1}  {:>4.0}%{flag}",
+            m.id,
+            kind,
+            m.force_n,
+            m.capacity_n,
+            m.utilisation * 100.0
+        )?;
+    }
+    if order.len() > TABLE_ROWS {
+        writeln!(
+            out,
+            "... {} more members (all in --json)",
+            order.len() - TABLE_ROWS
+        )?;
+    }
+    writeln!(out)?;
+    writeln!(
+        out,
+        "Caution: these are estimates, not guarantees. Inspect the cage physically after every crash."
+    )?;
+    Ok(ExitCode::SUCCESS)
+}

@@ -1,0 +1,408 @@
+//! The impact load case: a contact force on the struck face (or node)
+//! along the inward normal, balanced by d'Alembert inertia at the lumped
+//! nodal masses, solved as a nonlinear equilibrium of the prestressed cage.
+//!
+//! The peak contact force comes from one of three estimates:
+//! - a measured peak acceleration: F = m a;
+//! - a speed: the force at which the work done along the cage's own
+//!   load-deflection path, in series with the surface's contact stiffness,
+//!   equals the kinetic energy 1/2 m v^2 (for linear springs this is
+//!   F = v sqrt(m k), Goldsmith, Impact, 1960);
+//! - a speed and a contact duration: the impulse gives the mean force
+//!   F_avg = m (1 + e) v / dt and a half-sine pulse peaks at pi/2 F_avg
+//!   (Goldsmith 1960; Stronge, Impact Mechanics, 2000).
+
+use crate::cage::Cage;
+use crate::profile::Profile;
+use crate::statics::{
+    Equilibrium, NonlinearModel, StaticsError, Structure, centroid_weighted, self_stress,
+};
+use nalgebra::{Matrix3, Vector3};
+use serde::Serialize;
+
+/// Standard gravity, for accelerations given in g.
+pub const STANDARD_GRAVITY_M_S2: f64 = 9.80665;
+
+/// Load steps along the load-deflection path for the energy balance.
+const PATH_STEPS: usize = 24;
+
+/// Where the cage was struck.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum Strike {
+    /// A hull face, by index into `cage.faces`; the force is shared
+    /// equally by its nodes, along its inward normal.
+    Face(usize),
+    /// One node, by index into `cage.nodes`; the force points from the
+    /// node towards the centre of mass.
+    Node(usize),
+}
+
+/// What is known about the impact.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ImpactInput {
+    /// Approach speed; the surface preset by name (the profile's default
+    /// when none is named).
+    Speed {
+        /// Normal approach speed.
+        speed_m_per_s: f64,
+        /// Surface preset name.
+        surface: Option<String>,
+    },
+    /// Measured peak acceleration, in multiples of standard gravity.
+    PeakAccel {
+        /// Peak acceleration in g.
+        g: f64,
+    },
+    /// Approach speed and contact duration (half-sine pulse).
+    SpeedAndDuration {
+        /// Normal approach speed.
+        speed_m_per_s: f64,
+        /// Duration of the contact.
+        duration_s: f64,
+    },
+}
+
+/// How the peak force was estimated.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ImpactMethod {
+    /// F = m a from a measured peak acceleration.
+    MeasuredAcceleration,
+    /// Work along the load-deflection path equals the kinetic energy.
+    EnergyBalance,
+    /// Impulse over a stated contact duration, half-sine peak.
+    HalfSinePulse,
+}
+
+/// The force in one member and how much of its capacity it uses.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct MemberLoad {
+    /// Member index into `cage.members`.
+    pub member: usize,
+    /// Total force at the peak, tension positive (prestress included).
+    pub force_n: f64,
+    /// Capacity: rods buckling or crushing, strings breaking load.
+    pub capacity_n: f64,
+    /// Rods |compression| / capacity, strings tension / capacity.
+    pub utilisation: f64,
+}
+
+/// The result of an impact analysis.
+#[derive(Debug, Clone, PartialEq, Serialize)]
+pub struct ImpactAnalysis {
+    /// Peak contact force.
+    pub force_n: f64,
+    /// How the peak force was estimated.
+    pub method: ImpactMethod,
+    /// Out-of-balance force of the nonlinear equilibrium at the peak.
+    pub residual_n: f64,
+    /// How far the struck face (or node) moved in along the inward
+    /// normal, relative to the rigid motion.
+    pub face_displacement_m: f64,
+    /// Strings slack at the peak (member indices).
+    pub slack_strings: Vec<usize>,
+    /// Every member, in the cage's order.
+    pub members: Vec<MemberLoad>,
+    /// Newton iterations spent in total.
+    pub iterations: usize,
+}
+
+/// The contact points and the lumped masses that balance them.
+struct ContactLoad {
+    /// (node, unit share of the contact force): shares sum to the unit
+    /// inward direction.
+    contact: Vec<(usize, Vector3<f64>)>,
+    masses_kg: Vec<f64>,
+}
+
+impl ContactLoad {
+    fn new(cage: &Cage, strike: Strike) -> Result<ContactLoad, StaticsError> {
+        let contact = match strike {
+            Strike::Face(i) => {
+                let face = cage.faces.get(i).ok_or(StaticsError::UnknownFace {
+                    index: i,
+                    count: cage.faces.len(),
+                })?;
+                let share = -face.normal_body / face.nodes.len().max(1) as f64;
+                face.nodes.iter().map(|&k| (k, share)).collect()
+            }
+            Strike::Node(i) => {
+                let node = cage.nodes.get(i).ok_or(StaticsError::UnknownNode {
+                    index: i,
+                    count: cage.nodes.len(),
+                })?;
+                let d = cage.com_body - node.pos_body;
+                let dir = if d.norm() > 0.0 {
+                    d / d.norm()
+                } else {
+                    -node.pos_body.normalize()
+                };
+                vec![(i, dir)]
+            }
+        };
+        Ok(ContactLoad {
+            contact,
+            masses_kg: cage.node_mass_kg.clone(),
+        })
+    }
+
+    /// Unit inward direction of the contact force.
+    fn direction(&self) -> Vector3<f64> {
+        self.contact.iter().map(|(_, s)| s).sum()
+    }
+
+    /// Contact force `force_n` plus the d'Alembert inertia that balances
+    /// it at the current positions: rigid acceleration a = F/m and angular
+    /// acceleration alpha = J^-1 M about the lumped centre of mass, inertial
+    /// force -m_i (a + alpha x r_i). Self-equilibrated at `pos`.
+    fn forces(&self, pos: &[Vector3<f64>], force_n: f64, out: &mut [Vector3<f64>]) {
+        let m: f64 = self.masses_kg.iter().sum();
+        let c = centroid_weighted(pos, &self.masses_kg);
+        let mut total = Vector3::zeros();
+        let mut moment = Vector3::zeros();
+        out.fill(Vector3::zeros());
+        for &(k, share) in &self.contact {
+            let f = share * force_n;
+            out[k] += f;
+            total += f;
+            moment += (pos[k] - c).cross(&f);
+        }
+        let mut j = Matrix3::zeros();
+        for (p, &mi) in pos.iter().zip(&self.masses_kg) {
+            let r = p - c;
+            j += (Matrix3::identity() * r.norm_squared() - r * r.transpose()) * mi;
+        }
+        let alpha = j
+            .try_inverse()
+            .map(|ji| ji * moment)
+            .unwrap_or_else(Vector3::zeros);
+        let a = if m > 0.0 { total / m } else { Vector3::zeros() };
+        for ((o, p), &mi) in out.iter_mut().zip(pos).zip(&self.masses_kg) {
+            *o -= (a + alpha.cross(&(p - c))) * mi;
+        }
+    }
+
+    /// Mean displacement of the contact nodes along the inward direction.
+    fn displacement_m(&self, deformation: &[Vector3<f64>]) -> f64 {
+        let dir = self.direction();
+        let dir = dir / dir.norm().max(f64::MIN_POSITIVE);
+        let sum: f64 = self
+            .contact
+            .iter()
+            .map(|&(k, _)| deformation[k].dot(&dir))
+            .sum();
+        sum / self.contact.len().max(1) as f64
+    }
+}
+
+/// Half-sine peak force from an impulse: F_avg = m (1 + e) v / dt, peak
+/// pi/2 F_avg (Goldsmith 1960; Stronge 2000).
+pub fn half_sine_peak_n(
+    mass_kg: f64,
+    speed_m_per_s: f64,
+    restitution: f64,
+    duration_s: f64,
+) -> f64 {
+    std::f64::consts::FRAC_PI_2 * mass_kg * (1.0 + restitution) * speed_m_per_s / duration_s
+}
+
+/// The force at which the work along a load-deflection path, in series
+/// with a surface of stiffness `surface_n_per_m`, reaches `energy_j`.
+///
+/// `deflection_m(F)` is called with increasing forces up to `upper_n` and
+/// returns the cage's deflection at F. The work is integrated by the
+/// trapezoid rule and the last interval is solved exactly for a
+/// piecewise-linear path. The answer cannot exceed `upper_n` when that is
+/// the surface-only estimate sqrt(2 E k). Returns the force and the
+/// number of the path points used.
+pub fn energy_balance_force_n(
+    energy_j: f64,
+    surface_n_per_m: f64,
+    upper_n: f64,
+    steps: usize,
+    mut deflection_m: impl FnMut(f64) -> Result<f64, StaticsError>,
+) -> Result<f64, StaticsError> {
+    let steps = steps.max(1);
+    let (mut f_prev, mut d_prev, mut w_prev) = (0.0_f64, 0.0_f64, 0.0_f64);
+    for k in 1..=steps {
+        let f = upper_n * k as f64 / steps as f64;
+        let d = deflection_m(f)?;
+        // Cage compliance over this interval (never negative), plus the
+        // surface's: work from F1 to F is (F^2 - F1^2) / 2 * (c + 1/ks).
+        let c = ((d - d_prev) / (f - f_prev)).max(0.0);
+        let per = (c + 1.0 / surface_n_per_m) / 2.0;
+        let w = w_prev + (f * f - f_prev * f_prev) * per;
+        if w >= energy_j || k == steps {
+            return Ok((f_prev * f_prev + (energy_j - w_prev).max(0.0) / per)
+                .sqrt()
+                .min(f));
+        }
+        (f_prev, d_prev, w_prev) = (f, d, w);
+    }
+    Ok(upper_n)
+}
+
+/// Analyse an impact: the peak force by the method the input allows, and
+/// the member forces from the nonlinear equilibrium at that peak.
+pub fn analyse_impact(
+    cage: &Cage,
+    profile: &Profile,
+    strike: Strike,
+    input: &ImpactInput,
+) -> Result<ImpactAnalysis, StaticsError> {
+    let load = ContactLoad::new(cage, strike)?;
+    let structure = Structure::from_cage(cage, profile);
+    let ss = self_stress(&structure, profile.string.pretension_n)?;
+    let model = NonlinearModel::new(&structure, &ss.prestress_n);
+    let load_fn = |pos: &[Vector3<f64>], f: f64, out: &mut [Vector3<f64>]| load.forces(pos, f, out);
+    let unloaded = model.unloaded();
+    let mass = cage.mass_kg;
+    let positive = |what: &'static str, x: f64| {
+        if x.is_finite() && x > 0.0 {
+            Ok(x)
+        } else {
+            Err(StaticsError::NotPositive { what, found: x })
+        }
+    };
+
+    let (force_n, method, state) = match input {
+        ImpactInput::PeakAccel { g } => {
+            let g = positive("peak acceleration (g)", *g)?;
+            let f = mass * g * STANDARD_GRAVITY_M_S2;
+            let st = model.solve(&unloaded, &load_fn, f)?;
+            (f, ImpactMethod::MeasuredAcceleration, st)
+        }
+        ImpactInput::SpeedAndDuration {
+            speed_m_per_s,
+            duration_s,
+        } => {
+            let v = positive("speed (m/s)", *speed_m_per_s)?;
+            let dt = positive("contact duration (s)", *duration_s)?;
+            let f = half_sine_peak_n(mass, v, profile.impact.restitution, dt);
+            let st = model.solve(&unloaded, &load_fn, f)?;
+            (f, ImpactMethod::HalfSinePulse, st)
+        }
+        ImpactInput::Speed {
+            speed_m_per_s,
+            surface,
+        } => {
+            let v = positive("speed (m/s)", *speed_m_per_s)?;
+            let name = surface
+                .as_deref()
+                .unwrap_or(profile.impact.default_surface.as_str());
+            let k_s = profile
+                .impact
+                .surfaces
+                .iter()
+                .find(|s| s.name == name)
+                .map(|s| s.stiffness_n_per_m)
+                .ok_or_else(|| StaticsError::UnknownSurface {
+                    name: name.to_string(),
+                    known: profile
+                        .impact
+                        .surfaces
+                        .iter()
+                        .map(|s| s.name.clone())
+                        .collect(),
+                })?;
+            let energy = 0.5 * mass * v * v;
+            let mut upper = v * (mass * k_s).sqrt();
+            let mut states: Vec<Equilibrium> = Vec::new();
+            let mut f = upper;
+            let mut path_iterations = 0;
+            // Up to three passes: when the peak falls in the first quarter
+            // of the path, walk it again with finer steps below that force.
+            for _ in 0..3 {
+                states.clear();
+                let mut last = unloaded.clone();
+                let found = energy_balance_force_n(energy, k_s, upper, PATH_STEPS, |fk| {
+                    let st = model.solve(&last, &load_fn, fk)?;
+                    let d = load.displacement_m(&model.deformation(&st.pos_m));
+                    states.push(st.clone());
+                    last = st;
+                    Ok(d)
+                })?;
+                f = found;
+                path_iterations += states.last().map_or(0, |s| s.iterations);
+                let used = states.len();
+                if used > PATH_STEPS / 4 {
+                    break;
+                }
+                upper = upper * used as f64 / PATH_STEPS as f64;
+            }
+            // Solve at the peak from the nearest state below it.
+            let from = states
+                .iter()
+                .rev()
+                .find(|s| s.load <= f)
+                .cloned()
+                .unwrap_or(unloaded.clone());
+            let mut st = model.solve(&from, &load_fn, f)?;
+            st.iterations = path_iterations + (st.iterations - from.iterations);
+            (f, ImpactMethod::EnergyBalance, st)
+        }
+    };
+
+    let deformation = model.deformation(&state.pos_m);
+    let members = structure
+        .bars
+        .iter()
+        .zip(&state.force_n)
+        .enumerate()
+        .map(|(j, (bar, &t))| MemberLoad {
+            member: j,
+            force_n: t,
+            capacity_n: bar.capacity_n,
+            utilisation: bar.utilisation(t),
+        })
+        .collect();
+    Ok(ImpactAnalysis {
+        force_n,
+        method,
+        residual_n: state.residual_n,
+        face_displacement_m: load.displacement_m(&deformation),
+        slack_strings: state.slack.clone(),
+        members,
+        iterations: state.iterations,
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use approx::assert_relative_eq;
+
+    fn demo() -> (Profile, Cage) {
+        let p = Profile::demo().unwrap();
+        let c = Cage::from_profile(&p).unwrap();
+        (p, c)
+    }
+
+    #[test]
+    fn demo_figures() {
+        let (p, c) = demo();
+        for input in [
+            ImpactInput::PeakAccel { g: 10.0 },
+            ImpactInput::Speed {
+                speed_m_per_s: 3.0,
+                surface: None,
+            },
+        ] {
+            let t = std::time::Instant::now();
+            let r = analyse_impact(&c, &p, Strike::Face(0), &input).unwrap();
+            eprintln!(
+                "{input:?}: F {:.1} N, res {:.2e}, disp {:.2} mm, slack {:?}, it {}, {:?}",
+                r.force_n,
+                r.residual_n,
+                r.face_displacement_m * 1e3,
+                r.slack_strings,
+                r.iterations,
+                t.elapsed()
+            );
+            let worst = r.members.iter().map(|m| m.utilisation).fold(0.0, f64::max);
+            eprintln!("worst u {worst:.3}");
+        }
+    }
+}

@@ -1,0 +1,235 @@
+//! The equilibrium matrix, its rank, its self-stress states and
+//! mechanisms, and the prestress taken from the profile's pretension.
+
+use super::{Bar, StaticsError, Structure, svd};
+use crate::cage::MemberKind;
+use nalgebra::{DMatrix, DVector, Vector3};
+
+/// Singular values below this fraction of the largest count as zero.
+pub(crate) const RANK_TOLERANCE: f64 = 1e-9;
+
+/// The equilibrium matrix A (3n x b) at positions `pos`: `A t = f`.
+pub fn equilibrium_matrix(pos: &[Vector3<f64>], bars: &[Bar]) -> DMatrix<f64> {
+    let mut a = DMatrix::zeros(3 * pos.len(), bars.len());
+    for (j, bar) in bars.iter().enumerate() {
+        let [p, q] = bar.nodes;
+        let d = pos[p] - pos[q];
+        let l = d.norm();
+        if l <= 0.0 {
+            continue;
+        }
+        for k in 0..3 {
+            a[(3 * p + k, j)] = d[k] / l;
+            a[(3 * q + k, j)] = -d[k] / l;
+        }
+    }
+    a
+}
+
+/// The SVD of A padded with zero rows to at least b rows, so its V holds
+/// the whole null space: rank, null-space basis (b x s) and a solver.
+pub(crate) struct Decomposed {
+    /// Rank of A.
+    pub rank: usize,
+    /// Self-stress states as columns (b x s).
+    pub null: DMatrix<f64>,
+    svd: nalgebra::SVD<f64, nalgebra::Dyn, nalgebra::Dyn>,
+    tol: f64,
+    rows: usize,
+}
+
+impl Decomposed {
+    pub(crate) fn new(a: &DMatrix<f64>) -> Result<Decomposed, StaticsError> {
+        let (m, b) = a.shape();
+        let rows = m.max(b);
+        let mut padded = DMatrix::zeros(rows, b);
+        padded.view_mut((0, 0), (m, b)).copy_from(a);
+        let s = svd(padded, "equilibrium matrix")?;
+        let smax = s.singular_values.iter().copied().fold(0.0, f64::max);
+        let tol = RANK_TOLERANCE * smax.max(f64::MIN_POSITIVE);
+        let rank = s.singular_values.iter().filter(|&&x| x > tol).count();
+        let null = match &s.v_t {
+            Some(vt) => {
+                let cols: Vec<DVector<f64>> = (0..b)
+                    .filter(|&i| s.singular_values[i] <= tol)
+                    .map(|i| vt.row(i).transpose())
+                    .collect();
+                if cols.is_empty() {
+                    DMatrix::zeros(b, 0)
+                } else {
+                    DMatrix::from_columns(&cols)
+                }
+            }
+            None => {
+                return Err(StaticsError::NoDecomposition {
+                    what: "equilibrium matrix",
+                });
+            }
+        };
+        Ok(Decomposed {
+            rank,
+            null,
+            svd: s,
+            tol,
+            rows,
+        })
+    }
+
+    /// Least-squares, least-norm member forces for loads f: A+ f.
+    pub(crate) fn pseudo_solve(&self, f: &DVector<f64>) -> Result<DVector<f64>, StaticsError> {
+        let mut fp = DVector::zeros(self.rows);
+        fp.rows_mut(0, f.len()).copy_from(f);
+        self.svd
+            .solve(&fp, self.tol)
+            .map_err(|_| StaticsError::NoDecomposition {
+                what: "equilibrium matrix",
+            })
+    }
+}
+
+/// What the equilibrium matrix says about the cage, and the prestress.
+#[derive(Debug, Clone, PartialEq)]
+pub struct SelfStress {
+    /// Rank of the equilibrium matrix.
+    pub rank: usize,
+    /// Number of independent self-stress states, b - r.
+    pub states: usize,
+    /// Number of infinitesimal mechanisms of the free body, 3n - r - 6.
+    pub mechanisms: usize,
+    /// Prestress of the unloaded cage per member (tension positive); all
+    /// zero when no self-stress keeps the strings in tension.
+    pub prestress_n: Vec<f64>,
+    /// Whether a self-stress with every string in tension was found.
+    pub prestress_ok: bool,
+    /// A plain sentence on the outcome, for the report.
+    pub message: String,
+}
+
+/// Rank, self-stress states, mechanisms and prestress of a structure; the
+/// prestress is scaled so the largest string tension is `pretension_n`.
+///
+/// With several self-stress states, the one nearest to "all strings equally
+/// tensioned" (the projection of that pattern onto the null space) is used.
+pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, StaticsError> {
+    let a = equilibrium_matrix(&s.pos_m, &s.bars);
+    let d = Decomposed::new(&a)?;
+    let b = s.bars.len();
+    let states = d.null.ncols();
+    let mechanisms = (3 * s.node_count()).saturating_sub(d.rank + 6);
+    let strings: Vec<usize> = (0..b)
+        .filter(|&j| s.bars[j].kind == MemberKind::String)
+        .collect();
+    let zero = vec![0.0; b];
+    let plural = |n: usize, one: &str, many: &str| {
+        if n == 1 {
+            format!("1 {one}")
+        } else {
+            format!("{n} {many}")
+        }
+    };
+    let counts = format!(
+        "rank {} of {}x{}: {}, {}",
+        d.rank,
+        a.nrows(),
+        b,
+        plural(states, "self-stress state", "self-stress states"),
+        plural(mechanisms, "mechanism", "mechanisms")
+    );
+    let fail = |why: String| SelfStress {
+        rank: d.rank,
+        states,
+        mechanisms,
+        prestress_n: zero.clone(),
+        prestress_ok: false,
+        message: format!("{counts}. {why}; prestress taken as zero."),
+    };
+    if states == 0 {
+        return Ok(fail(
+            "No self-stress state: the nodes are not an equilibrium form of these members".into(),
+        ));
+    }
+    if strings.is_empty() {
+        return Ok(fail("The cage has no strings to pretension".into()));
+    }
+    // Project "every string pulls equally" onto the self-stress states.
+    let mut g = DVector::zeros(b);
+    for &j in &strings {
+        g[j] = 1.0;
+    }
+    let t = &d.null * (d.null.transpose() * &g);
+    let largest = strings.iter().map(|&j| t[j]).fold(f64::MIN, f64::max);
+    let scale_ref = t.amax();
+    if largest.is_nan() || largest <= 1e-9 * scale_ref.max(f64::MIN_POSITIVE) {
+        return Ok(fail(
+            "No self-stress state puts the strings in tension".into(),
+        ));
+    }
+    let t = t * (pretension_n / largest);
+    if let Some(&j) = strings
+        .iter()
+        .find(|&&j| t[j] <= 1e-9 * pretension_n.max(f64::MIN_POSITIVE))
+    {
+        return Ok(fail(format!(
+            "No self-stress state keeps every string in tension (string {} would carry {:.3} N)",
+            j + 1,
+            t[j]
+        )));
+    }
+    Ok(SelfStress {
+        rank: d.rank,
+        states,
+        mechanisms,
+        prestress_n: t.iter().copied().collect(),
+        prestress_ok: true,
+        message: format!(
+            "{counts}. Prestress scaled so the largest string tension is {pretension_n} N."
+        ),
+    })
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::cage::Cage;
+    use crate::profile::Profile;
+    use approx::assert_relative_eq;
+
+    fn demo() -> Structure {
+        let p = Profile::demo().unwrap();
+        Structure::from_cage(&Cage::from_profile(&p).unwrap(), &p)
+    }
+
+    #[test]
+    fn six_strut_rank_states_mechanisms() {
+        let s = demo();
+        let ss = self_stress(&s, 20.0).unwrap();
+        // Pellegrino & Calladine, "Matrix analysis of statically and
+        // kinematically indeterminate frameworks", 1986 (REFERENCES.md):
+        // 36 x 30, rank 29, one self-stress, one mechanism.
+        assert_eq!(equilibrium_matrix(&s.pos_m, &s.bars).shape(), (36, 30));
+        assert_eq!((ss.rank, ss.states, ss.mechanisms), (29, 1, 1));
+        assert!(ss.prestress_ok, "{}", ss.message);
+    }
+
+    #[test]
+    fn six_strut_force_ratios() {
+        let s = demo();
+        let ss = self_stress(&s, 20.0).unwrap();
+        for (bar, &t) in s.bars.iter().zip(&ss.prestress_n) {
+            match bar.kind {
+                // Tibert & Pellegrino 2003; Jessen 1967 (REFERENCES.md):
+                // force ratio rod/string = -sqrt(6), force density ratio -3/2.
+                MemberKind::Rod => {
+                    assert_relative_eq!(t / 20.0, -6f64.sqrt(), epsilon = 1e-9);
+                    let q_string = 20.0 / (6f64.sqrt() / 4.0 * bar.length_m);
+                    assert_relative_eq!((t / bar.length_m) / q_string, -1.5, epsilon = 1e-9);
+                }
+                MemberKind::String => assert_relative_eq!(t, 20.0, epsilon = 1e-9),
+            }
+        }
+        // The prestress is in equilibrium with no load.
+        let mut g = DVector::zeros(36);
+        s.internal_forces(&s.pos_m, &ss.prestress_n, &mut g);
+        assert!(g.amax() < 1e-9);
+    }
+}

@@ -1,0 +1,338 @@
+//! Nonlinear equilibrium of the prestressed cage under loads the linear
+//! force method cannot balance (DESIGN.md, "Why the linear answer is not
+//! enough"): unknown node positions; member forces from Hooke's law about
+//! rest lengths that carry the prestress; strings that cannot push;
+//! Newton iterations with the consistent tangent stiffness; load stepping;
+//! rigid-body motion removed from every step.
+//!
+//! Force law of member j with rest length L0, stiffness EA, current
+//! length l and unit vector e: t = EA (l - L0) / L0, and t = 0 for a
+//! string with l < L0. Its consistent tangent on the node pair is
+//! k = (EA/L0) e e^T + (t/l) (I - e e^T) (zero material part when slack),
+//! which is Guest's K = A diag(EA/L0 - t/l) A^T + kron(Omega, I3)
+//! (Guest 2006, REFERENCES.md) written member by member.
+
+use super::{StaticsError, Structure, remove_rigid, rigid_modes, stack};
+use crate::cage::MemberKind;
+use nalgebra::{DMatrix, DVector, Matrix3, Vector3};
+
+/// A load that may depend on the current node positions: writes the
+/// nodal forces at positions `pos` and load factor `factor` into `out`.
+pub type LoadFn<'l> = dyn Fn(&[Vector3<f64>], f64, &mut [Vector3<f64>]) + 'l;
+
+/// Newton iterations allowed for one load step.
+const MAX_NEWTON: usize = 40;
+/// Smallest load step, as a fraction of the whole load change.
+const MIN_STEP: f64 = 1e-4;
+/// Residual accepted, as a fraction of the force scale (load and prestress).
+const TOLERANCE: f64 = 1e-10;
+/// Material stiffness kept by a slack string in the tangent (not in the
+/// forces), as a fraction of its taut stiffness, so the tangent of a
+/// momentarily slack mechanism stays invertible.
+const SLACK_STIFFNESS: f64 = 1e-6;
+
+/// Rest lengths for which the unloaded cage carries `prestress_n`:
+/// L0 = L / (1 + t0 / EA).
+pub fn rest_lengths_m(s: &Structure, prestress_n: &[f64]) -> Vec<f64> {
+    s.bars
+        .iter()
+        .zip(prestress_n)
+        .map(|(b, &t0)| b.length_m / (1.0 + t0 / b.ea_n))
+        .collect()
+}
+
+/// An equilibrium state of the cage.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Equilibrium {
+    /// Load factor this state balances.
+    pub load: f64,
+    /// Node positions, body frame.
+    pub pos_m: Vec<Vector3<f64>>,
+    /// Member forces, tension positive.
+    pub force_n: Vec<f64>,
+    /// Norm of the out-of-balance nodal force.
+    pub residual_n: f64,
+    /// Newton iterations spent reaching this state (cumulative).
+    pub iterations: usize,
+    /// Strings that are slack (member indices).
+    pub slack: Vec<usize>,
+}
+
+/// The cage as a nonlinear elastic structure with its rest lengths.
+#[derive(Debug, Clone)]
+pub struct NonlinearModel<'a> {
+    structure: &'a Structure,
+    rest_m: Vec<f64>,
+    prestress_scale_n: f64,
+    reference_modes: DMatrix<f64>,
+}
+
+impl<'a> NonlinearModel<'a> {
+    /// The model whose unloaded state carries `prestress_n`.
+    pub fn new(structure: &'a Structure, prestress_n: &[f64]) -> NonlinearModel<'a> {
+        NonlinearModel {
+            structure,
+            rest_m: rest_lengths_m(structure, prestress_n),
+            prestress_scale_n: prestress_n.iter().fold(0.0, |m, t| m.max(t.abs())),
+            reference_modes: rigid_modes(&structure.pos_m),
+        }
+    }
+
+    /// The unloaded state (load factor 0) at the cage's own geometry.
+    pub fn unloaded(&self) -> Equilibrium {
+        let pos = self.structure.pos_m.clone();
+        let mut force = vec![0.0; self.structure.bars.len()];
+        self.member_forces(&pos, &mut force);
+        let mut g = DVector::zeros(3 * pos.len());
+        self.structure.internal_forces(&pos, &force, &mut g);
+        Equilibrium {
+            load: 0.0,
+            slack: self.slack(&pos),
+            residual_n: g.norm(),
+            pos_m: pos,
+            force_n: force,
+            iterations: 0,
+        }
+    }
+
+    /// Member forces at positions `pos` by the force law.
+    pub fn member_forces(&self, pos: &[Vector3<f64>], out: &mut [f64]) {
+        for ((bar, &l0), t) in self.structure.bars.iter().zip(&self.rest_m).zip(out) {
+            let l = (pos[bar.nodes[0]] - pos[bar.nodes[1]]).norm();
+            *t = bar.ea_n * (l - l0) / l0;
+            if bar.kind == MemberKind::String && *t < 0.0 {
+                *t = 0.0;
+            }
+        }
+    }
+
+    fn slack(&self, pos: &[Vector3<f64>]) -> Vec<usize> {
+        self.structure
+            .bars
+            .iter()
+            .zip(&self.rest_m)
+            .enumerate()
+            .filter(|(_, (b, l0))| {
+                b.kind == MemberKind::String && (pos[b.nodes[0]] - pos[b.nodes[1]]).norm() < **l0
+            })
+            .map(|(j, _)| j)
+            .collect()
+    }
+
+    /// Displacements from the unloaded geometry with the best-fit rigid
+    /// motion (the six rigid modes of the unloaded cage) removed.
+    pub fn deformation(&self, pos: &[Vector3<f64>]) -> Vec<Vector3<f64>> {
+        let mut u = stack(pos) - stack(&self.structure.pos_m);
+        remove_rigid(&self.reference_modes, &mut u);
+        (0..pos.len())
+            .map(|i| Vector3::new(u[3 * i], u[3 * i + 1], u[3 * i + 2]))
+            .collect()
+    }
+
+    /// Residual f - A t at positions `pos`, with its member forces.
+    fn residual(
+        &self,
+        pos: &[Vector3<f64>],
+        load: &LoadFn,
+        factor: f64,
+        force: &mut [f64],
+        f_buf: &mut [Vector3<f64>],
+        r: &mut DVector<f64>,
+    ) {
+        self.member_forces(pos, force);
+        self.structure.internal_forces(pos, force, r);
+        load(pos, factor, f_buf);
+        for (i, f) in f_buf.iter().enumerate() {
+            for k in 0..3 {
+                r[3 * i + k] = f[k] - r[3 * i + k];
+            }
+        }
+    }
+
+    /// Consistent tangent stiffness at `pos` (3n x 3n), plus a penalty on
+    /// the rigid-body modes so the system is solvable.
+    fn tangent(&self, pos: &[Vector3<f64>], force: &[f64], k: &mut DMatrix<f64>) {
+        k.fill(0.0);
+        for ((bar, &l0), &t) in self.structure.bars.iter().zip(&self.rest_m).zip(force) {
+            let [a, b] = bar.nodes;
+            let d = pos[a] - pos[b];
+            let l = d.norm();
+            if l <= 0.0 {
+                continue;
+            }
+            let e = d / l;
+            let taut = bar.kind == MemberKind::Rod || l >= l0;
+            let k_mat = bar.ea_n / l0 * if taut { 1.0 } else { SLACK_STIFFNESS };
+            let q = t / l;
+            let ee = e * e.transpose();
+            let kj: Matrix3<f64> = ee * k_mat + (Matrix3::identity() - ee) * q;
+            for r in 0..3 {
+                for c in 0..3 {
+                    let v = kj[(r, c)];
+                    k[(3 * a + r, 3 * a + c)] += v;
+                    k[(3 * b + r, 3 * b + c)] += v;
+                    k[(3 * a + r, 3 * b + c)] -= v;
+                    k[(3 * b + r, 3 * a + c)] -= v;
+                }
+            }
+        }
+        let scale = (0..k.nrows()).map(|i| k[(i, i)].abs()).fold(0.0, f64::max);
+        let modes = rigid_modes(pos);
+        *k += &modes * modes.transpose() * scale.max(1.0);
+    }
+
+    /// Follow the load from the state `start` to load factor `to`, in load
+    /// steps with Newton iterations, and return the equilibrium reached.
+    pub fn solve(
+        &self,
+        start: &Equilibrium,
+        load: &LoadFn,
+        to: f64,
+    ) -> Result<Equilibrium, StaticsError> {
+        let n = self.structure.node_count();
+        let b = self.structure.bars.len();
+        let mut f_buf = vec![Vector3::zeros(); n];
+        load(&start.pos_m, to, &mut f_buf);
+        let load_scale = f_buf.iter().fold(0.0_f64, |m, f| m.max(f.amax()));
+        let tol = TOLERANCE * load_scale.max(self.prestress_scale_n).max(1.0);
+
+        let mut ws = Workspace {
+            force: vec![0.0; b],
+            f_buf,
+            r: DVector::zeros(3 * n),
+            k: DMatrix::zeros(3 * n, 3 * n),
+            trial: vec![Vector3::zeros(); n],
+        };
+        let from = start.load;
+        let mut pos = start.pos_m.clone();
+        let mut iterations = start.iterations;
+        let mut done = 0.0_f64;
+        let mut step = 0.25_f64;
+        let mut last_residual;
+        loop {
+            let s = (done + step).min(1.0);
+            let factor = from + s * (to - from);
+            let mut trial_pos = pos.clone();
+            match self.newton(&mut trial_pos, load, factor, tol, &mut ws) {
+                Ok((res, it)) => {
+                    iterations += it;
+                    pos = trial_pos;
+                    done = s;
+                    last_residual = res;
+                    if done >= 1.0 {
+                        break;
+                    }
+                    step = (step * 1.5).min(1.0 - done);
+                }
+                Err((res, it)) => {
+                    iterations += it;
+                    last_residual = res;
+                    step /= 2.0;
+                    if step < MIN_STEP {
+                        return Err(StaticsError::NoEquilibrium {
+                            load: to,
+                            reached: from + done * (to - from),
+                            residual_n: last_residual,
+                            iterations,
+                        });
+                    }
+                }
+            }
+        }
+        let mut force = vec![0.0; b];
+        self.member_forces(&pos, &mut force);
+        Ok(Equilibrium {
+            load: to,
+            slack: self.slack(&pos),
+            pos_m: pos,
+            force_n: force,
+            residual_n: last_residual,
+            iterations,
+        })
+    }
+
+    /// Newton iterations at one load factor. Ok: residual and iterations;
+    /// Err: the same when it did not converge.
+    fn newton(
+        &self,
+        pos: &mut [Vector3<f64>],
+        load: &LoadFn,
+        factor: f64,
+        tol: f64,
+        ws: &mut Workspace,
+    ) -> Result<(f64, usize), (f64, usize)> {
+        let size = self.structure.size_m().max(1e-9);
+        self.residual(pos, load, factor, &mut ws.force, &mut ws.f_buf, &mut ws.r);
+        let mut rn = ws.r.norm();
+        for it in 0..MAX_NEWTON {
+            if rn <= tol {
+                return Ok((rn, it));
+            }
+            self.tangent(pos, &ws.force, &mut ws.k);
+            let k = std::mem::replace(&mut ws.k, DMatrix::zeros(0, 0));
+            let mut dx = match k.clone().lu().solve(&ws.r) {
+                Some(dx) if dx.iter().all(|v| v.is_finite()) => dx,
+                _ => match super::svd(k.clone(), "tangent stiffness")
+                    .ok()
+                    .and_then(|s| s.solve(&ws.r, 1e-12).ok())
+                {
+                    Some(dx) => dx,
+                    None => {
+                        ws.k = k;
+                        return Err((rn, it));
+                    }
+                },
+            };
+            ws.k = k;
+            let modes = rigid_modes(pos);
+            remove_rigid(&modes, &mut dx);
+            // Cap the step: no node moves more than a tenth of the cage size.
+            let biggest = (0..pos.len())
+                .map(|i| dx.fixed_rows::<3>(3 * i).norm())
+                .fold(0.0, f64::max);
+            if biggest > 0.1 * size {
+                dx *= 0.1 * size / biggest;
+            }
+            // Backtrack until the residual falls.
+            let mut alpha = 1.0;
+            let mut accepted = false;
+            for _ in 0..12 {
+                for (i, p) in ws.trial.iter_mut().enumerate() {
+                    *p = pos[i] + dx.fixed_rows::<3>(3 * i) * alpha;
+                }
+                self.residual(
+                    &ws.trial,
+                    load,
+                    factor,
+                    &mut ws.force,
+                    &mut ws.f_buf,
+                    &mut ws.r,
+                );
+                let trial_rn = ws.r.norm();
+                if trial_rn < rn * (1.0 - 1e-4 * alpha) || trial_rn <= tol {
+                    pos.copy_from_slice(&ws.trial);
+                    rn = trial_rn;
+                    accepted = true;
+                    break;
+                }
+                alpha /= 2.0;
+            }
+            if !accepted {
+                return Err((rn, it + 1));
+            }
+        }
+        if rn <= tol {
+            Ok((rn, MAX_NEWTON))
+        } else {
+            Err((rn, MAX_NEWTON))
+        }
+    }
+}
+
+struct Workspace {
+    force: Vec<f64>,
+    f_buf: Vec<Vector3<f64>>,
+    r: DVector<f64>,
+    k: DMatrix<f64>,
+    trial: Vec<Vector3<f64>>,
+}

@@ -11,6 +11,7 @@ pub mod cli;
 pub mod health;
 pub mod hull;
 pub mod impact;
+pub mod impact_detect;
 pub mod logbook;
 pub mod profile;
 pub mod sample;

@@ -12,6 +12,7 @@ use std::process::ExitCode;
 
 mod cage_cmd;
 pub mod impact_cmd;
+pub mod log_cmd;
 mod profile_cmd;
 
 /// Bad input or usage: the command exits with code 2.
@@ -40,6 +41,8 @@ enum Command {
     Profile(profile_cmd::Args),
     /// Analyse an impact on the cage (--dry-run: without recording it).
     Impact(impact_cmd::Args),
+    /// The cage log: records, member health, findings, replacements, reports.
+    Log(log_cmd::Args),
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -115,6 +118,7 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         None => cage_cmd::run(&cage_cmd::Args::demo()),
         Some(Command::Cage(a)) => cage_cmd::run(&a),
         Some(Command::Profile(a)) => profile_cmd::run(&a),
+        Some(Command::Log(a)) => log_cmd::run(&a),
         Some(Command::Impact(a)) => impact_cmd::run(&a),
     }
 }

@@ -76,7 +76,8 @@ pub struct MemberHealth {
     pub damage: f64,
     /// Largest utilisation magnitude since the last replacement.
     pub max_utilisation: f64,
-    /// Impacts since the last replacement that gave this member a load.
+    /// Impacts recorded since the last replacement that list this member
+    /// (the impact command lists every member, loaded or slack).
     pub impacts: u32,
     /// Why, in words: every rule that raised the status, or why it is ok.
     pub reasons: Vec<String>,

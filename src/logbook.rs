@@ -40,6 +40,7 @@
 
 use serde::{Deserialize, Serialize};
 
+pub mod export;
 pub mod format;
 pub mod store;
 

@@ -17,8 +17,17 @@ use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 use std::time::Duration;
 
-/// How long a writer waits for another to finish before giving up.
+/// How long a writer waits for another to finish before giving up, unless
+/// CAGEHAND_LOCK_WAIT_S says otherwise (scripts that prefer to fail fast).
 const LOCK_WAIT: Duration = Duration::from_secs(5);
+
+fn lock_wait() -> Duration {
+    env_nonempty("CAGEHAND_LOCK_WAIT_S")
+        .and_then(|s| s.trim().parse::<f64>().ok())
+        .filter(|s| s.is_finite() && *s >= 0.0 && *s <= 3600.0)
+        .map(Duration::from_secs_f64)
+        .unwrap_or(LOCK_WAIT)
+}
 
 /// Where the logs live and who is writing: shared by `log` and `impact`.
 #[derive(Debug, Clone, clap::Args)]
@@ -74,7 +83,7 @@ impl LogOpts {
         }
         let dir = self.data_dir()?;
         let (book, report) =
-            Logbook::open(&dir, &l.profile.vehicle.id, access, LOCK_WAIT).map_err(store_err)?;
+            Logbook::open(&dir, &l.profile.vehicle.id, access, lock_wait()).map_err(store_err)?;
         for m in report.messages(book.path()) {
             eprintln!("cagehand: warning: {m}");
         }

@@ -101,7 +101,7 @@ impl HealthReport {
             .iter()
             .filter(|m| m.status > Status::Ok)
             .collect();
-        v.sort_by(|a, b| b.status.cmp(&a.status));
+        v.sort_by_key(|m| std::cmp::Reverse(m.status));
         v
     }
 
@@ -263,7 +263,11 @@ pub fn assess(records: &[Record], cage: &Cage, rules: &Inspection) -> HealthRepo
         .collect();
     let warnings = unknown
         .into_iter()
-        .map(|id| format!("the log names member {id}, which this cage does not have; its entries are ignored"))
+        .map(|id| {
+            format!(
+                "the log names member {id}, which this cage does not have; its entries are ignored"
+            )
+        })
         .collect();
     HealthReport { members, warnings }
 }
@@ -451,7 +455,11 @@ mod tests {
         assert!(s1.reasons[0].contains("12 impact(s)"), "{:?}", s1.reasons);
         // One more impact at 0.6 adds 0.6^6 = 0.046656 (by hand): D = 0.727194, due.
         let mut ev2 = vec![impact(&[("S1", 0.5)]); 10];
-        ev2.extend([impact(&[("S1", 0.8)]), impact(&[("S1", 0.8)]), impact(&[("S1", 0.6)])]);
+        ev2.extend([
+            impact(&[("S1", 0.8)]),
+            impact(&[("S1", 0.8)]),
+            impact(&[("S1", 0.6)]),
+        ]);
         let s1 = get(&assess(&log(ev2), &cage, &rules()), "S1").clone();
         approx::assert_relative_eq!(s1.damage, 0.727194, epsilon = 1e-9);
         assert_eq!(s1.status, Status::Due);
@@ -470,7 +478,10 @@ mod tests {
     fn overload_is_replace_now_whatever_else() {
         let (cage, _) = demo();
         let h = assess(
-            &log(vec![impact(&[("R2", -1.0), ("S4", 0.99)]), finding("R2", FindingKind::Ok)]),
+            &log(vec![
+                impact(&[("R2", -1.0), ("S4", 0.99)]),
+                finding("R2", FindingKind::Ok),
+            ]),
             &cage,
             &rules(),
         );
@@ -502,15 +513,28 @@ mod tests {
     fn findings_rules() {
         let (cage, _) = demo();
         for kind in [FindingKind::Cut, FindingKind::Crack, FindingKind::Fray] {
-            let h = assess(&log(vec![finding("S3", kind), finding("S3", FindingKind::Ok)]), &cage, &rules());
+            let h = assess(
+                &log(vec![finding("S3", kind), finding("S3", FindingKind::Ok)]),
+                &cage,
+                &rules(),
+            );
             assert_eq!(get(&h, "S3").status, Status::Due, "{kind:?}");
         }
         for kind in [FindingKind::Slack, FindingKind::LooseEnd] {
             let h = assess(&log(vec![finding("S3", kind)]), &cage, &rules());
             assert_eq!(get(&h, "S3").status, Status::Inspect);
-            let h = assess(&log(vec![finding("S3", kind), finding("S3", FindingKind::Ok)]), &cage, &rules());
+            let h = assess(
+                &log(vec![finding("S3", kind), finding("S3", FindingKind::Ok)]),
+                &cage,
+                &rules(),
+            );
             assert_eq!(get(&h, "S3").status, Status::Ok);
-            assert!(get(&h, "S3").reasons.iter().any(|r| r.contains("inspected ok")));
+            assert!(
+                get(&h, "S3")
+                    .reasons
+                    .iter()
+                    .any(|r| r.contains("inspected ok"))
+            );
         }
         // ok clears nothing computed.
         let mut ev = vec![impact(&[("S1", 0.9)]); 3];
@@ -573,7 +597,10 @@ mod tests {
             .collect();
         let b = assess(&reread, &cage, &rules());
         assert_eq!(a, b);
-        assert_eq!(serde_json::to_string(&a).unwrap(), serde_json::to_string(&b).unwrap());
+        assert_eq!(
+            serde_json::to_string(&a).unwrap(),
+            serde_json::to_string(&b).unwrap()
+        );
         assert!(a.members.iter().all(|m| !m.reasons.is_empty()));
         let before = assess(&records[..1], &cage, &rules());
         let ch = changes(&before, &a);

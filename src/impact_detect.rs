@@ -144,7 +144,9 @@ impl ImpactDetector {
         }
         // Velocity after the event began is already disturbed by it.
         if self.active.is_none()
-            && let Some(v) = s.velocity_ned_m_s.filter(|v| v.iter().all(|x| x.is_finite()))
+            && let Some(v) = s
+                .velocity_ned_m_s
+                .filter(|v| v.iter().all(|x| x.is_finite()))
         {
             self.last_velocity = Some((v, s.attitude));
         }

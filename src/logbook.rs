@@ -112,11 +112,7 @@ impl Event {
                 with_note(
                     format!(
                         "impact on {} ({}), {:.0} N by {}{}",
-                        i.strike,
-                        i.input,
-                        i.force_n,
-                        i.method,
-                        worst
+                        i.strike, i.input, i.force_n, i.method, worst
                     ),
                     &i.note,
                 )
@@ -130,11 +126,19 @@ impl Event {
                 with_note(format!("{} replaced{part}", r.member), &r.note)
             }
             Event::Preflight(p) => {
-                let failed = p.items.iter().filter(|i| i.result == ItemResult::Fail).count();
+                let failed = p
+                    .items
+                    .iter()
+                    .filter(|i| i.result == ItemResult::Fail)
+                    .count();
                 with_note(
                     format!(
                         "pre-flight {} ({} items, {failed} failed)",
-                        if p.signed_off { "signed off" } else { "not signed off" },
+                        if p.signed_off {
+                            "signed off"
+                        } else {
+                            "not signed off"
+                        },
                         p.items.len()
                     ),
                     &p.note,

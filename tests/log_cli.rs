@@ -39,7 +39,16 @@ fn impact_is_recorded_and_health_follows_it() {
     let d = dir.path();
     let out = ok(&cmd(
         d,
-        &["impact", "--face", "F3", "--peak-accel-g", "40", "--note", "hard landing", "--json"],
+        &[
+            "impact",
+            "--face",
+            "F3",
+            "--peak-accel-g",
+            "40",
+            "--note",
+            "hard landing",
+            "--json",
+        ],
     ));
     let report: serde_json::Value = serde_json::from_str(&out).unwrap();
     assert_eq!(report["recorded"], true);
@@ -60,7 +69,15 @@ fn impact_is_recorded_and_health_follows_it() {
     let h = health(d);
     assert_eq!(h.len(), 30);
     for m in &h {
-        for key in ["id", "kind", "status", "damage", "max_utilisation", "impacts", "reasons"] {
+        for key in [
+            "id",
+            "kind",
+            "status",
+            "damage",
+            "max_utilisation",
+            "impacts",
+            "reasons",
+        ] {
             assert!(m.get(key).is_some(), "{key} missing in {m}");
         }
         assert_eq!(m["impacts"], 1);
@@ -75,9 +92,15 @@ fn impact_is_recorded_and_health_follows_it() {
         .unwrap()["utilisation"]
         .as_f64()
         .unwrap();
-    assert_eq!(member(&h, "R1")["max_utilisation"].as_f64().unwrap(), stored_r1.abs());
+    assert_eq!(
+        member(&h, "R1")["max_utilisation"].as_f64().unwrap(),
+        stored_r1.abs()
+    );
     // A dry run records nothing.
-    ok(&cmd(d, &["impact", "--face", "F3", "--speed", "2", "--dry-run"]));
+    ok(&cmd(
+        d,
+        &["impact", "--face", "F3", "--speed", "2", "--dry-run"],
+    ));
     let show: serde_json::Value =
         serde_json::from_str(&ok(&cmd(d, &["log", "show", "--json"]))).unwrap();
     assert_eq!(show["records"].as_array().unwrap().len(), 1);
@@ -87,7 +110,17 @@ fn impact_is_recorded_and_health_follows_it() {
 fn findings_replacement_and_status_changes() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
-    let out = ok(&cmd(d, &["log", "finding", "S4", "fray", "--note", "fuzzy near the knot"]));
+    let out = ok(&cmd(
+        d,
+        &[
+            "log",
+            "finding",
+            "S4",
+            "fray",
+            "--note",
+            "fuzzy near the knot",
+        ],
+    ));
     assert!(out.contains("S4: OK -> DUE"), "{out}");
     assert_eq!(member(&health(d), "S4")["status"], "due");
     let out = ok(&cmd(d, &["log", "finding", "S4", "ok"]));
@@ -112,7 +145,10 @@ fn unknown_member_or_kind_is_bad_input_listing_valid_values() {
     let o = cmd(dir.path(), &["log", "finding", "S99", "cut"]);
     assert_eq!(o.status.code(), Some(2));
     let e = String::from_utf8_lossy(&o.stderr);
-    assert!(e.contains("valid members are R1, R2") && e.contains("S24"), "{e}");
+    assert!(
+        e.contains("valid members are R1, R2") && e.contains("S24"),
+        "{e}"
+    );
     let o = cmd(dir.path(), &["log", "finding", "S1", "bent"]);
     assert_eq!(o.status.code(), Some(2));
     let e = String::from_utf8_lossy(&o.stderr);
@@ -165,7 +201,17 @@ fn health_is_the_same_every_time_and_exports_carry_it() {
     let b = ok(&cmd(d, &["log", "health", "--json"]));
     assert_eq!(a, b);
     let md_path = d.join("report.md");
-    ok(&cmd(d, &["log", "export", "--format", "md", "--out", md_path.to_str().unwrap()]));
+    ok(&cmd(
+        d,
+        &[
+            "log",
+            "export",
+            "--format",
+            "md",
+            "--out",
+            md_path.to_str().unwrap(),
+        ],
+    ));
     let md = std::fs::read_to_string(&md_path).unwrap();
     assert!(md.contains("# Cage maintenance report: Kestrel trainer"));
     assert!(md.contains("- **R2 rod**: DUE"));

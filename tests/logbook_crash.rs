@@ -90,7 +90,12 @@ fn sigkill_at_random_moments_loses_no_reported_record() {
         child.kill().unwrap(); // SIGKILL on Unix
         child.wait().unwrap();
         let mut out = String::new();
-        child.stdout.take().unwrap().read_to_string(&mut out).unwrap();
+        child
+            .stdout
+            .take()
+            .unwrap()
+            .read_to_string(&mut out)
+            .unwrap();
         all_reported.extend(reported(&out));
     }
     let elapsed = start.elapsed();
@@ -139,7 +144,10 @@ fn torn_tail_is_set_aside_and_reported() {
     let o = run(dir.path(), &["note", "delta"]);
     assert!(o.status.success());
     let stderr = text(&o.stderr);
-    assert!(stderr.contains("moved to") && stderr.contains(".set-aside"), "{stderr}");
+    assert!(
+        stderr.contains("moved to") && stderr.contains(".set-aside"),
+        "{stderr}"
+    );
     assert_eq!(text(&o.stdout).trim(), "recorded #3");
     let side = std::fs::read_to_string(dir.path().join(format!("{LOG}.set-aside"))).unwrap();
     assert!(side.contains("charlie"), "{side}");
@@ -152,11 +160,16 @@ fn torn_tail_is_set_aside_and_reported() {
 fn corrupt_middle_record_is_reported_with_its_line() {
     let dir = tempfile::tempdir().unwrap();
     let path = three_notes(dir.path());
-    let t = std::fs::read_to_string(&path).unwrap().replace("bravo", "brav0");
+    let t = std::fs::read_to_string(&path)
+        .unwrap()
+        .replace("bravo", "brav0");
     std::fs::write(&path, t).unwrap();
     let (seqs, stderr) = shown(dir.path());
     assert_eq!(seqs, vec![1, 3]);
-    assert!(stderr.contains(&format!("{LOG}:3: corrupt record skipped")), "{stderr}");
+    assert!(
+        stderr.contains(&format!("{LOG}:3: corrupt record skipped")),
+        "{stderr}"
+    );
     // Appending does not touch the middle; the next number follows the last.
     let o = run(dir.path(), &["note", "delta"]);
     assert_eq!(text(&o.stdout).trim(), "recorded #4");
@@ -197,7 +210,10 @@ fn a_held_lock_gives_a_clear_message_and_no_record() {
         .unwrap();
     assert_eq!(o.status.code(), Some(1));
     let stderr = text(&o.stderr);
-    assert!(stderr.contains("in use by another cagehand process"), "{stderr}");
+    assert!(
+        stderr.contains("in use by another cagehand process"),
+        "{stderr}"
+    );
     holder.unlock().unwrap();
     assert_eq!(shown(dir.path()).0, vec![1, 2, 3]);
 }
@@ -218,7 +234,16 @@ fn unwritable_data_folder_gives_a_clear_error_and_no_record() {
     assert!(!data.exists());
     // The impact command refuses before analysing.
     let o = Command::new(BIN)
-        .args(["impact", "--face", "F1", "--speed", "2", "--operator", "t", "--data"])
+        .args([
+            "impact",
+            "--face",
+            "F1",
+            "--speed",
+            "2",
+            "--operator",
+            "t",
+            "--data",
+        ])
         .arg(&data)
         .output()
         .unwrap();

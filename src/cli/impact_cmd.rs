@@ -4,10 +4,10 @@
 
 use super::log_cmd::{self, LogOpts};
 use super::{Loaded, ProfileArg, bad_input};
-use crate::health::StatusChange;
-use crate::logbook::{Access, StrikeRef};
 use crate::cage::MemberKind;
+use crate::health::StatusChange;
 use crate::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
+use crate::logbook::{Access, StrikeRef};
 use crate::statics::StaticsError;
 use serde::Serialize;
 use std::io::Write;

@@ -69,9 +69,7 @@ impl LogOpts {
             .or_else(|| env_nonempty("LOGNAME"))
             .or_else(|| env_nonempty("USERNAME"))
             .map(|s| s.trim().to_string())
-            .ok_or_else(|| {
-                bad_input("no operator: give --operator NAME or set CAGEHAND_OPERATOR")
-            })
+            .ok_or_else(|| bad_input("no operator: give --operator NAME or set CAGEHAND_OPERATOR"))
     }
 
     /// Open the vehicle's log, telling the operator on stderr what opening

@@ -2,8 +2,8 @@
 //! and CSV of the health table for a spreadsheet. Pure: text out.
 
 use super::Record;
-use crate::health::{HealthReport, MemberHealth};
 use crate::cage::MemberKind;
+use crate::health::{HealthReport, MemberHealth};
 
 /// What a report is about.
 #[derive(Debug, Clone)]
@@ -46,7 +46,11 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
     ));
     s.push_str(&format!("- Vehicle id: `{}`\n", h.vehicle_id));
     s.push_str(&format!("- Profile: `{}`\n", h.profile));
-    s.push_str(&format!("- Log: `{}` ({} records)\n", h.log_path, records.len()));
+    s.push_str(&format!(
+        "- Log: `{}` ({} records)\n",
+        h.log_path,
+        records.len()
+    ));
     s.push_str(&format!("- Generated: {}\n", h.generated));
     s.push_str(&format!(
         "- Worst status: **{}**\n\n",
@@ -60,7 +64,12 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
         s.push_str("None: no member is flagged by the log.\n\n");
     } else {
         for m in act {
-            s.push_str(&format!("- **{} {}**: {}\n", m.id, kind(m), m.status.label()));
+            s.push_str(&format!(
+                "- **{} {}**: {}\n",
+                m.id,
+                kind(m),
+                m.status.label()
+            ));
             for r in &m.reasons {
                 s.push_str(&format!("  - {}\n", r.replace('\n', " ")));
             }
@@ -175,7 +184,10 @@ mod tests {
     fn csv_quotes_per_rfc_4180() {
         let c = csv(&health());
         let lines: Vec<&str> = c.split("\r\n").collect();
-        assert_eq!(lines[0], "id,kind,status,damage,max_utilisation,impacts,reasons");
+        assert_eq!(
+            lines[0],
+            "id,kind,status,damage,max_utilisation,impacts,reasons"
+        );
         assert_eq!(
             lines[2],
             "S1,string,due,0.750000,0.9000,3,\"finding cut, \"\"deep\"\"\""

@@ -193,7 +193,8 @@ fn lock(file: &File, path: &Path, access: Access, wait: Duration) -> Result<(), 
 /// forever must not hang us).
 fn read_all(file: &mut File, path: &Path) -> Result<Vec<u8>, StoreError> {
     let len = file.metadata().map_err(io("cannot read", path))?.len();
-    file.seek(SeekFrom::Start(0)).map_err(io("cannot read", path))?;
+    file.seek(SeekFrom::Start(0))
+        .map_err(io("cannot read", path))?;
     let mut bytes = Vec::with_capacity(usize::try_from(len).unwrap_or(0));
     file.take(len)
         .read_to_end(&mut bytes)
@@ -339,7 +340,9 @@ impl Logbook {
         };
         buf.push_str(&line);
         let old_len = self.len;
-        let written = file.write_all(buf.as_bytes()).and_then(|()| file.sync_data());
+        let written = file
+            .write_all(buf.as_bytes())
+            .and_then(|()| file.sync_data());
         if let Err(e) = written {
             // Cut back whatever part reached the file; best effort, the
             // next open would set a torn tail aside anyway.
@@ -422,7 +425,11 @@ mod tests {
         let (mut b, r) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
         let s = r.set_aside.clone().unwrap();
         assert_eq!(s.line, 3);
-        assert!(std::fs::read_to_string(&s.side_path).unwrap().contains("\"two\""));
+        assert!(
+            std::fs::read_to_string(&s.side_path)
+                .unwrap()
+                .contains("\"two\"")
+        );
         assert_eq!(b.append("ana", now, note("three")).unwrap().seq, 2);
         drop(b);
         let (b, r) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
@@ -444,6 +451,9 @@ mod tests {
         assert!(log_file_name("../etc").is_err());
         assert!(log_file_name(".hidden").is_err());
         assert!(log_file_name("").is_err());
-        assert_eq!(log_file_name("kestrel-demo").unwrap(), "kestrel-demo.cagelog");
+        assert_eq!(
+            log_file_name("kestrel-demo").unwrap(),
+            "kestrel-demo.cagelog"
+        );
     }
 }

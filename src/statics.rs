@@ -73,7 +73,7 @@ pub enum StaticsError {
     /// Newton iterations found no equilibrium (the cage collapses or the
     /// load is beyond what the solver can follow).
     #[error(
-        "no equilibrium found at {load:.4} of the load (reached {reached:.4}; residual {residual_n:.3e} N after {iterations} iterations): the cage may collapse under this load"
+        "no equilibrium found at load {load:.4} (the last one found was at {reached:.4}; residual {residual_n:.3e} N after {iterations} iterations): the cage may collapse under this load"
     )]
     NoEquilibrium {
         /// Load factor aimed at.
@@ -210,7 +210,18 @@ pub(crate) fn svd(
     m: DMatrix<f64>,
     what: &'static str,
 ) -> Result<SVD<f64, nalgebra::Dyn, nalgebra::Dyn>, StaticsError> {
-    SVD::try_new(m, true, true, f64::EPSILON, 10_000).ok_or(StaticsError::NoDecomposition { what })
+    svd_with(m, true, what)
+}
+
+/// Sorted SVD, with U only when asked for (it is needed to solve, not for
+/// the null space, and costs as much again on large cages).
+pub(crate) fn svd_with(
+    m: DMatrix<f64>,
+    compute_u: bool,
+    what: &'static str,
+) -> Result<SVD<f64, nalgebra::Dyn, nalgebra::Dyn>, StaticsError> {
+    SVD::try_new(m, compute_u, true, f64::EPSILON, 10_000)
+        .ok_or(StaticsError::NoDecomposition { what })
 }
 
 /// Orthonormal basis (columns) of the six rigid-body motions of the points:

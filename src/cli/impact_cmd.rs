@@ -8,7 +8,7 @@ use crate::cage::MemberKind;
 use crate::health::StatusChange;
 use crate::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
 use crate::logbook::{Access, StrikeRef};
-use crate::statics::StaticsError;
+use crate::statics::{StaticsError, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -102,14 +102,14 @@ pub fn resolve(args: &Args, l: &Loaded) -> anyhow::Result<Resolved> {
         }
     };
     let settings = &l.profile.impact;
-    if let Some(name) = &args.surface {
-        if !settings.surfaces.iter().any(|s| &s.name == name) {
-            let names: Vec<&str> = settings.surfaces.iter().map(|s| s.name.as_str()).collect();
-            return Err(bad_input(format!(
-                "--surface {name}: not a surface of this profile; valid surfaces are {}",
-                names.join(", ")
-            )));
-        }
+    if let Some(name) = &args.surface
+        && !settings.surfaces.iter().any(|s| &s.name == name)
+    {
+        let names: Vec<&str> = settings.surfaces.iter().map(|s| s.name.as_str()).collect();
+        return Err(bad_input(format!(
+            "--surface {name}: not a surface of this profile; valid surfaces are {}",
+            names.join(", ")
+        )));
     }
     let input = match (args.peak_accel_g, args.speed) {
         (Some(g), _) => ImpactInput::PeakAccel { g },
@@ -147,7 +147,19 @@ pub fn analyse(l: &Loaded, r: &Resolved) -> anyhow::Result<ImpactAnalysis> {
         | StaticsError::UnknownSurface { .. }
         | StaticsError::NotPositive { .. }
         | StaticsError::LoadSize { .. } => bad_input(e.to_string()),
-        other => anyhow::Error::new(other).context("impact analysis failed"),
+        other => {
+            // Say plainly when the cage carries no prestress: that is the
+            // usual reason a tensegrity finds no equilibrium.
+            let why = self_stress(
+                &Structure::from_cage(&l.cage, &l.profile),
+                l.profile.string.pretension_n,
+            )
+            .ok()
+            .filter(|ss| !ss.prestress_ok)
+            .map(|ss| format!(" ({})", ss.message))
+            .unwrap_or_default();
+            anyhow::Error::new(other).context(format!("impact analysis failed{why}"))
+        }
     })
 }
 
@@ -171,6 +183,7 @@ struct Report<'a> {
     face_displacement_m: f64,
     slack_strings: Vec<&'a str>,
     iterations: usize,
+    prestress_ok: bool,
     members: Vec<MemberJson<'a>>,
     recorded: bool,
     /// Sequence number of the log record, when recorded.
@@ -201,6 +214,11 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         Some(args.log.open(&l, Access::Write)?)
     };
     let a = analyse(&l, &resolved)?;
+    let ss = self_stress(
+        &Structure::from_cage(&l.cage, &l.profile),
+        l.profile.string.pretension_n,
+    )?;
+    // Record last, once everything the report needs has been computed.
     let (record_seq, status_changes) = match book.as_mut() {
         Some(book) => {
             let strike = match resolved.strike {
@@ -228,6 +246,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             .map(|&j| cage.members[j].id.as_str())
             .collect(),
         iterations: a.iterations,
+        prestress_ok: ss.prestress_ok,
         members: a
             .members
             .iter()
@@ -286,6 +305,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         a.residual_n,
         a.iterations
     )?;
+    if !ss.prestress_ok {
+        writeln!(out, "note: {}", ss.message)?;
+    }
     writeln!(out)?;
     let mut order: Vec<&MemberJson> = report.members.iter().collect();
     order.sort_by(|x, y| y.utilisation.total_cmp(&x.utilisation));

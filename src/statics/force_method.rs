@@ -6,7 +6,9 @@
 //! 1/2 (t - t0)^T F (t - t0). With every member active this gives the
 //! textbook t = t0 + A+ f + S a, a = -(S^T F S)^-1 S^T F A+ f. A string
 //! whose total force would be negative is dropped (it goes slack) and the
-//! case is solved again without it.
+//! case is solved again without it; a dropped string whose ends the
+//! compatible displacements pull further apart than its slack allows is
+//! taken back.
 
 use super::matrix::{Decomposed, equilibrium_matrix};
 use super::{StaticsError, Structure, stack};
@@ -47,9 +49,9 @@ pub fn linear_load_case(
     let mut active: Vec<usize> = (0..b).collect();
     let mut slack = Vec::new();
     let mut total = vec![0.0; b];
-    loop {
+    for _ in 0..4 * b + 4 {
         let a = DMatrix::from_fn(3 * n, active.len(), |r, c| a_full[(r, active[c])]);
-        let d = Decomposed::new(&a)?;
+        let d = Decomposed::new(&a, true)?;
         let mut t = d.pseudo_solve(&f)?;
         let sn = &d.null;
         if sn.ncols() > 0 {
@@ -80,18 +82,44 @@ pub fn linear_load_case(
             .map(|(k, &j)| (k, j, t[k]))
             .filter(|&(_, _, tk)| tk < -1e-10 * scale)
             .min_by(|x, y| x.2.total_cmp(&y.2));
-        match worst {
-            Some((k, j, _)) if active.len() > 1 => {
-                active.remove(k);
-                slack.push(j);
+        total.fill(0.0);
+        for (k, &j) in active.iter().enumerate() {
+            total[j] = t[k];
+        }
+        if let Some((k, j, _)) = worst.filter(|_| active.len() > 1) {
+            active.remove(k);
+            slack.push(j);
+            continue;
+        }
+        // Take back the dropped string that the displacements would stretch
+        // most beyond its slack: elongation e = F (t - t0) for active
+        // members, and a string is taut again when e > -F t0.
+        let e = DVector::from_iterator(
+            active.len(),
+            active.iter().map(|&j| {
+                let flex = s.bars[j].length_m / s.bars[j].ea_n;
+                flex * (total[j] - prestress_n[j])
+            }),
+        );
+        let back = d.compatible_displacements(&e, 3 * n).and_then(|disp| {
+            slack
+                .iter()
+                .enumerate()
+                .map(|(k, &j)| {
+                    let stretch = a_full.column(j).dot(&disp);
+                    let flex = s.bars[j].length_m / s.bars[j].ea_n;
+                    (k, (stretch + flex * prestress_n[j]) / flex)
+                })
+                .filter(|&(_, excess_n)| excess_n > 1e-9 * scale)
+                .max_by(|x, y| x.1.total_cmp(&y.1))
+        });
+        match back {
+            Some((k, _)) => {
+                let j = slack.remove(k);
+                let at = active.partition_point(|&i| i < j);
+                active.insert(at, j);
             }
-            _ => {
-                total.fill(0.0);
-                for (k, &j) in active.iter().enumerate() {
-                    total[j] = t[k];
-                }
-                break;
-            }
+            None => break,
         }
     }
     slack.sort_unstable();

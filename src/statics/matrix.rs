@@ -1,7 +1,7 @@
 //! The equilibrium matrix, its rank, its self-stress states and
 //! mechanisms, and the prestress taken from the profile's pretension.
 
-use super::{Bar, StaticsError, Structure, svd};
+use super::{Bar, StaticsError, Structure, svd_with};
 use crate::cage::MemberKind;
 use nalgebra::{DMatrix, DVector, Vector3};
 
@@ -39,12 +39,13 @@ pub(crate) struct Decomposed {
 }
 
 impl Decomposed {
-    pub(crate) fn new(a: &DMatrix<f64>) -> Result<Decomposed, StaticsError> {
+    /// Decompose A; `solvable` keeps U so [`Decomposed::pseudo_solve`] works.
+    pub(crate) fn new(a: &DMatrix<f64>, solvable: bool) -> Result<Decomposed, StaticsError> {
         let (m, b) = a.shape();
         let rows = m.max(b);
         let mut padded = DMatrix::zeros(rows, b);
         padded.view_mut((0, 0), (m, b)).copy_from(a);
-        let s = svd(padded, "equilibrium matrix")?;
+        let s = svd_with(padded, solvable, "equilibrium matrix")?;
         let smax = s.singular_values.iter().copied().fold(0.0, f64::max);
         let tol = RANK_TOLERANCE * smax.max(f64::MIN_POSITIVE);
         let rank = s.singular_values.iter().filter(|&&x| x > tol).count();
@@ -85,6 +86,21 @@ impl Decomposed {
                 what: "equilibrium matrix",
             })
     }
+
+    /// Least-norm nodal displacements d (length `nodes3`) whose member
+    /// elongations A^T d best match `e`: d = (A^T)+ e.
+    pub(crate) fn compatible_displacements(
+        &self,
+        e: &DVector<f64>,
+        nodes3: usize,
+    ) -> Option<DVector<f64>> {
+        let (u, vt) = (self.svd.u.as_ref()?, self.svd.v_t.as_ref()?);
+        let mut y = vt * e;
+        for (yi, &sv) in y.iter_mut().zip(self.svd.singular_values.iter()) {
+            *yi = if sv > self.tol { *yi / sv } else { 0.0 };
+        }
+        Some((u * y).rows(0, nodes3).into_owned())
+    }
 }
 
 /// What the equilibrium matrix says about the cage, and the prestress.
@@ -112,7 +128,7 @@ pub struct SelfStress {
 /// tensioned" (the projection of that pattern onto the null space) is used.
 pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, StaticsError> {
     let a = equilibrium_matrix(&s.pos_m, &s.bars);
-    let d = Decomposed::new(&a)?;
+    let d = Decomposed::new(&a, false)?;
     let b = s.bars.len();
     let states = d.null.ncols();
     let mechanisms = (3 * s.node_count()).saturating_sub(d.rank + 6);

@@ -328,6 +328,36 @@ mod tests {
     }
 
     #[test]
+    fn preflight_sign_off_round_trips() {
+        use crate::logbook::{ItemResult, PreflightEvent, PreflightItemResult};
+        let r = Record {
+            seq: 1,
+            time: "2026-12-01T23:00:00Z".into(),
+            operator: "ana".into(),
+            event: Event::Preflight(PreflightEvent {
+                items: vec![
+                    PreflightItemResult {
+                        text: "Battery".into(),
+                        result: ItemResult::Pass,
+                        detail: Some("8.1 V".into()),
+                    },
+                    PreflightItemResult {
+                        text: "Props".into(),
+                        result: ItemResult::Skipped,
+                        detail: None,
+                    },
+                ],
+                signed_off: true,
+                note: None,
+            }),
+        };
+        let line = encode_record(&r).unwrap();
+        assert!(line.contains("\"event\":\"preflight\""));
+        assert!(line.contains("\"result\":\"skipped\""));
+        assert_eq!(decode_record(line.trim_end().as_bytes()).unwrap(), r);
+    }
+
+    #[test]
     fn header_rules() {
         assert!(matches!(
             parse(b"hello\n"),
@@ -343,10 +373,26 @@ mod tests {
     }
 
     #[test]
-    fn non_finite_numbers_are_refused_before_writing() {
+    fn non_finite_numbers_and_bad_times_are_refused_before_writing() {
+        use crate::logbook::{ImpactEvent, ImpactInputRecord, ImpactSource, StrikeRef};
         let mut r = note(1, "x");
         r.time = "yesterday".into();
-        assert!(encode_record(&r).is_err());
+        assert!(encode_record(&r).unwrap_err().contains("RFC 3339"));
+        // serde_json would write NaN as null, which could never be read back.
+        r = note(1, "x");
+        r.event = Event::Impact(ImpactEvent {
+            strike: StrikeRef::Face("F1".into()),
+            input: ImpactInputRecord::PeakAccel { g: 10.0 },
+            source: ImpactSource::Entered,
+            method: "measured_acceleration".into(),
+            force_n: f64::NAN,
+            residual_n: 0.0,
+            face_displacement_m: 0.0,
+            slack_strings: vec![],
+            members: vec![],
+            note: None,
+        });
+        assert!(encode_record(&r).unwrap_err().contains("force_n"));
     }
 
     proptest! {
@@ -358,6 +404,19 @@ mod tests {
             with_header.extend_from_slice(&bytes);
             let p = parse(&with_header);
             prop_assert!(p.is_ok());
+        }
+
+        #[test]
+        fn any_note_text_round_trips(text in ".{0,80}", op in "[a-z ]{1,12}") {
+            let mut r = note(1, &text);
+            r.operator = op.clone();
+            if op.trim().is_empty() {
+                prop_assert!(encode_record(&r).is_err());
+            } else {
+                let line = encode_record(&r).unwrap();
+                prop_assert_eq!(line.matches('\n').count(), 1);
+                prop_assert_eq!(decode_record(line.trim_end_matches('\n').as_bytes()).unwrap(), r);
+            }
         }
 
         #[test]

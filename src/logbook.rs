@@ -428,11 +428,31 @@ impl Record {
     }
 }
 
-/// Current UTC time, rounded to milliseconds, in the form the log stores.
+/// A UTC time in the form the log stores: RFC 3339 with milliseconds,
+/// e.g. `2026-12-01T22:40:00.120Z` (fixed width, so columns line up).
 pub fn format_time(t: jiff::Timestamp) -> String {
-    let ms = t.as_millisecond();
-    match jiff::Timestamp::from_millisecond(ms) {
-        Ok(r) => r.to_string(),
-        Err(_) => t.to_string(),
+    format!("{t:.3}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn times_are_rfc3339_utc_with_milliseconds() {
+        let t = jiff::Timestamp::from_millisecond(1_796_164_800_120).unwrap();
+        assert_eq!(format_time(t), "2026-12-01T22:40:00.120Z");
+        let t = jiff::Timestamp::from_second(1_796_164_800).unwrap();
+        assert_eq!(format_time(t), "2026-12-01T22:40:00.000Z");
+        assert_eq!(format_time(t).parse::<jiff::Timestamp>().unwrap(), t);
+    }
+
+    #[test]
+    fn finding_kinds_parse_by_name() {
+        for k in FindingKind::ALL {
+            assert_eq!(FindingKind::parse(k.name()), Some(k));
+        }
+        assert_eq!(FindingKind::parse("Loose-End"), Some(FindingKind::LooseEnd));
+        assert_eq!(FindingKind::parse("bent"), None);
     }
 }

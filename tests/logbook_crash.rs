@@ -287,3 +287,37 @@ fn full_device_gives_a_clear_error_and_no_record() {
     assert!(stderr.contains("nothing was recorded"), "{stderr}");
     assert!(!text(&o.stdout).contains("recorded #"));
 }
+
+#[test]
+fn disk_full_in_the_middle_of_a_record_leaves_no_partial_record() {
+    // A disk that fills up mid-record, simulated with a file size limit
+    // (RLIMIT_FSIZE via the shell's `ulimit -f`, SIGXFSZ ignored so the
+    // write fails with EFBIG instead of killing the process): the write
+    // that crosses the limit is cut short, and the log must be cut back.
+    if !Path::new("/bin/bash").exists() {
+        eprintln!("no /bin/bash here; skipped");
+        return;
+    }
+    let dir = tempfile::tempdir().unwrap();
+    let script = format!(
+        "trap '' XFSZ; ulimit -f 2; exec '{BIN}' log --data '{}' --operator t note filler --repeat 100",
+        dir.path().display()
+    );
+    let o = Command::new("/bin/bash")
+        .arg("-c")
+        .arg(&script)
+        .output()
+        .unwrap();
+    assert_eq!(o.status.code(), Some(1), "{}", text(&o.stderr));
+    let stderr = text(&o.stderr);
+    assert!(stderr.contains("nothing was recorded"), "{stderr}");
+    let got = reported(&text(&o.stdout));
+    assert!(got.len() >= 3, "{got:?}");
+    // bash counts `ulimit -f` in 1024-byte blocks: 2048 bytes at most.
+    let len = std::fs::metadata(dir.path().join(LOG)).unwrap().len();
+    assert!(len <= 2048, "{len}");
+    // Every reported record is there and nothing torn is left behind.
+    let (seqs, stderr) = shown(dir.path());
+    assert_eq!(seqs, got);
+    assert!(stderr.is_empty(), "{stderr}");
+}

@@ -96,7 +96,7 @@ pub fn store_err(e: StoreError) -> anyhow::Error {
         StoreError::Format { .. } | StoreError::BadVehicleId(_) | StoreError::Record(_) => {
             bad_input(e.to_string())
         }
-        other => anyhow::Error::new(other).context("cage log"),
+        other => anyhow::Error::new(other),
     }
 }
 

@@ -13,13 +13,13 @@ use std::time::{Duration, Instant};
 #[derive(Debug, thiserror::Error)]
 pub enum StoreError {
     /// A file operation failed.
-    #[error("{action} {path}: {source}")]
+    #[error("{action} {path}")]
     Io {
         /// What we were doing.
         action: &'static str,
         /// The file or folder.
         path: PathBuf,
-        /// The system's reason.
+        /// The system's reason (shown by the error chain).
         source: std::io::Error,
     },
     /// Another process holds the lock.

@@ -61,6 +61,15 @@ pub struct ProposedImpact {
 }
 
 impl ProposedImpact {
+    /// The analysis inputs once the operator confirms the proposal as it
+    /// is: the face, and the measured peak (F = m a). Edits replace these.
+    pub fn analysis_inputs(&self) -> (crate::impact::Strike, crate::impact::ImpactInput) {
+        (
+            crate::impact::Strike::Face(self.face),
+            crate::impact::ImpactInput::PeakAccel { g: self.peak_g },
+        )
+    }
+
     /// The speed to propose for the impact estimate: the normal component
     /// when known, else the magnitude (which errs on the safe side).
     pub fn approach_speed_m_per_s(&self) -> Option<f64> {
@@ -296,6 +305,51 @@ mod tests {
         let vn = p.normal_speed_m_per_s.unwrap();
         approx::assert_relative_eq!(vn, Vector3::new(3.0, 0.0, 4.0).dot(&f1), epsilon = 1e-12);
         assert_eq!(p.approach_speed_m_per_s(), Some(vn.max(0.0)));
+    }
+
+    #[test]
+    fn a_confirmed_proposal_becomes_a_stored_impact_health_can_use() {
+        use crate::logbook::{Event, ImpactEvent, ImpactSource, Record, StrikeRef};
+        let p = Profile::demo().unwrap();
+        let c = Cage::from_profile(&p).unwrap();
+        let mut d = ImpactDetector::new(&c, p.impact.detect_threshold_g, 0.2);
+        d.push(&sample(0.0, -c.faces[4].normal_body * 30.0 * G));
+        let proposal = d.finish().unwrap();
+        let (strike, input) = proposal.analysis_inputs();
+        let a = crate::impact::analyse_impact(&c, &p, strike, &input).unwrap();
+        // F = m a with the measured peak (Goldsmith, Impact, 1960: the
+        // contact force is the mass times the deceleration).
+        approx::assert_relative_eq!(a.force_n, p.vehicle.mass_kg * 30.0 * G, max_relative = 1e-9);
+        let ev = ImpactEvent::from_analysis(
+            &c,
+            StrikeRef::Face(proposal.face_id.clone()),
+            &input,
+            &a,
+            ImpactSource::Detected,
+            None,
+        );
+        assert_eq!(ev.members.len(), c.members.len());
+        assert_eq!(ev.method, "measured_acceleration");
+        let rec = Record {
+            seq: 1,
+            time: "2026-12-01T23:00:00.000Z".into(),
+            operator: "ana".into(),
+            event: Event::Impact(ev),
+        };
+        let line = crate::logbook::encode_record(&rec).unwrap();
+        assert!(line.contains("\"source\":\"detected\""));
+        let h = crate::health::assess(&[rec], &c, &p.inspection);
+        let worst = a
+            .members
+            .iter()
+            .map(|m| m.utilisation.abs())
+            .fold(0.0, f64::max);
+        let reported = h
+            .members
+            .iter()
+            .map(|m| m.max_utilisation)
+            .fold(0.0, f64::max);
+        assert_eq!(reported, worst);
     }
 
     #[test]

@@ -265,6 +265,69 @@ pub struct ImpactEvent {
     pub note: Option<String>,
 }
 
+impl ImpactEvent {
+    /// The stored form of an impact analysis: member indices become ids,
+    /// the solver's input and method become the log's own terms.
+    pub fn from_analysis(
+        cage: &crate::cage::Cage,
+        strike: StrikeRef,
+        input: &crate::impact::ImpactInput,
+        a: &crate::impact::ImpactAnalysis,
+        source: ImpactSource,
+        note: Option<String>,
+    ) -> ImpactEvent {
+        use crate::impact::ImpactInput;
+        let input = match input {
+            ImpactInput::Speed {
+                speed_m_per_s,
+                surface,
+            } => ImpactInputRecord::Speed {
+                speed_m_per_s: *speed_m_per_s,
+                surface: surface.clone(),
+            },
+            ImpactInput::PeakAccel { g } => ImpactInputRecord::PeakAccel { g: *g },
+            ImpactInput::SpeedAndDuration {
+                speed_m_per_s,
+                duration_s,
+            } => ImpactInputRecord::SpeedAndDuration {
+                speed_m_per_s: *speed_m_per_s,
+                duration_s: *duration_s,
+            },
+        };
+        let method = serde_json::to_value(a.method)
+            .ok()
+            .and_then(|v| v.as_str().map(str::to_string))
+            .unwrap_or_else(|| format!("{:?}", a.method));
+        let id = |j: usize| {
+            cage.members
+                .get(j)
+                .map(|m| m.id.clone())
+                .unwrap_or_else(|| format!("#{j}"))
+        };
+        ImpactEvent {
+            strike,
+            input,
+            source,
+            method,
+            force_n: a.force_n,
+            residual_n: a.residual_n,
+            face_displacement_m: a.face_displacement_m,
+            slack_strings: a.slack_strings.iter().map(|&j| id(j)).collect(),
+            members: a
+                .members
+                .iter()
+                .map(|m| MemberLoadRecord {
+                    member: id(m.member),
+                    force_n: m.force_n,
+                    capacity_n: m.capacity_n,
+                    utilisation: m.utilisation,
+                })
+                .collect(),
+            note: note.filter(|n| !n.trim().is_empty()),
+        }
+    }
+}
+
 /// What an inspection found on a member.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, PartialOrd, Ord)]
 #[serde(rename_all = "snake_case")]

@@ -7,7 +7,7 @@ use super::{Loaded, ProfileArg, bad_input};
 use crate::cage::MemberKind;
 use crate::health::StatusChange;
 use crate::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
-use crate::logbook::{Access, StrikeRef};
+use crate::logbook::{Access, ImpactEvent, ImpactSource, StrikeRef};
 use crate::statics::{StaticsError, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
@@ -225,7 +225,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 Strike::Face(_) => StrikeRef::Face(resolved.strike_id.clone()),
                 Strike::Node(_) => StrikeRef::Node(resolved.strike_id.clone()),
             };
-            let event = log_cmd::impact_event(&l, strike, &resolved.input, &a, args.note.clone());
+            let event = ImpactEvent::from_analysis(
+                &l.cage,
+                strike,
+                &resolved.input,
+                &a,
+                ImpactSource::Entered,
+                args.note.clone(),
+            );
             let (rec, changes) = log_cmd::record_impact(&l, &args.log, book, event)?;
             (Some(rec.seq), changes)
         }

@@ -4,11 +4,10 @@
 
 use super::{Loaded, ProfileArg, bad_input};
 use crate::health::{self, HealthReport, StatusChange};
-use crate::impact::{ImpactAnalysis, ImpactInput};
 use crate::logbook::export::{self, ReportHeader};
 use crate::logbook::{
-    Access, Event, FindingEvent, FindingKind, ImpactEvent, ImpactInputRecord, ImpactSource,
-    Logbook, MemberLoadRecord, NoteEvent, Record, ReplacementEvent, StoreError, StrikeRef,
+    Access, Event, FindingEvent, FindingKind, ImpactEvent, Logbook, NoteEvent, Record,
+    ReplacementEvent, StoreError,
 };
 use anyhow::Context;
 use serde::Serialize;
@@ -231,65 +230,6 @@ fn record(
         .context("nothing was recorded")?;
     let after = assess(l, book.records());
     Ok((rec, health::changes(&before, &after)))
-}
-
-/// The stored form of an impact analysis.
-pub fn impact_event(
-    l: &Loaded,
-    strike: StrikeRef,
-    input: &ImpactInput,
-    a: &ImpactAnalysis,
-    note: Option<String>,
-) -> ImpactEvent {
-    let cage = &l.cage;
-    let input = match input {
-        ImpactInput::Speed {
-            speed_m_per_s,
-            surface,
-        } => ImpactInputRecord::Speed {
-            speed_m_per_s: *speed_m_per_s,
-            surface: surface.clone(),
-        },
-        ImpactInput::PeakAccel { g } => ImpactInputRecord::PeakAccel { g: *g },
-        ImpactInput::SpeedAndDuration {
-            speed_m_per_s,
-            duration_s,
-        } => ImpactInputRecord::SpeedAndDuration {
-            speed_m_per_s: *speed_m_per_s,
-            duration_s: *duration_s,
-        },
-    };
-    let method = serde_json::to_value(a.method)
-        .ok()
-        .and_then(|v| v.as_str().map(str::to_string))
-        .unwrap_or_else(|| format!("{:?}", a.method));
-    let id = |j: usize| {
-        cage.members
-            .get(j)
-            .map(|m| m.id.clone())
-            .unwrap_or_else(|| format!("#{j}"))
-    };
-    ImpactEvent {
-        strike,
-        input,
-        source: ImpactSource::Entered,
-        method,
-        force_n: a.force_n,
-        residual_n: a.residual_n,
-        face_displacement_m: a.face_displacement_m,
-        slack_strings: a.slack_strings.iter().map(|&j| id(j)).collect(),
-        members: a
-            .members
-            .iter()
-            .map(|m| MemberLoadRecord {
-                member: id(m.member),
-                force_n: m.force_n,
-                capacity_n: m.capacity_n,
-                utilisation: m.utilisation,
-            })
-            .collect(),
-        note: note.filter(|n| !n.trim().is_empty()),
-    }
 }
 
 /// Record an analysed impact in the log: the record and the status changes.

@@ -407,6 +407,38 @@ mod tests {
         }
 
         #[test]
+        fn one_damaged_byte_costs_at_most_its_own_record(pos in 0usize..10_000, byte in any::<u8>()) {
+            let recs: Vec<Record> = (1..=5).map(|i| note(i, &format!("note number {i}"))).collect();
+            let good = file(&recs);
+            let pos = pos % good.len();
+            let mut bad = good.clone();
+            prop_assume!(bad[pos] != byte);
+            bad[pos] = byte;
+            let header_len = encode_header("kestrel-demo").len();
+            match parse(&bad) {
+                Err(_) => prop_assert!(pos < header_len),
+                Ok(p) => {
+                    // Which record's line held the damaged byte.
+                    let mut start = header_len;
+                    let mut hit = None;
+                    for (i, r) in recs.iter().enumerate() {
+                        let len = encode_record(r).unwrap().len();
+                        if (start..start + len).contains(&pos) {
+                            hit = Some(i);
+                        }
+                        start += len;
+                    }
+                    let got: Vec<&Record> = p.records.iter().map(|(_, r)| r).collect();
+                    for (i, r) in recs.iter().enumerate() {
+                        if Some(i) != hit {
+                            prop_assert!(got.contains(&r), "record {} lost", i + 1);
+                        }
+                    }
+                }
+            }
+        }
+
+        #[test]
         fn any_note_text_round_trips(text in ".{0,80}", op in "[a-z ]{1,12}") {
             let mut r = note(1, &text);
             r.operator = op.clone();

@@ -11,7 +11,9 @@
 //!   J. Appl. Mech. 12, 1945): D = sum n_i / N_i, one impact being one load
 //!   cycle, with a Basquin-type curve N(u) = u^-k (k = `sn_exponent_rod` or
 //!   `sn_exponent_string`), so one impact at utilisation u adds u^k. An
-//!   impact below `endurance_utilisation` adds nothing. D at or above
+//!   impact below `endurance_utilisation` adds nothing; one at or above
+//!   capacity (u >= 1) adds 1, a whole life (N is at least one cycle), so D
+//!   stays readable where the overload rule has already spoken. D at or above
 //!   `inspect_damage` is INSPECT, at or above `due_damage` is DUE.
 //! - **Count rule** (strings): `string_count_limit` impacts at or above
 //!   `string_count_utilisation` make it DUE.
@@ -207,8 +209,9 @@ pub fn assess(records: &[Record], cage: &Cage, rules: &Inspection) -> HealthRepo
                             MemberKind::Rod => rules.sn_exponent_rod,
                             MemberKind::String => rules.sn_exponent_string,
                         };
-                        // One cycle at u: n/N = 1 / u^-k = u^k.
-                        a.damage += u.powf(k);
+                        // One cycle at u: n/N = 1 / u^-k = u^k, with N at
+                        // least one cycle (u >= 1 uses up a whole life).
+                        a.damage += u.powf(k).min(1.0);
                         a.damaging += 1;
                     }
                     if cage.members[i].kind == MemberKind::String
@@ -487,6 +490,8 @@ mod tests {
         );
         let r2 = get(&h, "R2");
         assert_eq!(r2.status, Status::ReplaceNow);
+        // u = 1 is N = 1^-12 = 1 cycle: a whole life.
+        assert_eq!(r2.damage, 1.0);
         assert!(r2.reasons[0].contains("overload level 1.00"));
         // 0.99 is not an overload, but 0.99^6 = 0.941480 is past due (by hand).
         assert_eq!(get(&h, "S4").status, Status::Due);
@@ -546,16 +551,20 @@ mod tests {
     #[test]
     fn replacement_resets_the_member_only() {
         let (cage, _) = demo();
-        let h = assess(
-            &log(vec![
+        let records_upto = |n: usize| {
+            log(vec![
                 impact(&[("R1", -1.2), ("S1", 0.9)]),
                 finding("R1", FindingKind::Crack),
                 replace("R1"),
                 impact(&[("R1", -0.3), ("S1", 0.3)]),
-            ]),
-            &cage,
-            &rules(),
-        );
+            ])[..n]
+                .to_vec()
+        };
+        let h = assess(&records_upto(4), &cage, &rules());
+        let before = assess(&records_upto(2), &cage, &rules());
+        // 1.2^12 = 8.9 would be more than a life: capped at 1 (N >= 1 cycle).
+        assert_eq!(get(&before, "R1").damage, 1.0);
+        assert_eq!(get(&before, "R1").status, Status::ReplaceNow);
         let r1 = get(&h, "R1");
         assert_eq!(r1.status, Status::Ok);
         assert_eq!(r1.impacts, 1);

@@ -507,12 +507,12 @@ mod tests {
 
     #[test]
     fn every_byte_position_damaged_costs_at_most_its_own_record() {
-        let recs: Vec<Record> = (1..=5)
-            .map(|i| note(i, &format!("note number {i}")))
-            .collect();
+        // Three records and the bytes that matter to the framing (a
+        // newline, an opening brace) or not at all (a zero), at every place.
+        let recs: Vec<Record> = (1..=3).map(|i| note(i, &format!("n{i}"))).collect();
         let len = file(&recs).len();
         for pos in 0..len {
-            for byte in [0u8, b'\n', b'{', b' ', b'x'] {
+            for byte in [0u8, b'\n', b'{'] {
                 one_damaged_byte(&recs, pos, byte).unwrap();
             }
         }

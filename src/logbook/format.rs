@@ -7,6 +7,9 @@ use sha2::{Digest, Sha256};
 /// The first word of the header line.
 pub const MAGIC: &str = "cagehand-logbook";
 
+/// Most decode attempts spent recovering records from one damaged line.
+const MAX_RECOVERY_ATTEMPTS: u32 = 2000;
+
 /// What separates a record's JSON from its checksum.
 const SUM_TAG: &str = " sha256=";
 
@@ -152,11 +155,18 @@ fn recover(line: &[u8]) -> Vec<Record> {
         .collect();
     let mut found = Vec::new();
     let mut from = 0;
+    // Bound the work on a line of garbage built to look like many records.
+    let mut attempts = 0u32;
     for &end in &ends {
         for start in from..end {
-            if line[start] == b'{'
-                && let Ok(r) = decode_record(&line[start..end])
-            {
+            if line[start] != b'{' {
+                continue;
+            }
+            attempts += 1;
+            if attempts > MAX_RECOVERY_ATTEMPTS {
+                return found;
+            }
+            if let Ok(r) = decode_record(&line[start..end]) {
                 found.push(r);
                 from = end;
                 break;

@@ -33,7 +33,9 @@
 //! An advisory lock on the file keeps two writers apart. A torn or corrupt
 //! *last* line (a crash mid-write) is moved to a side file
 //! `<vehicle>.cagelog.set-aside` and reported; a corrupt line in the middle
-//! is reported with its line number and skipped, and the rest loads.
+//! is reported with its line number and skipped, and the rest loads (whole
+//! records inside a damaged line, e.g. two lines run together by a damaged
+//! newline, are recovered by their checksums).
 //!
 //! The parsing and encoding are pure ([`format`]); the file handling is in
 //! [`store`].

@@ -37,8 +37,8 @@
 //! records inside a damaged line, e.g. two lines run together by a damaged
 //! newline, are recovered by their checksums).
 //!
-//! The parsing and encoding are pure ([`format`]); the file handling is in
-//! [`store`].
+//! The parsing and encoding are pure ([`format`](mod@format)); the file handling is in
+//! [`store`](mod@store).
 
 use serde::{Deserialize, Serialize};
 

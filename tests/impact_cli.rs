@@ -1,7 +1,13 @@
 //! The `impact` and `cage` commands run as the real binary: the JSON
 //! contract, the estimate methods, and the exit codes for bad input.
 
+use cagehand::profile::Profile;
 use std::process::{Command, Output};
+
+/// The built-in demo profile the commands use when none is given.
+fn demo() -> Profile {
+    Profile::demo().expect("demo profile")
+}
 
 fn cagehand(args: &[&str]) -> Output {
     Command::new(env!("CARGO_BIN_EXE_cagehand"))
@@ -34,9 +40,9 @@ fn peak_acceleration_gives_f_equals_m_a() {
         "--dry-run",
         "--json",
     ]));
-    // F = m a with the demo's 0.78 kg and standard gravity 9.80665 m/s^2.
+    // F = m a with the demo's mass and standard gravity 9.80665 m/s^2.
     let f = v["force_n"].as_f64().unwrap();
-    assert!((f - 0.78 * 10.0 * 9.80665).abs() < 1e-9);
+    assert!((f - demo().vehicle.mass_kg * 10.0 * 9.80665).abs() < 1e-9);
     assert_eq!(v["method"], "measured_acceleration");
     assert!(v["residual_n"].as_f64().unwrap() < 1e-6 * f);
     assert!(v["face_displacement_m"].as_f64().unwrap() > 0.0);
@@ -65,7 +71,14 @@ fn speed_uses_the_energy_balance_and_a_duration_the_half_sine() {
     assert_eq!(v["method"], "energy_balance");
     let f = v["force_n"].as_f64().unwrap();
     // Below the surface-only bound v sqrt(m k) (Goldsmith 1960).
-    assert!(f > 0.0 && f < 3.0 * (0.78f64 * 4.0e4).sqrt());
+    let p = demo();
+    let grass = p
+        .impact
+        .surfaces
+        .iter()
+        .find(|s| s.name == "grass")
+        .unwrap();
+    assert!(f > 0.0 && f < 3.0 * (p.vehicle.mass_kg * grass.stiffness_n_per_m).sqrt());
 
     let v = json(&cagehand(&[
         "impact",
@@ -79,8 +92,9 @@ fn speed_uses_the_energy_balance_and_a_duration_the_half_sine() {
         "--json",
     ]));
     assert_eq!(v["method"], "half_sine_pulse");
-    // Goldsmith 1960; Stronge 2000: pi/2 m (1 + e) v / dt, demo e = 0.3.
-    let expect = std::f64::consts::FRAC_PI_2 * 0.78 * 1.3 * 3.0 / 0.01;
+    // Goldsmith 1960; Stronge 2000: pi/2 m (1 + e) v / dt.
+    let expect =
+        std::f64::consts::FRAC_PI_2 * p.vehicle.mass_kg * (1.0 + p.impact.restitution) * 3.0 / 0.01;
     assert!((v["force_n"].as_f64().unwrap() - expect).abs() < 1e-9);
 }
 
@@ -140,7 +154,7 @@ fn without_dry_run_the_impact_is_recorded_in_the_cage_log() {
 fn bad_ids_and_surfaces_list_the_valid_values() {
     let out = cagehand(&["impact", "--face", "F21", "--speed", "3", "--dry-run"]);
     assert_eq!(out.status.code(), Some(2));
-    assert!(stderr(&out).contains("F1..F20"), "{}", stderr(&out));
+    assert!(stderr(&out).contains("F1..F20"), "{}", stderr(&out)); // six-strut cage: 20 faces
 
     let out = cagehand(&["impact", "--node", "N99", "--speed", "3", "--dry-run"]);
     assert_eq!(out.status.code(), Some(2));
@@ -175,13 +189,14 @@ fn cage_json_reports_self_stress_and_prestress() {
     assert_eq!(ss["states"], 1);
     assert_eq!(ss["mechanisms"], 1);
     assert_eq!(ss["prestress_ok"], true);
+    let pre = demo().string.pretension_n;
     for m in v["members"].as_array().unwrap() {
         let t = m["prestress_n"].as_f64().unwrap();
         match m["kind"].as_str().unwrap() {
-            // Demo pretension 20 N; rods -sqrt(6) times it (Tibert &
+            // Strings at the pretension; rods -sqrt(6) times it (Tibert &
             // Pellegrino 2003).
-            "string" => assert!((t - 20.0).abs() < 1e-9),
-            _ => assert!((t + 20.0 * 6f64.sqrt()).abs() < 1e-9),
+            "string" => assert!((t - pre).abs() < 1e-9),
+            _ => assert!((t + pre * 6f64.sqrt()).abs() < 1e-9),
         }
     }
 }
@@ -191,7 +206,7 @@ fn a_cage_with_no_self_stress_is_reported_plainly() {
     let v = json(&cagehand(&[
         "cage",
         "--profile",
-        "tests/fixtures/no_self_stress.toml",
+        "tests/fixtures/profiles/no-self-stress.toml",
         "--json",
     ]));
     assert_eq!(v["self_stress"]["states"], 0);
@@ -205,7 +220,7 @@ fn a_cage_with_no_self_stress_is_reported_plainly() {
     let out = cagehand(&[
         "impact",
         "--profile",
-        "tests/fixtures/no_self_stress.toml",
+        "tests/fixtures/profiles/no-self-stress.toml",
         "--face",
         "F1",
         "--peak-accel-g",

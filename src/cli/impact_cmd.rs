@@ -39,7 +39,8 @@ pub struct Args {
     /// Ground surface preset (the profile's impact.surface names).
     #[arg(long, value_name = "NAME", conflicts_with = "peak_accel_g")]
     pub surface: Option<String>,
-    /// Contact duration for the half-sine estimate (with --speed).
+    /// Contact duration for the half-sine estimate (with --speed; takes
+    /// precedence over --surface).
     #[arg(
         long,
         value_name = "S",

@@ -228,6 +228,36 @@ mod tests {
     }
 
     #[test]
+    fn several_states_pull_the_strings_equally() {
+        // A rod and two strings between the same two nodes: rank 1, two
+        // self-stress states; strings equally tensioned means the rod
+        // carries twice their force in compression (hand check, common
+        // practice, no published source).
+        let pos = vec![Vector3::new(0.3, 0.0, 0.0), Vector3::zeros()];
+        let bar = |kind| Bar {
+            nodes: [0, 1],
+            kind,
+            ea_n: 1e5,
+            length_m: 0.3,
+            capacity_n: 1e3,
+        };
+        let s = Structure {
+            pos_m: pos,
+            bars: vec![
+                bar(MemberKind::Rod),
+                bar(MemberKind::String),
+                bar(MemberKind::String),
+            ],
+        };
+        let ss = self_stress(&s, 20.0).unwrap();
+        assert_eq!((ss.rank, ss.states), (1, 2));
+        assert!(ss.prestress_ok);
+        assert_relative_eq!(ss.prestress_n[0], -40.0, epsilon = 1e-9);
+        assert_relative_eq!(ss.prestress_n[1], 20.0, epsilon = 1e-9);
+        assert_relative_eq!(ss.prestress_n[2], 20.0, epsilon = 1e-9);
+    }
+
+    #[test]
     fn six_strut_force_ratios() {
         let s = demo();
         let ss = self_stress(&s, 20.0).unwrap();

@@ -212,7 +212,7 @@ impl<'a> NonlinearModel<'a> {
         let mut pos = start.pos_m.clone();
         let mut iterations = start.iterations;
         let mut done = 0.0_f64;
-        let mut step = 0.25_f64;
+        let mut step = 1.0_f64;
         let mut last_residual;
         loop {
             let s = (done + step).min(1.0);

@@ -13,6 +13,7 @@ use std::process::ExitCode;
 mod cage_cmd;
 pub mod impact_cmd;
 pub mod link_args;
+pub mod log_cmd;
 mod plan_cmd;
 mod profile_cmd;
 mod record_cmd;
@@ -54,6 +55,8 @@ enum Command {
     Sim(sim_cmd::Args),
     /// Record a link's raw bytes with arrival times.
     Record(record_cmd::Args),
+    /// The cage log: records, member health, findings, replacements, reports.
+    Log(log_cmd::Args),
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -141,6 +144,7 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         None => tui_cmd::run(load_profile(None)?, "sim"),
         Some(Command::Cage(a)) => cage_cmd::run(&a),
         Some(Command::Profile(a)) => profile_cmd::run(&a),
+        Some(Command::Log(a)) => log_cmd::run(&a),
         Some(Command::Impact(a)) => impact_cmd::run(&a),
         Some(Command::Plan(a)) => plan_cmd::run(&a),
         Some(Command::Watch(a)) => watch_cmd::run(&a),

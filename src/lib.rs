@@ -8,9 +8,12 @@
 pub mod attitude;
 pub mod cage;
 pub mod cli;
+pub mod health;
 pub mod hull;
 pub mod impact;
+pub mod impact_detect;
 pub mod link;
+pub mod logbook;
 pub mod net;
 pub mod profile;
 pub mod rest;

@@ -130,10 +130,24 @@ fn readable_report_lists_worst_members_and_a_caution() {
 }
 
 #[test]
-fn recording_without_the_cage_log_is_refused() {
-    let out = cagehand(&["impact", "--face", "F1", "--speed", "3"]);
-    assert_eq!(out.status.code(), Some(2));
-    assert!(stderr(&out).contains("cage log"), "{}", stderr(&out));
+fn without_dry_run_the_impact_is_recorded_in_the_cage_log() {
+    // (The cage log arrived: recording is no longer refused.)
+    let dir = tempfile::tempdir().unwrap();
+    let data = dir.path().to_str().unwrap();
+    let out = cagehand(&[
+        "impact",
+        "--face",
+        "F1",
+        "--speed",
+        "3",
+        "--data",
+        data,
+        "--operator",
+        "t",
+    ]);
+    assert!(out.status.success(), "{}", stderr(&out));
+    assert!(String::from_utf8_lossy(&out.stdout).contains("recorded as #1"));
+    assert!(dir.path().join("kestrel-demo.cagelog").exists());
 }
 
 #[test]

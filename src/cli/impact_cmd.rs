@@ -1,10 +1,13 @@
 //! `cagehand impact`: analyse an impact on the cage (the peak force, the
-//! force and utilisation of every member) and, once the cage log exists,
-//! record it. For now only `--dry-run` analyses are possible.
+//! force and utilisation of every member) and record it in the cage log
+//! (unless `--dry-run`), with the member status changes it causes.
 
+use super::log_cmd::{self, LogOpts};
 use super::{Loaded, ProfileArg, bad_input};
 use crate::cage::MemberKind;
+use crate::health::StatusChange;
 use crate::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
+use crate::logbook::{Access, ImpactEvent, ImpactSource, StrikeRef};
 use crate::statics::{StaticsError, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
@@ -48,6 +51,12 @@ pub struct Args {
     /// Analyse only; do not record the impact in the cage log.
     #[arg(long)]
     pub dry_run: bool,
+    /// Free text stored with the impact.
+    #[arg(long, value_name = "TEXT")]
+    pub note: Option<String>,
+    /// Where the log is and who records.
+    #[command(flatten)]
+    pub log: LogOpts,
     /// Print JSON instead of the readable report.
     #[arg(long)]
     pub json: bool,
@@ -178,6 +187,10 @@ struct Report<'a> {
     prestress_ok: bool,
     members: Vec<MemberJson<'a>>,
     recorded: bool,
+    /// Sequence number of the log record, when recorded.
+    record_seq: Option<u64>,
+    /// Members whose status the impact changed, when recorded.
+    status_changes: Vec<StatusChange>,
 }
 
 fn method_text(m: ImpactMethod) -> &'static str {
@@ -194,18 +207,39 @@ fn method_text(m: ImpactMethod) -> &'static str {
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
     let resolved = resolve(args, &l)?;
-    if !args.dry_run {
-        return Err(bad_input(
-            "recording an impact needs the cage log, which this build does not have yet; \
-             add --dry-run to analyse the impact without recording it",
-        ));
-    }
+    // Open (and lock) the log before the analysis, so a log that cannot be
+    // written is reported before any work, and no other writer slips in.
+    let mut book = if args.dry_run {
+        None
+    } else {
+        Some(args.log.open(&l, Access::Write)?)
+    };
     let a = analyse(&l, &resolved)?;
-    let cage = &l.cage;
     let ss = self_stress(
-        &Structure::from_cage(cage, &l.profile),
+        &Structure::from_cage(&l.cage, &l.profile),
         l.profile.string.pretension_n,
     )?;
+    // Record last, once everything the report needs has been computed.
+    let (record_seq, status_changes) = match book.as_mut() {
+        Some(book) => {
+            let strike = match resolved.strike {
+                Strike::Face(_) => StrikeRef::Face(resolved.strike_id.clone()),
+                Strike::Node(_) => StrikeRef::Node(resolved.strike_id.clone()),
+            };
+            let event = ImpactEvent::from_analysis(
+                &l.cage,
+                strike,
+                &resolved.input,
+                &a,
+                ImpactSource::Entered,
+                args.note.clone(),
+            );
+            let (rec, changes) = log_cmd::record_impact(&l, &args.log, book, event)?;
+            (Some(rec.seq), changes)
+        }
+        None => (None, Vec::new()),
+    };
+    let cage = &l.cage;
     let report = Report {
         vehicle: &l.profile.vehicle.id,
         strike: &resolved.strike_id,
@@ -232,18 +266,29 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 utilisation: m.utilisation,
             })
             .collect(),
-        recorded: false,
+        recorded: record_seq.is_some(),
+        record_seq,
+        status_changes,
     };
     let mut out = std::io::stdout().lock();
     if args.json {
         writeln!(out, "{}", serde_json::to_string_pretty(&report)?)?;
         return Ok(ExitCode::SUCCESS);
     }
-    writeln!(
-        out,
-        "impact on {} of {} (dry run, not recorded)",
-        report.strike, report.vehicle
-    )?;
+    match (report.record_seq, &book) {
+        (Some(seq), Some(book)) => writeln!(
+            out,
+            "impact on {} of {} recorded as #{seq} in {}",
+            report.strike,
+            report.vehicle,
+            book.path().display()
+        )?,
+        _ => writeln!(
+            out,
+            "impact on {} of {} (dry run, not recorded)",
+            report.strike, report.vehicle
+        )?,
+    }
     writeln!(
         out,
         "peak force {:.1} N ({})",
@@ -301,6 +346,11 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             "... {} more members (all in --json)",
             order.len() - TABLE_ROWS
         )?;
+    }
+    if report.recorded {
+        writeln!(out)?;
+        writeln!(out, "status changes:")?;
+        log_cmd::write_changes(&mut out, &report.status_changes)?;
     }
     writeln!(out)?;
     writeln!(

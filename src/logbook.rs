@@ -1,0 +1,523 @@
+//! The cage log: one append-only, human-readable file per vehicle, holding
+//! impacts, inspection findings, replacements, pre-flight sign-offs and
+//! notes. Member health ([`crate::health`]) is computed from it, so the log
+//! is the single source of truth about the cage's history.
+//!
+//! # File format, version 1 (a contract: stable, documented in the README)
+//!
+//! The file is UTF-8 text, one line per item, each line ended by `\n`:
+//!
+//! ```text
+//! cagehand-logbook format=1 vehicle=kestrel-demo
+//! {"seq":1,"time":"2026-12-01T22:40:00Z","operator":"ana","event":"note","text":"new cage"} sha256=<64 hex>
+//! {"seq":2,...,"event":"impact",...} sha256=<64 hex>
+//! ```
+//!
+//! - Line 1, the header: the word `cagehand-logbook`, then `format=N` (this
+//!   program writes and reads 1, and refuses a larger N rather than
+//!   misreading it), then `vehicle=ID` (the profile's `vehicle.id`).
+//! - Every further line is one record: a JSON object, one space, `sha256=`
+//!   and the lower-case hex SHA-256 of exactly the JSON bytes before the
+//!   space. A line whose checksum, JSON or fields do not check is corrupt.
+//! - Every record has `seq` (1, 2, .. in file order), `time` (UTC, RFC 3339,
+//!   e.g. `2026-12-01T22:40:00.123Z`), `operator` and `event`, one of
+//!   `impact`, `finding`, `replacement`, `preflight`, `note`, with the
+//!   fields of [`ImpactEvent`], [`FindingEvent`], [`ReplacementEvent`],
+//!   [`PreflightEvent`] and [`NoteEvent`]. Readers ignore fields they do not
+//!   know, so later versions may add fields without a new format number.
+//! - Empty lines are ignored.
+//!
+//! Durability: a record is written with one `write` of the whole line (the
+//! header too, for a new file), then `fsync` (`sync_data`), before the
+//! command reports success; a failed write is cut back to the old length.
+//! An advisory lock on the file keeps two writers apart. A torn or corrupt
+//! *last* line (a crash mid-write) is moved to a side file
+//! `<vehicle>.cagelog.set-aside` and reported; a corrupt line in the middle
+//! is reported with its line number and skipped, and the rest loads (whole
+//! records inside a damaged line, e.g. two lines run together by a damaged
+//! newline, are recovered by their checksums).
+//!
+//! The parsing and encoding are pure ([`format`](mod@format)); the file handling is in
+//! [`store`](mod@store).
+
+use serde::{Deserialize, Serialize};
+
+pub mod export;
+pub mod format;
+pub mod store;
+
+pub use format::{FormatError, Parsed, Problem, TornTail, encode_header, encode_record, parse};
+pub use store::{Access, Logbook, OpenReport, SetAside, StoreError, log_file_name};
+
+/// The format version this program writes, and the highest it reads.
+pub const FORMAT_VERSION: u32 = 1;
+
+/// One record of the log: when, who, what.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct Record {
+    /// Sequence number: 1 for the first record, one more for each after.
+    pub seq: u64,
+    /// UTC time, RFC 3339.
+    pub time: String,
+    /// Who recorded it.
+    pub operator: String,
+    /// What happened.
+    #[serde(flatten)]
+    pub event: Event,
+}
+
+/// The things the log records.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(tag = "event", rename_all = "snake_case")]
+pub enum Event {
+    /// A collision, with the statics analysis of it.
+    Impact(ImpactEvent),
+    /// What an inspection found on one member.
+    Finding(FindingEvent),
+    /// A member was replaced.
+    Replacement(ReplacementEvent),
+    /// A pre-flight checklist was run and signed.
+    Preflight(PreflightEvent),
+    /// Free text.
+    Note(NoteEvent),
+}
+
+impl Event {
+    /// The event's name as written in the file.
+    pub fn name(&self) -> &'static str {
+        match self {
+            Event::Impact(_) => "impact",
+            Event::Finding(_) => "finding",
+            Event::Replacement(_) => "replacement",
+            Event::Preflight(_) => "preflight",
+            Event::Note(_) => "note",
+        }
+    }
+
+    /// A one-line summary for listings and reports.
+    pub fn summary(&self) -> String {
+        let with_note = |s: String, note: &Option<String>| match note {
+            Some(n) if !n.is_empty() => format!("{s}: {n}"),
+            _ => s,
+        };
+        match self {
+            Event::Impact(i) => {
+                let worst = i
+                    .members
+                    .iter()
+                    .filter(|m| m.utilisation.is_finite())
+                    .max_by(|a, b| a.utilisation.abs().total_cmp(&b.utilisation.abs()));
+                let worst = match worst {
+                    Some(m) => format!(", worst {} at {:.2}", m.member, m.utilisation.abs()),
+                    None => String::new(),
+                };
+                with_note(
+                    format!(
+                        "impact on {} ({}), {:.0} N by {}{}",
+                        i.strike, i.input, i.force_n, i.method, worst
+                    ),
+                    &i.note,
+                )
+            }
+            Event::Finding(f) => with_note(format!("{} {}", f.member, f.kind.name()), &f.note),
+            Event::Replacement(r) => {
+                let part = match &r.part {
+                    Some(p) => format!(" with {p}"),
+                    None => String::new(),
+                };
+                with_note(format!("{} replaced{part}", r.member), &r.note)
+            }
+            Event::Preflight(p) => {
+                let failed = p
+                    .items
+                    .iter()
+                    .filter(|i| i.result == ItemResult::Fail)
+                    .count();
+                with_note(
+                    format!(
+                        "pre-flight {} ({} items, {failed} failed)",
+                        if p.signed_off {
+                            "signed off"
+                        } else {
+                            "not signed off"
+                        },
+                        p.items.len()
+                    ),
+                    &p.note,
+                )
+            }
+            Event::Note(n) => n.text.clone(),
+        }
+    }
+}
+
+/// Where the cage was struck.
+#[derive(Debug, Clone, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum StrikeRef {
+    /// A face, by id (`F1..`).
+    Face(String),
+    /// A node, by id (`N1..`).
+    Node(String),
+}
+
+impl std::fmt::Display for StrikeRef {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            StrikeRef::Face(id) => write!(f, "face {id}"),
+            StrikeRef::Node(id) => write!(f, "node {id}"),
+        }
+    }
+}
+
+/// What the impact analysis was given. Stored in the log's own terms so the
+/// format does not change when the solver's types do.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ImpactInputRecord {
+    /// Speed just before contact, and the ground surface preset.
+    Speed {
+        /// Approach speed.
+        speed_m_per_s: f64,
+        /// Surface preset name (the profile's default when none).
+        surface: Option<String>,
+    },
+    /// Peak acceleration measured by the IMU.
+    PeakAccel {
+        /// Peak, in standard gravities.
+        g: f64,
+    },
+    /// Speed and contact duration (half-sine pulse).
+    SpeedAndDuration {
+        /// Approach speed.
+        speed_m_per_s: f64,
+        /// Contact duration.
+        duration_s: f64,
+    },
+}
+
+impl std::fmt::Display for ImpactInputRecord {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            ImpactInputRecord::Speed {
+                speed_m_per_s,
+                surface,
+            } => match surface {
+                Some(s) => write!(f, "{speed_m_per_s} m/s on {s}"),
+                None => write!(f, "{speed_m_per_s} m/s"),
+            },
+            ImpactInputRecord::PeakAccel { g } => write!(f, "peak {g} g"),
+            ImpactInputRecord::SpeedAndDuration {
+                speed_m_per_s,
+                duration_s,
+            } => write!(f, "{speed_m_per_s} m/s over {duration_s} s"),
+        }
+    }
+}
+
+/// Whether an impact was typed in or proposed from live acceleration.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
+#[serde(rename_all = "snake_case")]
+pub enum ImpactSource {
+    /// Entered by the operator.
+    #[default]
+    Entered,
+    /// Detected from telemetry, confirmed (perhaps edited) by the operator.
+    Detected,
+}
+
+/// The load one member carried in an impact.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct MemberLoadRecord {
+    /// Member id (`R1..`, `S1..`).
+    pub member: String,
+    /// Axial force, tension positive.
+    pub force_n: f64,
+    /// The member's capacity (buckling/crushing for rods, breaking for strings).
+    pub capacity_n: f64,
+    /// Force over capacity (the magnitude is what health uses).
+    pub utilisation: f64,
+}
+
+/// A collision and its analysis.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ImpactEvent {
+    /// Face or node struck.
+    pub strike: StrikeRef,
+    /// What the analysis was given.
+    pub input: ImpactInputRecord,
+    /// Entered or detected.
+    #[serde(default)]
+    pub source: ImpactSource,
+    /// How the peak force was estimated (the solver's method name).
+    pub method: String,
+    /// Peak contact force.
+    pub force_n: f64,
+    /// Equilibrium residual of the solution.
+    pub residual_n: f64,
+    /// How far the struck face moved in.
+    pub face_displacement_m: f64,
+    /// Strings that went slack, by id.
+    #[serde(default)]
+    pub slack_strings: Vec<String>,
+    /// Every member's load.
+    pub members: Vec<MemberLoadRecord>,
+    /// Free text.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+impl ImpactEvent {
+    /// The stored form of an impact analysis: member indices become ids,
+    /// the solver's input and method become the log's own terms.
+    pub fn from_analysis(
+        cage: &crate::cage::Cage,
+        strike: StrikeRef,
+        input: &crate::impact::ImpactInput,
+        a: &crate::impact::ImpactAnalysis,
+        source: ImpactSource,
+        note: Option<String>,
+    ) -> ImpactEvent {
+        use crate::impact::ImpactInput;
+        let input = match input {
+            ImpactInput::Speed {
+                speed_m_per_s,
+                surface,
+            } => ImpactInputRecord::Speed {
+                speed_m_per_s: *speed_m_per_s,
+                surface: surface.clone(),
+            },
+            ImpactInput::PeakAccel { g } => ImpactInputRecord::PeakAccel { g: *g },
+            ImpactInput::SpeedAndDuration {
+                speed_m_per_s,
+                duration_s,
+            } => ImpactInputRecord::SpeedAndDuration {
+                speed_m_per_s: *speed_m_per_s,
+                duration_s: *duration_s,
+            },
+        };
+        let method = serde_json::to_value(a.method)
+            .ok()
+            .and_then(|v| v.as_str().map(str::to_string))
+            .unwrap_or_else(|| format!("{:?}", a.method));
+        let id = |j: usize| {
+            cage.members
+                .get(j)
+                .map(|m| m.id.clone())
+                .unwrap_or_else(|| format!("#{j}"))
+        };
+        ImpactEvent {
+            strike,
+            input,
+            source,
+            method,
+            force_n: a.force_n,
+            residual_n: a.residual_n,
+            face_displacement_m: a.face_displacement_m,
+            slack_strings: a.slack_strings.iter().map(|&j| id(j)).collect(),
+            members: a
+                .members
+                .iter()
+                .map(|m| MemberLoadRecord {
+                    member: id(m.member),
+                    force_n: m.force_n,
+                    capacity_n: m.capacity_n,
+                    utilisation: m.utilisation,
+                })
+                .collect(),
+            note: note.filter(|n| !n.trim().is_empty()),
+        }
+    }
+}
+
+/// What an inspection found on a member.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, PartialOrd, Ord)]
+#[serde(rename_all = "snake_case")]
+pub enum FindingKind {
+    /// Inspected, nothing wrong.
+    Ok,
+    /// Frayed fibres.
+    Fray,
+    /// A cut.
+    Cut,
+    /// A crack (rods).
+    Crack,
+    /// A string gone slack.
+    Slack,
+    /// A termination coming undone.
+    LooseEnd,
+}
+
+impl FindingKind {
+    /// Every kind, in the order help texts list them.
+    pub const ALL: [FindingKind; 6] = [
+        FindingKind::Ok,
+        FindingKind::Fray,
+        FindingKind::Cut,
+        FindingKind::Crack,
+        FindingKind::Slack,
+        FindingKind::LooseEnd,
+    ];
+
+    /// The name used in the file and on the command line.
+    pub fn name(self) -> &'static str {
+        match self {
+            FindingKind::Ok => "ok",
+            FindingKind::Fray => "fray",
+            FindingKind::Cut => "cut",
+            FindingKind::Crack => "crack",
+            FindingKind::Slack => "slack",
+            FindingKind::LooseEnd => "loose_end",
+        }
+    }
+
+    /// Parse a name (`loose-end` is accepted for `loose_end`).
+    pub fn parse(s: &str) -> Option<FindingKind> {
+        let s = s.trim().to_ascii_lowercase().replace('-', "_");
+        FindingKind::ALL.into_iter().find(|k| k.name() == s)
+    }
+}
+
+/// An inspection finding on one member.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct FindingEvent {
+    /// Member id.
+    pub member: String,
+    /// What was found.
+    pub kind: FindingKind,
+    /// Free text.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// A member replacement.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct ReplacementEvent {
+    /// Member id.
+    pub member: String,
+    /// Part number or lot of the new member.
+    #[serde(default)]
+    pub part: Option<String>,
+    /// Free text.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// The result of one pre-flight item.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[serde(rename_all = "snake_case")]
+pub enum ItemResult {
+    /// Checked and fine.
+    Pass,
+    /// Checked and not fine.
+    Fail,
+    /// Not checked (with the operator's reason in the detail).
+    Skipped,
+}
+
+/// One checklist item as it was signed.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PreflightItemResult {
+    /// The item's text, as the profile gave it at the time.
+    pub text: String,
+    /// The result.
+    pub result: ItemResult,
+    /// Measured value or reason, if any.
+    #[serde(default)]
+    pub detail: Option<String>,
+}
+
+/// A pre-flight checklist run.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct PreflightEvent {
+    /// Items in checklist order.
+    pub items: Vec<PreflightItemResult>,
+    /// Whether the operator signed the vehicle fit to fly.
+    pub signed_off: bool,
+    /// Free text.
+    #[serde(default)]
+    pub note: Option<String>,
+}
+
+/// Free text.
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+pub struct NoteEvent {
+    /// The note.
+    pub text: String,
+}
+
+impl Record {
+    /// The record's time, parsed.
+    pub fn timestamp(&self) -> Option<jiff::Timestamp> {
+        self.time.parse().ok()
+    }
+
+    /// Why this record cannot be written or trusted: a number that is not
+    /// finite (JSON cannot carry it) or a time that is not RFC 3339.
+    pub fn check(&self) -> Result<(), String> {
+        if self.time.parse::<jiff::Timestamp>().is_err() {
+            return Err(format!("time {:?} is not an RFC 3339 UTC time", self.time));
+        }
+        if self.operator.trim().is_empty() {
+            return Err("operator is empty".to_string());
+        }
+        if let Event::Impact(i) = &self.event {
+            let mut nums = vec![
+                ("force_n", i.force_n),
+                ("residual_n", i.residual_n),
+                ("face_displacement_m", i.face_displacement_m),
+            ];
+            match &i.input {
+                ImpactInputRecord::Speed { speed_m_per_s, .. } => {
+                    nums.push(("speed_m_per_s", *speed_m_per_s))
+                }
+                ImpactInputRecord::PeakAccel { g } => nums.push(("g", *g)),
+                ImpactInputRecord::SpeedAndDuration {
+                    speed_m_per_s,
+                    duration_s,
+                } => {
+                    nums.push(("speed_m_per_s", *speed_m_per_s));
+                    nums.push(("duration_s", *duration_s));
+                }
+            }
+            for m in &i.members {
+                nums.push(("force_n", m.force_n));
+                nums.push(("capacity_n", m.capacity_n));
+                nums.push(("utilisation", m.utilisation));
+            }
+            if let Some((name, v)) = nums.iter().find(|(_, v)| !v.is_finite()) {
+                return Err(format!("{name} is {v}, not a finite number"));
+            }
+        }
+        Ok(())
+    }
+}
+
+/// A UTC time in the form the log stores: RFC 3339 with milliseconds,
+/// e.g. `2026-12-01T22:40:00.120Z` (fixed width, so columns line up).
+pub fn format_time(t: jiff::Timestamp) -> String {
+    format!("{t:.3}")
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn times_are_rfc3339_utc_with_milliseconds() {
+        let t = jiff::Timestamp::from_millisecond(1_796_164_800_120).unwrap();
+        assert_eq!(format_time(t), "2026-12-01T22:40:00.120Z");
+        let t = jiff::Timestamp::from_second(1_796_164_800).unwrap();
+        assert_eq!(format_time(t), "2026-12-01T22:40:00.000Z");
+        assert_eq!(format_time(t).parse::<jiff::Timestamp>().unwrap(), t);
+    }
+
+    #[test]
+    fn finding_kinds_parse_by_name() {
+        for k in FindingKind::ALL {
+            assert_eq!(FindingKind::parse(k.name()), Some(k));
+        }
+        assert_eq!(FindingKind::parse("Loose-End"), Some(FindingKind::LooseEnd));
+        assert_eq!(FindingKind::parse("bent"), None);
+    }
+}

@@ -1,0 +1,212 @@
+//! Maintenance reports from the log: Markdown a crew can print or attach,
+//! and CSV of the health table for a spreadsheet. Pure: text out.
+
+use super::Record;
+use crate::cage::MemberKind;
+use crate::health::{HealthReport, MemberHealth};
+
+/// What a report is about.
+#[derive(Debug, Clone)]
+pub struct ReportHeader<'a> {
+    /// Vehicle id.
+    pub vehicle_id: &'a str,
+    /// Vehicle name.
+    pub vehicle_name: &'a str,
+    /// Where the profile came from.
+    pub profile: &'a str,
+    /// The log file.
+    pub log_path: &'a str,
+    /// When the report was made (RFC 3339).
+    pub generated: &'a str,
+}
+
+/// The caution every report carries.
+pub const CAUTION: &str = "These figures are estimates from a simplified model and the recorded \
+inputs, not guarantees. The cage must be inspected physically after every crash and before \
+every flight, whatever this report says.";
+
+fn kind(m: &MemberHealth) -> &'static str {
+    match m.kind {
+        MemberKind::Rod => "rod",
+        MemberKind::String => "string",
+    }
+}
+
+/// Markdown text: a cell cannot hold a bare `|` or a newline.
+fn cell(s: &str) -> String {
+    s.replace('|', "\\|").replace(['\n', '\r'], " ")
+}
+
+/// The Markdown maintenance report.
+pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> String {
+    let mut s = String::new();
+    s.push_str(&format!(
+        "# Cage maintenance report: {}\n\n",
+        cell(h.vehicle_name)
+    ));
+    s.push_str(&format!("- Vehicle id: `{}`\n", h.vehicle_id));
+    s.push_str(&format!("- Profile: `{}`\n", h.profile));
+    s.push_str(&format!(
+        "- Log: `{}` ({} records)\n",
+        h.log_path,
+        records.len()
+    ));
+    s.push_str(&format!("- Generated: {}\n", h.generated));
+    s.push_str(&format!(
+        "- Worst status: **{}**\n\n",
+        health.worst().label()
+    ));
+    s.push_str(&format!("> **Caution.** {CAUTION}\n\n"));
+
+    s.push_str("## Members to act on\n\n");
+    let act = health.to_act_on();
+    if act.is_empty() {
+        s.push_str("None: no member is flagged by the log.\n\n");
+    } else {
+        for m in act {
+            s.push_str(&format!(
+                "- **{} {}**: {}\n",
+                m.id,
+                kind(m),
+                m.status.label()
+            ));
+            for r in &m.reasons {
+                s.push_str(&format!("  - {}\n", r.replace('\n', " ")));
+            }
+            s.push_str("  - Done by: ________  Date: ________\n");
+        }
+        s.push('\n');
+    }
+
+    s.push_str("## Member health\n\n");
+    s.push_str("| Member | Kind | Status | Damage D | Max utilisation | Impacts |\n");
+    s.push_str("|---|---|---|---:|---:|---:|\n");
+    for m in &health.members {
+        s.push_str(&format!(
+            "| {} | {} | {} | {:.3} | {:.2} | {} |\n",
+            m.id,
+            kind(m),
+            m.status.label(),
+            m.damage,
+            m.max_utilisation,
+            m.impacts
+        ));
+    }
+    s.push('\n');
+    if !health.warnings.is_empty() {
+        s.push_str("Warnings:\n\n");
+        for w in &health.warnings {
+            s.push_str(&format!("- {w}\n"));
+        }
+        s.push('\n');
+    }
+
+    s.push_str("## Events\n\n");
+    if records.is_empty() {
+        s.push_str("The log is empty.\n");
+    } else {
+        s.push_str("| # | Time (UTC) | Operator | Event | Details |\n");
+        s.push_str("|---:|---|---|---|---|\n");
+        for r in records {
+            s.push_str(&format!(
+                "| {} | {} | {} | {} | {} |\n",
+                r.seq,
+                cell(&r.time),
+                cell(&r.operator),
+                r.event.name(),
+                cell(&r.event.summary())
+            ));
+        }
+    }
+    s
+}
+
+/// RFC 4180 field: quoted when it holds a comma, quote or line break.
+fn csv_field(s: &str) -> String {
+    if s.contains([',', '"', '\n', '\r']) {
+        format!("\"{}\"", s.replace('"', "\"\""))
+    } else {
+        s.to_string()
+    }
+}
+
+/// The health table as CSV (RFC 4180), one row per member, reasons joined
+/// with "; ".
+pub fn csv(health: &HealthReport) -> String {
+    let mut s = String::from("id,kind,status,damage,max_utilisation,impacts,reasons\r\n");
+    for m in &health.members {
+        s.push_str(&format!(
+            "{},{},{},{:.6},{:.4},{},{}\r\n",
+            csv_field(&m.id),
+            kind(m),
+            m.status.name(),
+            m.damage,
+            m.max_utilisation,
+            m.impacts,
+            csv_field(&m.reasons.join("; "))
+        ));
+    }
+    s
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::health::Status;
+
+    fn health() -> HealthReport {
+        HealthReport {
+            members: vec![
+                MemberHealth {
+                    id: "R1".into(),
+                    kind: MemberKind::Rod,
+                    status: Status::Ok,
+                    damage: 0.0,
+                    max_utilisation: 0.0,
+                    impacts: 0,
+                    reasons: vec!["fine".into()],
+                },
+                MemberHealth {
+                    id: "S1".into(),
+                    kind: MemberKind::String,
+                    status: Status::Due,
+                    damage: 0.75,
+                    max_utilisation: 0.9,
+                    impacts: 3,
+                    reasons: vec!["finding cut, \"deep\"".into()],
+                },
+            ],
+            warnings: vec![],
+        }
+    }
+
+    #[test]
+    fn csv_quotes_per_rfc_4180() {
+        let c = csv(&health());
+        let lines: Vec<&str> = c.split("\r\n").collect();
+        assert_eq!(
+            lines[0],
+            "id,kind,status,damage,max_utilisation,impacts,reasons"
+        );
+        assert_eq!(
+            lines[2],
+            "S1,string,due,0.750000,0.9000,3,\"finding cut, \"\"deep\"\"\""
+        );
+    }
+
+    #[test]
+    fn markdown_lists_members_to_act_on_and_the_caution() {
+        let h = ReportHeader {
+            vehicle_id: "v",
+            vehicle_name: "Vee",
+            profile: "p.toml",
+            log_path: "/d/v.cagelog",
+            generated: "2026-12-01T23:00:00Z",
+        };
+        let md = markdown(&h, &[], &health());
+        assert!(md.contains("- **S1 string**: DUE"));
+        assert!(!md.contains("- **R1"));
+        assert!(md.contains("must be inspected physically"));
+        assert!(md.contains("| S1 | string | DUE | 0.750 | 0.90 | 3 |"));
+    }
+}

@@ -141,7 +141,11 @@ fn is_broken_pipe(e: &anyhow::Error) -> bool {
 
 fn run(cli: Cli) -> anyhow::Result<ExitCode> {
     match cli.command {
-        None => tui_cmd::run(load_profile(None)?, "sim"),
+        None => tui_cmd::run(
+            load_profile(None)?,
+            &link_args::LinkArgs::default_sim(),
+            &log_cmd::LogOpts::default(),
+        ),
         Some(Command::Cage(a)) => cage_cmd::run(&a),
         Some(Command::Profile(a)) => profile_cmd::run(&a),
         Some(Command::Log(a)) => log_cmd::run(&a),

@@ -42,6 +42,16 @@ pub enum SimCommand {
     Fly,
 }
 
+impl std::fmt::Display for SimCommand {
+    /// The command channel's text form (what `FromStr` reads).
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            SimCommand::Roll(face) => write!(f, "roll {face}"),
+            SimCommand::Fly => write!(f, "fly"),
+        }
+    }
+}
+
 impl std::str::FromStr for SimCommand {
     type Err = SimError;
     /// `roll F3` or `fly` (the sim command channel's text form).

@@ -25,7 +25,7 @@ use crate::attitude::rpy_deg;
 use crate::cage::Cage;
 use crate::link::Counters;
 use crate::profile::WatchSettings;
-use crate::rest::{RestDetector, RestState};
+use crate::rest::{RestDetector, RestState, RestStatus};
 use crate::sample::{STANDARD_GRAVITY_M_S2, Sample};
 use nalgebra::UnitQuaternion;
 use serde::Serialize;
@@ -134,9 +134,7 @@ pub struct Tracker {
 struct Attitude {
     at_s: f64,
     q: UnitQuaternion<f64>,
-    rest: RestState,
-    face: usize,
-    error_deg: f64,
+    status: RestStatus,
 }
 
 impl Tracker {
@@ -230,9 +228,7 @@ impl Tracker {
             self.last = Some(Attitude {
                 at_s,
                 q,
-                rest: st.state,
-                face: st.face,
-                error_deg: st.error_deg,
+                status: st,
             });
             self.arrivals.push_back(at_s);
             while self
@@ -254,6 +250,16 @@ impl Tracker {
     fn cue(&mut self, at_s: f64) {
         self.airborne = true;
         self.last_cue_s = Some(at_s);
+    }
+
+    /// The latest attitude with the rest detector's answer for it, on the
+    /// link clock; None before the first attitude and while stale. The
+    /// righting stepper verifies each roll from this.
+    pub fn last_rest(&self) -> Option<(f64, UnitQuaternion<f64>, RestStatus)> {
+        match self.last {
+            Some(a) if !self.is_stale() => Some((a.at_s, a.q, a.status)),
+            _ => None,
+        }
     }
 
     /// The state now.
@@ -297,7 +303,7 @@ impl Tracker {
             Some(a) if !stale => {
                 let state = if self.airborne {
                     WatchStateKind::Airborne
-                } else if a.rest == RestState::Resting {
+                } else if a.status.state == RestState::Resting {
                     WatchStateKind::Resting
                 } else {
                     WatchStateKind::Moving
@@ -307,9 +313,9 @@ impl Tracker {
                     state,
                     armed: self.armed,
                     battery_v: self.battery_v,
-                    face: cage.faces.get(a.face).map(|f| f.id.clone()),
-                    face_index: cage.faces.get(a.face).map(|_| a.face),
-                    error_deg: Some(round2(a.error_deg)),
+                    face: cage.faces.get(a.status.face).map(|f| f.id.clone()),
+                    face_index: cage.faces.get(a.status.face).map(|_| a.status.face),
+                    error_deg: Some(round2(a.status.error_deg)),
                     rpy_deg: Some(r),
                     ..base
                 }

@@ -16,7 +16,7 @@ pub mod righting_view;
 pub mod theme;
 pub mod view;
 
-use model::{Model, Msg, update};
+use model::{Effect, Model, Msg, update};
 use ratatui::crossterm::event::{self, Event};
 use std::sync::mpsc::{Receiver, RecvTimeoutError, Sender};
 use std::time::{Duration, Instant};
@@ -51,8 +51,14 @@ fn spawn_input(tx: Sender<Msg>) {
 }
 
 /// Run the screens until the user quits. `tx` is a sender of the channel
-/// `rx` reads, handed to the keyboard thread.
-pub fn run(mut model: Model, tx: Sender<Msg>, rx: Receiver<Msg>) -> anyhow::Result<()> {
+/// `rx` reads, handed to the keyboard thread; `on_effect` carries out what
+/// `update` asked for (commands to the simulator).
+pub fn run(
+    mut model: Model,
+    tx: Sender<Msg>,
+    rx: Receiver<Msg>,
+    mut on_effect: impl FnMut(Effect),
+) -> anyhow::Result<()> {
     let mut terminal = ratatui::try_init()?;
     let _restore = Restore;
     spawn_input(tx);
@@ -80,6 +86,9 @@ pub fn run(mut model: Model, tx: Sender<Msg>, rx: Receiver<Msg>) -> anyhow::Resu
         dirty |= update(&mut model, msg);
         while let Ok(m) = rx.try_recv() {
             dirty |= update(&mut model, m);
+        }
+        for effect in model.outbox.drain(..) {
+            on_effect(effect);
         }
         if model.quit {
             break;

@@ -85,7 +85,7 @@ fn quick_profile(dir: &Path) -> String {
 }
 
 #[test]
-fn watch_without_headless_is_refused_with_a_pointer() {
+fn watch_screens_without_a_terminal_point_to_headless() {
     let (code, out, err) = watch(&[]);
     assert_eq!(code, 2);
     assert!(out.is_empty());

@@ -58,6 +58,18 @@ pub fn read_key(path: &Path) -> anyhow::Result<SigningKey> {
 }
 
 impl LinkArgs {
+    /// The built-in simulated vehicle at its own pace (the demo).
+    pub fn default_sim() -> LinkArgs {
+        LinkArgs {
+            link: "sim".to_string(),
+            proto: Proto::Auto,
+            allow: Vec::new(),
+            sysid: None,
+            signing_key: None,
+            replay_speed: "1".to_string(),
+        }
+    }
+
     /// The parsed spec.
     pub fn spec(&self) -> anyhow::Result<LinkSpec> {
         self.link

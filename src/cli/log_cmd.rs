@@ -20,7 +20,8 @@ use std::time::Duration;
 /// CAGEHAND_LOCK_WAIT_S says otherwise (scripts that prefer to fail fast).
 const LOCK_WAIT: Duration = Duration::from_secs(5);
 
-fn lock_wait() -> Duration {
+/// The lock wait in force.
+pub fn lock_wait() -> Duration {
     env_nonempty("CAGEHAND_LOCK_WAIT_S")
         .and_then(|s| s.trim().parse::<f64>().ok())
         .filter(|s| s.is_finite() && *s >= 0.0 && *s <= 3600.0)
@@ -29,7 +30,7 @@ fn lock_wait() -> Duration {
 }
 
 /// Where the logs live and who is writing: shared by `log` and `impact`.
-#[derive(Debug, Clone, clap::Args)]
+#[derive(Debug, Clone, Default, clap::Args)]
 pub struct LogOpts {
     /// Folder holding the cage logs (else $CAGEHAND_DATA, else the
     /// platform's data folder, e.g. ~/.local/share/cagehand).

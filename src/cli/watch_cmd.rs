@@ -21,6 +21,8 @@ pub struct Args {
     profile: ProfileArg,
     #[command(flatten)]
     link: LinkArgs,
+    #[command(flatten)]
+    log: super::log_cmd::LogOpts,
     /// Print JSON lines instead of the screen.
     #[arg(long)]
     headless: bool,
@@ -57,9 +59,12 @@ struct Summary {
 /// Run the watch.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     if !args.headless {
-        return Err(super::bad_input(
-            "the watch screen is not built yet; use `cagehand watch --headless` for JSON lines",
-        ));
+        if args.summary || args.duration_s.is_some() {
+            return Err(super::bad_input(
+                "--summary and --duration-s go with --headless",
+            ));
+        }
+        return super::tui_cmd::run(args.profile.load()?, &args.link, &args.log);
     }
     if let Some(d) = args.duration_s
         && !(d.is_finite() && d > 0.0)

@@ -208,6 +208,13 @@ impl Link {
     pub fn command(&self, cmd: SimCommand) -> bool {
         self.commands.as_ref().is_some_and(|c| c.send(cmd).is_ok())
     }
+
+    /// A sender for in-process simulator commands that outlives borrowing
+    /// the link (the screens keep it while a thread reads `rx`); None for
+    /// other links.
+    pub fn commander(&self) -> Option<Sender<SimCommand>> {
+        self.commands.clone()
+    }
 }
 
 impl Drop for Link {
@@ -586,8 +593,8 @@ fn run_sim(
     while !stop.load(Ordering::Relaxed) {
         while let Ok(cmd) = commands.try_recv() {
             let note = match sim.command(&cmd) {
-                Ok(()) => format!("sim: {cmd:?} accepted"),
-                Err(e) => format!("sim: {cmd:?} refused: {e}"),
+                Ok(()) => format!("sim: {cmd} accepted"),
+                Err(e) => format!("sim: {cmd} refused: {e}"),
             };
             if !sink.event(LinkEvent::Note(note)) {
                 return;

@@ -2,10 +2,16 @@
 //! place it changes. No terminal here: tests drive `update` directly.
 
 use crate::cage::Cage;
+use crate::health::HealthReport;
 use crate::net::Net;
 use crate::profile::Profile;
+use crate::rest::{RestState, RestStatus};
+use crate::righting::stepper::{DEFAULT_MOTION_TIMEOUT_S, Notice, Phase, Stepper};
+use crate::righting::{Plan, RightingModel};
 use crate::tui::theme::Theme;
+use nalgebra::UnitQuaternion;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
+use std::collections::VecDeque;
 
 /// The four screens.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -100,6 +106,20 @@ pub struct LiveView {
     pub armed: Option<bool>,
     /// Link health.
     pub link: LinkView,
+    /// The latest attitude and the rest detector's answer, on the link
+    /// clock (None while stale): what the righting stepper verifies from.
+    pub rest: Option<RestSample>,
+}
+
+/// One attitude with the rest detector's answer.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RestSample {
+    /// Link clock, s.
+    pub t_s: f64,
+    /// Attitude, body -> world.
+    pub attitude: UnitQuaternion<f64>,
+    /// Resting or moving, and on which face.
+    pub status: RestStatus,
 }
 
 impl LiveView {
@@ -116,6 +136,7 @@ impl LiveView {
                 source: source.to_string(),
                 ..LinkView::default()
             },
+            rest: None,
         }
     }
 }
@@ -131,7 +152,35 @@ pub enum Msg {
     Resize,
     /// The link ended or failed, with the reason.
     LinkEnded(String),
+    /// Something the operator should know (an impact was detected, the
+    /// link was lost and came back).
+    Notice(String),
 }
+
+/// Side effects `update` asks the loop to carry out.
+#[derive(Debug, Clone, PartialEq, Eq)]
+pub enum Effect {
+    /// Tell the in-process simulator to roll onto this face (the demo's
+    /// stand-in for the operator flying the roll).
+    SimRoll(String),
+}
+
+/// Righting on the screens: the plan from where the vehicle lies, and the
+/// stepper once the operator has started.
+#[derive(Debug, Clone)]
+pub struct RightingState {
+    /// Moves and their feasibility.
+    pub model: RightingModel,
+    /// Plan preview from the resting face (before stepping starts).
+    pub preview: Option<Plan>,
+    /// The stepper, once the operator has commanded the first step.
+    pub stepper: Option<Stepper>,
+    /// Recent stepper notices, newest last.
+    pub log: VecDeque<String>,
+}
+
+/// How many stepper notices the Righting screen keeps.
+const RIGHTING_LOG_LINES: usize = 6;
 
 /// Everything the screens show.
 #[derive(Debug, Clone)]
@@ -156,6 +205,14 @@ pub struct Model {
     pub notice: Option<String>,
     /// Styles.
     pub theme: Theme,
+    /// Righting (None when the moves could not be built; `notice` says why).
+    pub righting: Option<RightingState>,
+    /// Member health from the cage log, if one could be read.
+    pub health: Option<HealthReport>,
+    /// Where the health came from, or why there is none.
+    pub health_source: String,
+    /// Effects for the loop to carry out.
+    pub outbox: Vec<Effect>,
 }
 
 impl Model {
@@ -165,6 +222,18 @@ impl Model {
         let takeoff = cage
             .takeoff_faces(&profile.righting.takeoff_faces)
             .unwrap_or_default();
+        let (righting, notice) = match RightingModel::new(&profile, &cage) {
+            Ok(model) => (
+                Some(RightingState {
+                    model,
+                    preview: None,
+                    stepper: None,
+                    log: VecDeque::new(),
+                }),
+                None,
+            ),
+            Err(e) => (None, Some(format!("righting unavailable: {e}"))),
+        };
         Model {
             profile,
             cage,
@@ -174,9 +243,26 @@ impl Model {
             help: false,
             quit: false,
             live: LiveView::waiting(source),
-            notice: None,
+            notice,
             theme,
+            righting,
+            health: None,
+            health_source: "no cage log read".to_string(),
+            outbox: Vec::new(),
         }
+    }
+
+    /// Attach member health read from the cage log.
+    pub fn with_health(mut self, health: Option<HealthReport>, source: String) -> Model {
+        self.health = health;
+        self.health_source = source;
+        self
+    }
+
+    /// The plan the Righting screen shows: the stepper's, else the preview.
+    pub fn shown_plan(&self) -> Option<&Plan> {
+        let r = self.righting.as_ref()?;
+        r.stepper.as_ref().map(|s| s.plan()).or(r.preview.as_ref())
     }
 }
 
@@ -187,7 +273,11 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
         Msg::Live(live) => {
             let changed = model.live != live;
             model.live = live;
-            changed
+            follow_righting(model) || changed
+        }
+        Msg::Notice(text) => {
+            model.notice = Some(text);
+            true
         }
         Msg::LinkEnded(why) => {
             model.notice = Some(format!("link ended: {why}"));
@@ -197,6 +287,118 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
         }
         Msg::Key(key) => on_key(model, key),
     }
+}
+
+/// Feed the live rest answer to the stepper, or refresh the preview plan
+/// when the vehicle settles on a new face. Returns whether anything changed.
+fn follow_righting(model: &mut Model) -> bool {
+    let Some(rs) = model.live.rest else {
+        return false;
+    };
+    let Some(r) = model.righting.as_mut() else {
+        return false;
+    };
+    if let Some(stepper) = r.stepper.as_mut() {
+        let Some(n) = stepper.observe(rs.t_s, &rs.attitude, &rs.status) else {
+            return false;
+        };
+        let text = describe(&model.cage, stepper, n);
+        r.log.push_back(text);
+        while r.log.len() > RIGHTING_LOG_LINES {
+            r.log.pop_front();
+        }
+        return true;
+    }
+    if rs.status.state != RestState::Resting {
+        return false;
+    }
+    if r.preview.as_ref().is_some_and(|p| p.from == rs.status.face) {
+        return false;
+    }
+    r.preview = Some(r.model.plan(rs.status.face, &rs.attitude));
+    true
+}
+
+fn face_id(cage: &Cage, i: usize) -> &str {
+    cage.faces.get(i).map_or("?", |f| f.id.as_str())
+}
+
+/// A stepper notice in words for the Righting screen's log.
+fn describe(cage: &Cage, stepper: &Stepper, n: Notice) -> String {
+    match n {
+        Notice::Commanded { step } => format!("step {} commanded; watching for motion", step + 1),
+        Notice::Rolling { step } => format!("step {}: rolling", step + 1),
+        Notice::Arrived { step, next } => format!(
+            "step {} arrived as planned; step {} is next",
+            step + 1,
+            next + 1
+        ),
+        Notice::FellBack { step } => format!("step {}: fell back; command it again", step + 1),
+        Notice::NoMotion { step } => format!("step {}: no motion seen; command it again", step + 1),
+        Notice::Replanned { face } => format!(
+            "settled on {} instead: new plan of {} steps",
+            face_id(cage, face),
+            stepper.plan().steps.len()
+        ),
+        Notice::Done { face } => format!(
+            "on take-off face {}: righting complete",
+            face_id(cage, face)
+        ),
+        Notice::NoRoute { face } => {
+            format!("no route from {}: see the reason", face_id(cage, face))
+        }
+    }
+}
+
+/// Enter on the Righting screen: start stepping, or command the waiting step.
+fn command_step(model: &mut Model) -> bool {
+    let t_s = model.live.rest.map(|r| r.t_s);
+    let Some(r) = model.righting.as_mut() else {
+        return false;
+    };
+    let Some(t_s) = t_s else {
+        model.notice = Some("no live attitude: cannot command a step".to_string());
+        return true;
+    };
+    if r.stepper.is_none() {
+        let Some(plan) = r.preview.clone() else {
+            model.notice = Some("no plan yet: wait until the vehicle rests on a face".to_string());
+            return true;
+        };
+        r.stepper = Some(Stepper::new(
+            r.model.clone(),
+            plan,
+            DEFAULT_MOTION_TIMEOUT_S,
+        ));
+        r.log.clear();
+    }
+    let Some(stepper) = r.stepper.as_mut() else {
+        return false;
+    };
+    let roll_to = stepper
+        .current_step()
+        .and_then(|s| r.model.moves.get(s.move_index))
+        .map(|m| m.roll.to);
+    match stepper.command(t_s) {
+        Some(n) => {
+            let text = describe(&model.cage, stepper, n);
+            r.log.push_back(text);
+            if let Some(to) = roll_to {
+                model
+                    .outbox
+                    .push(Effect::SimRoll(face_id(&model.cage, to).to_string()));
+            }
+        }
+        None => {
+            let why = match stepper.phase() {
+                Phase::Done => "righting is complete",
+                Phase::NoRoute => "there is no route to command",
+                _ => "a step is already under way",
+            };
+            model.notice = Some(why.to_string());
+        }
+    }
+    true
 }
 
 fn on_key(model: &mut Model, key: KeyEvent) -> bool {
@@ -227,6 +429,18 @@ fn on_key(model: &mut Model, key: KeyEvent) -> bool {
         KeyCode::Esc => {
             let had = model.notice.take().is_some();
             return had;
+        }
+        KeyCode::Enter if model.screen == Screen::Righting => return command_step(model),
+        KeyCode::Char('x') if model.screen == Screen::Righting => {
+            if let Some(r) = model.righting.as_mut() {
+                r.stepper = None;
+                r.preview = None;
+                r.log.clear();
+            }
+            model.notice = Some(
+                "stepping abandoned; the plan restarts from where the vehicle rests".to_string(),
+            );
+            return true;
         }
         _ => {
             model.notice = Some("key not bound here: press ? for the keys".to_string());
@@ -283,6 +497,77 @@ mod tests {
         let mut moved = live;
         moved.state = LiveState::Moving;
         assert!(update(&mut m, Msg::Live(moved)));
+    }
+
+    /// A live picture resting (or moving) on `face` at `t_s`.
+    fn resting_on(m: &Model, face: usize, t_s: f64, resting: bool) -> Msg {
+        let q = crate::rest::resting_attitude(&m.cage, face);
+        let fit = crate::rest::fit_face(&m.cage, &crate::attitude::gravity_body(&q));
+        let mut live = LiveView::waiting("sim");
+        live.state = if resting {
+            LiveState::Resting
+        } else {
+            LiveState::Moving
+        };
+        live.face = Some(face);
+        live.rest = Some(RestSample {
+            t_s,
+            attitude: q,
+            status: RestStatus {
+                state: if resting {
+                    RestState::Resting
+                } else {
+                    RestState::Moving
+                },
+                face,
+                error_deg: fit.error_deg,
+                fit,
+            },
+        });
+        Msg::Live(live)
+    }
+
+    #[test]
+    fn righting_steps_by_hand_and_verifies_arrival() {
+        let mut m = model();
+        update(&mut m, key(KeyCode::Char('2')));
+        // F9 (index 8) is not a take-off face in the demo; a plan appears.
+        let start = 8;
+        let msg = resting_on(&m, start, 1.0, true);
+        update(&mut m, msg);
+        let plan = m.shown_plan().expect("a preview plan").clone();
+        assert!(plan.reachable && !plan.steps.is_empty());
+        // Enter commands step 1 and asks the simulator to roll.
+        update(&mut m, key(KeyCode::Enter));
+        assert_eq!(m.outbox.len(), 1, "one roll command for the sim");
+        let first = plan.steps[0].clone();
+        let expected_roll = m.righting.as_ref().unwrap().model.moves[first.move_index]
+            .roll
+            .to;
+        assert_eq!(
+            m.outbox[0],
+            Effect::SimRoll(m.cage.faces[expected_roll].id.clone())
+        );
+        // Motion, then arrival on the step's face: the next step waits.
+        let moving = resting_on(&m, start, 1.5, false);
+        update(&mut m, moving);
+        let arrived = resting_on(&m, first.to, 3.0, true);
+        update(&mut m, arrived);
+        let r = m.righting.as_ref().unwrap();
+        let phase = r.stepper.as_ref().unwrap().phase();
+        if plan.steps.len() > 1 {
+            assert_eq!(phase, Phase::Waiting { step: 1 });
+        } else {
+            assert_eq!(phase, Phase::Done);
+        }
+        assert!(
+            r.log
+                .iter()
+                .any(|l| l.contains("arrived as planned") || l.contains("complete"))
+        );
+        // x abandons stepping.
+        update(&mut m, key(KeyCode::Char('x')));
+        assert!(m.righting.as_ref().unwrap().stepper.is_none());
     }
 
     #[test]

@@ -1,6 +1,7 @@
 //! The Preflight screen: the profile's checklist, automatic items evaluated
 //! from the live picture.
 
+use crate::health::Status;
 use crate::profile::AutoCheck;
 use crate::tui::model::{LiveState, Model};
 use ratatui::Frame;
@@ -34,7 +35,25 @@ pub fn auto_result(model: &Model, check: AutoCheck) -> (&'static str, String) {
             ),
             None => ("WAIT", "no battery data".to_string()),
         },
-        AutoCheck::NoMemberDue => ("WAIT", "see the cage log".to_string()),
+        AutoCheck::NoMemberDue => match &model.health {
+            None => ("WAIT", format!("no health: {}", model.health_source)),
+            Some(h) => {
+                let due: Vec<&str> = h
+                    .members
+                    .iter()
+                    .filter(|m| m.status >= Status::Due)
+                    .map(|m| m.id.as_str())
+                    .collect();
+                if due.is_empty() {
+                    (
+                        "PASS",
+                        format!("no member due ({} to inspect)", h.to_act_on().len()),
+                    )
+                } else {
+                    ("FAIL", format!("due or overloaded: {}", due.join(" ")))
+                }
+            }
+        },
     }
 }
 

@@ -124,7 +124,7 @@ fn sim_at_max_speed_gives_samples_and_takes_commands() {
     // The command reached the simulator, which answered (accepted while
     // resting, refused if the reader had already run into the flight).
     assert!(
-        note.as_ref().is_some_and(|s| s.starts_with("sim: Fly")),
+        note.as_ref().is_some_and(|s| s.starts_with("sim: fly")),
         "{note:?}"
     );
 }

@@ -155,13 +155,19 @@ fn spawn_feed(link: Link, cage: Cage, profile: Profile, tx: Sender<Msg>) {
                 }
                 LinkMsg::End { at_s } => {
                     tracker.tick(at_s);
-                    let _ = tx.send(Msg::Live(live_view(&tracker.state(&cage), &tracker)));
+                    let _ = tx.send(Msg::Live(Box::new(live_view(
+                        &tracker.state(&cage),
+                        &tracker,
+                    ))));
                     let _ = tx.send(Msg::LinkEnded("end of input".to_string()));
                     return;
                 }
             }
             if tx
-                .send(Msg::Live(live_view(&tracker.state(&cage), &tracker)))
+                .send(Msg::Live(Box::new(live_view(
+                    &tracker.state(&cage),
+                    &tracker,
+                ))))
                 .is_err()
             {
                 return;

@@ -146,8 +146,8 @@ impl LiveView {
 pub enum Msg {
     /// A key press.
     Key(KeyEvent),
-    /// A new live picture from the tracker.
-    Live(LiveView),
+    /// A new live picture from the tracker (boxed: it is large and frequent).
+    Live(Box<LiveView>),
     /// The terminal was resized.
     Resize,
     /// The link ended or failed, with the reason.
@@ -271,8 +271,8 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
     match msg {
         Msg::Resize => true,
         Msg::Live(live) => {
-            let changed = model.live != live;
-            model.live = live;
+            let changed = model.live != *live;
+            model.live = *live;
             follow_righting(model) || changed
         }
         Msg::Notice(text) => {
@@ -493,10 +493,10 @@ mod tests {
     fn same_live_picture_is_not_a_change() {
         let mut m = model();
         let live = LiveView::waiting("sim");
-        assert!(!update(&mut m, Msg::Live(live.clone())));
+        assert!(!update(&mut m, Msg::Live(Box::new(live.clone()))));
         let mut moved = live;
         moved.state = LiveState::Moving;
-        assert!(update(&mut m, Msg::Live(moved)));
+        assert!(update(&mut m, Msg::Live(Box::new(moved))));
     }
 
     /// A live picture resting (or moving) on `face` at `t_s`.
@@ -524,7 +524,7 @@ mod tests {
                 fit,
             },
         });
-        Msg::Live(live)
+        Msg::Live(Box::new(live))
     }
 
     #[test]
@@ -576,7 +576,7 @@ mod tests {
         let mut live = LiveView::waiting("sim");
         live.state = LiveState::Resting;
         live.face = Some(3);
-        update(&mut m, Msg::Live(live));
+        update(&mut m, Msg::Live(Box::new(live)));
         update(&mut m, Msg::LinkEnded("end of file".into()));
         assert_eq!(m.live.state, LiveState::Stale);
         assert_eq!(m.live.face, None);

@@ -291,7 +291,7 @@ mod tests {
         live.error_deg = Some(1.5);
         live.rpy_deg = Some([10.0, -20.0, 30.0]);
         live.battery_v = Some(7.9);
-        update(&mut m, Msg::Live(live));
+        update(&mut m, Msg::Live(Box::new(live)));
         let s = text(&m);
         assert!(s.contains("[F5]"), "resting face framed on the net:\n{s}");
         assert!(s.contains("F1^"), "take-off face marked:\n{s}");

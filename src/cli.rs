@@ -84,17 +84,28 @@ impl ProfileArg {
 
 /// Load a profile file (or the demo) and build its cage; every failure is bad input.
 pub fn load_profile(path: Option<&Path>) -> anyhow::Result<Loaded> {
-    let profile = match path {
-        None => Profile::demo().map_err(|e| bad_input(e.to_string()))?,
-        Some(p) => {
-            let text = std::fs::read_to_string(p)
+    let (text, name) = match path {
+        None => (
+            crate::profile::DEMO_PROFILE_TOML.to_string(),
+            crate::profile::DEMO_PROFILE_NAME.to_string(),
+        ),
+        Some(p) => (
+            std::fs::read_to_string(p)
                 .with_context(|| format!("cannot read profile {}", p.display()))
-                .map_err(|e| bad_input(format!("{e:#}")))?;
-            Profile::parse(&text, &p.display().to_string()).map_err(|e| bad_input(e.to_string()))?
-        }
+                .map_err(|e| bad_input(format!("{e:#}")))?,
+            p.display().to_string(),
+        ),
     };
+    let profile = Profile::parse(&text, &name).map_err(|e| bad_input(e.to_string()))?;
     let cage =
         Cage::from_profile(&profile).map_err(|e| bad_input(format!("{}: {e}", profile.source)))?;
+    // Take-off face ids can only be checked once the hull has numbered the
+    // faces; point at the key all the same.
+    if let Err(e) = cage.takeoff_faces(&profile.righting.takeoff_faces) {
+        let (line, column) =
+            crate::profile::locate_key(&text, "righting", "takeoff_faces").unwrap_or((1, 1));
+        return Err(bad_input(format!("{name}:{line}:{column}: {e}")));
+    }
     Ok(Loaded { profile, cage })
 }
 

@@ -328,7 +328,7 @@ impl Profile {
                 file: file.to_string(),
                 line,
                 column,
-                key: key_at(text, &span).unwrap_or_else(|| "-".to_string()),
+                key: error_key(text, &span, e.message()),
                 message: e.message().trim().to_string(),
             }
         })?;
@@ -490,6 +490,49 @@ pub fn line_col(text: &str, offset: usize) -> (usize, usize) {
     (line, column)
 }
 
+/// 1-based line and column of `key` inside `[table]`, for errors found
+/// after validation (take-off face ids need the hull's face numbering).
+pub fn locate_key(text: &str, table: &str, key: &str) -> Option<(usize, usize)> {
+    let mut in_table = false;
+    for (i, line) in text.lines().enumerate() {
+        let t = line.trim_start();
+        if t.starts_with('[') {
+            in_table = t.trim_end().trim_matches(|c| c == '[' || c == ']').trim() == table;
+            continue;
+        }
+        if in_table
+            && let Some((k, _)) = t.split_once('=')
+            && k.trim() == key
+        {
+            return Some((i + 1, line.len() - t.len() + 1));
+        }
+    }
+    None
+}
+
+/// The key a parse error is about: for a missing field, the field under
+/// the table the error points at; otherwise the key at the error's span.
+fn error_key(text: &str, span: &Range<usize>, message: &str) -> String {
+    let missing = message
+        .strip_prefix("missing field `")
+        .and_then(|rest| rest.split('`').next());
+    match missing {
+        Some(name) => {
+            let at = key_at(text, span);
+            let line = line_col(text, span.start).0;
+            let is_header = text
+                .lines()
+                .nth(line.saturating_sub(1))
+                .is_some_and(|l| l.trim_start().starts_with('['));
+            match at {
+                Some(table) if is_header => format!("{table}.{name}"),
+                _ => name.to_string(),
+            }
+        }
+        None => key_at(text, span).unwrap_or_else(|| "-".to_string()),
+    }
+}
+
 /// The dotted key of a span: the enclosing table header (if any) joined
 /// with the key written before `=` on the span's line.
 fn key_at(text: &str, span: &Range<usize>) -> Option<String> {
@@ -550,6 +593,14 @@ mod tests {
     fn line_col_counts_from_one() {
         assert_eq!(line_col("a\nbc\n", 3), (2, 2));
         assert_eq!(line_col("abc", 0), (1, 1));
+    }
+
+    #[test]
+    fn missing_fields_are_named_with_their_table() {
+        let e = Profile::parse("", "empty.toml").unwrap_err();
+        assert_eq!(e.key(), "vehicle", "{e}");
+        let e = Profile::parse("[vehicle]\nid = \"a\"\ncom_m = [0, 0, 0]\n", "x.toml").unwrap_err();
+        assert_eq!(e.key(), "vehicle.mass_kg", "{e}");
     }
 
     #[test]

@@ -7,6 +7,7 @@
 
 pub mod attitude;
 pub mod cage;
+pub mod caution;
 pub mod cli;
 pub mod health;
 pub mod hull;

@@ -245,5 +245,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             if ss.mechanisms == 1 { "" } else { "s" }
         )?;
     }
+    writeln!(out)?;
+    for line in crate::caution::CAUTION_LINES {
+        writeln!(out, "{line}")?;
+    }
     Ok(ExitCode::SUCCESS)
 }

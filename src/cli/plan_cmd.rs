@@ -13,9 +13,22 @@ use std::io::Write;
 use std::process::ExitCode;
 
 /// The caution printed under every readable plan.
-pub const CAUTION: &str = "CAUTION: estimates from a quasi-static model, not guarantees.\n\
-Disarm between steps and keep hands and faces clear of the propellers.\n\
-Follow local aviation rules.";
+fn write_caution(out: &mut impl Write) -> std::io::Result<()> {
+    writeln!(
+        out,
+        "thrust: share of the rotors' best turning moment the roll needs at its worst angle."
+    )?;
+    for line in crate::caution::CAUTION_LINES {
+        writeln!(out, "{line}")?;
+    }
+    Ok(())
+}
+
+/// Rounded degrees for the table, without a "-0".
+fn whole_deg(x: f64) -> f64 {
+    let r = x.round();
+    if r == 0.0 { 0.0 } else { r }
+}
 
 /// Plan the roll back to a take-off face.
 #[derive(Debug, clap::Args)]
@@ -169,9 +182,9 @@ fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()
             },
             s.angle_deg,
             pct(s.thrust_fraction),
-            r,
-            pi,
-            y
+            whole_deg(r),
+            whole_deg(pi),
+            whole_deg(y)
         )?;
     }
     Ok(())
@@ -200,7 +213,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 write_plan(&mut out, cage, p)?;
                 writeln!(out)?;
             }
-            writeln!(out, "{CAUTION}")?;
+            write_caution(&mut out)?;
         }
         return Ok(ExitCode::SUCCESS);
     }
@@ -243,7 +256,13 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     } else {
         write_plan(&mut out, cage, &plan)?;
         writeln!(out)?;
-        writeln!(out, "{CAUTION}")?;
+        if args.from.is_some() {
+            writeln!(
+                out,
+                "yaw: the expected yaw assumes 0 deg at the start (planned from a face id)."
+            )?;
+        }
+        write_caution(&mut out)?;
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -5,7 +5,7 @@
 pub const CAUTION_LINES: [&str; 3] = [
     "CAUTION: estimates from a model of this cage and profile, not guarantees.",
     "Inspect the cage physically; keep clear of the propellers and disarm to touch.",
-    "Follow local aviation rules, the maker's instructions and a qualified engineer.",
+    "Follow local aviation rules, the maker's manual and a qualified engineer.",
 ];
 
 /// The caution as one paragraph (reports, JSON).
@@ -29,6 +29,6 @@ mod tests {
         ] {
             assert!(t.contains(must), "{must}");
         }
-        assert!(CAUTION_LINES.iter().all(|l| l.len() <= 80));
+        assert!(CAUTION_LINES.iter().all(|l| l.len() < 80));
     }
 }

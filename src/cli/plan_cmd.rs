@@ -16,7 +16,7 @@ use std::process::ExitCode;
 fn write_caution(out: &mut impl Write) -> std::io::Result<()> {
     writeln!(
         out,
-        "thrust: share of the rotors' best turning moment the roll needs at its worst angle."
+        "thrust: share of the rotors' best moment needed at the roll's worst angle."
     )?;
     for line in crate::caution::CAUTION_LINES {
         writeln!(out, "{line}")?;

@@ -13,22 +13,18 @@ use ratatui::widgets::{Block, Borders, Paragraph, Row, Table};
 pub fn cage(model: &Model, frame: &mut Frame, area: Rect) {
     let t = &model.theme;
     let [caution, summary, table] = Layout::vertical([
-        Constraint::Length(2),
+        Constraint::Length(3),
         Constraint::Length(2),
         Constraint::Min(3),
     ])
     .areas(area);
     frame.render_widget(
-        Paragraph::new(vec![
-            Line::styled(
-                " Computed estimates, not guarantees. Inspect every rod and string by eye and hand after a crash;",
-                t.warn,
-            ),
-            Line::styled(
-                " structural decisions rest with the maker and a qualified engineer.",
-                t.warn,
-            ),
-        ]),
+        Paragraph::new(
+            crate::caution::CAUTION_LINES
+                .iter()
+                .map(|l| Line::styled(format!(" {l}"), t.warn))
+                .collect::<Vec<_>>(),
+        ),
         caution,
     );
     let status_style = |s: Status| match s {
@@ -53,44 +49,50 @@ pub fn cage(model: &Model, frame: &mut Frame, area: Rect) {
     frame.render_widget(Paragraph::new(summary_line), summary);
 
     let p = &model.profile;
-    let rows = model.cage.members.iter().enumerate().map(|(i, m)| {
-        let (kind, cap) = match m.kind {
-            MemberKind::Rod => ("rod", p.rod.capacity_n(m.length_m)),
-            MemberKind::String => ("string", p.string.capacity_n()),
-        };
-        let h = model
-            .health
-            .as_ref()
-            .and_then(|h| h.members.get(i).filter(|mh| mh.id == m.id));
-        let mut cells = vec![
-            m.id.clone(),
-            kind.to_string(),
-            format!(
-                "{}-{}",
-                model.cage.nodes[m.nodes[0]].id, model.cage.nodes[m.nodes[1]].id
-            ),
-            format!("{:.0}", m.length_m * 1e3),
-            format!("{cap:.0}"),
-        ];
-        match h {
-            Some(h) => {
-                cells.push(h.status.label().to_string());
-                cells.push(format!("{:.2}", h.damage));
-                cells.push(format!("{:.0}%", h.max_utilisation * 100.0));
-                cells.push(h.reasons.join("; "));
-                Row::new(cells).style(status_style(h.status))
+    let rows = model
+        .cage
+        .members
+        .iter()
+        .enumerate()
+        .skip(model.cage_scroll)
+        .map(|(i, m)| {
+            let (kind, cap) = match m.kind {
+                MemberKind::Rod => ("rod", p.rod.capacity_n(m.length_m)),
+                MemberKind::String => ("string", p.string.capacity_n()),
+            };
+            let h = model
+                .health
+                .as_ref()
+                .and_then(|h| h.members.get(i).filter(|mh| mh.id == m.id));
+            let mut cells = vec![
+                m.id.clone(),
+                kind.to_string(),
+                format!(
+                    "{}-{}",
+                    model.cage.nodes[m.nodes[0]].id, model.cage.nodes[m.nodes[1]].id
+                ),
+                format!("{:.0}", m.length_m * 1e3),
+                format!("{cap:.0}"),
+            ];
+            match h {
+                Some(h) => {
+                    cells.push(h.status.label().to_string());
+                    cells.push(format!("{:.2}", h.damage));
+                    cells.push(format!("{:.0}%", h.max_utilisation * 100.0));
+                    cells.push(h.reasons.join("; "));
+                    Row::new(cells).style(status_style(h.status))
+                }
+                None => {
+                    cells.extend([
+                        "-".into(),
+                        "-".into(),
+                        "-".into(),
+                        m.tag.clone().unwrap_or_default(),
+                    ]);
+                    Row::new(cells).style(t.text)
+                }
             }
-            None => {
-                cells.extend([
-                    "-".into(),
-                    "-".into(),
-                    "-".into(),
-                    m.tag.clone().unwrap_or_default(),
-                ]);
-                Row::new(cells).style(t.text)
-            }
-        }
-    });
+        });
     frame.render_widget(
         Table::new(
             rows,
@@ -112,7 +114,12 @@ pub fn cage(model: &Model, frame: &mut Frame, area: Rect) {
             ])
             .style(t.accent),
         )
-        .block(Block::default().borders(Borders::ALL).title(" Members ")),
+        .block(Block::default().borders(Borders::ALL).title(format!(
+            " Members {}-{} of {} (arrows scroll) ",
+            model.cage_scroll + 1,
+            model.cage.members.len(),
+            model.cage.members.len()
+        ))),
         table,
     );
 }

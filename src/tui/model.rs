@@ -213,6 +213,8 @@ pub struct Model {
     pub health_source: String,
     /// Effects for the loop to carry out.
     pub outbox: Vec<Effect>,
+    /// First member row shown on the Cage screen.
+    pub cage_scroll: usize,
 }
 
 impl Model {
@@ -249,6 +251,7 @@ impl Model {
             health: None,
             health_source: "no cage log read".to_string(),
             outbox: Vec::new(),
+            cage_scroll: 0,
         }
     }
 
@@ -431,6 +434,24 @@ fn on_key(model: &mut Model, key: KeyEvent) -> bool {
             return had;
         }
         KeyCode::Enter if model.screen == Screen::Righting => return command_step(model),
+        KeyCode::Down | KeyCode::Char('j') if model.screen == Screen::Cage => {
+            let last = model.cage.members.len().saturating_sub(1);
+            model.cage_scroll = (model.cage_scroll + 1).min(last);
+            return true;
+        }
+        KeyCode::Up | KeyCode::Char('k') if model.screen == Screen::Cage => {
+            model.cage_scroll = model.cage_scroll.saturating_sub(1);
+            return true;
+        }
+        KeyCode::PageDown if model.screen == Screen::Cage => {
+            let last = model.cage.members.len().saturating_sub(1);
+            model.cage_scroll = (model.cage_scroll + 10).min(last);
+            return true;
+        }
+        KeyCode::PageUp if model.screen == Screen::Cage => {
+            model.cage_scroll = model.cage_scroll.saturating_sub(10);
+            return true;
+        }
         KeyCode::Char('x') if model.screen == Screen::Righting => {
             if let Some(r) = model.righting.as_mut() {
                 r.stepper = None;
@@ -485,6 +506,19 @@ mod tests {
         assert!(m.help);
         update(&mut m, key(KeyCode::Char('x')));
         assert!(!m.help && !m.quit, "any key closes help");
+        update(&mut m, key(KeyCode::Char('3')));
+        update(&mut m, key(KeyCode::Down));
+        update(&mut m, key(KeyCode::Down));
+        update(&mut m, key(KeyCode::Up));
+        assert_eq!(m.cage_scroll, 1, "arrows scroll the member table");
+        update(&mut m, key(KeyCode::PageDown));
+        update(&mut m, key(KeyCode::PageDown));
+        update(&mut m, key(KeyCode::PageDown));
+        assert_eq!(
+            m.cage_scroll,
+            m.cage.members.len() - 1,
+            "scrolling stops at the last member"
+        );
         update(&mut m, key(KeyCode::Char('q')));
         assert!(m.quit);
     }

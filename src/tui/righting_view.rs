@@ -48,27 +48,21 @@ pub fn righting(model: &Model, frame: &mut Frame, area: Rect) {
     let side_inner = side_block.inner(side);
     frame.render_widget(side_block, side);
     let [caution, head, table, foot] = Layout::vertical([
-        Constraint::Length(3),
+        Constraint::Length(6),
         Constraint::Length(3),
         Constraint::Min(4),
         Constraint::Length(9),
     ])
     .areas(side_inner);
     frame.render_widget(
-        Paragraph::new(vec![
-            Line::styled(
-                " CAUTION: keep clear of propellers; disarm to touch. ",
-                t.alarm,
-            ),
-            Line::styled(
-                "Plans are estimates from the profile, not guarantees;",
-                t.warn,
-            ),
-            Line::styled(
-                "follow local aviation rules and the maker's limits.",
-                t.warn,
-            ),
-        ]),
+        Paragraph::new(
+            crate::caution::CAUTION_LINES
+                .iter()
+                .enumerate()
+                .map(|(i, l)| Line::styled(*l, if i == 0 { t.alarm } else { t.warn }))
+                .collect::<Vec<_>>(),
+        )
+        .wrap(Wrap { trim: true }),
         caution,
     );
 

@@ -314,7 +314,7 @@ mod tests {
     fn every_screen_and_the_help_draw_with_their_cautions() {
         let mut m = model();
         for (k, want) in [
-            ('2', "keep clear of propellers"),
+            ('2', "aviation rules"),
             ('3', "not guarantees"),
             ('4', "Preflight checklist"),
         ] {

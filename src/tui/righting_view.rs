@@ -14,6 +14,12 @@ use ratatui::style::Modifier;
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Paragraph, Row, Table, Wrap};
 
+/// Rounded degrees without a "-0".
+fn whole(x: f64) -> f64 {
+    let r = x.round();
+    if r == 0.0 { 0.0 } else { r }
+}
+
 /// Faces along a plan, start first.
 pub fn path_faces(plan: &Plan) -> Vec<usize> {
     let mut v = vec![plan.from];
@@ -127,7 +133,7 @@ pub fn righting(model: &Model, frame: &mut Frame, area: Rect) {
                         format!("{:.1}", s.angle_deg),
                         format!("{:.0}%", s.thrust_fraction * 100.0),
                         fid(s.to).to_string(),
-                        format!("{r:.0} {pi:.0} {y:.0}"),
+                        format!("{:.0} {:.0} {:.0}", whole(r), whole(pi), whole(y)),
                     ]);
                     if current == Some(k) {
                         row.style(t.accent.add_modifier(Modifier::REVERSED))

@@ -4,6 +4,12 @@
 
 use nalgebra::{Rotation3, Unit, UnitQuaternion, Vector3};
 
+/// Whole degrees for display, without a "-0" (a rounded -0.3 deg is 0).
+pub fn whole_deg(x: f64) -> f64 {
+    let r = x.round();
+    if r == 0.0 { 0.0 } else { r }
+}
+
 /// Rotation from Z-Y-X Euler angles in degrees: R = Rz(yaw) Ry(pitch) Rx(roll).
 pub fn rotation_from_rpy_deg(roll_deg: f64, pitch_deg: f64, yaw_deg: f64) -> Rotation3<f64> {
     // nalgebra applies roll, then pitch, then yaw: exactly Rz Ry Rx.

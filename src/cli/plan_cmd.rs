@@ -4,7 +4,7 @@
 //! a phone photo.
 
 use super::{ProfileArg, bad_input};
-use crate::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg};
+use crate::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg, whole_deg};
 use crate::cage::Cage;
 use crate::rest::{fit_face, resting_attitude};
 use crate::righting::{MoveKind, Plan, RightingModel};
@@ -22,12 +22,6 @@ fn write_caution(out: &mut impl Write) -> std::io::Result<()> {
         writeln!(out, "{line}")?;
     }
     Ok(())
-}
-
-/// Rounded degrees for the table, without a "-0".
-fn whole_deg(x: f64) -> f64 {
-    let r = x.round();
-    if r == 0.0 { 0.0 } else { r }
 }
 
 /// Plan the roll back to a take-off face.

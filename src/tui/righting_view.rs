@@ -2,7 +2,7 @@
 //! take-off face, on the net as numbered hinges and as a table, stepped by
 //! hand with Enter and verified against live attitude.
 
-use crate::attitude::rpy_deg;
+use crate::attitude::{rpy_deg, whole_deg};
 use crate::righting::stepper::Phase;
 use crate::righting::{MoveKind, Plan};
 use crate::tui::model::Model;
@@ -13,12 +13,6 @@ use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::Modifier;
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Paragraph, Row, Table, Wrap};
-
-/// Rounded degrees without a "-0".
-fn whole(x: f64) -> f64 {
-    let r = x.round();
-    if r == 0.0 { 0.0 } else { r }
-}
 
 /// Faces along a plan, start first.
 pub fn path_faces(plan: &Plan) -> Vec<usize> {
@@ -133,7 +127,12 @@ pub fn righting(model: &Model, frame: &mut Frame, area: Rect) {
                         format!("{:.1}", s.angle_deg),
                         format!("{:.0}%", s.thrust_fraction * 100.0),
                         fid(s.to).to_string(),
-                        format!("{:.0} {:.0} {:.0}", whole(r), whole(pi), whole(y)),
+                        format!(
+                            "{:.0} {:.0} {:.0}",
+                            whole_deg(r),
+                            whole_deg(pi),
+                            whole_deg(y)
+                        ),
                     ]);
                     if current == Some(k) {
                         row.style(t.accent.add_modifier(Modifier::REVERSED))

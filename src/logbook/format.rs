@@ -67,6 +67,10 @@ pub struct Parsed {
     pub sequence_warnings: Vec<Problem>,
     /// A torn or corrupt last line, to be set aside.
     pub tail: Option<TornTail>,
+    /// The line number of a last record that checks but has no newline
+    /// after it (e.g. lost in an edit or a merge under version control).
+    /// It is kept; the next append writes the missing newline first.
+    pub unterminated: Option<usize>,
 }
 
 impl Parsed {
@@ -240,13 +244,23 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
             continue;
         }
         let is_last = Some(idx) == last_nonempty;
-        let decoded = if *terminated {
-            decode_record(line)
-        } else {
-            Err("torn record: the line has no end (a write was cut short)".to_string())
-        };
+        // An unterminated line can only be the last. It is kept when its
+        // checksum and JSON hold (only its newline was lost); otherwise it
+        // is a write cut short.
+        let decoded = decode_record(line).map_err(|reason| {
+            if *terminated {
+                reason
+            } else {
+                format!("torn record: the line has no end (a write was cut short): {reason}")
+            }
+        });
         match decoded {
-            Ok(r) => out.records.push((*no, r)),
+            Ok(r) => {
+                if !*terminated {
+                    out.unterminated = Some(*no);
+                }
+                out.records.push((*no, r))
+            }
             Err(reason) if is_last => {
                 out.tail = Some(TornTail {
                     line: *no,
@@ -362,6 +376,28 @@ mod tests {
         assert_eq!(tail.line, 4);
         assert_eq!(tail.offset + tail.bytes.len(), bytes.len());
         assert!(tail.reason.contains("torn"));
+    }
+
+    #[test]
+    fn a_valid_last_line_without_its_newline_is_kept() {
+        // Pins: losing only the final newline (an edit, a merge) loses no
+        // record; it is noted, not torn. A changed byte in that line is torn.
+        let mut bytes = file(&[note(1, "a"), note(2, "b")]);
+        assert_eq!(bytes.pop(), Some(b'\n'));
+        let p = parse(&bytes).unwrap();
+        assert_eq!(p.records.len(), 2);
+        assert_eq!(p.tail, None);
+        assert!(p.problems.is_empty());
+        assert_eq!(p.unterminated, Some(3));
+        assert_eq!(p.next_seq(), 3);
+        let n = bytes.len();
+        bytes[n - 5] ^= 0x01;
+        let p = parse(&bytes).unwrap();
+        assert_eq!(p.records.len(), 1);
+        assert_eq!(p.unterminated, None);
+        let tail = p.tail.unwrap();
+        assert_eq!(tail.line, 3);
+        assert!(tail.reason.contains("torn"), "{}", tail.reason);
     }
 
     #[test]
@@ -565,7 +601,12 @@ mod tests {
             let bytes = file(&[note(1, "a"), note(2, "b"), note(3, "c")]);
             let cut = cut.min(bytes.len());
             let p = parse(&bytes[..cut]).unwrap();
-            let complete = bytes[..cut].iter().filter(|&&b| b == b'\n').count().saturating_sub(1);
+            let mut complete = bytes[..cut].iter().filter(|&&b| b == b'\n').count().saturating_sub(1);
+            // A cut just before a record's newline leaves that record whole.
+            let header_len = encode_header("kestrel-demo").len();
+            if cut > header_len && cut < bytes.len() && bytes[cut] == b'\n' {
+                complete += 1;
+            }
             prop_assert_eq!(p.records.len(), complete);
             prop_assert!(p.problems.is_empty());
         }

@@ -354,8 +354,7 @@ mod tests {
     use super::*;
     use crate::cage::Cage;
     use crate::logbook::{
-        FindingEvent, ImpactEvent, ImpactInputRecord, ImpactSource, MemberLoadRecord,
-        ReplacementEvent,
+        FindingEvent, ImpactEvent, ImpactSource, MemberLoadRecord, ReplacementEvent,
     };
     use crate::profile::Profile;
 
@@ -389,9 +388,9 @@ mod tests {
     fn impact(loads: &[(&str, f64)]) -> Event {
         Event::Impact(ImpactEvent {
             strike: StrikeRef::Face("F1".into()),
-            input: ImpactInputRecord::PeakAccel { g: 20.0 },
+            input: crate::impact::ImpactInput::PeakAccel { g: 20.0 },
             source: ImpactSource::Entered,
-            method: "peak_accel".into(),
+            method: crate::impact::ImpactMethod::MeasuredAcceleration,
             force_n: 150.0,
             residual_n: 1e-9,
             face_displacement_m: 0.004,

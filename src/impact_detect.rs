@@ -335,7 +335,7 @@ mod tests {
             None,
         );
         assert_eq!(ev.members.len(), c.members.len());
-        assert_eq!(ev.method, "measured_acceleration");
+        assert_eq!(ev.method, crate::impact::ImpactMethod::MeasuredAcceleration);
         let rec = Record {
             seq: 1,
             time: "2026-12-01T23:00:00.000Z".into(),

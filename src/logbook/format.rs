@@ -472,6 +472,74 @@ mod tests {
     }
 
     #[test]
+    fn a_fixed_log_written_by_format_1_reads_and_re_encodes_byte_for_byte() {
+        // Pins the on-disk form of impact records: these lines were written
+        // by format 1 when the log had its own copy of the input type and
+        // kept the method as a string. Every input variant and method must
+        // still read, with the same typed values, and encode to the same
+        // bytes (so the checksums of existing logs still hold).
+        use crate::impact::{ImpactInput, ImpactMethod};
+        let bytes = include_bytes!("../../tests/fixtures/logbook/format1-impacts.cagelog");
+        let p = parse(bytes).unwrap();
+        assert!(p.problems.is_empty() && p.tail.is_none() && p.unterminated.is_none());
+        assert_eq!(p.records.len(), 4);
+        let mut again = encode_header("kestrel-demo");
+        for (_, r) in &p.records {
+            again.push_str(&encode_record(r).unwrap());
+        }
+        assert_eq!(again.as_bytes(), &bytes[..]);
+        let impacts: Vec<&crate::logbook::ImpactEvent> = p
+            .records
+            .iter()
+            .filter_map(|(_, r)| match &r.event {
+                Event::Impact(i) => Some(i),
+                _ => None,
+            })
+            .collect();
+        assert_eq!(
+            impacts.iter().map(|i| i.method).collect::<Vec<_>>(),
+            [
+                ImpactMethod::EnergyBalance,
+                ImpactMethod::EnergyBalance,
+                ImpactMethod::MeasuredAcceleration,
+                ImpactMethod::HalfSinePulse
+            ]
+        );
+        assert_eq!(
+            impacts[0].input,
+            ImpactInput::Speed {
+                speed_m_per_s: 2.5,
+                surface: Some("grass".into())
+            }
+        );
+        assert_eq!(
+            impacts[1].input,
+            ImpactInput::Speed {
+                speed_m_per_s: 1.25,
+                surface: None
+            }
+        );
+        assert_eq!(impacts[2].input, ImpactInput::PeakAccel { g: 18.5 });
+        assert_eq!(
+            impacts[3].input,
+            ImpactInput::SpeedAndDuration {
+                speed_m_per_s: 3.0,
+                duration_s: 0.012
+            }
+        );
+        for m in [
+            ImpactMethod::MeasuredAcceleration,
+            ImpactMethod::EnergyBalance,
+            ImpactMethod::HalfSinePulse,
+        ] {
+            assert_eq!(
+                serde_json::to_string(&m).unwrap(),
+                format!("\"{}\"", m.name())
+            );
+        }
+    }
+
+    #[test]
     fn header_rules() {
         assert!(matches!(
             parse(b"hello\n"),
@@ -488,7 +556,8 @@ mod tests {
 
     #[test]
     fn non_finite_numbers_and_bad_times_are_refused_before_writing() {
-        use crate::logbook::{ImpactEvent, ImpactInputRecord, ImpactSource, StrikeRef};
+        use crate::impact::{ImpactInput, ImpactMethod};
+        use crate::logbook::{ImpactEvent, ImpactSource, StrikeRef};
         let mut r = note(1, "x");
         r.time = "yesterday".into();
         assert!(encode_record(&r).unwrap_err().contains("RFC 3339"));
@@ -496,9 +565,9 @@ mod tests {
         r = note(1, "x");
         r.event = Event::Impact(ImpactEvent {
             strike: StrikeRef::Face("F1".into()),
-            input: ImpactInputRecord::PeakAccel { g: 10.0 },
+            input: ImpactInput::PeakAccel { g: 10.0 },
             source: ImpactSource::Entered,
-            method: "measured_acceleration".into(),
+            method: ImpactMethod::MeasuredAcceleration,
             force_n: f64::NAN,
             residual_n: 0.0,
             face_displacement_m: 0.0,

@@ -465,6 +465,14 @@ impl Cage {
     }
 }
 
+/// The demo profile and its cage, for tests across the crate.
+#[cfg(test)]
+pub(crate) fn demo_cage() -> (Profile, Cage) {
+    let p = Profile::demo().expect("demo profile");
+    let c = Cage::from_profile(&p).expect("demo cage");
+    (p, c)
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;

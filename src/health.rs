@@ -192,10 +192,16 @@ pub fn assess(records: &[Record], cage: &Cage, rules: &Inspection) -> HealthRepo
                         continue;
                     };
                     let u = load.utilisation.abs();
+                    let a = &mut acc[i];
                     if !u.is_finite() {
+                        // Unknown load: assume the worst rather than skip it.
+                        a.impacts += 1;
+                        a.overloads.push(format!(
+                            "record {}: utilisation not a number ({what}, {when}): replace before flying",
+                            r.seq
+                        ));
                         continue;
                     }
-                    let a = &mut acc[i];
                     a.impacts += 1;
                     a.max_u = a.max_u.max(u);
                     if u >= rules.overload_utilisation {
@@ -348,8 +354,7 @@ mod tests {
     use super::*;
     use crate::cage::Cage;
     use crate::logbook::{
-        FindingEvent, ImpactEvent, ImpactInputRecord, ImpactSource, MemberLoadRecord,
-        ReplacementEvent,
+        FindingEvent, ImpactEvent, ImpactSource, MemberLoadRecord, ReplacementEvent,
     };
     use crate::profile::Profile;
 
@@ -383,9 +388,9 @@ mod tests {
     fn impact(loads: &[(&str, f64)]) -> Event {
         Event::Impact(ImpactEvent {
             strike: StrikeRef::Face("F1".into()),
-            input: ImpactInputRecord::PeakAccel { g: 20.0 },
+            input: crate::impact::ImpactInput::PeakAccel { g: 20.0 },
             source: ImpactSource::Entered,
-            method: "peak_accel".into(),
+            method: crate::impact::ImpactMethod::MeasuredAcceleration,
             force_n: 150.0,
             residual_n: 1e-9,
             face_displacement_m: 0.004,
@@ -497,6 +502,29 @@ mod tests {
         assert_eq!(get(&h, "S4").status, Status::Due);
         assert_eq!(h.worst(), Status::ReplaceNow);
         assert_eq!(h.to_act_on()[0].id, "R2");
+    }
+
+    #[test]
+    fn a_non_finite_utilisation_is_replace_now() {
+        // Pins: a record whose utilisation is NaN or infinite is not skipped
+        // but errs on the safe side: REPLACE NOW, with the record named.
+        let (_, cage) = crate::cage::demo_cage();
+        for bad in [f64::NAN, f64::INFINITY, f64::NEG_INFINITY] {
+            let h = assess(
+                &log(vec![impact(&[("R1", 0.1)]), impact(&[("S3", bad)])]),
+                &cage,
+                &rules(),
+            );
+            let s3 = get(&h, "S3");
+            assert_eq!(s3.status, Status::ReplaceNow, "{bad}");
+            assert!(
+                s3.reasons[0].contains("record 2: utilisation not a number"),
+                "{:?}",
+                s3.reasons
+            );
+            assert!(s3.damage.is_finite() && s3.max_utilisation.is_finite());
+            assert_eq!(get(&h, "R1").status, Status::Ok);
+        }
     }
 
     #[test]

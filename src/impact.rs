@@ -63,7 +63,27 @@ pub enum ImpactInput {
     },
 }
 
-/// How the peak force was estimated.
+impl std::fmt::Display for ImpactInput {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        match self {
+            ImpactInput::Speed {
+                speed_m_per_s,
+                surface,
+            } => match surface {
+                Some(s) => write!(f, "{speed_m_per_s} m/s on {s}"),
+                None => write!(f, "{speed_m_per_s} m/s"),
+            },
+            ImpactInput::PeakAccel { g } => write!(f, "peak {g} g"),
+            ImpactInput::SpeedAndDuration {
+                speed_m_per_s,
+                duration_s,
+            } => write!(f, "{speed_m_per_s} m/s over {duration_s} s"),
+        }
+    }
+}
+
+/// How the peak force was estimated. Its serde form (snake_case) is what
+/// the cage log stores.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
 #[serde(rename_all = "snake_case")]
 pub enum ImpactMethod {
@@ -73,6 +93,23 @@ pub enum ImpactMethod {
     EnergyBalance,
     /// Impulse over a stated contact duration, half-sine peak.
     HalfSinePulse,
+}
+
+impl ImpactMethod {
+    /// The snake_case name, as the log stores it.
+    pub fn name(self) -> &'static str {
+        match self {
+            ImpactMethod::MeasuredAcceleration => "measured_acceleration",
+            ImpactMethod::EnergyBalance => "energy_balance",
+            ImpactMethod::HalfSinePulse => "half_sine_pulse",
+        }
+    }
+}
+
+impl std::fmt::Display for ImpactMethod {
+    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
+        f.write_str(self.name())
+    }
 }
 
 /// The force in one member and how much of its capacity it uses.

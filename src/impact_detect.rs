@@ -25,6 +25,14 @@
 //! One proposal per event: samples above the threshold closer together than
 //! the refractory period (bounces, ringing) are one event, and its proposal
 //! comes once the signal has stayed below the threshold that long.
+//!
+//! The clock is the samples' own (`t_s`, the sender's), so a recording
+//! replays exactly as it was detected live. That clock restarts when the
+//! vehicle reboots; a sample earlier than the open event's last one
+//! therefore ends the event at once (its proposal comes with that sample),
+//! rather than leaving it open until the new clock catches up. Samples out
+//! of order by a little split an event in two at worst: one extra proposal
+//! for the operator to dismiss, never a lost one.
 
 use crate::cage::Cage;
 use crate::sample::{STANDARD_GRAVITY_M_S2, Sample};
@@ -120,7 +128,7 @@ impl ImpactDetector {
         }
         let mut done = None;
         if let Some(a) = &self.active
-            && s.t_s - a.last_above_t_s >= self.refractory_s
+            && (s.t_s < a.last_above_t_s || s.t_s - a.last_above_t_s >= self.refractory_s)
         {
             done = self.finish();
         }
@@ -202,11 +210,10 @@ impl ImpactDetector {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::profile::Profile;
 
     fn cage() -> (Cage, f64) {
-        let p = Profile::demo().unwrap();
-        (Cage::from_profile(&p).unwrap(), p.impact.detect_threshold_g)
+        let (p, c) = crate::cage::demo_cage();
+        (c, p.impact.detect_threshold_g)
     }
 
     fn sample(t: f64, accel: Vector3<f64>) -> Sample {
@@ -310,8 +317,7 @@ mod tests {
     #[test]
     fn a_confirmed_proposal_becomes_a_stored_impact_health_can_use() {
         use crate::logbook::{Event, ImpactEvent, ImpactSource, Record, StrikeRef};
-        let p = Profile::demo().unwrap();
-        let c = Cage::from_profile(&p).unwrap();
+        let (p, c) = crate::cage::demo_cage();
         let mut d = ImpactDetector::new(&c, p.impact.detect_threshold_g, 0.2);
         d.push(&sample(0.0, -c.faces[4].normal_body * 30.0 * G));
         let proposal = d.finish().unwrap();
@@ -329,7 +335,7 @@ mod tests {
             None,
         );
         assert_eq!(ev.members.len(), c.members.len());
-        assert_eq!(ev.method, "measured_acceleration");
+        assert_eq!(ev.method, crate::impact::ImpactMethod::MeasuredAcceleration);
         let rec = Record {
             seq: 1,
             time: "2026-12-01T23:00:00.000Z".into(),
@@ -350,6 +356,29 @@ mod tests {
             .map(|m| m.max_utilisation)
             .fold(0.0, f64::max);
         assert_eq!(reported, worst);
+    }
+
+    #[test]
+    fn a_clock_that_goes_backwards_closes_the_open_event() {
+        // Pins: the vehicle reboots mid-event, its clock restarts near zero;
+        // the open event is proposed with the first sample of the new clock
+        // instead of staying open until the new clock passes the old one.
+        let (c, thr) = cage();
+        let n = c.faces[2].normal_body;
+        let mut d = ImpactDetector::new(&c, thr, 0.3);
+        assert!(d.push(&sample(500.00, -n * 14.0 * G)).is_none());
+        assert!(d.push(&sample(500.01, -n * 3.0 * G)).is_none());
+        // Reboot: quiet samples on the restarted clock.
+        let p = d.push(&sample(0.05, Vector3::new(0.0, 0.0, -G))).unwrap();
+        assert_eq!(p.face, 2);
+        assert_eq!(p.t_s, 500.0);
+        approx::assert_relative_eq!(p.peak_g, 14.0, epsilon = 1e-9);
+        // Nothing left open, and a new impact on the new clock is its own.
+        assert!(d.push(&sample(0.10, Vector3::new(0.0, 0.0, -G))).is_none());
+        assert!(d.push(&sample(1.00, -n * 9.0 * G)).is_none());
+        let q = d.push(&sample(1.50, Vector3::new(0.0, 0.0, -G))).unwrap();
+        approx::assert_relative_eq!(q.peak_g, 9.0, epsilon = 1e-9);
+        assert!(d.finish().is_none());
     }
 
     #[test]

@@ -40,6 +40,7 @@
 //! The parsing and encoding are pure ([`format`](mod@format)); the file handling is in
 //! [`store`](mod@store).
 
+use crate::impact::{ImpactInput, ImpactMethod};
 use serde::{Deserialize, Serialize};
 
 pub mod export;
@@ -170,51 +171,6 @@ impl std::fmt::Display for StrikeRef {
     }
 }
 
-/// What the impact analysis was given. Stored in the log's own terms so the
-/// format does not change when the solver's types do.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
-#[serde(rename_all = "snake_case")]
-pub enum ImpactInputRecord {
-    /// Speed just before contact, and the ground surface preset.
-    Speed {
-        /// Approach speed.
-        speed_m_per_s: f64,
-        /// Surface preset name (the profile's default when none).
-        surface: Option<String>,
-    },
-    /// Peak acceleration measured by the IMU.
-    PeakAccel {
-        /// Peak, in standard gravities.
-        g: f64,
-    },
-    /// Speed and contact duration (half-sine pulse).
-    SpeedAndDuration {
-        /// Approach speed.
-        speed_m_per_s: f64,
-        /// Contact duration.
-        duration_s: f64,
-    },
-}
-
-impl std::fmt::Display for ImpactInputRecord {
-    fn fmt(&self, f: &mut std::fmt::Formatter<'_>) -> std::fmt::Result {
-        match self {
-            ImpactInputRecord::Speed {
-                speed_m_per_s,
-                surface,
-            } => match surface {
-                Some(s) => write!(f, "{speed_m_per_s} m/s on {s}"),
-                None => write!(f, "{speed_m_per_s} m/s"),
-            },
-            ImpactInputRecord::PeakAccel { g } => write!(f, "peak {g} g"),
-            ImpactInputRecord::SpeedAndDuration {
-                speed_m_per_s,
-                duration_s,
-            } => write!(f, "{speed_m_per_s} m/s over {duration_s} s"),
-        }
-    }
-}
-
 /// Whether an impact was typed in or proposed from live acceleration.
 #[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "snake_case")]
@@ -244,13 +200,14 @@ pub struct MemberLoadRecord {
 pub struct ImpactEvent {
     /// Face or node struck.
     pub strike: StrikeRef,
-    /// What the analysis was given.
-    pub input: ImpactInputRecord,
+    /// What the analysis was given (the solver's own type; its serde form
+    /// is part of the log format, pinned by a fixture test).
+    pub input: ImpactInput,
     /// Entered or detected.
     #[serde(default)]
     pub source: ImpactSource,
-    /// How the peak force was estimated (the solver's method name).
-    pub method: String,
+    /// How the peak force was estimated (stored by its snake_case name).
+    pub method: ImpactMethod,
     /// Peak contact force.
     pub force_n: f64,
     /// Equilibrium residual of the solution.
@@ -268,38 +225,15 @@ pub struct ImpactEvent {
 }
 
 impl ImpactEvent {
-    /// The stored form of an impact analysis: member indices become ids,
-    /// the solver's input and method become the log's own terms.
+    /// The stored form of an impact analysis: member indices become ids.
     pub fn from_analysis(
         cage: &crate::cage::Cage,
         strike: StrikeRef,
-        input: &crate::impact::ImpactInput,
+        input: &ImpactInput,
         a: &crate::impact::ImpactAnalysis,
         source: ImpactSource,
         note: Option<String>,
     ) -> ImpactEvent {
-        use crate::impact::ImpactInput;
-        let input = match input {
-            ImpactInput::Speed {
-                speed_m_per_s,
-                surface,
-            } => ImpactInputRecord::Speed {
-                speed_m_per_s: *speed_m_per_s,
-                surface: surface.clone(),
-            },
-            ImpactInput::PeakAccel { g } => ImpactInputRecord::PeakAccel { g: *g },
-            ImpactInput::SpeedAndDuration {
-                speed_m_per_s,
-                duration_s,
-            } => ImpactInputRecord::SpeedAndDuration {
-                speed_m_per_s: *speed_m_per_s,
-                duration_s: *duration_s,
-            },
-        };
-        let method = serde_json::to_value(a.method)
-            .ok()
-            .and_then(|v| v.as_str().map(str::to_string))
-            .unwrap_or_else(|| format!("{:?}", a.method));
         let id = |j: usize| {
             cage.members
                 .get(j)
@@ -308,9 +242,9 @@ impl ImpactEvent {
         };
         ImpactEvent {
             strike,
-            input,
+            input: input.clone(),
             source,
-            method,
+            method: a.method,
             force_n: a.force_n,
             residual_n: a.residual_n,
             face_displacement_m: a.face_displacement_m,
@@ -468,11 +402,11 @@ impl Record {
                 ("face_displacement_m", i.face_displacement_m),
             ];
             match &i.input {
-                ImpactInputRecord::Speed { speed_m_per_s, .. } => {
+                ImpactInput::Speed { speed_m_per_s, .. } => {
                     nums.push(("speed_m_per_s", *speed_m_per_s))
                 }
-                ImpactInputRecord::PeakAccel { g } => nums.push(("g", *g)),
-                ImpactInputRecord::SpeedAndDuration {
+                ImpactInput::PeakAccel { g } => nums.push(("g", *g)),
+                ImpactInput::SpeedAndDuration {
                     speed_m_per_s,
                     duration_s,
                 } => {

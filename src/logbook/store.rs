@@ -90,6 +90,9 @@ pub struct OpenReport {
     pub torn_tail: Option<TornTail>,
     /// The header names another vehicle.
     pub other_vehicle: Option<String>,
+    /// The line of a last record that checks but lost its newline; it is
+    /// kept, and the next append writes the newline first.
+    pub unterminated: Option<usize>,
 }
 
 impl OpenReport {
@@ -116,6 +119,11 @@ impl OpenReport {
                 s.bytes,
                 s.reason,
                 s.side_path.display()
+            ));
+        }
+        if let Some(line) = self.unterminated {
+            out.push(format!(
+                "{p}:{line}: note: the last record has no line end (edited or merged?); it checks and is kept, and the next write adds the line end"
             ));
         }
         if let Some(t) = &self.torn_tail {
@@ -155,6 +163,9 @@ pub struct Logbook {
     records: Vec<Record>,
     len: u64,
     next_seq: u64,
+    /// The file ends in a record without its newline: the next append
+    /// writes it first, in the same single write.
+    needs_newline: bool,
 }
 
 fn io(action: &'static str, path: &Path) -> impl FnOnce(std::io::Error) -> StoreError + use<> {
@@ -239,6 +250,7 @@ impl Logbook {
             records: Vec::new(),
             len: 0,
             next_seq: 1,
+            needs_newline: false,
         };
         let Some(f) = file.as_mut() else {
             report.new_file = true;
@@ -260,6 +272,8 @@ impl Logbook {
         }
         report.problems = parsed.problems;
         report.sequence_warnings = parsed.sequence_warnings;
+        report.unterminated = parsed.unterminated;
+        book.needs_newline = parsed.unterminated.is_some();
         book.records = parsed.records.into_iter().map(|(_, r)| r).collect();
         if let Some(tail) = parsed.tail {
             match access {
@@ -335,6 +349,8 @@ impl Logbook {
         let creating = self.len == 0;
         let mut buf = if creating {
             format::encode_header(&self.vehicle)
+        } else if self.needs_newline {
+            "\n".to_string()
         } else {
             String::new()
         };
@@ -357,6 +373,7 @@ impl Logbook {
             }
         }
         self.len += buf.len() as u64;
+        self.needs_newline = false;
         self.next_seq += 1;
         self.records.push(record.clone());
         Ok(record)
@@ -435,6 +452,68 @@ mod tests {
         let (b, r) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
         assert_eq!(r, OpenReport::default());
         assert_eq!(b.records().len(), 2);
+    }
+
+    #[test]
+    fn a_valid_last_record_without_newline_is_kept_and_the_next_append_ends_it() {
+        // Pins: a last line that lost only its newline (an edit or a merge
+        // under version control) is kept on read and on write open, nothing
+        // is set aside, and the next append writes "\n" before its record.
+        let dir = tempfile::tempdir().unwrap();
+        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let now = jiff::Timestamp::now();
+        b.append("ana", now, note("one")).unwrap();
+        b.append("ana", now, note("two")).unwrap();
+        drop(b);
+        let path = dir.path().join("v.cagelog");
+        let full = std::fs::read(&path).unwrap();
+        assert_eq!(full.last(), Some(&b'\n'));
+        std::fs::write(&path, &full[..full.len() - 1]).unwrap();
+
+        let (rb, rr) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
+        assert_eq!(rb.records().len(), 2);
+        assert_eq!(rr.torn_tail, None);
+        assert_eq!(rr.unterminated, Some(3));
+        assert!(rr.messages(&path)[0].contains("kept"));
+        drop(rb);
+
+        let (mut b, r) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        assert_eq!(r.set_aside, None);
+        assert_eq!(r.unterminated, Some(3));
+        assert_eq!(b.records().len(), 2);
+        let mut side = path.as_os_str().to_owned();
+        side.push(".set-aside");
+        assert!(!PathBuf::from(side).exists());
+        assert_eq!(b.append("ana", now, note("three")).unwrap().seq, 3);
+        drop(b);
+
+        let text = std::fs::read(&path).unwrap();
+        assert_eq!(&text[..full.len()], &full[..], "the newline was restored");
+        let (b, r) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
+        assert_eq!(r, OpenReport::default());
+        let seqs: Vec<u64> = b.records().iter().map(|r| r.seq).collect();
+        assert_eq!(seqs, [1, 2, 3]);
+    }
+
+    #[test]
+    fn an_unterminated_last_line_that_fails_its_checksum_is_still_set_aside() {
+        // Pins: only a last line whose checksum (or JSON) fails is torn.
+        let dir = tempfile::tempdir().unwrap();
+        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let now = jiff::Timestamp::now();
+        b.append("ana", now, note("one")).unwrap();
+        b.append("ana", now, note("two")).unwrap();
+        drop(b);
+        let path = dir.path().join("v.cagelog");
+        let mut bytes = std::fs::read(&path).unwrap();
+        bytes.pop();
+        let n = bytes.len();
+        bytes[n - 1] = if bytes[n - 1] == b'0' { b'1' } else { b'0' };
+        std::fs::write(&path, &bytes).unwrap();
+        let (b, r) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        assert_eq!(b.records().len(), 1);
+        assert_eq!(r.unterminated, None);
+        assert_eq!(r.set_aside.map(|s| s.line), Some(3));
     }
 
     #[test]

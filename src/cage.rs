@@ -437,33 +437,54 @@ impl Cage {
             .map(|(mi, n)| n.pos_body * *mi)
             .sum();
         let payload_moment = self.com_body * profile.vehicle.mass_kg - rods_moment;
-        let k = carriers.len();
-        let a = DMatrix::from_fn(4, k, |r, c| match r {
-            0 => 1.0,
-            _ => self.nodes[carriers[c]].pos_body[r - 1],
-        });
         let b = DVector::from_column_slice(&[
             rest,
             payload_moment.x,
             payload_moment.y,
             payload_moment.z,
         ]);
-        let even = DVector::from_element(k, rest / k as f64);
         let size = self.size_m().max(1e-9);
-        let w = match a.clone().svd(true, true).solve(&(&b - &a * &even), 1e-12 * size) {
-            Ok(dw) => even + dw,
-            Err(_) => return Err(refuse()),
-        };
-        // The payload nodes must be able to place the centre at all (they
-        // may lie in a plane the centre is off) and without negative mass.
         let tol = 1e-9 * profile.vehicle.mass_kg;
-        if (&a * &w - &b).norm() > tol * size || w.iter().any(|&wi| wi < -tol) {
-            return Err(refuse());
+        // Least-norm correction of the even spread; a node it would give a
+        // negative mass is set to zero and the rest solved again (at most
+        // once per node). Refused when no carriers are left or the centre
+        // cannot be met (e.g. the carriers lie in a plane it is off).
+        let mut free = carriers.clone();
+        for _ in 0..=carriers.len() {
+            let k = free.len();
+            if k == 0 {
+                break;
+            }
+            let a = DMatrix::from_fn(4, k, |r, c| match r {
+                0 => 1.0,
+                _ => self.nodes[free[c]].pos_body[r - 1],
+            });
+            let even = DVector::from_element(k, rest / k as f64);
+            let Ok(dw) = a
+                .clone()
+                .svd(true, true)
+                .solve(&(&b - &a * &even), 1e-12 * size)
+            else {
+                break;
+            };
+            let w = even + dw;
+            if (&a * &w - &b).norm() > tol * size {
+                break;
+            }
+            if w.iter().all(|&wi| wi >= -tol) {
+                for (&i, wi) in free.iter().zip(w.iter()) {
+                    m[i] += wi.max(0.0);
+                }
+                return Ok(m);
+            }
+            free = free
+                .iter()
+                .zip(w.iter())
+                .filter(|&(_, &wi)| wi >= -tol)
+                .map(|(&i, _)| i)
+                .collect();
         }
-        for (&i, wi) in carriers.iter().zip(w.iter()) {
-            m[i] += wi.max(0.0);
-        }
-        Ok(m)
+        Err(refuse())
     }
 
     /// Index of a node id.

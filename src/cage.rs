@@ -17,7 +17,7 @@
 use crate::attitude::{angle_between_deg, rotation_from_rpy_deg};
 use crate::hull::{Hull, HullError};
 use crate::profile::{CageShape, Profile, TakeoffFaces};
-use nalgebra::{Rotation3, Vector3};
+use nalgebra::{DMatrix, DVector, Rotation3, Vector3};
 use serde::Serialize;
 
 /// Why a cage could not be built from a valid profile.
@@ -35,6 +35,17 @@ pub enum CageError {
         rods_kg: f64,
         /// Vehicle mass.
         mass_kg: f64,
+    },
+    /// The payload nodes cannot carry the payload with the lumped centre at
+    /// the vehicle's centre of mass without a negative nodal mass.
+    #[error(
+        "vehicle.com_m {com_m:?} cannot be the centre of the lumped masses: the payload nodes {nodes:?} would need a negative (or impossible) share of the payload; name payload nodes around the centre of mass, or none to use them all"
+    )]
+    PayloadCannotCarryCom {
+        /// The profile's centre of mass (cage frame).
+        com_m: [f64; 3],
+        /// Ids of the payload nodes.
+        nodes: Vec<String>,
     },
     /// A take-off face id the cage does not have.
     #[error("righting.takeoff_faces: {0} is not a face of this cage (it has F1..F{1})")]
@@ -380,8 +391,13 @@ impl Cage {
         Ok(cage)
     }
 
-    /// Rod mass split to the rod ends; the rest of the vehicle mass spread
-    /// evenly over the payload nodes (all nodes when none are named).
+    /// Rod mass split to the rod ends; the rest of the vehicle mass on the
+    /// payload nodes (all nodes when none are named), placed so the lumped
+    /// masses add up to the vehicle mass with their centre at the profile's
+    /// centre of mass: the even spread, corrected by the least-norm change
+    /// that meets sum w = M_payload and sum w x_i = M_payload c_payload.
+    /// The d'Alembert rotation in an impact is taken about this centre, so
+    /// it must be the vehicle's.
     fn lumped_masses(&self, profile: &Profile) -> Result<Vec<f64>, CageError> {
         let mut m = vec![0.0; self.nodes.len()];
         let mut rods_kg = 0.0;
@@ -407,10 +423,68 @@ impl Cage {
                 .filter_map(|id| self.node_index(id))
                 .collect()
         };
-        for &i in &carriers {
-            m[i] += rest / carriers.len() as f64;
+        let refuse = || CageError::PayloadCannotCarryCom {
+            com_m: profile.vehicle.com_m,
+            nodes: carriers.iter().map(|&i| self.nodes[i].id.clone()).collect(),
+        };
+        if carriers.is_empty() {
+            return Err(refuse());
         }
-        Ok(m)
+        // Target first moment of the payload: the vehicle's less the rods'.
+        let rods_moment: Vector3<f64> = m
+            .iter()
+            .zip(&self.nodes)
+            .map(|(mi, n)| n.pos_body * *mi)
+            .sum();
+        let payload_moment = self.com_body * profile.vehicle.mass_kg - rods_moment;
+        let b = DVector::from_column_slice(&[
+            rest,
+            payload_moment.x,
+            payload_moment.y,
+            payload_moment.z,
+        ]);
+        let size = self.size_m().max(1e-9);
+        let tol = 1e-9 * profile.vehicle.mass_kg;
+        // Least-norm correction of the even spread; a node it would give a
+        // negative mass is set to zero and the rest solved again (at most
+        // once per node). Refused when no carriers are left or the centre
+        // cannot be met (e.g. the carriers lie in a plane it is off).
+        let mut free = carriers.clone();
+        for _ in 0..=carriers.len() {
+            let k = free.len();
+            if k == 0 {
+                break;
+            }
+            let a = DMatrix::from_fn(4, k, |r, c| match r {
+                0 => 1.0,
+                _ => self.nodes[free[c]].pos_body[r - 1],
+            });
+            let even = DVector::from_element(k, rest / k as f64);
+            let Ok(dw) = a
+                .clone()
+                .svd(true, true)
+                .solve(&(&b - &a * &even), 1e-12 * size)
+            else {
+                break;
+            };
+            let w = even + dw;
+            if (&a * &w - &b).norm() > tol * size {
+                break;
+            }
+            if w.iter().all(|&wi| wi >= -tol) {
+                for (&i, wi) in free.iter().zip(w.iter()) {
+                    m[i] += wi.max(0.0);
+                }
+                return Ok(m);
+            }
+            free = free
+                .iter()
+                .zip(w.iter())
+                .filter(|&(_, &wi)| wi >= -tol)
+                .map(|(&i, _)| i)
+                .collect();
+        }
+        Err(refuse())
     }
 
     /// Index of a node id.
@@ -525,5 +599,48 @@ mod tests {
         }
         assert_eq!(c.faces[0].id, "F1");
         assert!(c.faces[0].tilt_deg < 1e-6, "demo mount puts a face level");
+    }
+
+    #[test]
+    fn lumped_masses_carry_the_vehicle_mass_at_its_centre() {
+        // Definition of the centre of mass (common practice, no published
+        // source): sum m_i = M and sum m_i x_i = M c, c the profile's com_m
+        // turned into the body frame by the mount.
+        let prism = Profile::parse(
+            include_str!("../profiles/prism-explicit.toml"),
+            "prism-explicit.toml",
+        )
+        .unwrap();
+        assert!(!prism.payload_nodes.is_empty());
+        for p in [Profile::demo().unwrap(), prism] {
+            let c = Cage::from_profile(&p).unwrap();
+            let total: f64 = c.node_mass_kg.iter().sum();
+            assert_relative_eq!(total, p.vehicle.mass_kg, epsilon = 1e-12);
+            let moment: Vector3<f64> = c
+                .nodes
+                .iter()
+                .zip(&c.node_mass_kg)
+                .map(|(n, m)| n.pos_body * *m)
+                .sum();
+            let com = c.mount * Vector3::from(p.vehicle.com_m);
+            assert_relative_eq!(moment / total, com, epsilon = 1e-12);
+            assert!(c.node_mass_kg.iter().all(|&m| m >= 0.0));
+        }
+    }
+
+    #[test]
+    fn payload_nodes_that_cannot_hold_the_centre_are_refused() {
+        // The prism's bottom ring lies in a plane 9 cm below the centre of
+        // mass: no positive masses on it put the centre there.
+        let text = include_str!("../profiles/prism-explicit.toml").replace(
+            r#"payload_nodes = ["N1", "N2", "N3", "N4", "N5", "N6"]"#,
+            r#"payload_nodes = ["N1", "N2", "N3"]"#,
+        );
+        let p = Profile::parse(&text, "prism").unwrap();
+        assert_eq!(p.payload_nodes.len(), 3);
+        let e = Cage::from_profile(&p).unwrap_err();
+        assert!(matches!(e, CageError::PayloadCannotCarryCom { .. }), "{e}");
+        let msg = e.to_string();
+        assert!(msg.contains("com_m") && msg.contains("N1"), "{msg}");
     }
 }

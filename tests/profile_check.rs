@@ -82,6 +82,30 @@ const BAD: &[(&str, &str, &str, &str)] = &[
         "vehicle.com_m",
         "inside the cage",
     ),
+    (
+        "zero-pretension.toml",
+        ":76:16:",
+        "cage.string_section.pretension_n",
+        "impacts cannot be solved",
+    ),
+    (
+        "zero-inspect.toml",
+        ":112:18:",
+        "inspection.inspect_damage",
+        "above 0",
+    ),
+    (
+        "inspect-above-due.toml",
+        ":112:18:",
+        "inspection.inspect_damage",
+        "inspect 0.8 > due 0.5",
+    ),
+    (
+        "zero-count-limit.toml",
+        ":112:22:",
+        "inspection.string_count_limit",
+        "at least 1",
+    ),
     ("bad-toml.toml", ":3:9:", "", "expected `]`"),
 ];
 
@@ -132,4 +156,15 @@ fn a_missing_file_is_bad_input_not_a_crash() {
     let (code, _, stderr) = check("no-such-file.toml");
     assert_eq!(code, 2);
     assert!(stderr.contains("cannot read profile"), "{stderr}");
+}
+
+#[test]
+fn payload_nodes_off_the_centre_of_mass_are_refused() {
+    let (code, stdout, stderr) = check("payload-off-com.toml");
+    assert_eq!(code, 2, "{stderr}");
+    assert!(stdout.is_empty());
+    for part in ["vehicle.com_m", "payload nodes", "\"N1\", \"N2\", \"N3\""] {
+        assert!(stderr.contains(part), "'{part}' in {stderr}");
+    }
+    assert_eq!(stderr.lines().count(), 1, "{stderr}");
 }

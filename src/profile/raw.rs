@@ -208,7 +208,7 @@ struct RawInspection {
     #[serde(default = "sn_string")]
     sn_exponent_string: S<f64>,
     #[serde(default = "count_limit")]
-    string_count_limit: u32,
+    string_count_limit: S<u32>,
     #[serde(default = "count_util")]
     string_count_utilisation: S<f64>,
 }
@@ -307,8 +307,8 @@ fn sn_rod() -> S<f64> {
 fn sn_string() -> S<f64> {
     sp(6.0)
 }
-fn count_limit() -> u32 {
-    20
+fn count_limit() -> S<u32> {
+    Spanned::new(0..0, 20)
 }
 fn count_util() -> S<f64> {
     sp(0.5)
@@ -406,7 +406,21 @@ pub(super) fn validate(raw: RawProfile, v: &Validator) -> Result<Profile, Profil
             1e-6,
             1.0,
         )?,
-        pretension_n: v.non_negative(&ss.pretension_n, "cage.string_section.pretension_n")?,
+        pretension_n: {
+            let x = *ss.pretension_n.get_ref();
+            if x.is_finite() && x > 0.0 {
+                x
+            } else {
+                // Without prestress the tensegrity's mechanism has no
+                // stiffness and no impact on it can be solved.
+                return Err(v.invalid(
+                    ss.pretension_n.span(),
+                    "cage.string_section.pretension_n",
+                    "a positive pretension (with none the cage's mechanism is unstiffened and impacts cannot be solved)",
+                    fmt_num(x),
+                ));
+            }
+        },
     };
 
     let shape = cage_shape(&cage, cage_span.clone(), v)?;
@@ -580,6 +594,7 @@ pub(super) fn validate(raw: RawProfile, v: &Validator) -> Result<Profile, Profil
         },
     };
 
+    let raw_inspect_damage = inspection.inspect_damage.clone();
     let inspection = Inspection {
         overload_utilisation: v.within(
             &inspection.overload_utilisation,
@@ -612,7 +627,18 @@ pub(super) fn validate(raw: RawProfile, v: &Validator) -> Result<Profile, Profil
             1.0,
             100.0,
         )?,
-        string_count_limit: inspection.string_count_limit,
+        string_count_limit: {
+            let n = *inspection.string_count_limit.get_ref();
+            if n == 0 {
+                return Err(v.invalid(
+                    inspection.string_count_limit.span(),
+                    "inspection.string_count_limit",
+                    "a count of at least 1",
+                    "0",
+                ));
+            }
+            n
+        },
         string_count_utilisation: v.within(
             &inspection.string_count_utilisation,
             "inspection.string_count_utilisation",
@@ -620,9 +646,17 @@ pub(super) fn validate(raw: RawProfile, v: &Validator) -> Result<Profile, Profil
             10.0,
         )?,
     };
+    if *raw_inspect_damage.get_ref() <= 0.0 {
+        return Err(v.invalid(
+            raw_inspect_damage.span(),
+            "inspection.inspect_damage",
+            "an inspect level above 0 (at 0 every member would be flagged)",
+            fmt_num(*raw_inspect_damage.get_ref()),
+        ));
+    }
     if inspection.inspect_damage > inspection.due_damage {
         return Err(v.invalid(
-            cage_span.start..cage_span.start,
+            raw_inspect_damage.span(),
             "inspection.inspect_damage",
             "an inspect level not above the due level",
             format!(

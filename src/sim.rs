@@ -566,7 +566,10 @@ mod tests {
         run(&mut sim, 12.0);
         let from = sim.resting_face().expect("resting");
         let to = sim.neighbours[from][0];
-        assert_eq!(sim.command(&SimCommand::Roll(c.faces[to].id.clone())), Ok(()));
+        assert_eq!(
+            sim.command(&SimCommand::Roll(c.faces[to].id.clone())),
+            Ok(())
+        );
         run(&mut sim, 3.0);
         assert!(sim.last_roll().is_some());
         assert_eq!(sim.command(&SimCommand::Fly), Ok(()));

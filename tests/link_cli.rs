@@ -333,11 +333,15 @@ fn silence_in_a_raw_capture_shows_stale() {
         stale.iter().any(|&t| t > 3.18 + 1.5 && t < 9.0),
         "no stale line inside the gap: {stale:?}"
     );
-    assert!(stale.iter().all(|&t| !(2.3..=3.18 + 1.5).contains(&t)), "{stale:?}");
+    assert!(
+        stale.iter().all(|&t| !(2.3..=3.18 + 1.5).contains(&t)),
+        "{stale:?}"
+    );
     let states = &summary(&out)["states_seen"];
     assert!(
-        states.as_array().is_some_and(|a| a.contains(&"stale".into())
-            && a.contains(&"resting".into())),
+        states
+            .as_array()
+            .is_some_and(|a| a.contains(&"stale".into()) && a.contains(&"resting".into())),
         "{states}"
     );
     let last = &out[out.len() - 2];

@@ -247,7 +247,7 @@ impl Sim {
         }
     }
 
-    /// The last roll's (planned, landed) faces.
+    /// The last roll's (planned, landed) faces; None after a flight.
     pub fn last_roll(&self) -> Option<(usize, usize)> {
         self.last_roll
     }
@@ -261,20 +261,24 @@ impl Sim {
         // ids, neighbour lists), all below the face count.
         match cmd {
             SimCommand::Fly => {
+                // A flight ends in a tumble, not a roll: nothing is planned.
+                self.last_roll = None;
                 self.arm();
                 self.phase = Phase::Climb { t0: self.t_s };
                 Ok(())
             }
             SimCommand::Roll(id) => {
+                // Face ids are matched without regard to case, as `plan
+                // --from` does: `roll f3` is `roll F3`.
                 let to = self
                     .ids
                     .iter()
-                    .position(|f| f == id)
+                    .position(|f| f.eq_ignore_ascii_case(id))
                     .ok_or_else(|| SimError::NoFace(id.clone()))?;
                 if !self.neighbours[from].contains(&to) {
                     return Err(SimError::NotNeighbour {
                         from: self.ids[from].clone(),
-                        to: id.clone(),
+                        to: self.ids[to].clone(),
                     });
                 }
                 let mut keys = Vec::new();
@@ -553,5 +557,57 @@ mod tests {
             Ok(SimCommand::Roll("F3".into()))
         );
         assert!("jump".parse::<SimCommand>().is_err());
+    }
+
+    #[test]
+    fn fly_clears_the_planned_roll() {
+        let c = cage();
+        let mut sim = Sim::new(&c, 11);
+        run(&mut sim, 12.0);
+        let from = sim.resting_face().expect("resting");
+        let to = sim.neighbours[from][0];
+        assert_eq!(
+            sim.command(&SimCommand::Roll(c.faces[to].id.clone())),
+            Ok(())
+        );
+        run(&mut sim, 3.0);
+        assert!(sim.last_roll().is_some());
+        assert_eq!(sim.command(&SimCommand::Fly), Ok(()));
+        assert_eq!(sim.last_roll(), None);
+        run(&mut sim, 12.0);
+        assert!(sim.resting_face().is_some());
+        assert_eq!(sim.last_roll(), None);
+    }
+
+    #[test]
+    fn face_ids_are_matched_without_regard_to_case() {
+        let c = cage();
+        let mut sim = Sim::new(&c, 11);
+        run(&mut sim, 12.0);
+        let from = sim.resting_face().expect("resting");
+        let to = sim.neighbours[from][0];
+        let lower = c.faces[to].id.to_lowercase();
+        assert_ne!(lower, c.faces[to].id, "demo face ids have upper case");
+        let cmd: SimCommand = format!("roll {lower}").parse().expect("parses");
+        assert_eq!(sim.command(&cmd), Ok(()));
+        assert_eq!(sim.last_roll().map(|(p, _)| p), Some(to));
+        // Not a neighbour, in lower case: the error names the cage's own id.
+        run(&mut sim, 3.0);
+        let landed = sim.resting_face().expect("landed");
+        let far = (0..c.faces.len())
+            .find(|&f| f != landed && !sim.neighbours[landed].contains(&f))
+            .expect("a far face");
+        let far_lower = c.faces[far].id.to_lowercase();
+        assert_eq!(
+            sim.command(&SimCommand::Roll(far_lower)),
+            Err(SimError::NotNeighbour {
+                from: c.faces[landed].id.clone(),
+                to: c.faces[far].id.clone(),
+            })
+        );
+        assert_eq!(
+            sim.command(&SimCommand::Roll("nope".into())),
+            Err(SimError::NoFace("nope".into()))
+        );
     }
 }

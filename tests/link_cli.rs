@@ -257,6 +257,110 @@ fn line_capture_rests_on_its_face_and_counts_bad_lines() {
     assert_eq!(last["rpy_deg"].as_array().map(|a| a.len()), Some(3));
 }
 
+/// One line-protocol sample of rest on `face` at sender time `t`.
+fn rest_line(cage: &Cage, face: usize, t: f64) -> String {
+    let q = resting_attitude(cage, face).coords;
+    format!(
+        "t={t:.2} qw={:.6} qx={:.6} qy={:.6} qz={:.6} vbat=12.3 armed=0\n",
+        q.w, q.x, q.y, q.z
+    )
+}
+
+#[test]
+fn small_line_capture_counts_frames_on_every_line() {
+    let cage = demo_cage();
+    let dir = tempfile::tempdir().expect("tempdir");
+    // Seven samples, one bad line: small enough for one read of the file.
+    let mut text = String::new();
+    for (i, t) in [0.2, 0.6, 1.0, 1.4, 1.8].into_iter().enumerate() {
+        text.push_str(&rest_line(&cage, 4, t));
+        if i == 2 {
+            text.push_str("not a sample\n");
+        }
+    }
+    text.push_str(&rest_line(&cage, 4, 2.2));
+    text.push_str(&rest_line(&cage, 4, 2.6));
+    let p = dir.path().join("small.txt");
+    std::fs::write(&p, text).expect("write");
+    let (code, out, err) = watch(&[
+        "--headless",
+        "--link",
+        &format!("raw:{}", p.display()),
+        "--summary",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    let s = summary(&out);
+    assert_eq!(s["frames_decoded"], 7);
+    let body = &out[..out.len() - 1];
+    let last = body.last().expect("a watch line");
+    assert_eq!(last["link"]["frames"], s["frames_decoded"], "{last}");
+    assert_eq!(last["link"]["malformed"], 1, "{last}");
+    // Each line's count covers the samples up to its own time, never later ones.
+    for l in body {
+        let frames = l["link"]["frames"].as_u64().expect("frames");
+        let t = l["t"].as_f64().expect("t");
+        let upto = [0.2, 0.6, 1.0, 1.4, 1.8, 2.2, 2.6]
+            .iter()
+            .filter(|&&x| x <= t + 1e-9)
+            .count() as u64;
+        assert_eq!(frames, upto, "{l}");
+    }
+}
+
+#[test]
+fn silence_in_a_raw_capture_shows_stale() {
+    let cage = demo_cage();
+    let dir = tempfile::tempdir().expect("tempdir");
+    // 1 s of rest, a 5.8 s silence on the sender's clock, 1 s of rest.
+    let mut text: String = rest_lines(&cage, 4, 2.2, 1.0).concat();
+    text.push_str(&rest_lines(&cage, 4, 9.0, 1.0).concat());
+    let p = dir.path().join("gap.txt");
+    std::fs::write(&p, text).expect("write");
+    let (code, out, err) = watch(&[
+        "--headless",
+        "--link",
+        &format!("raw:{}", p.display()),
+        "--summary",
+    ]);
+    assert_eq!(code, 0, "{err}");
+    // The demo profile's stale_after_s is 1.5 s (profiles/demo.toml).
+    let stale: Vec<f64> = out
+        .iter()
+        .filter(|l| l["state"] == "stale")
+        .filter_map(|l| l["t"].as_f64())
+        .collect();
+    assert!(
+        stale.iter().any(|&t| t > 3.18 + 1.5 && t < 9.0),
+        "no stale line inside the gap: {stale:?}"
+    );
+    assert!(
+        stale.iter().all(|&t| !(2.3..=3.18 + 1.5).contains(&t)),
+        "{stale:?}"
+    );
+    let states = &summary(&out)["states_seen"];
+    assert!(
+        states
+            .as_array()
+            .is_some_and(|a| a.contains(&"stale".into()) && a.contains(&"resting".into())),
+        "{states}"
+    );
+    let last = &out[out.len() - 2];
+    assert_eq!(last["state"], "resting", "{last}");
+}
+
+#[test]
+fn udp_address_not_on_this_machine_says_so_once() {
+    // 192.0.2.1 is TEST-NET-1 (RFC 5737): never an address of this machine.
+    let (code, _out, err) = watch(&["--headless", "--link", "udp:192.0.2.1:14550"]);
+    assert_ne!(code, 0, "{err}");
+    assert!(err.contains("not an address of this machine"), "{err}");
+    assert!(err.contains("127.0.0.1 or 0.0.0.0"), "{err}");
+    assert!(!err.contains("another program"), "{err}");
+    let os_text = err.rsplit(": ").next().unwrap_or_default().trim();
+    assert!(!os_text.is_empty(), "{err}");
+    assert_eq!(err.matches(os_text).count(), 1, "OS text repeated: {err}");
+}
+
 fn changes(v: &[Value]) -> Vec<(String, Value)> {
     let mut out: Vec<(String, Value)> = Vec::new();
     for l in v.iter().filter(|l| l.get("state").is_some()) {

@@ -80,6 +80,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let mut tracker = Tracker::new(&loaded.profile.watch, &link.source);
     let mut out = std::io::stdout().lock();
     let mut last_key = None;
+    let mut last_link = None;
     let mut next_periodic = 0.0;
     let mut lines = 0u64;
     let mut states = BTreeSet::new();
@@ -117,13 +118,17 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
         let st = tracker.state(cage);
         let key = (st.state, st.face.clone());
-        if last_key.as_ref() != Some(&key) || st.t >= next_periodic {
+        // At the end, a last line if the link's counters moved since the
+        // last one, so the last line agrees with the summary.
+        let link_moved = ended && last_link.as_ref() != Some(&st.link);
+        if last_key.as_ref() != Some(&key) || st.t >= next_periodic || link_moved {
             states.insert(st.state);
             if writeln!(out, "{}", serde_json::to_string(&st)?).is_err() {
                 return Ok(ExitCode::SUCCESS); // the reader of our output went away
             }
             lines += 1;
             last_key = Some(key);
+            last_link = Some(st.link.clone());
             next_periodic = st.t.floor() + 1.0;
         }
         if ended || args.duration_s.is_some_and(|d| st.t >= d) {

@@ -10,7 +10,10 @@
 //! opened (live sources), the recorded arrival time (`file:`), or the
 //! latest sender time (`raw:`, which has no arrival times). The reader also
 //! sends a `Tick` at least every [`TICK_S`] of link time, so a consumer can
-//! notice silence (stale data) without a clock of its own.
+//! notice silence (stale data) without a clock of its own: in a `raw:`
+//! capture, between one sample's sender time and the next. Each batch of
+//! samples is preceded by a `Health` with the counters when they changed,
+//! so a consumer's counters are never older than the sample it shows.
 
 use super::mavlink::MavConfig;
 use super::record::{RecordError, RecordReader};
@@ -28,6 +31,10 @@ use std::time::{Duration, Instant};
 
 /// Longest silence between messages from a reader, in link seconds.
 pub const TICK_S: f64 = 0.25;
+/// Longest silence in a `raw:` capture that gets ticks, in sender seconds:
+/// beyond it the sender's clock jumped (a reboot, a garbled time) and ticks
+/// would only flood the consumer; stale shows long before.
+const MAX_GAP_TICKS_S: f64 = 600.0;
 /// Messages the channel holds before a live reader starts dropping.
 const CHANNEL_CAP: usize = 4096;
 /// Wait between attempts to reopen a serial port that went away.
@@ -114,10 +121,9 @@ pub struct LinkOptions {
 /// Why a link cannot be opened. Each message says the likely fix.
 #[derive(Debug, thiserror::Error)]
 pub enum LinkError {
-    /// UDP bind failed.
-    #[error(
-        "cannot listen on udp {addr}: {source} (is another program, such as a ground station, using that port? pick another port or close it)"
-    )]
+    /// UDP bind failed. The message gives the hint for the kind of
+    /// failure; the OS text is the error's source (shown once, after it).
+    #[error("cannot listen on udp {addr}{}", bind_hint(addr, source))]
     Bind {
         /// Address.
         addr: std::net::SocketAddr,
@@ -184,6 +190,26 @@ pub enum LinkError {
     Thread(std::io::Error),
 }
 
+/// The likely fix for a failed UDP bind, by the kind of failure.
+fn bind_hint(addr: &std::net::SocketAddr, e: &std::io::Error) -> String {
+    use std::io::ErrorKind as K;
+    match e.kind() {
+        K::AddrInUse => format!(
+            " (another program, such as a ground station, is using port {}: close it or pick another port)",
+            addr.port()
+        ),
+        K::AddrNotAvailable => format!(
+            " ({} is not an address of this machine: listen on 127.0.0.1 or 0.0.0.0)",
+            addr.ip()
+        ),
+        K::PermissionDenied => format!(
+            " (ports below 1024 need privileges: pick a port of 1024 or more, such as 14550; port {})",
+            addr.port()
+        ),
+        _ => String::new(),
+    }
+}
+
 impl LinkError {
     /// Whether the user can fix this by changing what they typed or named
     /// (exit code 2) rather than a runtime failure (exit code 1).
@@ -233,6 +259,10 @@ struct Sink {
     sample_clock: bool,
     clock_s: f64,
     last_sent_s: f64,
+    /// Counters last sent in a `Health` message (None: send them again).
+    health_sent: Option<Counters>,
+    /// A sample has set the clock (`sample_clock` links only).
+    clock_from_sample: bool,
 }
 
 impl Sink {
@@ -246,6 +276,11 @@ impl Sink {
             Ok(()) => true,
             Err(TrySendError::Full(LinkMsg::Sample { .. })) => {
                 self.decoder.count_dropped(1);
+                true
+            }
+            Err(TrySendError::Full(LinkMsg::Health { .. })) => {
+                // Lost: send the counters with the next batch.
+                self.health_sent = None;
                 true
             }
             Err(TrySendError::Full(_)) => true,
@@ -268,22 +303,75 @@ impl Sink {
                 data: bytes.to_vec(),
             });
         }
+        if self.sample_clock {
+            // One line at a time, so each sample's counters are its own
+            // (a captured line's frames count includes that line, no more).
+            for piece in bytes.split_inclusive(|&b| b == b'\n') {
+                self.decoder.push(piece, self.clock_s);
+                if !self.flush() {
+                    return false;
+                }
+            }
+            return true;
+        }
         self.decoder.push(bytes, self.clock_s);
         self.flush()
     }
 
+    /// Send what the decoder has: the counters first (when they changed),
+    /// so a consumer never shows a sample with counters older than it, then
+    /// the samples, then the counters again if they changed meanwhile.
     fn flush(&mut self) -> bool {
         while let Some(sample) = self.decoder.pop() {
             if self.sample_clock {
+                if !self.gap_ticks(sample.t_s) {
+                    return false;
+                }
                 self.advance(sample.t_s);
+                self.clock_from_sample = true;
+            }
+            if !self.health() {
+                return false;
             }
             let at_s = self.clock_s;
             if !self.send(LinkMsg::Sample { at_s, sample }) {
                 return false;
             }
         }
-        let (at_s, counters) = (self.clock_s, self.decoder.counters());
+        self.health()
+    }
+
+    /// The counters, if they changed since they were last sent.
+    fn health(&mut self) -> bool {
+        let counters = self.decoder.counters();
+        if self.health_sent == Some(counters) {
+            return true;
+        }
+        let at_s = self.clock_s;
+        self.health_sent = Some(counters);
         self.send(LinkMsg::Health { at_s, counters })
+    }
+
+    /// Ticks for a silence in a capture on the sender's clock, as replays
+    /// of recordings have: every [`TICK_S`] from the last sample up to
+    /// `next_s`. Only between samples (the first sample sets the clock);
+    /// a silence longer than [`MAX_GAP_TICKS_S`] (a sender clock that
+    /// jumped) gets ticks for that long only.
+    fn gap_ticks(&mut self, next_s: f64) -> bool {
+        if !self.clock_from_sample || !next_s.is_finite() {
+            return true;
+        }
+        let start = self.clock_s;
+        let end = next_s.min(start + MAX_GAP_TICKS_S);
+        let mut t = start;
+        while end - t > TICK_S {
+            t += TICK_S;
+            self.advance(t);
+            if !self.send(LinkMsg::Tick { at_s: t }) {
+                return false;
+            }
+        }
+        true
     }
 
     /// A tick if the link has been quiet for [`TICK_S`].
@@ -354,6 +442,8 @@ pub fn open(spec: &LinkSpec, opts: LinkOptions, mode: Mode) -> Result<Link, Link
         sample_clock: matches!(spec, LinkSpec::Raw(_)),
         clock_s: 0.0,
         last_sent_s: 0.0,
+        health_sent: None,
+        clock_from_sample: false,
     };
     let st = stop.clone();
     let mut commands = None;

@@ -128,3 +128,37 @@ fn sim_at_max_speed_gives_samples_and_takes_commands() {
         "{note:?}"
     );
 }
+
+#[test]
+fn bind_errors_give_the_hint_for_their_kind_and_the_os_text_once() {
+    use std::io::{Error, ErrorKind};
+    let addr: std::net::SocketAddr = "127.0.0.1:80".parse().expect("addr");
+    let msg = |kind: ErrorKind| {
+        let e = LinkError::Bind {
+            addr,
+            source: Error::new(kind, "OS TEXT"),
+        };
+        (e.to_string(), format!("{:#}", anyhow::Error::new(e)))
+    };
+    let (own, full) = msg(ErrorKind::AddrInUse);
+    assert!(own.contains("another program"), "{own}");
+    assert!(!own.contains("OS TEXT"), "{own}");
+    assert_eq!(full.matches("OS TEXT").count(), 1, "{full}");
+    let (own, _) = msg(ErrorKind::AddrNotAvailable);
+    assert!(own.contains("not an address of this machine"), "{own}");
+    assert!(own.contains("127.0.0.1 or 0.0.0.0"), "{own}");
+    assert!(!own.contains("another program"), "{own}");
+    let (own, _) = msg(ErrorKind::PermissionDenied);
+    assert!(own.contains("below 1024 need privileges"), "{own}");
+    let (own, full) = msg(ErrorKind::Other);
+    assert_eq!(own, "cannot listen on udp 127.0.0.1:80");
+    assert_eq!(full, "cannot listen on udp 127.0.0.1:80: OS TEXT");
+}
+
+#[test]
+fn bind_in_use_on_loopback_says_another_program() {
+    let held = std::net::UdpSocket::bind("127.0.0.1:0").expect("bind");
+    let addr = held.local_addr().expect("addr");
+    let e = open(&LinkSpec::Udp(addr), LinkOptions::default(), Mode::Decode).expect_err("in use");
+    assert!(e.to_string().contains("another program"), "{e}");
+}

@@ -613,3 +613,24 @@ fn sim_over_udp_takes_a_roll_command() {
     );
     assert!(cage.face_index(&face).is_some());
 }
+
+#[test]
+fn sim_refuses_a_pace_it_cannot_keep_instead_of_panicking() {
+    // A pace of 1e-300 once reached Duration::from_secs_f64 with an
+    // unrepresentable value and panicked.
+    for bad in [
+        ["--speed", "1e-300"],
+        ["--speed", "1e9"],
+        ["--duration-s", "0"],
+    ] {
+        let out = std::process::Command::new(env!("CARGO_BIN_EXE_cagehand"))
+            .args(["sim", "--to", "udp:127.0.0.1:9"])
+            .args(bad)
+            .output()
+            .expect("run cagehand");
+        let err = String::from_utf8_lossy(&out.stderr);
+        assert_eq!(out.status.code(), Some(2), "{bad:?}: {err}");
+        assert!(err.contains("expected"), "{bad:?}: {err}");
+        assert!(!err.contains("panicked"), "{err}");
+    }
+}

@@ -20,6 +20,10 @@ use std::net::{SocketAddr, UdpSocket};
 use std::process::ExitCode;
 use std::time::{Duration, Instant};
 
+/// Slowest and fastest simulation pace accepted by `--speed`.
+const MIN_SPEED: f64 = 0.01;
+const MAX_SPEED: f64 = 1000.0;
+
 /// Send simulated telemetry to a link.
 #[derive(Debug, clap::Args)]
 pub struct Args {
@@ -56,10 +60,17 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
         Err(e) => return Err(super::bad_input(e.to_string())),
     };
-    if !(args.speed.is_finite() && args.speed > 0.0) {
+    if !(args.speed.is_finite() && (MIN_SPEED..=MAX_SPEED).contains(&args.speed)) {
         return Err(super::bad_input(format!(
-            "--speed {}: expected a positive factor",
+            "--speed {:?}: expected a factor from {MIN_SPEED} to {MAX_SPEED}",
             args.speed
+        )));
+    }
+    if let Some(d) = args.duration_s
+        && !(d.is_finite() && d > 0.0)
+    {
+        return Err(super::bad_input(format!(
+            "--duration-s {d}: expected a positive number of seconds"
         )));
     }
     let loaded = args.profile.load()?;
@@ -128,7 +139,8 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
         let wall = tel.t_s / args.speed - t0.elapsed().as_secs_f64();
         if wall > 0.0 {
-            std::thread::sleep(Duration::from_secs_f64(wall));
+            // Capped so no factor can ask for an unrepresentable sleep.
+            std::thread::sleep(Duration::from_secs_f64(wall.min(1.0)));
         }
         // A listener not up yet (connection refused) is not fatal.
         let _ = sock.send_to(&wire.encode(&tel), to);

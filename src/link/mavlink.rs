@@ -212,6 +212,11 @@ impl MavDecoder {
         if checksum(&b[1..crc_at], info.crc_extra) != crc {
             return Candidate::Bad;
         }
+        if !v2 && len < info.base_len {
+            // Only MAVLink 2 may drop trailing zeros; a short v1 payload is
+            // damaged or from a sender we cannot read.
+            return Candidate::Bad;
+        }
         if self.sysid.is_some_and(|want| want != sysid) {
             return Candidate::Rejected(total);
         }

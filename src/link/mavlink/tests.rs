@@ -300,6 +300,24 @@ fn longer_payload_than_known_is_accepted() {
 }
 
 #[test]
+fn short_v1_payload_is_bad_even_with_a_good_crc() {
+    // REFERENCES.md (MAVLink): v2 drops trailing zero bytes; v1 senders may
+    // send length >= base, never less. A v1 HEARTBEAT of 8 of its 9 bytes.
+    let mut frame = vec![STX_V1, 8, 0, 1, 1, 0, 7, 0, 0, 0, 2, 3, 0x81, 4];
+    let crc = checksum(&frame[1..], 50);
+    frame.extend_from_slice(&crc.to_le_bytes());
+    let (f, c) = decode_all(MavConfig::default(), &frame);
+    assert!(f.is_empty());
+    assert_eq!(c.frames, 0);
+    assert_eq!(c.crc_errors, 1, "counted with the bad candidates");
+    // The same message at its full base length decodes.
+    let mut good = vec![STX_V1, 9, 0, 1, 1, 0, 7, 0, 0, 0, 2, 3, 0x81, 4, 3];
+    let crc = checksum(&good[1..], 50);
+    good.extend_from_slice(&crc.to_le_bytes());
+    assert_eq!(decode_all(MavConfig::default(), &good).1.frames, 1);
+}
+
+#[test]
 fn unknown_id_is_counted_and_skipped() {
     // STATUSTEXT (253) is not in the subset: counted, skipped whole, even
     // though its payload holds a start byte.

@@ -17,7 +17,7 @@
 //!   `inspect_damage` is INSPECT, at or above `due_damage` is DUE.
 //! - **Count rule** (strings): `string_count_limit` impacts at or above
 //!   `string_count_utilisation` make it DUE.
-//! - **Findings**: cut, crack or fray make it DUE (they do not heal); slack
+//! - **Findings**: a cut or crack makes it REPLACE NOW, a fray DUE (they do not heal); slack
 //!   or a loose end make it INSPECT until a later `ok` finding on the same
 //!   member (both can be put right in the field). `ok` clears nothing that
 //!   was computed from impacts, nor a cut, crack or fray.
@@ -155,6 +155,8 @@ struct Acc {
     impacts: u32,
     counted: u32,
     overloads: Vec<String>,
+    /// Cuts and cracks: the member must not fly again.
+    critical: Vec<String>,
     serious: Vec<String>,
     minor: Vec<String>,
     last_ok: Option<String>,
@@ -235,9 +237,15 @@ pub fn assess(records: &[Record], cage: &Cage, rules: &Inspection) -> HealthRepo
                 let a = &mut acc[i];
                 let text = with_note(format!("finding {} ({when})", f.kind.name()), &f.note);
                 match f.kind {
-                    FindingKind::Cut | FindingKind::Crack | FindingKind::Fray => {
-                        a.serious.push(format!("{text}: replace"))
-                    }
+                    // A cut line is retired (Cordage Institute CI 2001-04,
+                    // Fiber Rope Inspection and Retirement Criteria) and a
+                    // cracked composite tube has lost compressive strength
+                    // that cannot be seen (FAA AC 20-107B): replace now. A
+                    // fray is wear: replace at the next opportunity.
+                    FindingKind::Cut | FindingKind::Crack => a
+                        .critical
+                        .push(format!("{text}: replace before flying again")),
+                    FindingKind::Fray => a.serious.push(format!("{text}: replace")),
                     FindingKind::Slack | FindingKind::LooseEnd => {
                         a.minor.push(format!("{text}: put right and inspect"))
                     }
@@ -317,6 +325,10 @@ fn judge(id: &str, kind: MemberKind, a: Acc, rules: &Inspection) -> MemberHealth
             "{} impacts at or above {:.2} of capacity {since}: the limit is {}",
             a.counted, rules.string_count_utilisation, rules.string_count_limit
         ));
+    }
+    if !a.critical.is_empty() {
+        status = status.max(Status::ReplaceNow);
+        reasons.extend(a.critical);
     }
     if !a.serious.is_empty() {
         status = status.max(Status::Due);
@@ -545,13 +557,19 @@ mod tests {
     #[test]
     fn findings_rules() {
         let (cage, _) = demo();
-        for kind in [FindingKind::Cut, FindingKind::Crack, FindingKind::Fray] {
+        // Cut or cracked: replace now (CI 2001-04; FAA AC 20-107B); frayed:
+        // due. A later "ok" finding clears neither.
+        for (kind, want) in [
+            (FindingKind::Cut, Status::ReplaceNow),
+            (FindingKind::Crack, Status::ReplaceNow),
+            (FindingKind::Fray, Status::Due),
+        ] {
             let h = assess(
                 &log(vec![finding("S3", kind), finding("S3", FindingKind::Ok)]),
                 &cage,
                 &rules(),
             );
-            assert_eq!(get(&h, "S3").status, Status::Due, "{kind:?}");
+            assert_eq!(get(&h, "S3").status, want, "{kind:?}");
         }
         for kind in [FindingKind::Slack, FindingKind::LooseEnd] {
             let h = assess(&log(vec![finding("S3", kind)]), &cage, &rules());

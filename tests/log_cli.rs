@@ -214,13 +214,16 @@ fn health_is_the_same_every_time_and_exports_carry_it() {
     ));
     let md = std::fs::read_to_string(&md_path).unwrap();
     assert!(md.contains("# Cage maintenance report: Kestrel trainer"));
-    assert!(md.contains("- **R2 rod**: DUE"));
+    assert!(
+        md.contains("- **R2 rod**: REPLACE NOW"),
+        "a crack is replace now"
+    );
     assert!(md.contains("must be inspected physically"));
     assert!(md.contains("| 4 |"));
     let csv = ok(&cmd(d, &["log", "export", "--format", "csv"]));
     assert!(csv.starts_with("id,kind,status,damage,max_utilisation,impacts,reasons\r\n"));
     assert_eq!(csv.lines().count(), 31);
-    assert!(csv.contains("R2,rod,due,"));
+    assert!(csv.contains("R2,rod,replace_now,"));
 }
 
 /// A log written by an earlier build (and one record by hand, with

@@ -284,3 +284,38 @@ fn committed_fixture_log_reads_the_same() {
         );
     }
 }
+
+#[test]
+fn a_missing_or_damaged_log_is_never_reported_as_a_healthy_cage() {
+    // A mistyped --data must not read as "worst OK".
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let out = ok(&cmd(d, &["log", "health"]));
+    assert!(out.contains("NO RECORDS"), "{out}");
+    assert!(out.contains("no cage log at"), "{out}");
+    assert!(!out.contains("worst OK"), "{out}");
+    // A damaged record in the middle: the health header says records were
+    // skipped, and so does the printed report.
+    for g in ["20", "25", "30"] {
+        ok(&cmd(d, &["impact", "--face", "F2", "--peak-accel-g", g]));
+    }
+    let log = std::fs::read_dir(d)
+        .unwrap()
+        .filter_map(|e| e.ok().map(|e| e.path()))
+        .find(|p| p.extension().is_some_and(|x| x == "cagelog"))
+        .expect("a cage log");
+    let text = std::fs::read_to_string(&log).unwrap();
+    let damaged = text.replacen("\"seq\":2", "\"seq\":7", 1);
+    assert_ne!(damaged, text);
+    std::fs::write(&log, damaged).unwrap();
+    let out = ok(&cmd(d, &["log", "health"]));
+    assert!(
+        out.contains("1 damaged record(s) skipped: damage may be understated"),
+        "{out}"
+    );
+    let md = ok(&cmd(d, &["log", "export", "--format", "md"]));
+    assert!(
+        md.contains("> **Warning.** 1 damaged record(s) skipped"),
+        "{md}"
+    );
+}

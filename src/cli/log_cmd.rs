@@ -5,6 +5,7 @@
 use super::{Loaded, ProfileArg, bad_input};
 use crate::health::{self, HealthReport, StatusChange};
 use crate::logbook::export::{self, ReportHeader};
+use crate::logbook::store::OpenReport;
 use crate::logbook::{
     Access, Event, FindingEvent, FindingKind, ImpactEvent, Logbook, NoteEvent, Record,
     ReplacementEvent, StoreError,
@@ -75,6 +76,16 @@ impl LogOpts {
     /// Open the vehicle's log, telling the operator on stderr what opening
     /// found (corrupt records, a torn tail set aside).
     pub fn open(&self, l: &Loaded, access: Access) -> anyhow::Result<Logbook> {
+        Ok(self.open_reporting(l, access)?.0)
+    }
+
+    /// As [`LogOpts::open`], also returning what opening found, for the
+    /// commands that must say how far the log can be trusted.
+    pub fn open_reporting(
+        &self,
+        l: &Loaded,
+        access: Access,
+    ) -> anyhow::Result<(Logbook, OpenReport)> {
         if access == Access::Write {
             // Refuse before any work when the record could not be signed.
             self.operator()?;
@@ -85,8 +96,26 @@ impl LogOpts {
         for m in report.messages(book.path()) {
             eprintln!("cagehand: warning: {m}");
         }
-        Ok(book)
+        Ok((book, report))
     }
+}
+
+/// What a reader of health or a report must know about the log itself: it
+/// does not exist (so "ok" means "nothing recorded"), or records were
+/// skipped (so damage may be understated).
+pub fn trust_note(report: &OpenReport, book: &Logbook) -> Option<String> {
+    if report.new_file {
+        return Some(format!(
+            "no cage log at {} yet: nothing is recorded for this vehicle there (check --data and --profile); the health below assumes no impacts",
+            book.path().display()
+        ));
+    }
+    let skipped = report.problems.len() + usize::from(report.torn_tail.is_some());
+    (skipped > 0).then(|| {
+        format!(
+            "{skipped} damaged record(s) skipped: damage may be understated; see `cagehand log show`"
+        )
+    })
 }
 
 /// Map a store error to an exit code: a log or id we cannot read is bad
@@ -281,7 +310,10 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let mut out = std::io::stdout().lock();
     match &args.action {
         Action::Show { json } => {
-            let book = opts.open(&l, Access::Read)?;
+            let (book, report) = opts.open_reporting(&l, Access::Read)?;
+            if let Some(n) = trust_note(&report, &book) {
+                eprintln!("cagehand: warning: {n}");
+            }
             if *json {
                 let j = ShowJson {
                     vehicle: &l.profile.vehicle.id,
@@ -311,7 +343,8 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             }
         }
         Action::Health { json } => {
-            let book = opts.open(&l, Access::Read)?;
+            let (book, report) = opts.open_reporting(&l, Access::Read)?;
+            let note = trust_note(&report, &book);
             let h = assess(&l, book.records());
             for w in &h.warnings {
                 eprintln!("cagehand: warning: {w}");
@@ -319,13 +352,24 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             if *json {
                 writeln!(out, "{}", serde_json::to_string_pretty(&h.members)?)?;
             } else {
-                writeln!(
-                    out,
-                    "health of {} from {} records: worst {}",
-                    l.profile.vehicle.id,
-                    book.records().len(),
-                    h.worst().label()
-                )?;
+                if report.new_file {
+                    writeln!(
+                        out,
+                        "health of {}: NO RECORDS (no cage log found)",
+                        l.profile.vehicle.id
+                    )?;
+                } else {
+                    writeln!(
+                        out,
+                        "health of {} from {} records: worst {}",
+                        l.profile.vehicle.id,
+                        book.records().len(),
+                        h.worst().label()
+                    )?;
+                }
+                if let Some(n) = &note {
+                    writeln!(out, "WARNING: {n}")?;
+                }
                 write_health_table(&mut out, &h)?;
                 let act = h.to_act_on();
                 if !act.is_empty() {
@@ -391,7 +435,8 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             }
         }
         Action::Export { format, out: path } => {
-            let book = opts.open(&l, Access::Read)?;
+            let (book, report) = opts.open_reporting(&l, Access::Read)?;
+            let note = trust_note(&report, &book);
             let h = assess(&l, book.records());
             let text = match format {
                 ExportFormat::Md => {
@@ -404,7 +449,18 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         log_path: &log_path,
                         generated: &generated,
                     };
-                    export::markdown(&header, book.records(), &h)
+                    let md = export::markdown(&header, book.records(), &h);
+                    match &note {
+                        // The warning goes right under the title, where a
+                        // reader of the printed report cannot miss it.
+                        Some(n) => match md.split_once('\n') {
+                            Some((title, rest)) => {
+                                format!("{title}\n\n> **Warning.** {n}\n{rest}")
+                            }
+                            None => format!("> **Warning.** {n}\n\n{md}"),
+                        },
+                        None => md,
+                    }
                 }
                 ExportFormat::Csv => export::csv(&h),
             };

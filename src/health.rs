@@ -188,6 +188,17 @@ pub fn assess(records: &[Record], cage: &Cage, rules: &Inspection) -> HealthRepo
                     StrikeRef::Face(f) => format!("impact on face {f}"),
                     StrikeRef::Node(n) => format!("impact on node {n}"),
                 };
+                if imp.beyond_model {
+                    // No equilibrium: the loads are unknown and the cage may
+                    // have collapsed. Every member is suspect.
+                    for a in acc.iter_mut() {
+                        a.impacts += 1;
+                        a.overloads.push(format!(
+                            "record {}: {what} ({when}) was beyond what the model can solve (no equilibrium at {:.0} N; the cage may have collapsed): treat the whole cage as damaged and replace before flying",
+                            r.seq, imp.force_n
+                        ));
+                    }
+                }
                 for load in &imp.members {
                     let Some(&i) = index.get(load.member.as_str()) else {
                         unknown.insert(load.member.clone());
@@ -407,6 +418,7 @@ mod tests {
             residual_n: 1e-9,
             face_displacement_m: 0.004,
             slack_strings: vec![],
+            beyond_model: false,
             members: loads
                 .iter()
                 .map(|(m, u)| MemberLoadRecord {

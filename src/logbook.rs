@@ -222,9 +222,40 @@ pub struct ImpactEvent {
     /// Free text.
     #[serde(default)]
     pub note: Option<String>,
+    /// The cage found no equilibrium under this impact (it may have
+    /// collapsed): `members` is empty, `force_n` is the contact force at
+    /// which the solution was lost, and health treats every member as to
+    /// be replaced. Written only when true, so older lines are unchanged.
+    #[serde(default, skip_serializing_if = "std::ops::Not::not")]
+    pub beyond_model: bool,
 }
 
 impl ImpactEvent {
+    /// The stored form of an impact the model could not follow: recorded all
+    /// the same, because the worst crash is the one that most needs logging.
+    pub fn beyond_model(
+        strike: StrikeRef,
+        input: &ImpactInput,
+        method: ImpactMethod,
+        lost_at_n: f64,
+        residual_n: f64,
+        note: Option<String>,
+    ) -> ImpactEvent {
+        ImpactEvent {
+            strike,
+            input: input.clone(),
+            source: ImpactSource::Entered,
+            method,
+            force_n: lost_at_n,
+            residual_n,
+            face_displacement_m: 0.0,
+            slack_strings: Vec::new(),
+            members: Vec::new(),
+            note: note.filter(|n| !n.trim().is_empty()),
+            beyond_model: true,
+        }
+    }
+
     /// The stored form of an impact analysis: member indices become ids.
     pub fn from_analysis(
         cage: &crate::cage::Cage,
@@ -260,6 +291,7 @@ impl ImpactEvent {
                 })
                 .collect(),
             note: note.filter(|n| !n.trim().is_empty()),
+            beyond_model: false,
         }
     }
 }

@@ -73,7 +73,7 @@ pub enum StaticsError {
     /// Newton iterations found no equilibrium (the cage collapses or the
     /// load is beyond what the solver can follow).
     #[error(
-        "no equilibrium found at load {load:.4} (the last one found was at {reached:.4}; residual {residual_n:.3e} N after {iterations} iterations): the cage may collapse under this load"
+        "solver: no equilibrium at load {load:.1}, last found at {reached:.1} (residual {residual_n:.2e} N after {iterations} iterations)"
     )]
     NoEquilibrium {
         /// Load factor aimed at.

@@ -319,3 +319,55 @@ fn a_missing_or_damaged_log_is_never_reported_as_a_healthy_cage() {
         "{md}"
     );
 }
+
+#[test]
+fn a_crash_beyond_the_model_is_still_recorded_and_condemns_the_cage() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    // 30 m/s on the demo cage: the nonlinear solver finds no equilibrium.
+    let dry = cmd(d, &["impact", "--face", "F1", "--speed", "30", "--dry-run"]);
+    assert_eq!(
+        dry.status.code(),
+        Some(1),
+        "a failed analysis is a runtime failure"
+    );
+    let err = String::from_utf8_lossy(&dry.stderr);
+    assert!(err.contains("may have collapsed"), "{err}");
+    let out = ok(&cmd(
+        d,
+        &[
+            "impact",
+            "--face",
+            "F1",
+            "--speed",
+            "30",
+            "--note",
+            "hit a wall",
+        ],
+    ));
+    assert!(out.contains("RECORDED as #1 beyond the model"), "{out}");
+    let h: serde_json::Value =
+        serde_json::from_str(&ok(&cmd(d, &["log", "health", "--json"]))).unwrap();
+    let members = h.as_array().unwrap();
+    assert_eq!(members.len(), 30);
+    for m in members {
+        assert_eq!(m["status"], "replace_now", "{m}");
+        assert!(
+            m["reasons"][0]
+                .as_str()
+                .unwrap()
+                .contains("beyond what the model can solve")
+        );
+    }
+    // A replacement still resets one member.
+    ok(&cmd(d, &["log", "replace", "S3"]));
+    let h: serde_json::Value =
+        serde_json::from_str(&ok(&cmd(d, &["log", "health", "--json"]))).unwrap();
+    let s3 = h
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|m| m["id"] == "S3")
+        .unwrap();
+    assert_eq!(s3["status"], "ok");
+}

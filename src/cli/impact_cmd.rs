@@ -143,6 +143,11 @@ pub fn resolve(args: &Args, l: &Loaded) -> anyhow::Result<Resolved> {
 /// runtime failure.
 pub fn analyse(l: &Loaded, r: &Resolved) -> anyhow::Result<ImpactAnalysis> {
     analyse_impact(&l.cage, &l.profile, r.strike, &r.input).map_err(|e| match e {
+        StaticsError::NoEquilibrium { load, reached, .. } => anyhow::Error::new(e.clone()).context(
+            format!(
+                "impact analysis failed: the cage held up to a contact force of {reached:.0} N but not {load:.0} N; it may have collapsed: inspect it physically before anything else"
+            ),
+        ),
         StaticsError::UnknownFace { .. }
         | StaticsError::UnknownNode { .. }
         | StaticsError::UnknownSurface { .. }
@@ -203,6 +208,66 @@ fn method_text(m: ImpactMethod) -> &'static str {
     }
 }
 
+/// Record an impact the cage found no equilibrium for, and say so loudly.
+fn record_beyond_model(
+    args: &Args,
+    l: &Loaded,
+    resolved: &Resolved,
+    book: &mut crate::logbook::Logbook,
+    lost_at_n: f64,
+    residual_n: f64,
+    why: &anyhow::Error,
+) -> anyhow::Result<ExitCode> {
+    let strike = match resolved.strike {
+        Strike::Face(_) => StrikeRef::Face(resolved.strike_id.clone()),
+        Strike::Node(_) => StrikeRef::Node(resolved.strike_id.clone()),
+    };
+    let method = match resolved.input {
+        ImpactInput::PeakAccel { .. } => ImpactMethod::MeasuredAcceleration,
+        ImpactInput::Speed { .. } => ImpactMethod::EnergyBalance,
+        ImpactInput::SpeedAndDuration { .. } => ImpactMethod::HalfSinePulse,
+    };
+    let event = ImpactEvent::beyond_model(
+        strike,
+        &resolved.input,
+        method,
+        lost_at_n,
+        residual_n,
+        args.note.clone(),
+    );
+    let (rec, changes) = log_cmd::record_impact(l, &args.log, book, event)?;
+    let mut out = std::io::stdout().lock();
+    if args.json {
+        let j = serde_json::json!({
+            "vehicle": l.profile.vehicle.id,
+            "strike": resolved.strike_id,
+            "beyond_model": true,
+            "lost_at_force_n": lost_at_n,
+            "message": why.to_string(),
+            "recorded": true,
+            "record_seq": rec.seq,
+            "status_changes": changes,
+        });
+        writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+        return Ok(ExitCode::SUCCESS);
+    }
+    writeln!(out, "{why}")?;
+    writeln!(
+        out,
+        "RECORDED as #{} beyond the model: every member is now REPLACE NOW ({} status changes).",
+        rec.seq,
+        changes.len()
+    )?;
+    writeln!(
+        out,
+        "Treat the whole cage as damaged; do not fly it before a full inspection."
+    )?;
+    for line in crate::caution::CAUTION_LINES {
+        writeln!(out, "{line}")?;
+    }
+    Ok(ExitCode::SUCCESS)
+}
+
 /// Run the impact command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
@@ -214,7 +279,21 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     } else {
         Some(args.log.open(&l, Access::Write)?)
     };
-    let a = analyse(&l, &resolved)?;
+    let a = match (analyse(&l, &resolved), book.as_mut()) {
+        (Ok(a), _) => a,
+        (Err(e), Some(book)) => {
+            // The worst crash is the one that most needs logging: record it
+            // as beyond the model, which makes every member REPLACE NOW.
+            let Some(StaticsError::NoEquilibrium {
+                load, residual_n, ..
+            }) = e.downcast_ref::<StaticsError>().cloned()
+            else {
+                return Err(e);
+            };
+            return record_beyond_model(args, &l, &resolved, book, load, residual_n, &e);
+        }
+        (Err(e), None) => return Err(e),
+    };
     let ss = self_stress(
         &Structure::from_cage(&l.cage, &l.profile),
         l.profile.string.pretension_n,

@@ -572,6 +572,7 @@ mod tests {
             residual_n: 0.0,
             face_displacement_m: 0.0,
             slack_strings: vec![],
+            beyond_model: false,
             members: vec![],
             note: None,
         });

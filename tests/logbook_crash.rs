@@ -321,3 +321,14 @@ fn disk_full_in_the_middle_of_a_record_leaves_no_partial_record() {
     assert_eq!(seqs, got);
     assert!(stderr.is_empty(), "{stderr}");
 }
+
+#[test]
+fn a_data_folder_that_is_a_file_is_bad_input_and_left_alone() {
+    let dir = tempfile::tempdir().unwrap();
+    let file = dir.path().join("datafile");
+    std::fs::write(&file, b"keep me").unwrap();
+    let o = run(&file, &["note", "x"]);
+    assert_eq!(o.status.code(), Some(2), "{}", text(&o.stderr));
+    assert!(text(&o.stderr).contains("is a file, not a folder"));
+    assert_eq!(std::fs::read(&file).unwrap(), b"keep me");
+}

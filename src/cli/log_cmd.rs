@@ -2,7 +2,7 @@
 //! replacements and notes, and export a maintenance report. Also the
 //! helpers `impact` uses to record an impact.
 
-use super::{Loaded, ProfileArg, bad_input};
+use super::{Loaded, bad_input};
 use crate::health::{self, HealthReport, StatusChange};
 use crate::logbook::export::{self, ReportHeader};
 use crate::logbook::store::OpenReport;
@@ -91,6 +91,12 @@ impl LogOpts {
             self.operator()?;
         }
         let dir = self.data_dir()?;
+        if dir.exists() && !dir.is_dir() {
+            return Err(bad_input(format!(
+                "data folder {} is a file, not a folder: give --data a folder (or set CAGEHAND_DATA)",
+                dir.display()
+            )));
+        }
         let (book, report) =
             Logbook::open(&dir, &l.profile.vehicle.id, access, lock_wait()).map_err(store_err)?;
         for m in report.messages(book.path()) {
@@ -196,8 +202,10 @@ enum Action {
 /// Work with the cage log of a vehicle.
 #[derive(Debug, clap::Args)]
 pub struct Args {
-    #[command(flatten)]
-    profile: ProfileArg,
+    /// Vehicle profile (TOML); the built-in demo profile when omitted.
+    /// Accepted before or after the action (`log health --profile F`).
+    #[arg(long, value_name = "FILE", global = true)]
+    profile: Option<std::path::PathBuf>,
     #[command(flatten)]
     opts: LogOpts,
     #[command(subcommand)]
@@ -305,7 +313,7 @@ fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<
 
 /// Run `cagehand log`.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
-    let l = args.profile.load()?;
+    let l = super::load_profile(args.profile.as_deref())?;
     let opts = &args.opts;
     let mut out = std::io::stdout().lock();
     match &args.action {

@@ -158,6 +158,23 @@ impl Structure {
         }
     }
 
+    /// The id of member `j` by the cage's rule (`R1..` for rods, `S1..`
+    /// for strings, numbered within each kind in member order): members
+    /// are rods then strings, each in id order, so for a structure built
+    /// from a cage this is the cage member's own id. Reports name members
+    /// by it, not by their index among all members.
+    pub fn member_id(&self, j: usize) -> String {
+        let Some(bar) = self.bars.get(j) else {
+            return format!("member {}", j + 1);
+        };
+        let k = self.bars[..j].iter().filter(|b| b.kind == bar.kind).count();
+        let prefix = match bar.kind {
+            MemberKind::Rod => "R",
+            MemberKind::String => "S",
+        };
+        format!("{prefix}{}", k + 1)
+    }
+
     /// Number of nodes.
     pub fn node_count(&self) -> usize {
         self.pos_m.len()

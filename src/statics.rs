@@ -70,6 +70,16 @@ pub enum StaticsError {
         /// Which matrix.
         what: &'static str,
     },
+    /// The slack-string active set of the linear load case changed on
+    /// every pass up to the cap (it cycles between sets of slack strings),
+    /// so no consistent answer was found.
+    #[error(
+        "linear load case: the set of slack strings did not settle after {passes} passes (it keeps changing), so no member forces are given"
+    )]
+    ActiveSetCycled {
+        /// Passes made before giving up.
+        passes: usize,
+    },
     /// Newton iterations found no equilibrium (the cage collapses or the
     /// load is beyond what the solver can follow).
     #[error(

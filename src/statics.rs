@@ -70,6 +70,16 @@ pub enum StaticsError {
         /// Which matrix.
         what: &'static str,
     },
+    /// The slack-string active set of the linear load case changed on
+    /// every pass up to the cap (it cycles between sets of slack strings),
+    /// so no consistent answer was found.
+    #[error(
+        "linear load case: the set of slack strings did not settle after {passes} passes (it keeps changing), so no member forces are given"
+    )]
+    ActiveSetCycled {
+        /// Passes made before giving up.
+        passes: usize,
+    },
     /// Newton iterations found no equilibrium (the cage collapses or the
     /// load is beyond what the solver can follow).
     #[error(
@@ -156,6 +166,23 @@ impl Structure {
                 })
                 .collect(),
         }
+    }
+
+    /// The id of member `j` by the cage's rule (`R1..` for rods, `S1..`
+    /// for strings, numbered within each kind in member order): members
+    /// are rods then strings, each in id order, so for a structure built
+    /// from a cage this is the cage member's own id. Reports name members
+    /// by it, not by their index among all members.
+    pub fn member_id(&self, j: usize) -> String {
+        let Some(bar) = self.bars.get(j) else {
+            return format!("member {}", j + 1);
+        };
+        let k = self.bars[..j].iter().filter(|b| b.kind == bar.kind).count();
+        let prefix = match bar.kind {
+            MemberKind::Rod => "R",
+            MemberKind::String => "S",
+        };
+        format!("{prefix}{}", k + 1)
     }
 
     /// Number of nodes.

@@ -228,3 +228,59 @@ proptest! {
         }
     }
 }
+
+/// The DESIGN.md case ("Why the linear answer is not enough"): a 0.3 m
+/// six-strut cage of 0.42 kg, 8 kN strings at 15 N pretension, 300 N on F1.
+///
+/// "8 kN strings" is read here as a string axial stiffness E A = 8 kN
+/// (8000 N): that reading is ours, DESIGN does not say which figure it
+/// means. 1 mm line at 8 / (pi / 4) GPa gives E A = 8000 N. The breaking
+/// load (2 kN at full termination efficiency) is well above every force in
+/// the case. The rod section is the demo's CFRP tube (invented test data).
+fn design_case_toml() -> String {
+    let modulus_gpa = 8.0 / (std::f64::consts::PI / 4.0);
+    format!(
+        "# Invented test vehicle for the DESIGN.md case.\n\
+         [vehicle]\nid = \"design-case\"\nmass_kg = 0.42\ncom_m = [0.0, 0.0, 0.0]\n\n\
+         [cage]\nkind = \"icosa6\"\nrod_length_m = 0.3\n\n\
+         [cage.rod_section]\nouter_diameter_mm = 8.0\ninner_diameter_mm = 6.0\n\
+         modulus_gpa = 90.0\ncrush_strength_mpa = 450.0\ndensity_kg_m3 = 1550.0\n\n\
+         [cage.string_section]\ndiameter_mm = 1.0\nmodulus_gpa = {modulus_gpa:.17e}\n\
+         breaking_load_n = 2000.0\ntermination_efficiency = 1.0\npretension_n = 15.0\n"
+    )
+}
+
+#[test]
+fn design_face_impact_slackens_strings_and_moves_the_face_a_centimetre() {
+    let p = Profile::parse(&design_case_toml(), "design-case.toml").unwrap();
+    let c = Cage::from_profile(&p).unwrap();
+    assert!((p.string.ea_n() - 8000.0).abs() < 1e-6);
+    let f1 = c.face_index("F1").unwrap();
+    // F = m a: a peak acceleration of 300 N / (m g0) gives a 300 N contact.
+    let g = 300.0 / (0.42 * cagehand::impact::STANDARD_GRAVITY_M_S2);
+    let r = analyse_impact(&c, &p, Strike::Face(f1), &ImpactInput::PeakAccel { g }).unwrap();
+    let slack: Vec<&str> = r
+        .slack_strings
+        .iter()
+        .map(|&j| c.members[j].id.as_str())
+        .collect();
+    eprintln!(
+        "DESIGN case: force {:.1} N, face displacement {:.2} cm, slack strings {:?}, residual {:.2e} N",
+        r.force_n,
+        r.face_displacement_m * 100.0,
+        slack,
+        r.residual_n
+    );
+    assert!((r.force_n - 300.0).abs() < 1e-9);
+    assert!(r.residual_n < 1e-6 * r.force_n);
+    assert!(r.members.iter().all(|m| m.force_n < 2000.0));
+    // DESIGN.md design expectation: "a 300 N face impact slackens a few
+    // strings and moves the face in by about a centimetre".
+    assert!(!slack.is_empty(), "no string slack: {slack:?}");
+    // DESIGN.md design expectation: about a centimetre, taken as 0.5-2.0 cm.
+    assert!(
+        (0.005..=0.020).contains(&r.face_displacement_m),
+        "face displacement {:.4} m",
+        r.face_displacement_m
+    );
+}

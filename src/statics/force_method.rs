@@ -27,14 +27,35 @@ pub struct LinearResult {
     /// Norm of A t - f: the part of the load the members cannot balance
     /// in the unloaded geometry (mechanisms, slack strings).
     pub residual_n: f64,
+    /// Active-set passes the solution took (1 when no string went slack).
+    pub passes: usize,
+}
+
+/// Most active-set passes for `b` members: each pass drops or takes back
+/// one string, so a set that settles does so well within this.
+pub(crate) fn max_passes(b: usize) -> usize {
+    4 * b + 4
 }
 
 /// Solve a linear load case: nodal loads `loads_n` (one per node, body
 /// frame) on the structure carrying `prestress_n`.
+///
+/// Fails with [`StaticsError::ActiveSetCycled`] when the set of slack
+/// strings has not settled after [`max_passes`] passes.
 pub fn linear_load_case(
     s: &Structure,
     prestress_n: &[f64],
     loads_n: &[Vector3<f64>],
+) -> Result<LinearResult, StaticsError> {
+    linear_load_case_capped(s, prestress_n, loads_n, max_passes(s.bars.len()))
+}
+
+/// [`linear_load_case`] with the pass cap given.
+pub(crate) fn linear_load_case_capped(
+    s: &Structure,
+    prestress_n: &[f64],
+    loads_n: &[Vector3<f64>],
+    cap: usize,
 ) -> Result<LinearResult, StaticsError> {
     let n = s.node_count();
     if loads_n.len() != n {
@@ -49,7 +70,8 @@ pub fn linear_load_case(
     let mut active: Vec<usize> = (0..b).collect();
     let mut slack = Vec::new();
     let mut total = vec![0.0; b];
-    for _ in 0..4 * b + 4 {
+    let mut passes = None;
+    for pass in 1..=cap {
         let a = DMatrix::from_fn(3 * n, active.len(), |r, c| a_full[(r, active[c])]);
         let d = Decomposed::new(&a, true)?;
         let mut t = d.pseudo_solve(&f)?;
@@ -119,9 +141,13 @@ pub fn linear_load_case(
                 let at = active.partition_point(|&i| i < j);
                 active.insert(at, j);
             }
-            None => break,
+            None => {
+                passes = Some(pass);
+                break;
+            }
         }
     }
+    let passes = passes.ok_or(StaticsError::ActiveSetCycled { passes: cap })?;
     slack.sort_unstable();
     let mut g = DVector::zeros(3 * n);
     s.internal_forces(&s.pos_m, &total, &mut g);
@@ -136,6 +162,7 @@ pub fn linear_load_case(
         response_n,
         slack,
         residual_n,
+        passes,
     })
 }
 
@@ -220,5 +247,63 @@ mod tests {
         assert_eq!(r.slack, vec![1]);
         assert_relative_eq!(r.total_n[0], -50.0, epsilon = 1e-9);
         assert_eq!(r.total_n[1], 0.0);
+        // One pass drops the string, the next finds nothing to change.
+        assert_eq!(r.passes, 2);
+    }
+
+    #[test]
+    fn an_unsettled_active_set_is_an_error() {
+        // The same case needs two passes; capped at one, the set has not
+        // settled and the solver must say so rather than return the
+        // half-done answer. (This exercises the cap with a cap that is too
+        // small; it is not a naturally cycling case.)
+        let pos = vec![Vector3::new(1.0, 0.0, 0.0), Vector3::zeros()];
+        let s = Structure {
+            bars: vec![
+                bar([0, 1], MemberKind::Rod, 1.0e5, &pos),
+                bar([0, 1], MemberKind::String, 1.0e5, &pos),
+            ],
+            pos_m: pos,
+        };
+        let loads = [Vector3::new(-50.0, 0.0, 0.0), Vector3::new(50.0, 0.0, 0.0)];
+        assert_eq!(
+            linear_load_case_capped(&s, &[-10.0, 10.0], &loads, 1),
+            Err(StaticsError::ActiveSetCycled { passes: 1 })
+        );
+        let msg = StaticsError::ActiveSetCycled { passes: 1 }.to_string();
+        assert!(msg.contains("did not settle after 1 passes"), "{msg}");
+    }
+
+    #[test]
+    fn demo_cage_face_loads_settle() {
+        // Every face of the demo cage pressed in along its inward normal,
+        // hard enough (300 N) to slacken strings: the active set settles
+        // well inside the cap every time.
+        use crate::cage::Cage;
+        use crate::profile::Profile;
+        use crate::statics::self_stress;
+        let p = Profile::demo().unwrap();
+        let c = Cage::from_profile(&p).unwrap();
+        let s = Structure::from_cage(&c, &p);
+        let t0 = self_stress(&s, p.string.pretension_n).unwrap().prestress_n;
+        let cap = max_passes(s.bars.len());
+        let mut any_slack = false;
+        for face in &c.faces {
+            let mut loads = vec![Vector3::zeros(); s.node_count()];
+            let share = face.nodes.len() as f64;
+            let inward = -face.normal_body;
+            for &i in &face.nodes {
+                loads[i] += inward * (300.0 / share);
+            }
+            // Balance by inertia spread equally over the nodes.
+            let each = inward * (-300.0 / s.node_count() as f64);
+            for l in &mut loads {
+                *l += each;
+            }
+            let r = linear_load_case(&s, &t0, &loads).unwrap();
+            assert!(r.passes < cap, "face {}: {} passes", face.id, r.passes);
+            any_slack |= !r.slack.is_empty();
+        }
+        assert!(any_slack, "300 N should slacken some string somewhere");
     }
 }

@@ -187,7 +187,7 @@ pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, Stati
     {
         return Ok(fail(format!(
             "No self-stress state keeps every string in tension (string {} would carry {:.3} N)",
-            j + 1,
+            s.member_id(j),
             t[j]
         )));
     }
@@ -255,6 +255,53 @@ mod tests {
         assert_relative_eq!(ss.prestress_n[0], -40.0, epsilon = 1e-9);
         assert_relative_eq!(ss.prestress_n[1], 20.0, epsilon = 1e-9);
         assert_relative_eq!(ss.prestress_n[2], 20.0, epsilon = 1e-9);
+    }
+
+    #[test]
+    fn a_string_left_out_is_named_by_its_id() {
+        // A rod and a string between nodes 0 and 1 (one self-stress), and a
+        // second string from node 1 to node 2 that no self-stress can
+        // tension: it is the cage's S2 (rods first, strings in id order),
+        // third among all members, and the message must name it S2.
+        let pos = vec![
+            Vector3::new(0.3, 0.0, 0.0),
+            Vector3::zeros(),
+            Vector3::new(0.0, 0.3, 0.0),
+        ];
+        let bar = |nodes, kind| Bar {
+            nodes,
+            kind,
+            ea_n: 1e5,
+            length_m: 0.3,
+            capacity_n: 1e3,
+        };
+        let s = Structure {
+            pos_m: pos,
+            bars: vec![
+                bar([0, 1], MemberKind::Rod),
+                bar([0, 1], MemberKind::String),
+                bar([1, 2], MemberKind::String),
+            ],
+        };
+        let ss = self_stress(&s, 20.0).unwrap();
+        assert!(!ss.prestress_ok);
+        assert!(
+            ss.message.contains("string S2 would carry"),
+            "{}",
+            ss.message
+        );
+        assert!(!ss.message.contains("string 3"), "{}", ss.message);
+    }
+
+    #[test]
+    fn member_ids_match_the_cage() {
+        let p = Profile::demo().unwrap();
+        let c = Cage::from_profile(&p).unwrap();
+        let s = Structure::from_cage(&c, &p);
+        for (j, m) in c.members.iter().enumerate() {
+            assert_eq!(s.member_id(j), m.id);
+        }
+        assert_eq!(s.member_id(6), "S1");
     }
 
     #[test]

@@ -134,3 +134,19 @@ fn bad_face_or_attitude_exit_2() {
         assert!(!err.is_empty());
     }
 }
+
+#[test]
+fn no_route_reasons_are_wrapped_for_a_phone_photo() {
+    // The forward-only demo cannot right itself from most faces; each reason
+    // is a long sentence that must still fit in under 80 columns.
+    let (code, out, _) = run(&[
+        "plan",
+        "--all",
+        "--profile",
+        "profiles/demo-forward-only.toml",
+    ]);
+    assert_eq!(code, 0);
+    assert!(out.contains("NO ROUTE"));
+    assert!(out.contains("missing move"));
+    assert!(out.lines().all(|l| l.chars().count() < 80), "{out}");
+}

@@ -127,15 +127,42 @@ fn pct(f: f64) -> String {
     format!("{:.0}%", f * 100.0)
 }
 
+/// Widest line of the readable output, so a phone photo of it stays legible.
+const PHOTO_WIDTH: usize = 78;
+
+/// Greedy word wrap at `width` characters (a word longer than that gets a
+/// line of its own).
+fn wrap(text: &str, width: usize) -> Vec<String> {
+    let mut lines = Vec::new();
+    let mut line = String::new();
+    for word in text.split_whitespace() {
+        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+            lines.push(std::mem::take(&mut line));
+        }
+        if !line.is_empty() {
+            line.push(' ');
+        }
+        line.push_str(word);
+    }
+    if !line.is_empty() {
+        lines.push(line);
+    }
+    lines
+}
+
 fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()> {
     let fid = |i: usize| cage.faces[i].id.as_str();
     if let Some(n) = &p.note {
-        writeln!(out, "note: {n}")?;
+        for line in wrap(&format!("note: {n}"), PHOTO_WIDTH) {
+            writeln!(out, "{line}")?;
+        }
     }
     if !p.reachable {
         writeln!(out, "{}: NO ROUTE to a take-off face.", fid(p.from))?;
         if let Some(r) = &p.reason {
-            writeln!(out, "  {r}")?;
+            for line in wrap(r, PHOTO_WIDTH - 2) {
+                writeln!(out, "  {line}")?;
+            }
         }
         return Ok(());
     }

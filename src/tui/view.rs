@@ -211,7 +211,7 @@ fn help(model: &Model, frame: &mut Frame) {
     let t = &model.theme;
     let area = frame.area();
     let w = 56.min(area.width);
-    let h = 16.min(area.height);
+    let h = 20.min(area.height);
     let popup = Rect::new(
         area.x + (area.width - w) / 2,
         area.y + (area.height - h) / 2,
@@ -223,6 +223,9 @@ fn help(model: &Model, frame: &mut Frame) {
         ("2 / r", "Righting: roll plan to a take-off face"),
         ("3 / c", "Cage: members and their health"),
         ("4 / p", "Preflight: checklist"),
+        ("Enter", "Righting: command the next step of the plan"),
+        ("x", "Righting: abandon stepping and replan"),
+        ("Up/Down", "Cage: scroll the members (PgUp/PgDn by 10)"),
         ("Tab", "next screen (Shift-Tab: previous)"),
         ("Esc", "clear the message line"),
         ("?", "this help; any key closes it"),

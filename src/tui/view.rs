@@ -332,6 +332,10 @@ mod tests {
             &mut m,
             Msg::Key(KeyEvent::new(KeyCode::Char('?'), KeyModifiers::NONE)),
         );
-        assert!(text(&m).contains(" Keys "));
+        let help = text(&m);
+        assert!(
+            help.contains(" Keys ") && help.contains("command the next step"),
+            "{help}"
+        );
     }
 }

@@ -410,9 +410,7 @@ mod tests {
     use approx::assert_relative_eq;
 
     fn demo() -> (Profile, Cage) {
-        let p = Profile::demo().unwrap();
-        let c = Cage::from_profile(&p).unwrap();
-        (p, c)
+        crate::cage::demo_cage()
     }
 
     #[test]

@@ -219,11 +219,10 @@ fn any_overlap(faces: &[NetFace]) -> bool {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::profile::Profile;
     use approx::assert_relative_eq;
 
     fn demo() -> Cage {
-        Cage::from_profile(&Profile::demo().unwrap()).unwrap()
+        crate::cage::demo_cage().1
     }
 
     #[test]

@@ -337,9 +337,7 @@ mod tests {
     use nalgebra::Vector3;
 
     fn demo() -> (Profile, Cage) {
-        let p = Profile::demo().expect("demo profile");
-        let c = Cage::from_profile(&p).expect("demo cage");
-        (p, c)
+        crate::cage::demo_cage()
     }
 
     fn att(t: f64, q: UnitQuaternion<f64>) -> Sample {

@@ -1,10 +1,9 @@
 //! Transport checks on real sockets, a pseudo-terminal and the in-process simulator.
 
 use super::*;
-use crate::profile::Profile;
 
 fn demo_cage() -> Cage {
-    Cage::from_profile(&Profile::demo().expect("demo")).expect("cage")
+    crate::cage::demo_cage().1
 }
 
 #[test]

@@ -109,6 +109,16 @@ pub fn load_profile(path: Option<&Path>) -> anyhow::Result<Loaded> {
     Ok(Loaded { profile, cage })
 }
 
+/// `--duration-s`, when given, must be a positive number of seconds.
+pub fn check_duration_s(duration_s: Option<f64>) -> anyhow::Result<()> {
+    match duration_s {
+        Some(d) if !(d.is_finite() && d > 0.0) => Err(bad_input(format!(
+            "--duration-s {d}: expected a positive number of seconds"
+        ))),
+        _ => Ok(()),
+    }
+}
+
 /// Print a value as pretty JSON on stdout.
 pub fn print_json(value: &impl serde::Serialize) -> anyhow::Result<()> {
     use std::io::Write;

@@ -39,13 +39,7 @@ struct Report {
 
 /// Run the recorder.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
-    if let Some(d) = args.duration_s
-        && !(d.is_finite() && d > 0.0)
-    {
-        return Err(super::bad_input(format!(
-            "--duration-s {d}: expected a positive number of seconds"
-        )));
-    }
+    super::check_duration_s(args.duration_s)?;
     let spec = args.link.spec()?;
     let cage = match spec {
         crate::link::spec::LinkSpec::Sim { .. } => Some(args.profile.load()?.cage),

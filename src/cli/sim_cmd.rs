@@ -66,13 +66,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             args.speed
         )));
     }
-    if let Some(d) = args.duration_s
-        && !(d.is_finite() && d > 0.0)
-    {
-        return Err(super::bad_input(format!(
-            "--duration-s {d}: expected a positive number of seconds"
-        )));
-    }
+    super::check_duration_s(args.duration_s)?;
     let loaded = args.profile.load()?;
     let cage = &loaded.cage;
     let sock = UdpSocket::bind(args.bind)

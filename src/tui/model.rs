@@ -477,15 +477,24 @@ fn next(s: Screen, step: usize) -> Screen {
     Screen::ALL[(i + step) % Screen::ALL.len()]
 }
 
+/// The demo vehicle's model without colour, waiting on `sim` (tests).
+#[cfg(test)]
+pub(crate) fn demo_model() -> Model {
+    let (p, c) = crate::cage::demo_cage();
+    Model::new(
+        p,
+        c,
+        "sim",
+        Theme::new(crate::tui::theme::ColourDepth::None),
+    )
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::tui::theme::ColourDepth;
 
     fn model() -> Model {
-        let p = Profile::demo().unwrap();
-        let c = Cage::from_profile(&p).unwrap();
-        Model::new(p, c, "sim", Theme::new(ColourDepth::None))
+        demo_model()
     }
 
     fn key(c: KeyCode) -> Msg {

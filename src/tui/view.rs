@@ -257,18 +257,13 @@ fn help(model: &Model, frame: &mut Frame) {
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::cage::Cage;
-    use crate::profile::Profile;
     use crate::tui::model::{LiveView, Msg, update};
-    use crate::tui::theme::{ColourDepth, Theme};
     use ratatui::Terminal;
     use ratatui::backend::TestBackend;
     use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 
     fn model() -> Model {
-        let p = Profile::demo().unwrap();
-        let c = Cage::from_profile(&p).unwrap();
-        Model::new(p, c, "sim", Theme::new(ColourDepth::None))
+        crate::tui::model::demo_model()
     }
 
     fn text(m: &Model) -> String {

@@ -13,8 +13,10 @@ use std::process::ExitCode;
 mod cage_cmd;
 pub mod impact_cmd;
 pub mod link_args;
+pub mod live;
 pub mod log_cmd;
 mod plan_cmd;
+mod preflight_cmd;
 mod profile_cmd;
 mod record_cmd;
 mod sim_cmd;
@@ -57,6 +59,8 @@ enum Command {
     Record(record_cmd::Args),
     /// The cage log: records, member health, findings, replacements, reports.
     Log(log_cmd::Args),
+    /// The pre-flight checklist: evaluate it, or sign it off (`preflight sign`).
+    Preflight(preflight_cmd::Args),
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -175,5 +179,6 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Watch(a)) => watch_cmd::run(&a),
         Some(Command::Sim(a)) => sim_cmd::run(&a),
         Some(Command::Record(a)) => record_cmd::run(&a),
+        Some(Command::Preflight(a)) => preflight_cmd::run(&a),
     }
 }

@@ -138,6 +138,7 @@ pub fn same_log_args(l: &Loaded, opts: &LogOpts) -> String {
         s.push_str(&format!(" --profile {}", shell_word(&l.profile.source)));
     }
     if let Ok(d) = opts.data_dir() {
+        let d = std::path::absolute(&d).unwrap_or(d);
         s.push_str(&format!(" --data {}", shell_word(&d.display().to_string())));
     }
     s
@@ -225,6 +226,49 @@ enum Action {
         #[arg(long, hide = true, default_value_t = 1)]
         repeat: u32,
     },
+    /// List detected impacts neither confirmed nor dismissed.
+    Pending {
+        /// Print JSON (an array of {seq, time, peak_g, face, speed_m_per_s, source}).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Confirm a detected impact: analyse it as `cagehand impact` does, with
+    /// the face and the measured peak taken from the detection unless given.
+    #[command(group(clap::ArgGroup::new("where").args(["face", "node"])))]
+    #[command(group(clap::ArgGroup::new("how").args(["speed", "peak_accel_g"])))]
+    Confirm {
+        /// Sequence number of the detection record (`log pending`).
+        seq: u64,
+        /// Struck face id (F1..), instead of the detected one.
+        #[arg(long, value_name = "ID")]
+        face: Option<String>,
+        /// Struck node id (N1..), instead of the detected face.
+        #[arg(long, value_name = "ID")]
+        node: Option<String>,
+        /// Peak acceleration in g, instead of the detected peak.
+        #[arg(long, value_name = "G", allow_negative_numbers = true)]
+        peak_accel_g: Option<f64>,
+        /// Approach speed normal to the ground, instead of the peak.
+        #[arg(long, value_name = "M_PER_S", allow_negative_numbers = true)]
+        speed: Option<f64>,
+        /// Ground surface preset (with --speed).
+        #[arg(long, value_name = "NAME", requires = "speed")]
+        surface: Option<String>,
+        /// Free text stored with the impact.
+        #[arg(long, value_name = "TEXT")]
+        note: Option<String>,
+        /// Print JSON (as `cagehand impact --json`, with `detection`).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Dismiss a detected impact that was not a crash, with the reason.
+    Dismiss {
+        /// Sequence number of the detection record (`log pending`).
+        seq: u64,
+        /// Why it was not a crash ("hand launch", "dropped on the bench").
+        #[arg(long, value_name = "TEXT")]
+        reason: String,
+    },
     /// Write a maintenance report.
     Export {
         /// md or csv.
@@ -307,6 +351,25 @@ fn record(
     Ok((rec, health::changes(&before, &after)))
 }
 
+/// The detection `seq` is pending in this log, or bad input saying what
+/// became of it.
+pub fn check_pending(book: &Logbook, seq: u64) -> anyhow::Result<()> {
+    use crate::logbook::detection::{Resolution, resolution};
+    let log = book.path().display();
+    match resolution(book.records(), seq) {
+        Resolution::Pending => Ok(()),
+        Resolution::NotADetection => Err(bad_input(format!(
+            "record #{seq} in {log} is not a detection; `cagehand log pending` lists the pending ones"
+        ))),
+        Resolution::Confirmed(by) => Err(bad_input(format!(
+            "detection #{seq} in {log} was already confirmed by impact #{by}"
+        ))),
+        Resolution::Dismissed(by) => Err(bad_input(format!(
+            "detection #{seq} in {log} was already dismissed by #{by}"
+        ))),
+    }
+}
+
 /// Record an analysed impact in the log: the record and the status changes.
 pub fn record_impact(
     l: &Loaded,
@@ -319,6 +382,7 @@ pub fn record_impact(
 
 #[derive(Serialize)]
 struct ShowJson<'a> {
+    schema: &'static str,
     vehicle: &'a str,
     log: String,
     records: &'a [Record],
@@ -361,6 +425,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             }
             if *json {
                 let j = ShowJson {
+                    schema: "cagehand.log/1",
                     vehicle: &l.profile.vehicle.id,
                     log: book.path().display().to_string(),
                     records: book.records(),
@@ -394,6 +459,12 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             for w in &h.warnings {
                 eprintln!("cagehand: warning: {w}");
             }
+            let pending = crate::logbook::detection::pending_warning(&crate::logbook::pending(
+                book.records(),
+            ));
+            if *json && let Some(p) = &pending {
+                eprintln!("cagehand: warning: PENDING: {p}");
+            }
             if *json {
                 writeln!(out, "{}", serde_json::to_string_pretty(&h.members)?)?;
             } else {
@@ -414,6 +485,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 }
                 if let Some(n) = &note {
                     writeln!(out, "WARNING: {n}")?;
+                }
+                if let Some(p) = &pending {
+                    writeln!(out, "PENDING: {p}")?;
                 }
                 write_health_table(&mut out, &h)?;
                 let act = h.to_act_on();
@@ -479,6 +553,111 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 writeln!(out, "recorded #{}", rec.seq)?;
             }
         }
+        Action::Pending { json } => {
+            let (book, _) = opts.open_reporting(&l, Access::Read)?;
+            let pending = crate::logbook::pending(book.records());
+            if *json {
+                // The contract: an array of pending detections.
+                writeln!(out, "{}", serde_json::to_string_pretty(&pending)?)?;
+            } else if pending.is_empty() {
+                writeln!(
+                    out,
+                    "no pending detections in the cage log of {} ({})",
+                    l.profile.vehicle.id,
+                    book.path().display()
+                )?;
+            } else {
+                writeln!(
+                    out,
+                    "{} pending detection(s) in the cage log of {} ({}):",
+                    pending.len(),
+                    l.profile.vehicle.id,
+                    book.path().display()
+                )?;
+                for p in &pending {
+                    let speed = match p.speed_m_per_s {
+                        Some(v) => format!("{v:.1} m/s"),
+                        None => "speed unknown".to_string(),
+                    };
+                    writeln!(
+                        out,
+                        "#{:<4} {}  {:>5.1} g  {:<5} {speed}  ({})",
+                        p.seq, p.time, p.peak_g, p.face, p.source
+                    )?;
+                }
+                let args = same_log_args(&l, opts);
+                writeln!(
+                    out,
+                    "confirm: `cagehand log confirm SEQ{args}`; dismiss: `cagehand log dismiss SEQ --reason TEXT{args}`"
+                )?;
+            }
+        }
+        Action::Confirm {
+            seq,
+            face,
+            node,
+            peak_accel_g,
+            speed,
+            surface,
+            note,
+            json,
+        } => {
+            // Pre-fill from the detection (read now; checked again under the
+            // write lock before anything is recorded).
+            let (book, _) = opts.open_reporting(&l, Access::Read)?;
+            check_pending(&book, *seq)?;
+            let Some(d) = crate::logbook::detection::detection(book.records(), *seq).cloned()
+            else {
+                return Err(bad_input(format!("record #{seq} is not a detection")));
+            };
+            drop(book);
+            let (face, node) = match (face, node) {
+                (None, None) => (Some(d.face.clone()), None),
+                other => (other.0.clone(), other.1.clone()),
+            };
+            let peak_accel_g = match (peak_accel_g, speed) {
+                (None, None) => Some(d.peak_g),
+                (g, _) => *g,
+            };
+            let impact_args = super::impact_cmd::Args {
+                profile: super::ProfileArg {
+                    profile: args.profile.clone(),
+                },
+                face,
+                node,
+                speed: *speed,
+                peak_accel_g,
+                surface: surface.clone(),
+                contact_duration_s: None,
+                dry_run: false,
+                note: note.clone(),
+                log: opts.clone(),
+                json: *json,
+            };
+            drop(out);
+            return super::impact_cmd::run_loaded(&impact_args, &l, Some(*seq));
+        }
+        Action::Dismiss { seq, reason } => {
+            if reason.trim().is_empty() {
+                return Err(bad_input(
+                    "--reason is empty: say why it was not a crash (e.g. \"hand launch\")",
+                ));
+            }
+            let mut book = opts.open(&l, Access::Write)?;
+            check_pending(&book, *seq)?;
+            let ev = Event::Dismissal(crate::logbook::DismissalEvent {
+                detection: *seq,
+                reason: reason.trim().to_string(),
+            });
+            let (rec, _) = record(&l, opts, &mut book, ev)?;
+            writeln!(
+                out,
+                "detection #{seq} dismissed: record #{} in the cage log of {} ({})",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display()
+            )?;
+        }
         Action::Export { format, out: path } => {
             let (book, report) = opts.open_reporting(&l, Access::Read)?;
             let note = trust_note(&report, &book);
@@ -507,7 +686,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         None => md,
                     }
                 }
-                ExportFormat::Csv => export::csv(&h),
+                ExportFormat::Csv => export::csv_with_records(&h, book.records()),
             };
             match path {
                 Some(p) => {

@@ -3,8 +3,6 @@
 //! Errors become a message on stderr and an exit code: 2 for bad usage or
 //! bad input, 1 for a runtime failure.
 
-use crate::cage::Cage;
-use crate::profile::Profile;
 use anyhow::Context;
 use clap::{Parser, Subcommand};
 use std::path::{Path, PathBuf};
@@ -102,13 +100,7 @@ pub struct ProfileArg {
     pub profile: Option<PathBuf>,
 }
 
-/// A validated profile and the cage built from it.
-pub struct Loaded {
-    /// The profile.
-    pub profile: Profile,
-    /// Its cage.
-    pub cage: Cage,
-}
+pub use crate::vehicle::Loaded;
 
 impl ProfileArg {
     /// Load and validate the profile, and build its cage.
@@ -117,31 +109,22 @@ impl ProfileArg {
     }
 }
 
-/// Load a profile file (or the demo) and build its cage; every failure is bad input.
+/// Load a profile file (or the demo) through the core's validated loader;
+/// a refused profile is bad input (exit 2).
 pub fn load_profile(path: Option<&Path>) -> anyhow::Result<Loaded> {
-    let (text, name) = match path {
-        None => (
-            crate::profile::DEMO_PROFILE_TOML.to_string(),
-            crate::profile::DEMO_PROFILE_NAME.to_string(),
-        ),
-        Some(p) => (
-            std::fs::read_to_string(p)
+    let loaded = match path {
+        None => crate::vehicle::demo(),
+        Some(p) => {
+            let bytes = std::fs::read(p)
                 .with_context(|| format!("cannot read profile {}", p.display()))
-                .map_err(|e| bad_input(format!("{e:#}")))?,
-            p.display().to_string(),
-        ),
+                .map_err(|e| bad_input(format!("{e:#}")))?;
+            crate::vehicle::load(&bytes, &p.display().to_string())
+        }
     };
-    let profile = Profile::parse(&text, &name).map_err(|e| bad_input(e.to_string()))?;
-    let cage =
-        Cage::from_profile(&profile).map_err(|e| bad_input(format!("{}: {e}", profile.source)))?;
-    // Take-off face ids can only be checked once the hull has numbered the
-    // faces; point at the key all the same.
-    if let Err(e) = cage.takeoff_faces(&profile.righting.takeoff_faces) {
-        let (line, column) =
-            crate::profile::locate_key(&text, "righting", "takeoff_faces").unwrap_or((1, 1));
-        return Err(bad_input(format!("{name}:{line}:{column}: {e}")));
-    }
-    Ok(Loaded { profile, cage })
+    loaded.map_err(|e| match e {
+        crate::vehicle::LoadError::Profile(_) => bad_input(e.to_string()),
+        crate::vehicle::LoadError::Statics { .. } => anyhow::Error::new(e),
+    })
 }
 
 /// `--duration-s`, when given, must be a positive number of seconds.

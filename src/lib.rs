@@ -26,3 +26,4 @@ pub mod sim;
 pub mod statics;
 pub mod tracker;
 pub mod tui;
+pub mod vehicle;

@@ -173,6 +173,7 @@ fn evaluate(
             trouble,
         },
         signing: live.and_then(|(_, key)| key.then_some(true)),
+        margin: None,
     })
 }
 

@@ -171,6 +171,7 @@ impl LogView {
             live: Some(st),
             log,
             signing: None,
+            margin: None,
         })
     }
 }

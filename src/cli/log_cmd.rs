@@ -370,20 +370,8 @@ fn record(
 /// The detection `seq` is pending in this log, or bad input saying what
 /// became of it.
 pub fn check_pending(book: &Logbook, seq: u64) -> anyhow::Result<()> {
-    use crate::logbook::detection::{Resolution, resolution};
-    let log = book.path().display();
-    match resolution(book.records(), seq) {
-        Resolution::Pending => Ok(()),
-        Resolution::NotADetection => Err(bad_input(format!(
-            "record #{seq} in {log} is not a detection; `cagehand log pending` lists the pending ones"
-        ))),
-        Resolution::Confirmed(by) => Err(bad_input(format!(
-            "detection #{seq} in {log} was already confirmed by impact #{by}"
-        ))),
-        Resolution::Dismissed(by) => Err(bad_input(format!(
-            "detection #{seq} in {log} was already dismissed by #{by}"
-        ))),
-    }
+    crate::logwork::check_pending(book, seq)
+        .map_err(|e| bad_input(format!("{}: {e}", book.path().display())))
 }
 
 /// Record an analysed impact in the log: the record and the status changes.
@@ -659,13 +647,26 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     "--reason is empty: say why it was not a crash (e.g. \"hand launch\")",
                 ));
             }
+            let operator = opts.operator()?;
             let mut book = opts.open(&l, Access::Write)?;
             check_pending(&book, *seq)?;
-            let ev = Event::Dismissal(crate::logbook::DismissalEvent {
-                detection: *seq,
-                reason: reason.trim().to_string(),
-            });
-            let (rec, _) = record(&l, opts, &mut book, ev)?;
+            let v = crate::logwork::Vehicle {
+                profile: &l.profile,
+                cage: &l.cage,
+            };
+            let rec = crate::logwork::dismiss(
+                v,
+                &mut book,
+                &operator,
+                jiff::Timestamp::now(),
+                *seq,
+                reason,
+            )
+            .map_err(|e| match e {
+                crate::logwork::WorkError::Store(s) => store_err(s),
+                other => bad_input(other.to_string()),
+            })?
+            .record;
             writeln!(
                 out,
                 "detection #{seq} dismissed: record #{} in the cage log of {} ({})",

@@ -268,7 +268,7 @@ fn record_beyond_model(
     writeln!(out, "{why}")?;
     writeln!(
         out,
-        "RECORDED as #{} in the cage log of {} ({}) beyond the model: every member is now REPLACE NOW ({} status changes).",
+        "RECORDED as #{} beyond the model in the cage log of {} ({}): every member is now REPLACE NOW ({} status changes).",
         rec.seq,
         l.profile.vehicle.id,
         book.path().display(),

@@ -281,19 +281,25 @@ mod tests {
         })
     }
 
-    #[test]
-    fn confirm_records_the_same_loads_as_the_analysis_and_names_the_detection() {
+    /// The demo vehicle and a log holding one detection (#1).
+    fn setup() -> (Profile, Cage, tempfile::TempDir, Logbook) {
         let p = Profile::demo().unwrap();
         let c = Cage::from_profile(&p).unwrap();
+        let dir = tempfile::tempdir().unwrap();
+        let (mut book, _) =
+            Logbook::open(dir.path(), "v", Access::Write, Duration::from_millis(200)).unwrap();
+        book.append("ana", jiff::Timestamp::now(), det()).unwrap();
+        (p, c, dir, book)
+    }
+
+    #[test]
+    fn confirm_records_the_same_loads_as_the_analysis_and_names_the_detection() {
+        let (p, c, _dir, mut book) = setup();
         let v = Vehicle {
             profile: &p,
             cage: &c,
         };
-        let dir = tempfile::tempdir().unwrap();
-        let (mut book, _) =
-            Logbook::open(dir.path(), "v", Access::Write, Duration::from_millis(200)).unwrap();
         let now = jiff::Timestamp::now();
-        book.append("ana", now, det()).unwrap();
         let input = ImpactInput::PeakAccel { g: 7.9 };
         let w = confirm(
             v,
@@ -327,17 +333,12 @@ mod tests {
 
     #[test]
     fn each_write_checks_its_input_first() {
-        let p = Profile::demo().unwrap();
-        let c = Cage::from_profile(&p).unwrap();
+        let (p, c, _dir, mut book) = setup();
         let v = Vehicle {
             profile: &p,
             cage: &c,
         };
-        let dir = tempfile::tempdir().unwrap();
-        let (mut book, _) =
-            Logbook::open(dir.path(), "v", Access::Write, Duration::from_millis(200)).unwrap();
         let now = jiff::Timestamp::now();
-        book.append("ana", now, det()).unwrap();
         assert!(dismiss(v, &mut book, "ana", now, 1, " ").is_err());
         assert!(dismiss(v, &mut book, "ana", now, 2, "x").is_err());
         assert!(replacement(v, &mut book, "ana", now, "R1", "", None).is_err());

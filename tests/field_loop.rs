@@ -254,55 +254,32 @@ fn preflight_cannot_be_signed_over_a_pending_crash() {
     assert_eq!(o.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&o.stderr).contains("WAITING"));
     assert_eq!(log_bytes(d), before);
+    // The waiting live items (no link), each overridden with a reason.
+    const OVERRIDES: [&str; 12] = [
+        "--override",
+        "2",
+        "--reason",
+        "on the stand",
+        "--override",
+        "3",
+        "--reason",
+        "radio off",
+        "--override",
+        "4",
+        "--reason",
+        "fresh pack",
+    ];
     // An unticked hand item refuses too.
-    let o = cmd(
-        d,
-        &[
-            "preflight",
-            "sign",
-            "--tick",
-            "5,6",
-            "--override",
-            "2",
-            "--reason",
-            "on the stand",
-            "--override",
-            "3",
-            "--reason",
-            "radio off",
-            "--override",
-            "4",
-            "--reason",
-            "fresh pack",
-        ],
-    );
+    let mut args = vec!["preflight", "sign", "--tick", "5,6"];
+    args.extend(OVERRIDES);
+    let o = cmd(d, &args);
     assert_eq!(o.status.code(), Some(1));
     assert!(String::from_utf8_lossy(&o.stderr).contains("7."));
     assert_eq!(log_bytes(d), before);
     // Every hand item ticked and every waiting item overridden: signed.
-    let o = cmd(
-        d,
-        &[
-            "preflight",
-            "sign",
-            "--tick",
-            "all",
-            "--override",
-            "2",
-            "--reason",
-            "on the stand",
-            "--override",
-            "3",
-            "--reason",
-            "radio off",
-            "--override",
-            "4",
-            "--reason",
-            "fresh pack",
-            "--operator",
-            "cy",
-        ],
-    );
+    let mut args = vec!["preflight", "sign", "--tick", "all", "--operator", "cy"];
+    args.extend(OVERRIDES);
+    let o = cmd(d, &args);
     assert_eq!(ok(&o).trim(), "3");
     let recs = records(d);
     let pf = &recs[2];

@@ -519,7 +519,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 note: note.clone(),
             });
             let (rec, ch) = record(&l, opts, &mut book, ev)?;
-            writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
+            writeln!(
+                out,
+                "recorded #{} in the cage log of {} ({}): {}",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display(),
+                rec.event.summary()
+            )?;
             write_changes(&mut out, &ch)?;
         }
         Action::Replace { member, part, note } => {
@@ -531,7 +538,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 note: note.clone(),
             });
             let (rec, ch) = record(&l, opts, &mut book, ev)?;
-            writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
+            writeln!(
+                out,
+                "recorded #{} in the cage log of {} ({}): {}",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display(),
+                rec.event.summary()
+            )?;
             write_changes(&mut out, &ch)?;
         }
         Action::Note { text, repeat } => {
@@ -556,6 +570,11 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     .context("nothing was recorded")?;
                 writeln!(out, "recorded #{}", rec.seq)?;
             }
+            eprintln!(
+                "cagehand: written to the cage log of {} ({})",
+                l.profile.vehicle.id,
+                book.path().display()
+            );
         }
         Action::Pending { json } => {
             let (book, _) = opts.open_reporting(&l, Access::Read)?;

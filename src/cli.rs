@@ -33,8 +33,31 @@ pub fn bad_input(msg: impl Into<String>) -> anyhow::Error {
 #[derive(Debug, Parser)]
 #[command(name = "cagehand", version, about, long_about = None)]
 pub struct Cli {
+    /// Colour on the screens: auto (honours NO_COLOR and whether the output
+    /// is a terminal), always, or never.
+    #[arg(long, value_enum, default_value_t = ColorChoice::Auto, global = true)]
+    color: ColorChoice,
     #[command(subcommand)]
     command: Option<Command>,
+}
+
+/// When to use colour (`--color`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum ColorChoice {
+    /// Colour when the output is a terminal and NO_COLOR is not set.
+    Auto,
+    /// Colour even when NO_COLOR is set.
+    Always,
+    /// No colour at all.
+    Never,
+}
+
+/// The `--color` choice of this run, set once in `main`.
+static COLOR_CHOICE: std::sync::OnceLock<ColorChoice> = std::sync::OnceLock::new();
+
+/// The `--color` choice of this run (auto before arguments are parsed).
+pub fn color_choice() -> ColorChoice {
+    COLOR_CHOICE.get().copied().unwrap_or(ColorChoice::Auto)
 }
 
 #[derive(Debug, Subcommand)]
@@ -55,6 +78,18 @@ enum Command {
     Record(record_cmd::Args),
     /// The cage log: records, member health, findings, replacements, reports.
     Log(log_cmd::Args),
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
+    Completions(CompletionsArgs),
+    /// Print the manual page (roff) on stdout: `cagehand manual | man -l -`.
+    Manual,
+}
+
+/// `cagehand completions SHELL`.
+#[derive(Debug, clap::Args)]
+struct CompletionsArgs {
+    /// The shell to complete for.
+    #[arg(value_enum)]
+    shell: clap_complete::Shell,
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -121,6 +156,7 @@ pub fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
+    let _ = COLOR_CHOICE.set(cli.color);
     match run(cli) {
         Ok(code) => code,
         Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
@@ -144,6 +180,7 @@ fn is_broken_pipe(e: &anyhow::Error) -> bool {
 }
 
 fn run(cli: Cli) -> anyhow::Result<ExitCode> {
+    log_cmd::lock_wait_from_env()?;
     match cli.command {
         None => tui_cmd::run(
             load_profile(None)?,
@@ -158,5 +195,18 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Watch(a)) => watch_cmd::run(&a),
         Some(Command::Sim(a)) => sim_cmd::run(&a),
         Some(Command::Record(a)) => record_cmd::run(&a),
+        Some(Command::Completions(a)) => {
+            use clap::CommandFactory;
+            let mut cmd = Cli::command();
+            let mut out = std::io::stdout().lock();
+            clap_complete::generate(a.shell, &mut cmd, "cagehand", &mut out);
+            Ok(ExitCode::SUCCESS)
+        }
+        Some(Command::Manual) => {
+            use clap::CommandFactory;
+            let mut out = std::io::stdout().lock();
+            clap_mangen::Man::new(Cli::command()).render(&mut out)?;
+            Ok(ExitCode::SUCCESS)
+        }
     }
 }

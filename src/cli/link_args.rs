@@ -13,7 +13,7 @@ use std::path::{Path, PathBuf};
 #[derive(Debug, Clone, clap::Args)]
 pub struct LinkArgs {
     /// udp:HOST:PORT (listen; 127.0.0.1 unless named), serial:PATH@BAUD,
-    /// file:PATH (a recording), raw:PATH (a plain byte capture), sim[:SEED].
+    /// file:PATH (a recording), raw:PATH (a plain byte capture), `sim[:SEED]`.
     #[arg(long, value_name = "SPEC", default_value = "sim")]
     pub link: String,
     /// Protocol on the link.

@@ -2,6 +2,7 @@
 //! the recording format (`record`) are pure and take bytes from the caller;
 //! `transport` sits at the edge (sockets, serial ports, files, threads).
 
+pub mod clock;
 pub mod line;
 pub mod mavlink;
 pub mod record;
@@ -56,6 +57,16 @@ pub enum Proto {
     Auto,
 }
 
+/// A protocol choice that cannot be honoured.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+pub enum ProtoError {
+    /// Lines carry no signature: with a key, nothing they say could be trusted.
+    #[error(
+        "the line protocol cannot be used with a signing key: lines carry no signature, so none of them could be trusted; read signed MAVLink 2 (protocol mavlink or auto), or leave out the key"
+    )]
+    LineWithKey,
+}
+
 /// A decoder for one link, whichever protocol it speaks.
 #[derive(Debug)]
 pub struct Decoder {
@@ -69,8 +80,11 @@ pub struct Decoder {
 const MAX_QUEUED_SAMPLES: usize = 512;
 
 impl Decoder {
-    /// A decoder for `proto` with the MAVLink filters in `cfg`.
-    pub fn new(proto: Proto, cfg: mavlink::MavConfig) -> Decoder {
+    /// A decoder for `proto` with the MAVLink filters in `cfg`. With a
+    /// signing key only signed MAVLink is read: `Auto` never settles on
+    /// lines, and `Line` is refused.
+    pub fn new(proto: Proto, cfg: mavlink::MavConfig) -> Result<Decoder, ProtoError> {
+        let keyed = cfg.signing_key.is_some();
         let mav = || {
             Some((
                 mavlink::MavDecoder::new(cfg.clone()),
@@ -78,16 +92,24 @@ impl Decoder {
             ))
         };
         let (m, l) = match proto {
+            Proto::Line if keyed => return Err(ProtoError::LineWithKey),
+            Proto::Auto if keyed => (mav(), None),
             Proto::Mavlink => (mav(), None),
             Proto::Line => (None, Some(line::LineDecoder::new())),
             Proto::Auto => (mav(), Some(line::LineDecoder::new())),
         };
-        Decoder {
+        Ok(Decoder {
             mav: m,
             line: l,
             out: Default::default(),
             extra: Counters::default(),
-        }
+        })
+    }
+
+    /// The signature checker, when a key is set: live links set its wall
+    /// clock and save its replay floor.
+    pub fn verifier_mut(&mut self) -> Option<&mut mavlink::Verifier> {
+        self.mav.as_mut().and_then(|(m, _)| m.verifier_mut())
     }
 
     /// The protocol in use (auto until the data has decided).
@@ -115,10 +137,15 @@ impl Decoder {
         }
     }
 
-    /// End of input: a last line without a newline still counts.
+    /// End of input: a last line without a newline still counts, and
+    /// MAVLink bytes held for a frame that never completed are searched
+    /// again for the frames behind them.
     pub fn finish(&mut self, arrival_s: f64) {
         if let Some(l) = self.line.as_mut() {
             l.finish(arrival_s);
+        }
+        if let Some((m, _)) = self.mav.as_mut() {
+            m.finish();
         }
         self.settle();
         self.collect(arrival_s);
@@ -206,7 +233,7 @@ mod tests {
 
     #[test]
     fn samples_nobody_takes_are_dropped_and_counted() {
-        let mut d = Decoder::new(Proto::Line, Default::default());
+        let mut d = Decoder::new(Proto::Line, Default::default()).expect("no key");
         let text = "t=1 vbat=12\n".repeat(MAX_QUEUED_SAMPLES + 10);
         d.push(text.as_bytes(), 0.0);
         let c = d.counters();
@@ -217,7 +244,7 @@ mod tests {
         #![proptest_config(ProptestConfig::with_cases(64))]
         #[test]
         fn auto_decoder_survives_arbitrary_bytes(data in proptest::collection::vec(any::<u8>(), 0..3000)) {
-            let mut d = Decoder::new(Proto::Auto, Default::default());
+            let mut d = Decoder::new(Proto::Auto, Default::default()).expect("no key");
             d.push(&data, 0.0);
             d.finish(0.0);
             let mut n = 0;
@@ -228,7 +255,7 @@ mod tests {
 
     #[test]
     fn auto_settles_on_lines_for_text() {
-        let mut d = Decoder::new(Proto::Auto, Default::default());
+        let mut d = Decoder::new(Proto::Auto, Default::default()).expect("no key");
         d.push(b"t=1 roll=0 pitch=0 yaw=0\n", 0.0);
         assert_eq!(d.proto(), Proto::Line);
         assert_eq!(d.pop().map(|s| s.t_s), Some(1.0));
@@ -242,7 +269,7 @@ mod tests {
             .step_by(2)
             .map(|i| u8::from_str_radix(&hex[i..i + 2], 16).expect("hex"))
             .collect();
-        let mut d = Decoder::new(Proto::Auto, Default::default());
+        let mut d = Decoder::new(Proto::Auto, Default::default()).expect("no key");
         d.push(&bytes, 0.0);
         assert_eq!(d.proto(), Proto::Mavlink);
         assert_eq!(d.counters().frames, 1);

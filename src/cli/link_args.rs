@@ -77,8 +77,15 @@ impl LinkArgs {
             .map_err(|e: crate::link::spec::SpecError| bad_input(e.to_string()))
     }
 
-    /// Open the link (the cage feeds the sim link).
-    pub fn open(&self, cage: Option<Cage>, mode: Mode) -> anyhow::Result<Link> {
+    /// Open the link (the cage feeds the sim link). `data_dir` is where a
+    /// live link with a signing key keeps its replay floor; it is asked
+    /// for only then (watch passes the log's data folder).
+    pub fn open(
+        &self,
+        cage: Option<Cage>,
+        mode: Mode,
+        data_dir: impl FnOnce() -> anyhow::Result<PathBuf>,
+    ) -> anyhow::Result<Link> {
         let spec = self.spec()?;
         let allow = self
             .allow
@@ -96,15 +103,28 @@ impl LinkArgs {
             .parse()
             .map_err(|e: String| bad_input(format!("--replay-speed {e}")))?;
         let signing_key = self.signing_key.as_deref().map(read_key).transpose()?;
+        if signing_key.is_some() && self.proto == Proto::Line {
+            return Err(bad_input(
+                "--proto line cannot be used with --signing-key: lines carry no signature, so none of them could be trusted; use --proto mavlink (or auto) with a vehicle that signs its MAVLink 2 frames, or leave out the key",
+            ));
+        }
+        let live = matches!(spec, LinkSpec::Udp(_) | LinkSpec::Serial { .. });
+        let data_dir = if signing_key.is_some() && live && mode == Mode::Decode {
+            Some(data_dir()?)
+        } else {
+            None
+        };
         let opts = LinkOptions {
             proto: self.proto,
             mav: MavConfig {
                 sysid: self.sysid,
                 signing_key,
+                replay_floor: None,
             },
             allow,
             replay_speed,
             cage,
+            data_dir,
         };
         transport::open(&spec, opts, mode).map_err(|e| {
             if e.is_bad_input() {

@@ -5,7 +5,8 @@
 //! ignored; a line that does not parse is counted and skipped. Lines are
 //! bounded: a longer line is malformed and read past to its newline.
 //! Empty lines and lines starting with `#` are skipped silently. A line
-//! without `t` takes the arrival time.
+//! without `t` takes the arrival time; a `t` beyond what the link clock can
+//! step through (docs/links.md) is malformed, as the clock would stand still.
 
 use crate::attitude::quat_from_rpy_deg;
 use crate::link::Counters;
@@ -32,6 +33,13 @@ pub enum LineError {
         /// Value text.
         found: String,
     },
+    /// A time the link clock cannot step through (beyond
+    /// [`MAX_TIME_S`](crate::link::clock::MAX_TIME_S) either way).
+    #[error(
+        "key t: expected a time within {max:e} s either side of zero, found {0:?}",
+        max = crate::link::clock::MAX_TIME_S
+    )]
+    TimeRange(String),
     /// `armed` not 0 or 1.
     #[error("key armed: expected 0 or 1, found {0:?}")]
     BadArmed(String),
@@ -94,6 +102,9 @@ pub fn parse_line(line: &str, arrival_s: f64) -> Result<Option<Sample>, LineErro
                 }
             }
         };
+        if k == "t" && !crate::link::clock::time_in_range(x) {
+            return Err(LineError::TimeRange(v.chars().take(40).collect()));
+        }
         vals[idx] = Some(x);
     }
     if vals.iter().all(Option::is_none) {
@@ -277,6 +288,10 @@ mod tests {
                 LineError::BothAttitudes,
             ),
             ("foo=1 bar=2", LineError::Empty),
+            // 3e15 s: doubles there are 0.5 apart, so a 0.25 s tick cannot
+            // step the clock (IEEE 754 binary64 spacing, docs/links.md).
+            ("t=3e15 vbat=12", LineError::TimeRange("3e15".into())),
+            ("t=-3e15 vbat=12", LineError::TimeRange("-3e15".into())),
         ];
         for (line, want) in cases {
             assert_eq!(parse_line(line, 0.0), Err(want), "{line}");

@@ -361,8 +361,8 @@ fn signing_right_key_wrong_key_unsigned_and_replay() {
     let (s1, _) = fixture("signed_attitude_1", 2);
     let (unsigned, _) = fixture("attitude", 2);
     let with = |k: &SigningKey| MavConfig {
-        sysid: None,
         signing_key: Some(k.clone()),
+        ..Default::default()
     };
     // Right key: both accepted.
     let mut both = s0.clone();

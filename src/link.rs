@@ -254,6 +254,48 @@ mod tests {
     }
 
     #[test]
+    fn a_key_means_signed_mavlink_only() {
+        let key = mavlink::SigningKey::from_bytes([5u8; 32]);
+        let cfg = mavlink::MavConfig {
+            signing_key: Some(key.clone()),
+            ..Default::default()
+        };
+        assert_eq!(
+            Decoder::new(Proto::Line, cfg.clone()).err(),
+            Some(ProtoError::LineWithKey)
+        );
+        // Unsigned text first cannot win the protocol choice.
+        let mut d = Decoder::new(Proto::Auto, cfg).expect("auto with a key");
+        assert_eq!(d.proto(), Proto::Mavlink);
+        d.push(b"t=0 roll=0 pitch=0 yaw=0 vbat=12.6 armed=0
+".repeat(3).as_slice(), 0.0);
+        assert_eq!(d.proto(), Proto::Mavlink);
+        assert!(d.pop().is_none());
+        let msg = mavlink::Message::Attitude {
+            time_boot_ms: 1500,
+            rpy_rad: [0.0; 3],
+            rates_rad_s: [0.0; 3],
+        };
+        for (i, k) in [&key, &key, &mavlink::SigningKey::from_bytes([6u8; 32])]
+            .into_iter()
+            .enumerate()
+        {
+            let sign = mavlink::SignWith {
+                key: k,
+                link_id: 0,
+                timestamp: 1000 + i as u64,
+            };
+            d.push(&mavlink::encode_frame(2, i as u8, 1, 1, &msg, Some(sign)), 0.0);
+        }
+        d.push(&mavlink::encode_frame(2, 9, 1, 1, &msg, None), 0.0);
+        let c = d.counters();
+        // Two genuine frames decoded; the wrongly signed and the unsigned
+        // one counted as rejected, not as decoded.
+        assert_eq!((c.frames, c.rejected, c.malformed), (2, 2, 0));
+        assert_eq!(d.pop().map(|s| s.t_s), Some(1.5));
+    }
+
+    #[test]
     fn auto_settles_on_lines_for_text() {
         let mut d = Decoder::new(Proto::Auto, Default::default()).expect("no key");
         d.push(b"t=1 roll=0 pitch=0 yaw=0\n", 0.0);

@@ -423,3 +423,108 @@ proptest! {
         prop_assert!(d.buffered() <= CHUNK + MAX_FRAME_LEN);
     }
 }
+
+#[test]
+fn a_false_start_at_the_end_of_input_does_not_hide_the_frames_after_it() {
+    // A v2 start byte claiming a 200-byte payload of ATTITUDE, then three
+    // good frames (108 bytes): the claim can never complete, so at the end
+    // of the input the search resumes past it (docs/links.md).
+    let mut s = vec![0xFD, 200, 0, 0, 0, 1, 1, 30, 0, 0];
+    let good = unhex(REF_V1_ATTITUDE);
+    for _ in 0..3 {
+        s.extend_from_slice(&good);
+    }
+    let mut d = MavDecoder::new(MavConfig::default());
+    d.push(&s);
+    assert_eq!(d.counters().frames, 0, "still waiting for the claim");
+    d.finish();
+    let mut n = 0;
+    while d.pop().is_some() {
+        n += 1;
+    }
+    assert_eq!(n, 3);
+    assert_eq!(d.buffered(), 0);
+    // A frame cut short at the end is counted once, not read.
+    let mut d = MavDecoder::new(MavConfig::default());
+    d.push(&good[..20]);
+    d.finish();
+    assert_eq!((d.counters().frames, d.counters().crc_errors), (0, 1));
+}
+
+#[test]
+fn a_checkable_frame_inside_an_unknown_one_wins() {
+    // An unknown id (STATUSTEXT, 253) claiming 100 bytes, a good ATTITUDE
+    // frame starting 10 bytes in, padding so that the byte after the claim
+    // is a start byte (the case where the unknown frame used to be skipped
+    // whole), then a good frame there.
+    let good = unhex(REF_V1_ATTITUDE);
+    let mut s = vec![0xFD, 100, 0, 0, 0, 1, 1, 253, 0, 0];
+    s.extend_from_slice(&good);
+    let claim_end = 10 + 100 + 2;
+    s.resize(claim_end, 0x00);
+    s.extend_from_slice(&good);
+    let (f, c) = decode_all(MavConfig::default(), &s);
+    assert_eq!(f.len(), 2, "{c:?}");
+    assert_eq!(c.unknown, 0);
+    // A genuine unknown frame whose payload holds a start byte but no
+    // checkable frame is still skipped whole and counted as unknown.
+    let mut s = vec![0xFD, 20, 0, 0, 0, 1, 1, 253, 0, 0];
+    s.extend_from_slice(&[0xFE; 20]);
+    s.extend_from_slice(&[0x12, 0x34]);
+    s.extend_from_slice(&good);
+    let mut d = MavDecoder::new(MavConfig::default());
+    d.push(&s);
+    d.finish();
+    let c = d.counters();
+    assert_eq!((c.frames, c.unknown), (1, 1), "{c:?}");
+}
+
+#[test]
+fn signatures_are_held_to_the_saved_floor_and_the_new_stream_window() {
+    let key = SigningKey::from_bytes([3u8; 32]);
+    let msg = Message::Heartbeat {
+        mav_type: 2,
+        autopilot: 3,
+        base_mode: 0,
+        custom_mode: 0,
+        system_status: 3,
+    };
+    let frame = |link_id: u8, timestamp: u64| {
+        encode_frame(
+            2,
+            0,
+            1,
+            1,
+            &msg,
+            Some(SignWith {
+                key: &key,
+                link_id,
+                timestamp,
+            }),
+        )
+    };
+    let wall = 500_000_000_000u64;
+    // A first run accepts a frame and its floor is kept.
+    let mut d = MavDecoder::new(MavConfig {
+        signing_key: Some(key.clone()),
+        ..Default::default()
+    });
+    d.verifier_mut().expect("keyed").set_wall_clock(wall);
+    let captured = frame(0, wall + 10);
+    d.push(&captured);
+    assert_eq!(d.counters().frames, 1);
+    let floor = d.verifier_mut().expect("keyed").floor().clone();
+    // The next run, from that floor: the captured frame is a replay, a
+    // frame signed long ago on a new link id is too old, a fresh one passes.
+    let mut d = MavDecoder::new(MavConfig {
+        signing_key: Some(key.clone()),
+        replay_floor: Some(floor),
+        ..Default::default()
+    });
+    d.verifier_mut().expect("keyed").set_wall_clock(wall + 100);
+    d.push(&captured);
+    d.push(&frame(9, wall - 2 * signing::NEW_STREAM_WINDOW_TICKS));
+    assert_eq!((d.counters().frames, d.counters().rejected), (0, 2));
+    d.push(&frame(0, wall + 200));
+    assert_eq!(d.counters().frames, 1);
+}

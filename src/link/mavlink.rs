@@ -40,6 +40,9 @@ const HDR_V2: usize = 10;
 pub const MAX_FRAME_LEN: usize = HDR_V2 + 255 + 2 + signing::SIGNATURE_LEN;
 /// Bytes taken from the caller per parse pass (bounds the buffer).
 const CHUNK: usize = 1024;
+/// Most bytes the decoder ever holds: one chunk, plus an unknown frame and
+/// a candidate inside it still waiting for its bytes.
+pub const MAX_BUFFERED: usize = CHUNK + 2 * MAX_FRAME_LEN;
 /// Frames kept for the caller before the oldest are dropped.
 const MAX_QUEUED: usize = 256;
 

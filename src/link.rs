@@ -267,8 +267,13 @@ mod tests {
         // Unsigned text first cannot win the protocol choice.
         let mut d = Decoder::new(Proto::Auto, cfg).expect("auto with a key");
         assert_eq!(d.proto(), Proto::Mavlink);
-        d.push(b"t=0 roll=0 pitch=0 yaw=0 vbat=12.6 armed=0
-".repeat(3).as_slice(), 0.0);
+        d.push(
+            b"t=0 roll=0 pitch=0 yaw=0 vbat=12.6 armed=0
+"
+            .repeat(3)
+            .as_slice(),
+            0.0,
+        );
         assert_eq!(d.proto(), Proto::Mavlink);
         assert!(d.pop().is_none());
         let msg = mavlink::Message::Attitude {
@@ -285,7 +290,10 @@ mod tests {
                 link_id: 0,
                 timestamp: 1000 + i as u64,
             };
-            d.push(&mavlink::encode_frame(2, i as u8, 1, 1, &msg, Some(sign)), 0.0);
+            d.push(
+                &mavlink::encode_frame(2, i as u8, 1, 1, &msg, Some(sign)),
+                0.0,
+            );
         }
         d.push(&mavlink::encode_frame(2, 9, 1, 1, &msg, None), 0.0);
         let c = d.counters();

@@ -122,11 +122,12 @@ fn spawn_watch(port: u16, key: &str, data: &Path, extra: &[&str]) -> Child {
     // nothing after it is taken from the pipe).
     let mut line = Vec::new();
     let out = c.stdout.as_mut().expect("stdout");
-    for b in out.bytes() {
-        match b {
-            Ok(b'\n') | Err(_) => break,
-            Ok(b) => line.push(b),
+    let mut b = [0u8; 1];
+    while let Ok(1) = out.read(&mut b) {
+        if b[0] == b'\n' {
+            break;
         }
+        line.push(b[0]);
     }
     let line = String::from_utf8_lossy(&line);
     assert!(line.contains("stale"), "{line}");
@@ -173,12 +174,7 @@ fn with_a_key_unsigned_text_cannot_win_and_replays_fail_across_processes() {
     let port = free_port();
     let w = spawn_watch(port, &key_file, &data, &[]);
     let mut script = genuine.clone();
-    script.extend(signed_frames(
-        &key,
-        7,
-        ts - 2 * NEW_STREAM_WINDOW_TICKS,
-        5,
-    ));
+    script.extend(signed_frames(&key, 7, ts - 2 * NEW_STREAM_WINDOW_TICKS, 5));
     script.extend(signed_frames(&key, 0, wall_timestamp() + 100, 3));
     send_all(port, &script);
     let (o, ended) = wait_bounded(w, Duration::from_secs(15));
@@ -216,7 +212,12 @@ fn a_damaged_replay_floor_is_not_ignored() {
     std::fs::create_dir_all(floor.parent().expect("folder")).expect("mkdir");
     std::fs::write(&floor, "{").expect("damage");
     let o = Command::new(BIN)
-        .args(["watch", "--headless", "--link", &format!("udp:{}", free_port())])
+        .args([
+            "watch",
+            "--headless",
+            "--link",
+            &format!("udp:{}", free_port()),
+        ])
         .args(["--signing-key", &key_file, "--data"])
         .arg(&data)
         .output()
@@ -264,7 +265,8 @@ fn a_recording_chunk_far_in_the_future_gets_capped_ticks_not_a_flood() {
     let mut w = RecordWriter::new(f, &Header::default()).expect("header");
     w.write(0.0, b"t=0 roll=0 pitch=0 yaw=0\n").expect("chunk");
     // 10^18 us: the chunk time from the issue.
-    w.write(1.0e12, b"t=1 roll=0 pitch=0 yaw=0\n").expect("chunk");
+    w.write(1.0e12, b"t=1 roll=0 pitch=0 yaw=0\n")
+        .expect("chunk");
     drop(w);
     let (o, ended) = watch_file(&format!("file:{}", p.display()), Duration::from_secs(20));
     assert!(ended, "replay did not end");

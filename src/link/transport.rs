@@ -29,8 +29,8 @@ mod sim;
 mod sink;
 mod udp;
 
-pub use crate::link::clock::TICK_S;
 use crate::cage::Cage;
+pub use crate::link::clock::TICK_S;
 use crate::link::mavlink::MavConfig;
 use crate::link::record::{RecordError, RecordReader};
 use crate::link::spec::{AllowEntry, LinkSpec, ReplaySpeed};

@@ -128,7 +128,10 @@ impl SigningKey {
         let mut h = Sha256::new();
         h.update(b"cagehand replay floor v1\0");
         h.update(self.0);
-        h.finalize()[..8].iter().map(|b| format!("{b:02x}")).collect()
+        h.finalize()[..8]
+            .iter()
+            .map(|b| format!("{b:02x}"))
+            .collect()
     }
 }
 
@@ -389,7 +392,10 @@ mod tests {
         );
         assert_eq!(format!("{k:?}"), "SigningKey(..)");
         assert_eq!(k.fingerprint().len(), 16);
-        assert_ne!(k.fingerprint(), SigningKey::from_bytes([0; 32]).fingerprint());
+        assert_ne!(
+            k.fingerprint(),
+            SigningKey::from_bytes([0; 32]).fingerprint()
+        );
     }
 
     #[test]
@@ -410,19 +416,40 @@ mod tests {
         let wall = 10 * NEW_STREAM_WINDOW_TICKS;
         // A first stream just inside the window behind the wall clock.
         let edge = wall - NEW_STREAM_WINDOW_TICKS;
-        assert_eq!(f.judge(a, edge, true, Some(wall)), SignatureVerdict::Accepted);
-        assert_eq!(f.judge(a, edge - 1, true, Some(wall)), SignatureVerdict::TooOld);
+        assert_eq!(
+            f.judge(a, edge, true, Some(wall)),
+            SignatureVerdict::Accepted
+        );
+        assert_eq!(
+            f.judge(a, edge - 1, true, Some(wall)),
+            SignatureVerdict::TooOld
+        );
         f.accept(a, wall + 500);
         // The local timestamp is now the newest accepted (ahead of the wall).
         let b = (1, 1, 7);
         let edge = wall + 500 - NEW_STREAM_WINDOW_TICKS;
-        assert_eq!(f.judge(b, edge, true, Some(wall)), SignatureVerdict::Accepted);
-        assert_eq!(f.judge(b, edge - 1, true, Some(wall)), SignatureVerdict::TooOld);
+        assert_eq!(
+            f.judge(b, edge, true, Some(wall)),
+            SignatureVerdict::Accepted
+        );
+        assert_eq!(
+            f.judge(b, edge - 1, true, Some(wall)),
+            SignatureVerdict::TooOld
+        );
         // A stream already heard in this run is held to its own timestamp only.
-        assert_eq!(f.judge(a, wall + 501, false, Some(wall)), SignatureVerdict::Accepted);
+        assert_eq!(
+            f.judge(a, wall + 501, false, Some(wall)),
+            SignatureVerdict::Accepted
+        );
         // A known stream must grow; equal is a replay.
-        assert_eq!(f.judge(a, wall + 500, false, None), SignatureVerdict::Replay);
-        assert_eq!(f.judge(a, wall + 501, false, None), SignatureVerdict::Accepted);
+        assert_eq!(
+            f.judge(a, wall + 500, false, None),
+            SignatureVerdict::Replay
+        );
+        assert_eq!(
+            f.judge(a, wall + 501, false, None),
+            SignatureVerdict::Accepted
+        );
     }
 
     #[test]

@@ -1,8 +1,8 @@
 //! `udp:HOST:PORT`: listen for datagrams, one read per datagram, senders
 //! not on the allow-list counted as rejected.
 
-use super::sink::Sink;
 use super::LinkEvent;
+use super::sink::Sink;
 use crate::link::spec::AllowEntry;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};

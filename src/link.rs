@@ -45,7 +45,7 @@ impl Counters {
 }
 
 /// Which decoder reads a link.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Proto {
     /// MAVLink v1/v2.
@@ -197,13 +197,14 @@ impl Decoder {
     }
 
     fn collect(&mut self, arrival_s: f64) {
-        let mut got = Vec::new();
+        // Straight into the bounded queue: nothing allocated per sample.
+        let (out, extra) = (&mut self.out, &mut self.extra);
         if let Some((m, maker)) = self.mav.as_mut() {
             while let Some(f) = m.pop() {
                 match maker.sample(&f, arrival_s) {
-                    mavlink::SampleOutcome::Sample(s) => got.push(s),
+                    mavlink::SampleOutcome::Sample(s) => queue(out, extra, s),
                     mavlink::SampleOutcome::Nothing => {}
-                    mavlink::SampleOutcome::Malformed => self.extra.malformed += 1,
+                    mavlink::SampleOutcome::Malformed => extra.malformed += 1,
                 }
             }
         }
@@ -211,18 +212,20 @@ impl Decoder {
             // While undecided, line samples wait in the line decoder's queue.
             if self.mav.is_none() {
                 while let Some(s) = l.pop() {
-                    got.push(s);
+                    queue(out, extra, s);
                 }
             }
         }
-        for s in got {
-            if self.out.len() >= MAX_QUEUED_SAMPLES {
-                self.out.pop_front();
-                self.extra.dropped += 1;
-            }
-            self.out.push_back(s);
-        }
     }
+}
+
+/// Queue a sample, dropping (and counting) the oldest when full.
+fn queue(out: &mut std::collections::VecDeque<Sample>, extra: &mut Counters, s: Sample) {
+    if out.len() >= MAX_QUEUED_SAMPLES {
+        out.pop_front();
+        extra.dropped += 1;
+    }
+    out.push_back(s);
 }
 
 #[cfg(test)]

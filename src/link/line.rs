@@ -110,34 +110,31 @@ pub fn parse_line(line: &str, arrival_s: f64) -> Result<Option<Sample>, LineErro
     if vals.iter().all(Option::is_none) {
         return Err(LineError::Empty);
     }
-    let group =
-        |r: std::ops::Range<usize>, name: &'static str| -> Result<Option<Vec<f64>>, LineError> {
-            let g: Vec<Option<f64>> = vals[r].to_vec();
-            if g.iter().all(Option::is_some) {
-                Ok(Some(g.into_iter().flatten().collect()))
-            } else if g.iter().all(Option::is_none) {
-                Ok(None)
-            } else {
-                Err(LineError::Incomplete(name))
-            }
-        };
+    // Groups come whole or not at all (nothing allocated per line).
+    let group = |r: std::ops::Range<usize>, name: &'static str| -> Result<bool, LineError> {
+        let n = vals[r.clone()].iter().filter(|v| v.is_some()).count();
+        match n {
+            0 => Ok(false),
+            n if n == r.len() => Ok(true),
+            _ => Err(LineError::Incomplete(name)),
+        }
+    };
+    let v = |i: usize| vals[i].unwrap_or(0.0);
     let rpy = group(1..4, "roll pitch yaw")?;
     let q = group(4..8, "qw qx qy qz")?;
     let acc = group(8..11, "ax ay az")?;
     let vel = group(11..14, "vn ve vd")?;
     let attitude = match (rpy, q) {
-        (Some(_), Some(_)) => return Err(LineError::BothAttitudes),
-        (Some(e), None) => Some(quat_from_rpy_deg(e[0], e[1], e[2])),
-        (None, Some(q)) => {
-            Some(unit_quaternion([q[0], q[1], q[2], q[3]]).ok_or(LineError::NotUnit)?)
-        }
-        (None, None) => None,
+        (true, true) => return Err(LineError::BothAttitudes),
+        (true, false) => Some(quat_from_rpy_deg(v(1), v(2), v(3))),
+        (false, true) => Some(unit_quaternion([v(4), v(5), v(6), v(7)]).ok_or(LineError::NotUnit)?),
+        (false, false) => None,
     };
     Ok(Some(Sample {
         t_s: vals[0].unwrap_or(arrival_s),
         attitude,
-        accel_body_m_s2: acc.map(|a| Vector3::new(a[0], a[1], a[2])),
-        velocity_ned_m_s: vel.map(|v| Vector3::new(v[0], v[1], v[2])),
+        accel_body_m_s2: acc.then(|| Vector3::new(v(8), v(9), v(10))),
+        velocity_ned_m_s: vel.then(|| Vector3::new(v(11), v(12), v(13))),
         battery_v: vals[14],
         armed: vals[15].map(|a| a > 0.5),
     }))

@@ -510,16 +510,16 @@ impl SampleMaker {
                 s.battery_v = Some(f64::from(*voltage_battery_mv) / 1000.0);
             }
             Message::BatteryStatus { voltages_mv, .. } => {
-                let known: Vec<u16> = voltages_mv
-                    .iter()
-                    .copied()
-                    .filter(|&v| v != messages::UNKNOWN_U16)
-                    .collect();
-                if known.is_empty() {
+                let (mut sum_mv, mut known) = (0.0, 0usize);
+                for &v in voltages_mv.iter().filter(|&&v| v != messages::UNKNOWN_U16) {
+                    sum_mv += f64::from(v);
+                    known += 1;
+                }
+                if known == 0 {
                     return SampleOutcome::Nothing;
                 }
                 s.t_s = t(None, self);
-                s.battery_v = Some(known.iter().map(|&v| f64::from(v)).sum::<f64>() / 1000.0);
+                s.battery_v = Some(sum_mv / 1000.0);
             }
             Message::ScaledImu {
                 time_boot_ms,

@@ -237,17 +237,7 @@ impl MavDecoder {
         if !shape.crc_ok(b, info) {
             return Candidate::Bad;
         }
-        let Shape {
-            v2,
-            hdr,
-            len,
-            seq,
-            sysid,
-            compid,
-            msgid,
-            signed,
-            ..
-        } = shape;
+        let (sysid, compid, signed) = (shape.sysid, shape.compid, shape.signed);
         if self.sysid.is_some_and(|want| want != sysid) {
             return Candidate::Rejected(total);
         }
@@ -257,13 +247,13 @@ impl MavDecoder {
             return Candidate::Rejected(total);
         }
         let mut payload = [0u8; messages::MAX_FULL_LEN];
-        let n = len.min(info.full_len);
-        payload[..n].copy_from_slice(&b[hdr..hdr + n]);
-        match Message::decode(msgid, &payload) {
+        let n = shape.len.min(info.full_len);
+        payload[..n].copy_from_slice(&b[shape.hdr..shape.hdr + n]);
+        match Message::decode(shape.msgid, &payload) {
             Some(message) => Candidate::Good(
                 Frame {
-                    version: if v2 { 2 } else { 1 },
-                    seq,
+                    version: if shape.v2 { 2 } else { 1 },
+                    seq: shape.seq,
                     sysid,
                     compid,
                     signed,

@@ -316,7 +316,7 @@ mod tests {
 
     #[test]
     fn auto_settles_on_mavlink_for_frames() {
-        // REFERENCES.md v1 ATTITUDE frame (pymavlink 2.4.50 reference frames).
+        // docs/references.md v1 ATTITUDE frame (pymavlink 2.4.50 reference frames).
         let hex = "fe1c0001011e40e20100cdcccc3dcdcc4cbe0000c03f0ad7233c0ad7a3bc8fc2f53c4c6c";
         let bytes: Vec<u8> = (0..hex.len())
             .step_by(2)
@@ -326,7 +326,7 @@ mod tests {
         d.push(&bytes, 0.0);
         assert_eq!(d.proto(), Proto::Mavlink);
         assert_eq!(d.counters().frames, 1);
-        // time_boot_ms 123456 -> 123.456 s (REFERENCES.md).
+        // time_boot_ms 123456 -> 123.456 s (docs/references.md).
         assert_eq!(d.pop().map(|s| s.t_s), Some(123.456));
     }
 }

@@ -1,4 +1,4 @@
-//! The line protocol for custom firmware (DESIGN.md): one sample per line of
+//! The line protocol for custom firmware (docs/design.md): one sample per line of
 //! whitespace-separated `key=value` pairs. Keys: `t` (s), `roll pitch yaw`
 //! (degrees, Z-Y-X) or `qw qx qy qz`, optional `ax ay az` (m/s^2, body),
 //! `vn ve vd` (m/s, NED), `vbat` (V), `armed` (0/1). Unknown keys are
@@ -227,7 +227,7 @@ mod tests {
         .expect("parses")
         .expect("a sample");
         assert_eq!(s.t_s, 12.5);
-        // REFERENCES.md: roll 10, pitch 20, yaw 30 deg -> q (computed, scipy Rotation).
+        // docs/references.md: roll 10, pitch 20, yaw 30 deg -> q (computed, scipy Rotation).
         let q = s.attitude.expect("attitude").coords;
         assert_relative_eq!(q.w, 0.951548525, epsilon = 1e-9);
         assert_relative_eq!(q.x, 0.038134576, epsilon = 1e-9);
@@ -249,7 +249,7 @@ mod tests {
         .expect("a sample");
         assert_eq!(s.t_s, 4.0);
         let rpy = rpy_deg(&s.attitude.expect("attitude"));
-        // Same REFERENCES.md attitude vector, the other way round.
+        // Same docs/references.md attitude vector, the other way round.
         assert_relative_eq!(rpy[0], 10.0, epsilon = 1e-6);
         assert_relative_eq!(rpy[1], 20.0, epsilon = 1e-6);
         assert_relative_eq!(rpy[2], 30.0, epsilon = 1e-6);

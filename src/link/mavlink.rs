@@ -1,9 +1,9 @@
-//! MAVLink v1 and v2 framing for the DESIGN.md subset, hand-written: the
+//! MAVLink v1 and v2 framing for the docs/design.md subset, hand-written: the
 //! subset is eight messages, and a decoder we own can count every kind of
 //! trouble (bad CRC, unknown id, refused sender) the link-health line shows.
 //!
 //! The streaming decoder takes bytes as they arrive and hands back frames.
-//! Its rules (REFERENCES.md, MAVLink): the CRC is CRC-16/MCRF4XX over every
+//! Its rules (docs/references.md, MAVLink): the CRC is CRC-16/MCRF4XX over every
 //! byte after the start byte, then the message's CRC_EXTRA; a MAVLink 2
 //! payload may be truncated (trailing zeros dropped) and is zero-filled; a
 //! payload longer than we know is accepted and the rest ignored; after a bad

@@ -1,4 +1,4 @@
-//! Decoder checks against REFERENCES.md frames and frames produced by an
+//! Decoder checks against docs/references.md frames and frames produced by an
 //! independent implementation (pymavlink 2.4.50, tests/fixtures/mavlink).
 
 use super::*;
@@ -12,7 +12,7 @@ fn unhex(s: &str) -> Vec<u8> {
         .collect()
 }
 
-// pymavlink 2.4.50 reference frames, REFERENCES.md.
+// pymavlink 2.4.50 reference frames, docs/references.md.
 const REF_V1_ATTITUDE: &str =
     "fe1c0001011e40e20100cdcccc3dcdcc4cbe0000c03f0ad7233c0ad7a3bc8fc2f53c4c6c";
 const REF_V2_ATTQ: &str = "fd2400000101011f000040e20100e145393f64b6d53d75fb1fbd6a582e3f0ad7233c0ad7a3bc8fc2f53c0000803f9a55";
@@ -44,7 +44,7 @@ fn decode_all(cfg: MavConfig, bytes: &[u8]) -> (Vec<Frame>, Counters) {
 #[test]
 fn crc_check_value() {
     // CRC catalogue, CRC-16/MCRF4XX: check value of "123456789" is 0x6F91
-    // (REFERENCES.md). Our checksum appends CRC_EXTRA, so compare the plain CRC.
+    // (docs/references.md). Our checksum appends CRC_EXTRA, so compare the plain CRC.
     assert_eq!(X25.checksum(b"123456789"), 0x6F91);
 }
 
@@ -53,7 +53,7 @@ fn reference_v1_attitude() {
     let (f, c) = decode_all(MavConfig::default(), &unhex(REF_V1_ATTITUDE));
     assert_eq!(c.frames, 1);
     assert_eq!((f[0].version, f[0].sysid, f[0].compid), (1, 1, 1));
-    // pymavlink 2.4.50 reference frames, REFERENCES.md: time 123456 ms,
+    // pymavlink 2.4.50 reference frames, docs/references.md: time 123456 ms,
     // roll 0.1, pitch -0.2, yaw 1.5 rad, rates 0.01, -0.02, 0.03.
     let Message::Attitude {
         time_boot_ms,
@@ -72,7 +72,7 @@ fn reference_v1_attitude() {
 fn reference_v2_attitude_quaternion() {
     let (f, c) = decode_all(MavConfig::default(), &unhex(REF_V2_ATTQ));
     assert_eq!(c.frames, 1);
-    // pymavlink 2.4.50 reference frames, REFERENCES.md.
+    // pymavlink 2.4.50 reference frames, docs/references.md.
     let Message::AttitudeQuaternion {
         time_boot_ms, q, ..
     } = f[0].message
@@ -91,7 +91,7 @@ fn reference_v2_attitude_quaternion() {
 #[test]
 fn reference_v2_heartbeat_armed() {
     let (f, _) = decode_all(MavConfig::default(), &unhex(REF_V2_HEARTBEAT));
-    // pymavlink 2.4.50 reference frames, REFERENCES.md: quadrotor, armed
+    // pymavlink 2.4.50 reference frames, docs/references.md: quadrotor, armed
     // (base_mode 0x81), active.
     let Message::Heartbeat {
         mav_type,
@@ -301,7 +301,7 @@ fn longer_payload_than_known_is_accepted() {
 
 #[test]
 fn short_v1_payload_is_bad_even_with_a_good_crc() {
-    // REFERENCES.md (MAVLink): v2 drops trailing zero bytes; v1 senders may
+    // docs/references.md (MAVLink): v2 drops trailing zero bytes; v1 senders may
     // send length >= base, never less. A v1 HEARTBEAT of 8 of its 9 bytes.
     let mut frame = vec![STX_V1, 8, 0, 1, 1, 0, 7, 0, 0, 0, 2, 3, 0x81, 4];
     let crc = checksum(&frame[1..], 50);

@@ -2,10 +2,10 @@
 //! report or as JSON (a contract: scripts parse it).
 
 use super::ProfileArg;
-use crate::cage::{Cage, MemberKind};
-use crate::profile::Profile;
-use crate::righting::{MoveKind, RightingModel};
-use crate::statics::{SelfStress, Structure, self_stress};
+use cagehand::cage::{Cage, MemberKind};
+use cagehand::profile::Profile;
+use cagehand::righting::{MoveKind, RightingModel};
+use cagehand::statics::{SelfStress, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -123,7 +123,7 @@ fn report<'a>(
                 tag: m.tag.as_deref(),
                 length_m: m.length_m,
                 prestress_n: ss.prestress_n.get(j).copied().unwrap_or(0.0),
-                capacity_n: crate::statics::capacity_n(p, m.kind, m.length_m),
+                capacity_n: cagehand::statics::capacity_n(p, m.kind, m.length_m),
             })
             .collect(),
         faces: c
@@ -240,7 +240,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         )?;
     }
     writeln!(out)?;
-    for line in crate::caution::CAUTION_LINES {
+    for line in cagehand::caution::CAUTION_LINES {
         writeln!(out, "{line}")?;
     }
     Ok(ExitCode::SUCCESS)

@@ -4,11 +4,11 @@
 
 use super::log_cmd::{self, LogOpts};
 use super::{Loaded, ProfileArg, bad_input};
-use crate::cage::MemberKind;
-use crate::health::StatusChange;
-use crate::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
-use crate::logbook::{Access, ImpactEvent, ImpactSource, StrikeRef};
-use crate::statics::{StaticsError, Structure, self_stress};
+use cagehand::cage::MemberKind;
+use cagehand::health::StatusChange;
+use cagehand::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
+use cagehand::logbook::{Access, ImpactEvent, ImpactSource, StrikeRef};
+use cagehand::statics::{StaticsError, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -220,7 +220,7 @@ fn record_beyond_model(
     args: &Args,
     l: &Loaded,
     resolved: &Resolved,
-    book: &mut crate::logbook::Logbook,
+    book: &mut cagehand::logbook::Logbook,
     lost_at_n: f64,
     residual_n: f64,
     why: &anyhow::Error,
@@ -278,7 +278,7 @@ fn record_beyond_model(
         out,
         "Treat the whole cage as damaged; do not fly it before a full inspection."
     )?;
-    for line in crate::caution::CAUTION_LINES {
+    for line in cagehand::caution::CAUTION_LINES {
         writeln!(out, "{line}")?;
     }
     Ok(ExitCode::SUCCESS)

@@ -3,14 +3,14 @@
 //! helpers `impact` uses to record an impact.
 
 use super::{Loaded, bad_input};
-use crate::health::{self, HealthReport, StatusChange};
-use crate::logbook::export::{self, ReportHeader};
-use crate::logbook::store::OpenReport;
-use crate::logbook::{
+use anyhow::Context;
+use cagehand::health::{self, HealthReport, StatusChange};
+use cagehand::logbook::export::{self, ReportHeader};
+use cagehand::logbook::store::OpenReport;
+use cagehand::logbook::{
     Access, Event, FindingEvent, FindingKind, ImpactEvent, Logbook, NoteEvent, Record,
     ReplacementEvent, StoreError,
 };
-use anyhow::Context;
 use serde::Serialize;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -150,7 +150,7 @@ fn shell_word(s: &str) -> String {
 /// records on another vehicle or in another folder.
 pub fn same_log_args(l: &Loaded, opts: &LogOpts) -> String {
     let mut s = String::new();
-    if l.profile.source != crate::profile::DEMO_PROFILE_NAME {
+    if l.profile.source != cagehand::profile::DEMO_PROFILE_NAME {
         s.push_str(&format!(" --profile {}", shell_word(&l.profile.source)));
     }
     if let Ok(d) = opts.data_dir() {
@@ -370,7 +370,7 @@ fn record(
 /// The detection `seq` is pending in this log, or bad input saying what
 /// became of it.
 pub fn check_pending(book: &Logbook, seq: u64) -> anyhow::Result<()> {
-    crate::logwork::check_pending(book, seq)
+    cagehand::logwork::check_pending(book, seq)
         .map_err(|e| bad_input(format!("{}: {e}", book.path().display())))
 }
 
@@ -399,8 +399,8 @@ fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<
     )?;
     for m in &h.members {
         let kind = match m.kind {
-            crate::cage::MemberKind::Rod => "rod",
-            crate::cage::MemberKind::String => "string",
+            cagehand::cage::MemberKind::Rod => "rod",
+            cagehand::cage::MemberKind::String => "string",
         };
         writeln!(
             out,
@@ -463,9 +463,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             for w in &h.warnings {
                 eprintln!("cagehand: warning: {w}");
             }
-            let pending = crate::logbook::detection::pending_warning(&crate::logbook::pending(
-                book.records(),
-            ));
+            let pending = cagehand::logbook::detection::pending_warning(
+                &cagehand::logbook::pending(book.records()),
+            );
             if *json && let Some(p) = &pending {
                 eprintln!("cagehand: warning: PENDING: {p}");
             }
@@ -578,7 +578,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
         Action::Pending { json } => {
             let (book, _) = opts.open_reporting(&l, Access::Read)?;
-            let pending = crate::logbook::pending(book.records());
+            let pending = cagehand::logbook::pending(book.records());
             if *json {
                 // The contract: an array of pending detections.
                 writeln!(out, "{}", serde_json::to_string_pretty(&pending)?)?;
@@ -629,7 +629,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             // write lock before anything is recorded).
             let (book, _) = opts.open_reporting(&l, Access::Read)?;
             check_pending(&book, *seq)?;
-            let Some(d) = crate::logbook::detection::detection(book.records(), *seq).cloned()
+            let Some(d) = cagehand::logbook::detection::detection(book.records(), *seq).cloned()
             else {
                 return Err(bad_input(format!("record #{seq} is not a detection")));
             };
@@ -669,11 +669,11 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let operator = opts.operator()?;
             let mut book = opts.open(&l, Access::Write)?;
             check_pending(&book, *seq)?;
-            let v = crate::logwork::Vehicle {
+            let v = cagehand::logwork::Vehicle {
                 profile: &l.profile,
                 cage: &l.cage,
             };
-            let rec = crate::logwork::dismiss(
+            let rec = cagehand::logwork::dismiss(
                 v,
                 &mut book,
                 &operator,
@@ -682,7 +682,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 reason,
             )
             .map_err(|e| match e {
-                crate::logwork::WorkError::Store(s) => store_err(s),
+                cagehand::logwork::WorkError::Store(s) => store_err(s),
                 other => bad_input(other.to_string()),
             })?
             .record;
@@ -701,7 +701,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let text = match format {
                 ExportFormat::Md => {
                     let log_path = book.path().display().to_string();
-                    let generated = crate::logbook::format_time(jiff::Timestamp::now());
+                    let generated = cagehand::logbook::format_time(jiff::Timestamp::now());
                     let header = ReportHeader {
                         vehicle_id: &l.profile.vehicle.id,
                         vehicle_name: &l.profile.vehicle.name,

@@ -4,10 +4,10 @@
 //! a phone photo.
 
 use super::{ProfileArg, bad_input};
-use crate::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg, whole_deg};
-use crate::cage::Cage;
-use crate::rest::{fit_face, resting_attitude};
-use crate::righting::{MoveKind, Plan, RightingModel};
+use cagehand::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg, whole_deg};
+use cagehand::cage::Cage;
+use cagehand::rest::{fit_face, resting_attitude};
+use cagehand::righting::{MoveKind, Plan, RightingModel};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -18,7 +18,7 @@ fn write_caution(out: &mut impl Write) -> std::io::Result<()> {
         out,
         "thrust: share of the rotors' best moment needed at the roll's worst angle."
     )?;
-    for line in crate::caution::CAUTION_LINES {
+    for line in cagehand::caution::CAUTION_LINES {
         writeln!(out, "{line}")?;
     }
     Ok(())

@@ -6,11 +6,11 @@
 use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, same_log_args, store_err, trust_note};
 use super::{Loaded, bad_input};
-use crate::feed::Feed;
-use crate::link::transport::Mode;
-use crate::logbook::Access;
-use crate::preflight::{self, Evaluation, ItemKind, LogInput, Outcome, SignError, SignOff};
-use crate::tracker::{WatchState, WatchStateKind};
+use crate::transport::Mode;
+use cagehand::feed::Feed;
+use cagehand::logbook::Access;
+use cagehand::preflight::{self, Evaluation, ItemKind, LogInput, Outcome, SignError, SignOff};
+use cagehand::tracker::{WatchState, WatchStateKind};
 use serde::Serialize;
 use std::io::Write;
 use std::path::PathBuf;
@@ -135,7 +135,7 @@ fn listen(args: &Args, l: &Loaded) -> anyhow::Result<Option<(WatchState, bool)>>
     for d in &detections {
         let operator = args.log.operator()?;
         let mut book = args.log.open(l, Access::Write)?;
-        let logged = crate::logbook::detection::record(
+        let logged = cagehand::logbook::detection::record(
             &mut book,
             &operator,
             jiff::Timestamp::now(),
@@ -157,7 +157,7 @@ fn listen(args: &Args, l: &Loaded) -> anyhow::Result<Option<(WatchState, bool)>>
 fn evaluate(
     l: &Loaded,
     live: Option<&(WatchState, bool)>,
-    records: &[crate::logbook::Record],
+    records: &[cagehand::logbook::Record],
     path: &str,
     new_file: bool,
     trouble: Option<&str>,
@@ -273,7 +273,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         writeln!(out, "  {b}")?;
                     }
                 }
-                writeln!(out, "Caution: {}", crate::logbook::export::CAUTION)?;
+                writeln!(out, "Caution: {}", cagehand::logbook::export::CAUTION)?;
             }
             Ok(ExitCode::SUCCESS)
         }

@@ -1,7 +1,7 @@
 //! `cagehand profile check FILE`: validate a profile and summarise it.
 
 use super::load_profile;
-use crate::cage::MemberKind;
+use cagehand::cage::MemberKind;
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;

@@ -6,16 +6,16 @@
 use super::Loaded;
 use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, lock_wait};
-use crate::feed::Feed;
-use crate::health::assess;
-use crate::link::transport::{Link, Mode};
-use crate::logbook::store::{Access, Logbook};
-use crate::logbook::{Record, detection};
-use crate::preflight;
-use crate::sim::SimCommand;
-use crate::tracker::{Tracker, WatchState, WatchStateKind};
+use crate::transport::{Link, Mode};
 use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample};
 use crate::tui::theme::{ColourDepth, Theme};
+use cagehand::feed::Feed;
+use cagehand::health::assess;
+use cagehand::logbook::store::{Access, Logbook};
+use cagehand::logbook::{Record, detection};
+use cagehand::preflight;
+use cagehand::sim::SimCommand;
+use cagehand::tracker::{Tracker, WatchState, WatchStateKind};
 use std::path::Path;
 use std::process::ExitCode;
 use std::sync::mpsc::{self, Sender};
@@ -56,7 +56,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
 
 /// Member health from the vehicle's cage log, or why there is none. A log
 /// that cannot be read does not stop the screens; they say why.
-fn read_health(l: &Loaded, log: &LogOpts) -> (Option<crate::health::HealthReport>, String) {
+fn read_health(l: &Loaded, log: &LogOpts) -> (Option<cagehand::health::HealthReport>, String) {
     let dir = match log.data_dir() {
         Ok(d) => d,
         Err(e) => return (None, format!("{e:#}")),
@@ -180,7 +180,7 @@ impl LogView {
 
 /// Write a detection to the log at once; the notice says where it went
 /// (vehicle and file) or why it could not be written.
-fn write_detection(l: &Loaded, log: &LogOpts, d: &crate::logbook::DetectionEvent) -> String {
+fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEvent) -> String {
     let vehicle = &l.profile.vehicle.id;
     let args = super::log_cmd::same_log_args(l, log);
     let written = log.operator().and_then(|operator| {
@@ -209,7 +209,7 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log);
         // Records another process writes are seen within about a second.
-        let mut follower = crate::logbook::follow::Follower::new(Path::new(&book.path));
+        let mut follower = cagehand::logbook::follow::Follower::new(Path::new(&book.path));
         let mut looked = Instant::now();
         while let Ok(msg) = link.rx.recv() {
             let step = feed.push(super::live::feed_input(msg));

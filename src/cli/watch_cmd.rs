@@ -8,10 +8,10 @@
 use super::link_args::LinkArgs;
 use super::log_cmd::LogOpts;
 use super::{Loaded, ProfileArg};
-use crate::feed::Feed;
-use crate::link::transport::Mode;
-use crate::logbook::{Access, DetectionEvent, detection};
-use crate::tracker::WatchStateKind;
+use crate::transport::Mode;
+use cagehand::feed::Feed;
+use cagehand::logbook::{Access, DetectionEvent, detection};
+use cagehand::tracker::WatchStateKind;
 use serde::Serialize;
 use std::collections::BTreeSet;
 use std::io::Write;

@@ -22,5 +22,6 @@ pub mod righting;
 pub mod sample;
 pub mod sim;
 pub mod statics;
+pub mod text;
 pub mod tracker;
 pub mod tui;

@@ -251,7 +251,7 @@ fn record_beyond_model(
         writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
         return Ok(ExitCode::SUCCESS);
     }
-    writeln!(out, "{why}")?;
+    writeln!(out, "{}", crate::text::terminal(&why.to_string()))?;
     writeln!(
         out,
         "RECORDED as #{} beyond the model: every member is now REPLACE NOW ({} status changes).",
@@ -358,14 +358,15 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         (Some(seq), Some(book)) => writeln!(
             out,
             "impact on {} of {} recorded as #{seq} in {}",
-            report.strike,
-            report.vehicle,
+            crate::text::terminal(&report.strike),
+            crate::text::terminal(&report.vehicle),
             book.path().display()
         )?,
         _ => writeln!(
             out,
             "impact on {} of {} (dry run, not recorded)",
-            report.strike, report.vehicle
+            crate::text::terminal(&report.strike),
+            crate::text::terminal(&report.vehicle)
         )?,
     }
     writeln!(

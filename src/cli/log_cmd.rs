@@ -7,9 +7,10 @@ use crate::health::{self, HealthReport, StatusChange};
 use crate::logbook::export::{self, ReportHeader};
 use crate::logbook::store::OpenReport;
 use crate::logbook::{
-    Access, Event, FindingEvent, FindingKind, ImpactEvent, Logbook, NoteEvent, Record,
-    ReplacementEvent, StoreError,
+    Access, ChainHead, Event, FindingEvent, FindingKind, ImpactEvent, Integrity, Logbook,
+    NoteEvent, Record, ReplacementEvent, StoreError,
 };
+use crate::text::terminal;
 use anyhow::Context;
 use serde::Serialize;
 use std::io::Write;
@@ -100,15 +101,15 @@ impl LogOpts {
         let (book, report) =
             Logbook::open(&dir, &l.profile.vehicle.id, access, lock_wait()).map_err(store_err)?;
         for m in report.messages(book.path()) {
-            eprintln!("cagehand: warning: {m}");
+            eprintln!("cagehand: warning: {}", terminal(&m));
         }
         Ok((book, report))
     }
 }
 
 /// What a reader of health or a report must know about the log itself: it
-/// does not exist (so "ok" means "nothing recorded"), or records were
-/// skipped (so damage may be understated).
+/// does not exist (so "ok" means "nothing recorded"), or it has integrity
+/// problems (records skipped, changed, removed: damage may be understated).
 pub fn trust_note(report: &OpenReport, book: &Logbook) -> Option<String> {
     if report.new_file {
         return Some(format!(
@@ -116,12 +117,26 @@ pub fn trust_note(report: &OpenReport, book: &Logbook) -> Option<String> {
             book.path().display()
         ));
     }
-    let skipped = report.problems.len() + usize::from(report.torn_tail.is_some());
-    (skipped > 0).then(|| {
-        format!(
-            "{skipped} damaged record(s) skipped: damage may be understated; see `cagehand log show`"
-        )
-    })
+    report
+        .integrity
+        .headline()
+        .map(|h| format!("{h}; see `cagehand log verify`"))
+}
+
+/// The integrity problems, one indented line each, for the readable
+/// outputs (escaped: they quote the file).
+fn write_integrity(out: &mut impl Write, integrity: &Integrity) -> anyhow::Result<()> {
+    for i in &integrity.issues {
+        writeln!(out, "  {}", terminal(&i.to_string()))?;
+    }
+    Ok(())
+}
+
+/// `SEQ:HASH`, or a dash when there is no log.
+fn head_text(book: &Logbook) -> String {
+    book.head()
+        .map(ChainHead::to_string)
+        .unwrap_or_else(|| "- (no log yet)".to_string())
 }
 
 /// Map a store error to an exit code: a log or id we cannot read is bad
@@ -188,6 +203,17 @@ enum Action {
         #[arg(long, hide = true, default_value_t = 1)]
         repeat: u32,
     },
+    /// Check the log's hash chain, and optionally that it still holds a
+    /// chain head kept from an earlier report; exit 1 on any problem.
+    Verify {
+        /// A chain head `SEQ:HASH` as a report printed it (16 or more hex
+        /// digits of the hash).
+        #[arg(long, value_name = "SEQ:HASH")]
+        head: Option<String>,
+        /// Print JSON.
+        #[arg(long)]
+        json: bool,
+    },
     /// Write a maintenance report.
     Export {
         /// md or csv.
@@ -245,9 +271,15 @@ pub fn write_changes(out: &mut impl Write, changes: &[StatusChange]) -> anyhow::
         writeln!(out, "no member changed status")?;
     }
     for c in changes {
-        writeln!(out, "{}: {} -> {}", c.id, c.from.label(), c.to.label())?;
+        writeln!(
+            out,
+            "{}: {} -> {}",
+            terminal(&c.id),
+            c.from.label(),
+            c.to.label()
+        )?;
         for r in &c.reasons {
-            writeln!(out, "    {r}")?;
+            writeln!(out, "    {}", terminal(r))?;
         }
     }
     Ok(())
@@ -282,9 +314,65 @@ pub fn record_impact(
 
 #[derive(Serialize)]
 struct ShowJson<'a> {
+    schema: &'static str,
     vehicle: &'a str,
     log: String,
     records: &'a [Record],
+    integrity: IntegrityJson<'a>,
+}
+
+#[derive(Serialize)]
+struct IssueJson<'a> {
+    line: usize,
+    kind: crate::logbook::IssueKind,
+    detail: &'a str,
+    effect: &'static str,
+}
+
+/// The log's integrity for scripts (`cagehand.log_show/1`,
+/// `cagehand.log_verify/1`; docs/json.md).
+#[derive(Serialize)]
+struct IntegrityJson<'a> {
+    sound: bool,
+    head: Option<String>,
+    issues: Vec<IssueJson<'a>>,
+    notes: &'a [String],
+}
+
+fn integrity_json<'a>(book: &Logbook, i: &'a Integrity) -> IntegrityJson<'a> {
+    IntegrityJson {
+        sound: i.is_sound(),
+        head: book.head().map(ChainHead::to_string),
+        issues: i
+            .issues
+            .iter()
+            .map(|x| IssueJson {
+                line: x.line,
+                kind: x.kind,
+                detail: &x.detail,
+                effect: x.kind.effect(),
+            })
+            .collect(),
+        notes: &i.notes,
+    }
+}
+
+#[derive(Serialize)]
+struct VerifyJson<'a> {
+    schema: &'static str,
+    vehicle: &'a str,
+    log: String,
+    exists: bool,
+    records: usize,
+    integrity: IntegrityJson<'a>,
+    kept_head: Option<KeptHeadJson>,
+}
+
+#[derive(Serialize)]
+struct KeptHeadJson {
+    head: String,
+    matches: bool,
+    detail: String,
 }
 
 fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<()> {
@@ -300,7 +388,7 @@ fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<
         writeln!(
             out,
             "{:<7} {:<7} {:<12} {:>7.3}  {:>6.0}%  {:>7}",
-            m.id,
+            terminal(&m.id),
             kind,
             m.status.label(),
             m.damage,
@@ -324,28 +412,35 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             }
             if *json {
                 let j = ShowJson {
+                    schema: "cagehand.log_show/1",
                     vehicle: &l.profile.vehicle.id,
                     log: book.path().display().to_string(),
                     records: book.records(),
+                    integrity: integrity_json(&book, &report.integrity),
                 };
                 writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
             } else {
                 writeln!(
                     out,
-                    "cage log of {} ({}): {} records",
-                    l.profile.vehicle.id,
-                    book.path().display(),
-                    book.records().len()
+                    "cage log of {} ({}): {} records, chain head {}",
+                    terminal(&l.profile.vehicle.id),
+                    terminal(&book.path().display().to_string()),
+                    book.records().len(),
+                    head_text(&book)
                 )?;
+                if let Some(h) = report.integrity.headline() {
+                    writeln!(out, "WARNING: {h}")?;
+                    write_integrity(&mut out, &report.integrity)?;
+                }
                 for r in book.records() {
                     writeln!(
                         out,
                         "#{:<4} {}  {:<10} {:<11} {}",
                         r.seq,
-                        r.time,
-                        r.operator,
+                        terminal(&r.time),
+                        terminal(&r.operator),
                         r.event.name(),
-                        r.event.summary()
+                        terminal(&r.event.summary())
                     )?;
                 }
             }
@@ -355,28 +450,30 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let note = trust_note(&report, &book);
             let h = assess(&l, book.records());
             for w in &h.warnings {
-                eprintln!("cagehand: warning: {w}");
+                eprintln!("cagehand: warning: {}", terminal(w));
             }
             if *json {
                 writeln!(out, "{}", serde_json::to_string_pretty(&h.members)?)?;
             } else {
+                let vid = terminal(&l.profile.vehicle.id);
                 if report.new_file {
-                    writeln!(
-                        out,
-                        "health of {}: NO RECORDS (no cage log found)",
-                        l.profile.vehicle.id
-                    )?;
+                    writeln!(out, "health of {vid}: NO RECORDS (no cage log found)")?;
                 } else {
                     writeln!(
                         out,
-                        "health of {} from {} records: worst {}",
-                        l.profile.vehicle.id,
+                        "health of {vid} from {} records: worst {}",
                         book.records().len(),
                         h.worst().label()
                     )?;
+                    writeln!(
+                        out,
+                        "chain head {} (keep it to check the log later: `cagehand log verify --head SEQ:HASH`)",
+                        head_text(&book)
+                    )?;
                 }
                 if let Some(n) = &note {
-                    writeln!(out, "WARNING: {n}")?;
+                    writeln!(out, "WARNING: {}", terminal(n))?;
+                    write_integrity(&mut out, &report.integrity)?;
                 }
                 write_health_table(&mut out, &h)?;
                 let act = h.to_act_on();
@@ -384,9 +481,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     writeln!(out)?;
                     writeln!(out, "to act on:")?;
                     for m in act {
-                        writeln!(out, "{} {}", m.id, m.status.label())?;
+                        writeln!(out, "{} {}", terminal(&m.id), m.status.label())?;
                         for r in &m.reasons {
-                            writeln!(out, "    {r}")?;
+                            writeln!(out, "    {}", terminal(r))?;
                         }
                     }
                 }
@@ -404,7 +501,12 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 note: note.clone(),
             });
             let (rec, ch) = record(&l, opts, &mut book, ev)?;
-            writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
+            writeln!(
+                out,
+                "recorded #{}: {}",
+                rec.seq,
+                terminal(&rec.event.summary())
+            )?;
             write_changes(&mut out, &ch)?;
         }
         Action::Replace { member, part, note } => {
@@ -416,7 +518,12 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 note: note.clone(),
             });
             let (rec, ch) = record(&l, opts, &mut book, ev)?;
-            writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
+            writeln!(
+                out,
+                "recorded #{}: {}",
+                rec.seq,
+                terminal(&rec.event.summary())
+            )?;
             write_changes(&mut out, &ch)?;
         }
         Action::Note { text, repeat } => {
@@ -442,6 +549,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 writeln!(out, "recorded #{}", rec.seq)?;
             }
         }
+        Action::Verify { head, json } => {
+            return verify(&mut out, &l, opts, head.as_deref(), *json);
+        }
         Action::Export { format, out: path } => {
             let (book, report) = opts.open_reporting(&l, Access::Read)?;
             let note = trust_note(&report, &book);
@@ -456,21 +566,26 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         profile: &l.profile.source,
                         log_path: &log_path,
                         generated: &generated,
+                        head: book.head(),
+                        integrity: Some(&report.integrity),
                     };
                     let md = export::markdown(&header, book.records(), &h);
-                    match &note {
+                    match (&note, report.new_file) {
                         // The warning goes right under the title, where a
                         // reader of the printed report cannot miss it.
-                        Some(n) => match md.split_once('\n') {
-                            Some((title, rest)) => {
-                                format!("{title}\n\n> **Warning.** {n}\n{rest}")
-                            }
-                            None => format!("> **Warning.** {n}\n\n{md}"),
+                        // (Integrity problems are placed there by the
+                        // report itself.)
+                        (Some(n), true) => match md.split_once('\n') {
+                            Some((title, rest)) => format!(
+                                "{title}\n\n> **Warning.** {}\n{rest}",
+                                crate::text::markdown(n)
+                            ),
+                            None => format!("> **Warning.** {}\n\n{md}", crate::text::markdown(n)),
                         },
-                        None => md,
+                        _ => md,
                     }
                 }
-                ExportFormat::Csv => export::csv(&h),
+                ExportFormat::Csv => export::csv(&h, book.head(), Some(&report.integrity)),
             };
             match path {
                 Some(p) => {
@@ -482,6 +597,79 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// `log verify`: the whole chain, and a kept head when given. Exit 1 when
+/// anything does not check (a script's `&&` stops there).
+fn verify(
+    out: &mut impl Write,
+    l: &Loaded,
+    opts: &LogOpts,
+    head: Option<&str>,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let kept: Option<ChainHead> = head
+        .map(|h| h.parse::<ChainHead>().map_err(bad_input))
+        .transpose()?;
+    let (book, report) = opts.open_reporting(l, Access::Read)?;
+    let integrity = &report.integrity;
+    let kept_result = kept.as_ref().map(|k| (k, integrity.check_head(k)));
+    let sound = !report.new_file
+        && integrity.is_sound()
+        && report.torn_tail.is_none()
+        && kept_result.as_ref().is_none_or(|(_, r)| r.is_ok());
+    if json {
+        let j = VerifyJson {
+            schema: "cagehand.log_verify/1",
+            vehicle: &l.profile.vehicle.id,
+            log: book.path().display().to_string(),
+            exists: !report.new_file,
+            records: book.records().len(),
+            integrity: integrity_json(&book, integrity),
+            kept_head: kept_result.as_ref().map(|(k, r)| KeptHeadJson {
+                head: k.to_string(),
+                matches: r.is_ok(),
+                detail: match r {
+                    Ok(s) | Err(s) => s.clone(),
+                },
+            }),
+        };
+        writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+    } else {
+        writeln!(
+            out,
+            "cage log of {} ({}): {} records, chain head {}",
+            terminal(&l.profile.vehicle.id),
+            terminal(&book.path().display().to_string()),
+            book.records().len(),
+            head_text(&book)
+        )?;
+        if report.new_file {
+            writeln!(out, "NOT VERIFIED: there is no cage log there")?;
+        } else if let Some(h) = integrity.headline() {
+            writeln!(out, "PROBLEMS: {h}")?;
+            write_integrity(out, integrity)?;
+        } else {
+            writeln!(
+                out,
+                "chain: every record follows the one before it, none repeats, none is missing"
+            )?;
+        }
+        for n in &integrity.notes {
+            writeln!(out, "note: {}", terminal(n))?;
+        }
+        if let Some((k, r)) = &kept_result {
+            match r {
+                Ok(s) => writeln!(out, "kept head {k}: matches; {s}")?,
+                Err(s) => writeln!(out, "kept head {k}: DOES NOT MATCH: {s}")?,
+            }
+        }
+    }
+    Ok(if sound {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(1)
+    })
 }
 
 fn write_file(p: &Path, bytes: &[u8]) -> anyhow::Result<()> {

@@ -67,11 +67,11 @@ fn read_health(l: &Loaded, log: &LogOpts) -> (Option<crate::health::HealthReport
             format!("no records yet in {}", book.path().display()),
         ),
         Ok((book, report)) => {
-            let problems = report.messages(book.path()).len();
-            let note = if problems > 0 {
-                format!(" ({problems} problems: run `cagehand log show`)")
-            } else {
-                String::new()
+            // Integrity problems (skipped, changed or removed records) say
+            // what they affect; the screens show this line.
+            let note = match report.integrity.headline() {
+                Some(h) => format!(" ({h}: run `cagehand log verify`)"),
+                None => String::new(),
             };
             (
                 Some(assess(book.records(), &l.cage, &l.profile.inspection)),

@@ -70,10 +70,12 @@ pub fn terminal_lines(s: &str) -> Cow<'_, str> {
 
 /// Outside text for inline Markdown (a table cell, a list item, a title):
 /// controls escaped as for the terminal, HTML's `&`, `<`, `>` as entities
-/// (so `<script>` is text, never markup), and the characters Markdown gives
-/// meaning inline (CommonMark 0.31, "Backslash escapes": any ASCII
-/// punctuation may be escaped) escaped with a backslash, `|` included so a
-/// table cell cannot be split.
+/// (so `<script>` is text, never markup), and the characters that open
+/// inline Markdown (code, emphasis, strike-through, links; CommonMark 0.31,
+/// "Backslash escapes": any ASCII punctuation may be escaped) escaped with
+/// a backslash, `|` included so a table cell cannot be split. Parentheses
+/// and `#` stay: with `[` escaped they cannot form a link, and the text is
+/// never at the start of a line.
 pub fn markdown(s: &str) -> String {
     let safe = terminal(s);
     let mut out = String::with_capacity(safe.len() + 8);
@@ -82,7 +84,7 @@ pub fn markdown(s: &str) -> String {
             '&' => out.push_str("&amp;"),
             '<' => out.push_str("&lt;"),
             '>' => out.push_str("&gt;"),
-            '\\' | '`' | '*' | '_' | '[' | ']' | '|' | '#' | '~' | '!' | '(' | ')' | '{' | '}' => {
+            '\\' | '`' | '*' | '_' | '[' | ']' | '|' | '~' => {
                 out.push('\\');
                 out.push(c);
             }

@@ -143,9 +143,10 @@ fn head_text(book: &Logbook) -> String {
 /// input (2); I/O and a held lock are runtime failures (1).
 pub fn store_err(e: StoreError) -> anyhow::Error {
     match e {
-        StoreError::Format { .. } | StoreError::BadVehicleId(_) | StoreError::Record(_) => {
-            bad_input(e.to_string())
-        }
+        StoreError::Format { .. }
+        | StoreError::BadVehicleId(_)
+        | StoreError::Record(_)
+        | StoreError::SequenceExhausted { .. } => bad_input(e.to_string()),
         other => anyhow::Error::new(other),
     }
 }
@@ -337,6 +338,7 @@ struct IntegrityJson<'a> {
     head: Option<String>,
     issues: Vec<IssueJson<'a>>,
     notes: &'a [String],
+    unchained_records: usize,
 }
 
 fn integrity_json<'a>(book: &Logbook, i: &'a Integrity) -> IntegrityJson<'a> {
@@ -354,6 +356,7 @@ fn integrity_json<'a>(book: &Logbook, i: &'a Integrity) -> IntegrityJson<'a> {
             })
             .collect(),
         notes: &i.notes,
+        unchained_records: i.unchained,
     }
 }
 
@@ -657,6 +660,13 @@ fn verify(
         }
         for n in &integrity.notes {
             writeln!(out, "note: {}", terminal(n))?;
+        }
+        if integrity.unchained > 0 {
+            writeln!(
+                out,
+                "note: the first {} record(s) were written by format 1, before records were chained: a change to them shows only against a chain head kept from before the change",
+                integrity.unchained
+            )?;
         }
         if let Some((k, r)) = &kept_result {
             match r {

@@ -239,7 +239,6 @@ impl IssueKind {
     pub fn effect(self) -> &'static str {
         match self {
             IssueKind::Duplicate => "the repeat is counted once",
-            IssueKind::SequenceOrder => "records may have been moved; damage may be understated",
             IssueKind::OtherVehicle => "the records may be another vehicle's",
             _ => "damage may be understated",
         }
@@ -288,9 +287,12 @@ pub struct Link {
 pub struct Integrity {
     /// Problems, in file order.
     pub issues: Vec<Issue>,
-    /// Things worth knowing that are not problems (a format-1 part of the
-    /// log, a last line without its line end).
+    /// Things worth knowing that are not problems (a last line without its
+    /// line end).
     pub notes: Vec<String>,
+    /// How many records were written by format 1, before the chain began:
+    /// an edit to them shows only against a chain head kept from before.
+    pub unchained: usize,
     /// The chain head (`None`: no log file, or a torn header).
     pub head: Option<ChainHead>,
     /// Every kept record's chain value, to check a kept head against.
@@ -514,14 +516,11 @@ pub fn sequence_issues(items: &[Item], keep: &[bool]) -> Vec<Issue> {
     let mut expected: Option<u64> = Some(1);
     for (idx, item) in items.iter().enumerate() {
         match item {
-            Item::Bad {
-                error, recovered, ..
-            } => {
+            Item::Bad { recovered, .. } => {
+                // The damaged line held the next number (the number it
+                // claims may be what was damaged): judge the record after.
                 if *recovered == 0 {
-                    expected = match error.seq {
-                        Some(s) => s.checked_add(1),
-                        None => None,
-                    };
+                    expected = None;
                 }
             }
             Item::Record { line, decoded } if keep.get(idx).copied().unwrap_or(false) => {

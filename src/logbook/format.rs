@@ -336,7 +336,10 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
                 } else {
                     IssueKind::Corrupt
                 },
-                detail: format!("record skipped: {}", error.reason),
+                detail: match error.seq {
+                    Some(n) => format!("record skipped (it claims number {n}): {}", error.reason),
+                    None => format!("record skipped: {}", error.reason),
+                },
             });
         }
     }
@@ -345,12 +348,7 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
     issues.append(&mut out.integrity.issues);
     issues.sort_by_key(|i| i.line);
     out.integrity.issues = issues;
-    if walk.unchained > 0 {
-        out.integrity.notes.push(format!(
-            "the first {} record(s) were written by format 1, before records were chained: a change to them shows only against a chain head kept from before the change",
-            walk.unchained
-        ));
-    }
+    out.integrity.unchained = walk.unchained;
     if let Some(no) = out.unterminated {
         out.integrity.notes.push(format!(
             "line {no}: the last record has no line end (edited or merged?); it checks and is kept, and the next write adds the line end"

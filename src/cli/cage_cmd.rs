@@ -209,7 +209,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(
             out,
             "{:<5} {:<19} {:>7}  {:<4}  {:>9.1}  {:>10.1}",
-            t(&f.id),
+            t(f.id),
             t(&f.nodes.join(" ")),
             f.strings,
             if f.stable { "yes" } else { "no" },
@@ -230,7 +230,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(
             out,
             "{:<7} {:<7} {:<9} {:>10.1}  {:>12.2}  {:>11.1}  {}",
-            t(&m.id),
+            t(m.id),
             kind,
             t(&m.nodes.join("-")),
             m.length_m * 1e3,

@@ -358,15 +358,15 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         (Some(seq), Some(book)) => writeln!(
             out,
             "impact on {} of {} recorded as #{seq} in {}",
-            crate::text::terminal(&report.strike),
-            crate::text::terminal(&report.vehicle),
+            crate::text::terminal(report.strike),
+            crate::text::terminal(report.vehicle),
             book.path().display()
         )?,
         _ => writeln!(
             out,
             "impact on {} of {} (dry run, not recorded)",
-            crate::text::terminal(&report.strike),
-            crate::text::terminal(&report.vehicle)
+            crate::text::terminal(report.strike),
+            crate::text::terminal(report.vehicle)
         )?,
     }
     writeln!(

@@ -35,10 +35,11 @@
 //! Durability: a record is written with one `write` of the whole line (the
 //! header too, for a new file), then `fsync` (`sync_data`), before the
 //! command reports success; a failed write is cut back to the old length.
-//! An advisory lock on the file keeps two writers apart. A torn or corrupt
-//! *last* line (a crash mid-write) is moved to a side file
-//! `<vehicle>.cagelog.set-aside` and reported; a corrupt line in the middle
-//! is reported with its line number and skipped, and the rest loads (whole
+//! An advisory lock on the file keeps two writers apart. A torn *last* line
+//! (no line end and a failing hash: a crash mid-write) is moved to a side
+//! file `<vehicle>.cagelog.set-aside` and reported; any other line that
+//! does not check stays, is reported with its line number every time and
+//! skipped, and the rest loads (whole
 //! records inside a damaged line, e.g. two lines run together by a damaged
 //! newline, are recovered by their checksums).
 //!

@@ -315,7 +315,7 @@ fn a_missing_or_damaged_log_is_never_reported_as_a_healthy_cage() {
         out.contains("the cage log has 1 integrity problem(s): damage may be understated"),
         "{out}"
     );
-    assert!(out.contains("line 3: record skipped"), "{out}");
+    assert!(out.contains("line 3: corrupt record skipped"), "{out}");
     let md = ok(&cmd(d, &["log", "export", "--format", "md"]));
     assert!(
         md.contains("> **Warning.** the cage log has 1 integrity problem(s)"),

@@ -181,6 +181,30 @@ fn a_finding_edited_from_cut_to_ok_and_rehashed_is_caught() {
 }
 
 #[test]
+fn the_newest_record_edited_without_a_new_hash_stays_reported_after_a_write() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    ok(&cmd(d, &["log", "note", "new cage"]));
+    ok(&cmd(d, &["log", "finding", "S3", "cut"]));
+    let mut l = lines(d);
+    l[2] = l[2].replace("\"kind\":\"cut\"", "\"kind\":\"ok\"");
+    write_lines(d, &l);
+    ok(&cmd(d, &["log", "note", "next day"]));
+    // Not moved out of sight as if it were a torn write: still in the log,
+    // still reported wherever the cage's health is read.
+    assert!(!d.join("kestrel-demo.cagelog.set-aside").exists());
+    let out = ok(&cmd(d, &["log", "health"]));
+    assert!(
+        out.contains(
+            "line 3: corrupt record skipped (it claims number 2): checksum does not match"
+        ),
+        "{out}"
+    );
+    assert!(out.contains("damage may be understated"), "{out}");
+    assert_eq!(verify(d, &[]).0, 1);
+}
+
+#[test]
 fn an_edit_to_the_newest_record_or_its_removal_shows_against_the_kept_head() {
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
@@ -290,7 +314,7 @@ fn a_corrupt_record_is_reported_as_such_not_as_a_wrong_number() {
     let out = ok(&cmd(d, &["log", "health"]));
     assert!(out.contains("1 integrity problem(s)"), "{out}");
     assert!(
-        out.contains("line 3: record skipped (it claims number 2)"),
+        out.contains("line 3: corrupt record skipped (it claims number 2)"),
         "{out}"
     );
     assert!(!out.contains("where 2 was expected"), "{out}");

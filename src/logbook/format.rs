@@ -298,21 +298,23 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
                 }
                 items.push(Item::Record { line: *no, decoded });
             }
-            // A last line that does not check is a write cut short, unless
-            // its checksum holds: then it is as written and stays.
-            Err(e) if is_last && !e.verified => {
-                let reason = if *terminated {
+            // A last line without its end that does not check is a write
+            // cut short (a record is written with its newline in one write).
+            // A whole line that does not check was changed or damaged after
+            // it was written, and one whose checksum holds is as written:
+            // both stay in the file, reported.
+            Err(e) if is_last && !e.verified && !*terminated => {
+                let reason = format!(
+                    "torn record: the line has no end (a write was cut short): {}",
                     e.reason
-                } else {
-                    format!(
-                        "torn record: the line has no end (a write was cut short): {}",
-                        e.reason
-                    )
-                };
+                );
                 out.integrity.issues.push(Issue {
                     line: *no,
                     kind: IssueKind::Torn,
-                    detail: format!("the last record does not check: {reason}"),
+                    detail: format!(
+                        "torn last record: the line has no end (a write was cut short): {}",
+                        e.reason
+                    ),
                 });
                 out.tail = Some(TornTail {
                     line: *no,
@@ -336,9 +338,19 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
                 } else {
                     IssueKind::Corrupt
                 },
-                detail: match error.seq {
-                    Some(n) => format!("record skipped (it claims number {n}): {}", error.reason),
-                    None => format!("record skipped: {}", error.reason),
+                detail: {
+                    let what = if error.verified {
+                        "unreadable"
+                    } else {
+                        "corrupt"
+                    };
+                    match error.seq {
+                        Some(n) => format!(
+                            "{what} record skipped (it claims number {n}): {}",
+                            error.reason
+                        ),
+                        None => format!("{what} record skipped: {}", error.reason),
+                    }
                 },
             });
         }
@@ -501,13 +513,20 @@ mod tests {
     }
 
     #[test]
-    fn corrupt_last_line_with_newline_is_the_tail() {
+    fn a_complete_last_line_that_does_not_check_is_kept_and_reported() {
+        // Pins: a write is one `write` ending in its newline, so a crash
+        // leaves a line without one. A whole last line that fails its hash
+        // was changed or damaged after it was written: it stays in the file
+        // and is reported every time, never quietly set aside.
         let mut bytes = file(&[note(1, "a"), note(2, "b")]);
         let n = bytes.len();
         bytes[n - 10] ^= 0x01; // flips a checksum digit
         let p = parse(&bytes).unwrap();
         assert_eq!(p.records.len(), 1);
-        assert_eq!(p.tail.as_ref().map(|t| t.line), Some(3));
+        assert_eq!(p.tail, None);
+        let bad = issues(&p, IssueKind::Corrupt);
+        assert_eq!(bad.len(), 1);
+        assert_eq!(bad[0].line, 3);
     }
 
     #[test]

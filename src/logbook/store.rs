@@ -120,22 +120,6 @@ impl OpenReport {
             .iter()
             .map(|i| format!("{p}:{}: {} ({})", i.line, i.detail, i.kind.effect()))
             .collect();
-        if let Some(s) = &self.set_aside {
-            out.push(format!(
-                "{p}:{}: torn last record ({} bytes: {}) moved to {}; every record before it is kept",
-                s.line,
-                s.bytes,
-                s.reason,
-                s.side_path.display()
-            ));
-        }
-        if let Some(t) = &self.torn_tail {
-            out.push(format!(
-                "{p}:{}: torn last record ({} bytes) ignored; the next write sets it aside",
-                t.line,
-                t.bytes.len(),
-            ));
-        }
         out.extend(
             self.integrity
                 .notes
@@ -311,14 +295,24 @@ impl Logbook {
         book.records = parsed.records.into_iter().map(|(_, r)| r).collect();
         if let Some(tail) = parsed.tail {
             match access {
-                Access::Read => report.torn_tail = Some(tail),
+                Access::Read => {
+                    for i in &mut integrity.issues {
+                        if i.kind == IssueKind::Torn && i.line == tail.line {
+                            i.detail.push_str(
+                                "; ignored, and the next write moves it to the side file",
+                            );
+                        }
+                    }
+                    report.torn_tail = Some(tail);
+                }
                 Access::Write => {
                     let s = book.set_aside(f, &tail)?;
                     for i in &mut integrity.issues {
                         if i.kind == IssueKind::Torn && i.line == tail.line {
                             i.detail = format!(
-                                "the last record does not check and was moved to {}: {}",
+                                "torn last record moved to {} ({} bytes; every record before it is kept): {}",
                                 s.side_path.display(),
+                                s.bytes,
                                 tail.reason
                             );
                         }

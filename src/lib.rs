@@ -25,3 +25,4 @@ pub mod statics;
 pub mod text;
 pub mod tracker;
 pub mod tui;
+pub mod vehicle;

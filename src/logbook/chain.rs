@@ -28,10 +28,12 @@ pub const SUM_TAG: &str = " sha256=";
 
 /// Lower-case hex SHA-256 of some bytes.
 pub fn sha256_hex(bytes: &[u8]) -> String {
+    const HEX: &[u8; 16] = b"0123456789abcdef";
     let digest = Sha256::digest(bytes);
     let mut s = String::with_capacity(64);
     for b in digest.iter() {
-        s.push_str(&format!("{b:02x}"));
+        s.push(char::from(HEX[usize::from(b >> 4)]));
+        s.push(char::from(HEX[usize::from(b & 0x0f)]));
     }
     s
 }

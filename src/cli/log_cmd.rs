@@ -155,6 +155,20 @@ fn head_text(book: &Logbook) -> String {
         .unwrap_or_else(|| "- (no log yet)".to_string())
 }
 
+/// The first line of `log show` and `log verify`: whose log, where, how
+/// many records, and the chain head.
+fn write_title(out: &mut impl Write, l: &Loaded, book: &Logbook) -> anyhow::Result<()> {
+    writeln!(
+        out,
+        "cage log of {} ({}): {} records, chain head {}",
+        terminal(&l.profile.vehicle.id),
+        terminal(&book.path().display().to_string()),
+        book.records().len(),
+        head_text(book)
+    )?;
+    Ok(())
+}
+
 /// Map a store error to an exit code: a log or id we cannot read is bad
 /// input (2); I/O and a held lock are runtime failures (1).
 pub fn store_err(e: StoreError) -> anyhow::Error {
@@ -439,14 +453,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 };
                 writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
             } else {
-                writeln!(
-                    out,
-                    "cage log of {} ({}): {} records, chain head {}",
-                    terminal(&l.profile.vehicle.id),
-                    terminal(&book.path().display().to_string()),
-                    book.records().len(),
-                    head_text(&book)
-                )?;
+                write_title(&mut out, &l, &book)?;
                 if let Some(h) = report.integrity.headline() {
                     writeln!(out, "WARNING: {h}")?;
                     write_integrity(&mut out, &report.integrity)?;
@@ -655,14 +662,7 @@ fn verify(
         };
         writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
     } else {
-        writeln!(
-            out,
-            "cage log of {} ({}): {} records, chain head {}",
-            terminal(&l.profile.vehicle.id),
-            terminal(&book.path().display().to_string()),
-            book.records().len(),
-            head_text(&book)
-        )?;
+        write_title(out, l, &book)?;
         if report.new_file {
             writeln!(out, "NOT VERIFIED: there is no cage log there")?;
         } else if let Some(h) = integrity.headline() {

@@ -473,6 +473,17 @@ mod tests {
 
     const WAIT: Duration = Duration::from_millis(100);
 
+    /// A new log of vehicle `v` holding two notes: its folder and path.
+    fn two_notes() -> (tempfile::TempDir, PathBuf) {
+        let dir = tempfile::tempdir().unwrap();
+        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let now = jiff::Timestamp::now();
+        b.append("ana", now, note("one")).unwrap();
+        b.append("ana", now, note("two")).unwrap();
+        let path = b.path().to_path_buf();
+        (dir, path)
+    }
+
     /// Nothing to report: sound, nothing torn or set aside.
     fn clean(r: &OpenReport) -> bool {
         r.integrity.is_sound()
@@ -501,13 +512,8 @@ mod tests {
 
     #[test]
     fn torn_tail_goes_to_the_side_file_on_write_open() {
-        let dir = tempfile::tempdir().unwrap();
-        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let (dir, path) = two_notes();
         let now = jiff::Timestamp::now();
-        b.append("ana", now, note("one")).unwrap();
-        b.append("ana", now, note("two")).unwrap();
-        drop(b);
-        let path = dir.path().join("v.cagelog");
         let len = std::fs::metadata(&path).unwrap().len();
         let f = OpenOptions::new().write(true).open(&path).unwrap();
         f.set_len(len - 20).unwrap();
@@ -536,13 +542,8 @@ mod tests {
         // Pins: a last line that lost only its newline (an edit or a merge
         // under version control) is kept on read and on write open, nothing
         // is set aside, and the next append writes "\n" before its record.
-        let dir = tempfile::tempdir().unwrap();
-        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let (dir, path) = two_notes();
         let now = jiff::Timestamp::now();
-        b.append("ana", now, note("one")).unwrap();
-        b.append("ana", now, note("two")).unwrap();
-        drop(b);
-        let path = dir.path().join("v.cagelog");
         let full = std::fs::read(&path).unwrap();
         assert_eq!(full.last(), Some(&b'\n'));
         std::fs::write(&path, &full[..full.len() - 1]).unwrap();
@@ -575,13 +576,7 @@ mod tests {
     #[test]
     fn an_unterminated_last_line_that_fails_its_checksum_is_still_set_aside() {
         // Pins: only a last line whose checksum (or JSON) fails is torn.
-        let dir = tempfile::tempdir().unwrap();
-        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
-        let now = jiff::Timestamp::now();
-        b.append("ana", now, note("one")).unwrap();
-        b.append("ana", now, note("two")).unwrap();
-        drop(b);
-        let path = dir.path().join("v.cagelog");
+        let (dir, path) = two_notes();
         let mut bytes = std::fs::read(&path).unwrap();
         bytes.pop();
         let n = bytes.len();
@@ -633,13 +628,8 @@ mod tests {
 
     #[test]
     fn a_crlf_log_keeps_every_record_and_is_continued_in_crlf() {
-        let dir = tempfile::tempdir().unwrap();
-        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let (dir, path) = two_notes();
         let now = jiff::Timestamp::now();
-        b.append("ana", now, note("one")).unwrap();
-        b.append("ana", now, note("two")).unwrap();
-        drop(b);
-        let path = dir.path().join("v.cagelog");
         let lf = std::fs::read_to_string(&path).unwrap();
         std::fs::write(&path, lf.replace('\n', "\r\n")).unwrap();
         let (mut b, r) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
@@ -676,13 +666,7 @@ mod tests {
 
     #[test]
     fn a_set_aside_cut_short_is_not_copied_twice() {
-        let dir = tempfile::tempdir().unwrap();
-        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
-        let now = jiff::Timestamp::now();
-        b.append("ana", now, note("one")).unwrap();
-        b.append("ana", now, note("two")).unwrap();
-        drop(b);
-        let path = dir.path().join("v.cagelog");
+        let (dir, path) = two_notes();
         let full = std::fs::read(&path).unwrap();
         let torn = &full[..full.len() - 20];
         std::fs::write(&path, torn).unwrap();

@@ -165,7 +165,11 @@ pub fn main() -> ExitCode {
         Ok(code) => code,
         Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("cagehand: {e:#}");
+            // Errors quote files and arguments: escaped, lines kept.
+            eprintln!(
+                "cagehand: {}",
+                cagehand::text::terminal_lines(&format!("{e:#}"))
+            );
             if e.downcast_ref::<BadInput>().is_some() {
                 ExitCode::from(2)
             } else {

@@ -178,10 +178,13 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(out, "{}", serde_json::to_string_pretty(&r)?)?;
         return Ok(ExitCode::SUCCESS);
     }
+    let t = cagehand::text::terminal;
     writeln!(
         out,
         "{} ({}), {:.3} kg",
-        r.vehicle.id, r.vehicle.name, r.vehicle.mass_kg
+        t(r.vehicle.id),
+        t(r.vehicle.name),
+        r.vehicle.mass_kg
     )?;
     writeln!(
         out,
@@ -200,8 +203,8 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(
             out,
             "{:<5} {:<19} {:>7}  {:<4}  {:>9.1}  {:>10.1}",
-            f.id,
-            f.nodes.join(" "),
+            t(f.id),
+            t(&f.nodes.join(" ")),
             f.strings,
             if f.stable { "yes" } else { "no" },
             f.tilt_deg,
@@ -221,17 +224,17 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(
             out,
             "{:<7} {:<7} {:<9} {:>10.1}  {:>12.2}  {:>11.1}  {}",
-            m.id,
+            t(m.id),
             kind,
-            m.nodes.join("-"),
+            t(&m.nodes.join("-")),
             m.length_m * 1e3,
             m.prestress_n,
             m.capacity_n,
-            m.tag.unwrap_or("")
+            t(m.tag.unwrap_or(""))
         )?;
     }
     writeln!(out)?;
-    writeln!(out, "statics: {}", ss.message)?;
+    writeln!(out, "statics: {}", t(&ss.message))?;
     if ss.prestress_ok && ss.mechanisms > 0 {
         writeln!(
             out,

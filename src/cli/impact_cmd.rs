@@ -265,7 +265,7 @@ fn record_beyond_model(
         writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
         return Ok(ExitCode::SUCCESS);
     }
-    writeln!(out, "{why}")?;
+    writeln!(out, "{}", cagehand::text::terminal(&why.to_string()))?;
     writeln!(
         out,
         "RECORDED as #{} beyond the model in the cage log of {} ({}): every member is now REPLACE NOW ({} status changes).",
@@ -391,8 +391,8 @@ pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Re
         (Some(seq), Some(book)) => writeln!(
             out,
             "impact on {} of {} recorded as #{seq} in {}{}",
-            report.strike,
-            report.vehicle,
+            cagehand::text::terminal(report.strike),
+            cagehand::text::terminal(report.vehicle),
             book.path().display(),
             match detection {
                 Some(d) => format!(", confirming detection #{d}"),
@@ -402,7 +402,8 @@ pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Re
         _ => writeln!(
             out,
             "impact on {} of {} (dry run, not recorded)",
-            report.strike, report.vehicle
+            cagehand::text::terminal(report.strike),
+            cagehand::text::terminal(report.vehicle)
         )?,
     }
     writeln!(

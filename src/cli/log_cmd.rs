@@ -5,12 +5,13 @@
 use super::{Loaded, bad_input};
 use anyhow::Context;
 use cagehand::health::{self, HealthReport, StatusChange};
-use cagehand::logbook::export::{self, ReportHeader};
 use cagehand::logbook::store::OpenReport;
 use cagehand::logbook::{
-    Access, Event, FindingEvent, FindingKind, ImpactEvent, Logbook, NoteEvent, Record,
-    ReplacementEvent, StoreError,
+    Access, ChainHead, Event, FindingEvent, FindingKind, ImpactEvent, Integrity, Logbook,
+    NoteEvent, Record, ReplacementEvent, StoreError,
 };
+use cagehand::report::{self as export, ReportHeader};
+use cagehand::text::terminal;
 use serde::Serialize;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -127,7 +128,7 @@ impl LogOpts {
         let (book, report) =
             Logbook::open(&dir, &l.profile.vehicle.id, access, lock_wait()).map_err(store_err)?;
         for m in report.messages(book.path()) {
-            eprintln!("cagehand: warning: {m}");
+            eprintln!("cagehand: warning: {}", terminal(&m));
         }
         Ok((book, report))
     }
@@ -161,8 +162,8 @@ pub fn same_log_args(l: &Loaded, opts: &LogOpts) -> String {
 }
 
 /// What a reader of health or a report must know about the log itself: it
-/// does not exist (so "ok" means "nothing recorded"), or records were
-/// skipped (so damage may be understated).
+/// does not exist (so "ok" means "nothing recorded"), or it has integrity
+/// problems (records skipped, changed, removed: damage may be understated).
 pub fn trust_note(report: &OpenReport, book: &Logbook) -> Option<String> {
     if report.new_file {
         return Some(format!(
@@ -170,21 +171,50 @@ pub fn trust_note(report: &OpenReport, book: &Logbook) -> Option<String> {
             book.path().display()
         ));
     }
-    let skipped = report.problems.len() + usize::from(report.torn_tail.is_some());
-    (skipped > 0).then(|| {
-        format!(
-            "{skipped} damaged record(s) skipped: damage may be understated; see `cagehand log show`"
-        )
-    })
+    report
+        .integrity
+        .headline()
+        .map(|h| format!("{h}; see `cagehand log verify`"))
+}
+
+/// The integrity problems, one indented line each, for the readable
+/// outputs (escaped: they quote the file).
+fn write_integrity(out: &mut impl Write, integrity: &Integrity) -> anyhow::Result<()> {
+    for i in &integrity.issues {
+        writeln!(out, "  {}", terminal(&i.to_string()))?;
+    }
+    Ok(())
+}
+
+/// `SEQ:HASH`, or a dash when there is no log.
+fn head_text(book: &Logbook) -> String {
+    book.head()
+        .map(ChainHead::to_string)
+        .unwrap_or_else(|| "- (no log yet)".to_string())
+}
+
+/// The first line of `log show` and `log verify`: whose log, where, how
+/// many records, and the chain head.
+fn write_title(out: &mut impl Write, l: &Loaded, book: &Logbook) -> anyhow::Result<()> {
+    writeln!(
+        out,
+        "cage log of {} ({}): {} records, chain head {}",
+        terminal(&l.profile.vehicle.id),
+        terminal(&book.path().display().to_string()),
+        book.records().len(),
+        head_text(book)
+    )?;
+    Ok(())
 }
 
 /// Map a store error to an exit code: a log or id we cannot read is bad
 /// input (2); I/O and a held lock are runtime failures (1).
 pub fn store_err(e: StoreError) -> anyhow::Error {
     match e {
-        StoreError::Format { .. } | StoreError::BadVehicleId(_) | StoreError::Record(_) => {
-            bad_input(e.to_string())
-        }
+        StoreError::Format { .. }
+        | StoreError::BadVehicleId(_)
+        | StoreError::Record(_)
+        | StoreError::SequenceExhausted { .. } => bad_input(e.to_string()),
         other => anyhow::Error::new(other),
     }
 }
@@ -285,6 +315,17 @@ enum Action {
         #[arg(long, value_name = "TEXT")]
         reason: String,
     },
+    /// Check the log's hash chain, and optionally that it still holds a
+    /// chain head kept from an earlier report; exit 1 on any problem.
+    Verify {
+        /// A chain head `SEQ:HASH` as a report printed it (16 or more hex
+        /// digits of the hash).
+        #[arg(long, value_name = "SEQ:HASH")]
+        head: Option<String>,
+        /// Print JSON.
+        #[arg(long)]
+        json: bool,
+    },
     /// Write a maintenance report.
     Export {
         /// md or csv.
@@ -342,9 +383,15 @@ pub fn write_changes(out: &mut impl Write, changes: &[StatusChange]) -> anyhow::
         writeln!(out, "no member changed status")?;
     }
     for c in changes {
-        writeln!(out, "{}: {} -> {}", c.id, c.from.label(), c.to.label())?;
+        writeln!(
+            out,
+            "{}: {} -> {}",
+            terminal(&c.id),
+            c.from.label(),
+            c.to.label()
+        )?;
         for r in &c.reasons {
-            writeln!(out, "    {r}")?;
+            writeln!(out, "    {}", terminal(r))?;
         }
     }
     Ok(())
@@ -390,6 +437,63 @@ struct ShowJson<'a> {
     vehicle: &'a str,
     log: String,
     records: &'a [Record],
+    integrity: IntegrityJson<'a>,
+}
+
+#[derive(Serialize)]
+struct IssueJson<'a> {
+    line: usize,
+    kind: cagehand::logbook::IssueKind,
+    detail: &'a str,
+    effect: &'static str,
+}
+
+/// The log's integrity for scripts (`cagehand.log_show/1`,
+/// `cagehand.log_verify/1`; docs/json.md).
+#[derive(Serialize)]
+struct IntegrityJson<'a> {
+    sound: bool,
+    head: Option<String>,
+    issues: Vec<IssueJson<'a>>,
+    notes: &'a [String],
+    unchained_records: usize,
+}
+
+fn integrity_json<'a>(book: &Logbook, i: &'a Integrity) -> IntegrityJson<'a> {
+    IntegrityJson {
+        sound: i.is_sound(),
+        head: book.head().map(ChainHead::to_string),
+        issues: i
+            .issues
+            .iter()
+            .map(|x| IssueJson {
+                line: x.line,
+                kind: x.kind,
+                detail: &x.detail,
+                effect: x.kind.effect(),
+            })
+            .collect(),
+        notes: &i.notes,
+        unchained_records: i.unchained,
+    }
+}
+
+#[derive(Serialize)]
+struct VerifyJson<'a> {
+    schema: &'static str,
+    vehicle: &'a str,
+    log: String,
+    exists: bool,
+    records: usize,
+    integrity: IntegrityJson<'a>,
+    kept_head: Option<KeptHeadJson>,
+}
+
+#[derive(Serialize)]
+struct KeptHeadJson {
+    head: String,
+    matches: bool,
+    detail: String,
 }
 
 fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<()> {
@@ -405,7 +509,7 @@ fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<
         writeln!(
             out,
             "{:<7} {:<7} {:<12} {:>7.3}  {:>6.0}%  {:>7}",
-            m.id,
+            terminal(&m.id),
             kind,
             m.status.label(),
             m.damage,
@@ -429,29 +533,28 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             }
             if *json {
                 let j = ShowJson {
-                    schema: "cagehand.log/1",
+                    schema: "cagehand.log_show/1",
                     vehicle: &l.profile.vehicle.id,
                     log: book.path().display().to_string(),
                     records: book.records(),
+                    integrity: integrity_json(&book, &report.integrity),
                 };
                 writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
             } else {
-                writeln!(
-                    out,
-                    "cage log of {} ({}): {} records",
-                    l.profile.vehicle.id,
-                    book.path().display(),
-                    book.records().len()
-                )?;
+                write_title(&mut out, &l, &book)?;
+                if let Some(h) = report.integrity.headline() {
+                    writeln!(out, "WARNING: {h}")?;
+                    write_integrity(&mut out, &report.integrity)?;
+                }
                 for r in book.records() {
                     writeln!(
                         out,
                         "#{:<4} {}  {:<10} {:<11} {}",
                         r.seq,
-                        r.time,
-                        r.operator,
+                        terminal(&r.time),
+                        terminal(&r.operator),
                         r.event.name(),
-                        r.event.summary()
+                        terminal(&r.event.summary())
                     )?;
                 }
             }
@@ -461,7 +564,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let note = trust_note(&report, &book);
             let h = assess(&l, book.records());
             for w in &h.warnings {
-                eprintln!("cagehand: warning: {w}");
+                eprintln!("cagehand: warning: {}", terminal(w));
             }
             let pending = cagehand::logbook::detection::pending_warning(
                 &cagehand::logbook::pending(book.records()),
@@ -472,23 +575,25 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             if *json {
                 writeln!(out, "{}", serde_json::to_string_pretty(&h.members)?)?;
             } else {
+                let vid = terminal(&l.profile.vehicle.id);
                 if report.new_file {
-                    writeln!(
-                        out,
-                        "health of {}: NO RECORDS (no cage log found)",
-                        l.profile.vehicle.id
-                    )?;
+                    writeln!(out, "health of {vid}: NO RECORDS (no cage log found)")?;
                 } else {
                     writeln!(
                         out,
-                        "health of {} from {} records: worst {}",
-                        l.profile.vehicle.id,
+                        "health of {vid} from {} records: worst {}",
                         book.records().len(),
                         h.worst().label()
                     )?;
+                    writeln!(
+                        out,
+                        "chain head {} (keep it to check the log later: `cagehand log verify --head SEQ:HASH`)",
+                        head_text(&book)
+                    )?;
                 }
                 if let Some(n) = &note {
-                    writeln!(out, "WARNING: {n}")?;
+                    writeln!(out, "WARNING: {}", terminal(n))?;
+                    write_integrity(&mut out, &report.integrity)?;
                 }
                 if let Some(p) = &pending {
                     writeln!(out, "PENDING: {p}")?;
@@ -499,9 +604,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     writeln!(out)?;
                     writeln!(out, "to act on:")?;
                     for m in act {
-                        writeln!(out, "{} {}", m.id, m.status.label())?;
+                        writeln!(out, "{} {}", terminal(&m.id), m.status.label())?;
                         for r in &m.reasons {
-                            writeln!(out, "    {r}")?;
+                            writeln!(out, "    {}", terminal(r))?;
                         }
                     }
                 }
@@ -525,7 +630,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 rec.seq,
                 l.profile.vehicle.id,
                 book.path().display(),
-                rec.event.summary()
+                terminal(&rec.event.summary())
             )?;
             write_changes(&mut out, &ch)?;
         }
@@ -544,7 +649,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 rec.seq,
                 l.profile.vehicle.id,
                 book.path().display(),
-                rec.event.summary()
+                terminal(&rec.event.summary())
             )?;
             write_changes(&mut out, &ch)?;
         }
@@ -694,6 +799,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 book.path().display()
             )?;
         }
+        Action::Verify { head, json } => {
+            return verify(&mut out, &l, opts, head.as_deref(), *json);
+        }
         Action::Export { format, out: path } => {
             let (book, report) = opts.open_reporting(&l, Access::Read)?;
             let note = trust_note(&report, &book);
@@ -708,21 +816,33 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         profile: &l.profile.source,
                         log_path: &log_path,
                         generated: &generated,
+                        head: book.head(),
+                        integrity: Some(&report.integrity),
                     };
                     let md = export::markdown(&header, book.records(), &h);
-                    match &note {
+                    match (&note, report.new_file) {
                         // The warning goes right under the title, where a
                         // reader of the printed report cannot miss it.
-                        Some(n) => match md.split_once('\n') {
-                            Some((title, rest)) => {
-                                format!("{title}\n\n> **Warning.** {n}\n{rest}")
+                        // (Integrity problems are placed there by the
+                        // report itself.)
+                        (Some(n), true) => match md.split_once('\n') {
+                            Some((title, rest)) => format!(
+                                "{title}\n\n> **Warning.** {}\n{rest}",
+                                cagehand::text::markdown(n)
+                            ),
+                            None => {
+                                format!("> **Warning.** {}\n\n{md}", cagehand::text::markdown(n))
                             }
-                            None => format!("> **Warning.** {n}\n\n{md}"),
                         },
-                        None => md,
+                        _ => md,
                     }
                 }
-                ExportFormat::Csv => export::csv_with_records(&h, book.records()),
+                ExportFormat::Csv => export::csv_with_records(
+                    &h,
+                    book.records(),
+                    book.head(),
+                    Some(&report.integrity),
+                ),
             };
             match path {
                 Some(p) => {
@@ -734,6 +854,79 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// `log verify`: the whole chain, and a kept head when given. Exit 1 when
+/// anything does not check (a script's `&&` stops there).
+fn verify(
+    out: &mut impl Write,
+    l: &Loaded,
+    opts: &LogOpts,
+    head: Option<&str>,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let kept: Option<ChainHead> = head
+        .map(|h| h.parse::<ChainHead>().map_err(bad_input))
+        .transpose()?;
+    let (book, report) = opts.open_reporting(l, Access::Read)?;
+    let integrity = &report.integrity;
+    let kept_result = kept.as_ref().map(|k| (k, integrity.check_head(k)));
+    let sound = !report.new_file
+        && integrity.is_sound()
+        && report.torn_tail.is_none()
+        && kept_result.as_ref().is_none_or(|(_, r)| r.is_ok());
+    if json {
+        let j = VerifyJson {
+            schema: "cagehand.log_verify/1",
+            vehicle: &l.profile.vehicle.id,
+            log: book.path().display().to_string(),
+            exists: !report.new_file,
+            records: book.records().len(),
+            integrity: integrity_json(&book, integrity),
+            kept_head: kept_result.as_ref().map(|(k, r)| KeptHeadJson {
+                head: k.to_string(),
+                matches: r.is_ok(),
+                detail: match r {
+                    Ok(s) | Err(s) => s.clone(),
+                },
+            }),
+        };
+        writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+    } else {
+        write_title(out, l, &book)?;
+        if report.new_file {
+            writeln!(out, "NOT VERIFIED: there is no cage log there")?;
+        } else if let Some(h) = integrity.headline() {
+            writeln!(out, "PROBLEMS: {h}")?;
+            write_integrity(out, integrity)?;
+        } else {
+            writeln!(
+                out,
+                "chain: every record follows the one before it, none repeats, none is missing"
+            )?;
+        }
+        for n in &integrity.notes {
+            writeln!(out, "note: {}", terminal(n))?;
+        }
+        if integrity.unchained > 0 {
+            writeln!(
+                out,
+                "note: the first {} record(s) were written by format 1, before records were chained: a change to them shows only against a chain head kept from before the change",
+                integrity.unchained
+            )?;
+        }
+        if let Some((k, r)) = &kept_result {
+            match r {
+                Ok(s) => writeln!(out, "kept head {k}: matches; {s}")?,
+                Err(s) => writeln!(out, "kept head {k}: DOES NOT MATCH: {s}")?,
+            }
+        }
+    }
+    Ok(if sound {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(1)
+    })
 }
 
 fn write_file(p: &Path, bytes: &[u8]) -> anyhow::Result<()> {

@@ -10,6 +10,7 @@ use crate::transport::Mode;
 use cagehand::feed::Feed;
 use cagehand::logbook::Access;
 use cagehand::preflight::{self, Evaluation, ItemKind, LogInput, Outcome, SignError, SignOff};
+use cagehand::text::terminal;
 use cagehand::tracker::{WatchState, WatchStateKind};
 use serde::Serialize;
 use std::io::Write;
@@ -189,10 +190,10 @@ fn write_items(out: &mut impl Write, e: &Evaluation) -> anyhow::Result<()> {
             i.n,
             i.result.name().to_uppercase(),
             kind,
-            i.text
+            terminal(&i.text)
         )?;
         if i.result != Outcome::Hand {
-            writeln!(out, "             {}", i.detail)?;
+            writeln!(out, "             {}", terminal(&i.detail))?;
         }
     }
     Ok(())
@@ -258,7 +259,12 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 };
                 writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
             } else {
-                writeln!(out, "pre-flight of {vehicle} (cage log {path})")?;
+                writeln!(
+                    out,
+                    "pre-flight of {} (cage log {})",
+                    terminal(&vehicle),
+                    terminal(&path)
+                )?;
                 write_items(&mut out, &e)?;
                 writeln!(out)?;
                 if e.can_sign() {
@@ -270,10 +276,10 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 } else {
                     writeln!(out, "not ready to sign:")?;
                     for b in e.blocking() {
-                        writeln!(out, "  {b}")?;
+                        writeln!(out, "  {}", terminal(&b))?;
                     }
                 }
-                writeln!(out, "Caution: {}", cagehand::logbook::export::CAUTION)?;
+                writeln!(out, "Caution: {}", cagehand::report::CAUTION)?;
             }
             Ok(ExitCode::SUCCESS)
         }
@@ -345,7 +351,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         "cagehand: pre-flight of {vehicle} NOT signed; nothing was written to {path}:"
                     );
                     for reason in &r.reasons {
-                        eprintln!("  {reason}");
+                        eprintln!("  {}", terminal(reason));
                     }
                     Ok(ExitCode::from(1))
                 }

@@ -52,11 +52,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     "preflight_items": p.preflight.items.len(),
                 }))?;
             } else {
-                writeln!(out, "{}: ok", p.source)?;
+                let t = cagehand::text::terminal;
+                writeln!(out, "{}: ok", t(&p.source))?;
                 writeln!(
                     out,
                     "  vehicle   {} ({}), {:.3} kg",
-                    p.vehicle.id, p.vehicle.name, p.vehicle.mass_kg
+                    t(&p.vehicle.id),
+                    t(&p.vehicle.name),
+                    p.vehicle.mass_kg
                 )?;
                 writeln!(
                     out,

@@ -67,11 +67,11 @@ fn read_health(l: &Loaded, log: &LogOpts) -> (Option<cagehand::health::HealthRep
             format!("no records yet in {}", book.path().display()),
         ),
         Ok((book, report)) => {
-            let problems = report.messages(book.path()).len();
-            let note = if problems > 0 {
-                format!(" ({problems} problems: run `cagehand log show`)")
-            } else {
-                String::new()
+            // Integrity problems (skipped, changed or removed records) say
+            // what they affect; the screens show this line.
+            let note = match report.integrity.headline() {
+                Some(h) => format!(" ({h}: run `cagehand log verify`)"),
+                None => String::new(),
             };
             (
                 Some(assess(book.records(), &l.cage, &l.profile.inspection)),
@@ -129,6 +129,9 @@ struct LogView {
     records: Vec<Record>,
     path: String,
     new_file: bool,
+    /// The log's integrity problems in one line (damage may be
+    /// understated): fails the pre-flight as `log health` warns of it.
+    trouble: Option<String>,
     error: Option<String>,
 }
 
@@ -146,12 +149,14 @@ impl LogView {
                 records: book.records().to_vec(),
                 path: book.path().display().to_string(),
                 new_file: report.new_file,
+                trouble: report.integrity.headline(),
                 error: None,
             },
             Err(e) => LogView {
                 records: Vec::new(),
                 path: String::new(),
                 new_file: false,
+                trouble: None,
                 error: Some(e),
             },
         }
@@ -164,7 +169,7 @@ impl LogView {
                 records: &self.records,
                 path: &self.path,
                 new_file: self.new_file,
-                trouble: None,
+                trouble: self.trouble.as_deref(),
             },
         };
         preflight::evaluate(&preflight::Inputs {

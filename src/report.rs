@@ -1,9 +1,11 @@
 //! Maintenance reports from the log: Markdown a crew can print or attach,
 //! and CSV of the health table for a spreadsheet. Pure: text out.
 
-use super::Record;
 use crate::cage::MemberKind;
 use crate::health::{HealthReport, MemberHealth};
+use crate::logbook::Record;
+use crate::logbook::chain::{ChainHead, Integrity};
+use crate::text;
 
 /// What a report is about.
 #[derive(Debug, Clone)]
@@ -18,6 +20,12 @@ pub struct ReportHeader<'a> {
     pub log_path: &'a str,
     /// When the report was made (RFC 3339).
     pub generated: &'a str,
+    /// The log's chain head when the report was made: printed so a reader
+    /// who keeps the report can later show nothing up to it was removed.
+    pub head: Option<&'a ChainHead>,
+    /// What the log says about its own soundness; problems go right under
+    /// the title.
+    pub integrity: Option<&'a Integrity>,
 }
 
 /// The caution every report carries.
@@ -32,9 +40,10 @@ fn kind(m: &MemberHealth) -> &'static str {
     }
 }
 
-/// Markdown text: a cell cannot hold a bare `|` or a newline.
+/// Outside text in Markdown: no markup, no control characters, no bare
+/// `|` to split a cell ([`text::markdown`]).
 fn cell(s: &str) -> String {
-    s.replace('|', "\\|").replace(['\n', '\r'], " ")
+    text::markdown(s)
 }
 
 /// The Markdown maintenance report.
@@ -44,21 +53,38 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
         "# Cage maintenance report: {}\n\n",
         cell(h.vehicle_name)
     ));
-    s.push_str(&format!("- Vehicle id: `{}`\n", h.vehicle_id));
-    s.push_str(&format!("- Profile: `{}`\n", h.profile));
+    if let Some(i) = h.integrity
+        && let Some(line) = i.headline()
+    {
+        s.push_str(&format!("> **Warning.** {}.\n", cell(&line)));
+        s.push_str(">\n");
+        for issue in &i.issues {
+            s.push_str(&format!("> - {}\n", cell(&issue.to_string())));
+        }
+        s.push('\n');
+    }
+    s.push_str(&format!("- Vehicle id: {}\n", cell(h.vehicle_id)));
+    s.push_str(&format!("- Profile: {}\n", cell(h.profile)));
     s.push_str(&format!(
-        "- Log: `{}` ({} records)\n",
-        h.log_path,
+        "- Log: {} ({} records)\n",
+        cell(h.log_path),
         records.len()
     ));
-    s.push_str(&format!("- Generated: {}\n", h.generated));
+    if let Some(head) = h.head {
+        s.push_str(&format!(
+            "- Chain head: `{head}` (keep this report: `cagehand log verify --head {}:{}` shows later whether any record up to it was changed or removed)\n",
+            head.seq,
+            &head.hash[..head.hash.len().min(16)]
+        ));
+    }
+    s.push_str(&format!("- Generated: {}\n", cell(h.generated)));
     s.push_str(&format!(
         "- Worst status: **{}**\n\n",
         health.worst().label()
     ));
     s.push_str(&format!("> **Caution.** {CAUTION}\n\n"));
-    let pending = super::pending(records);
-    if let Some(w) = super::detection::pending_warning(&pending) {
+    let pending = crate::logbook::pending(records);
+    if let Some(w) = crate::logbook::detection::pending_warning(&pending) {
         s.push_str(&format!("> **PENDING DETECTIONS.** {}.\n\n", cell(&w)));
     }
     let gaps = crate::preflight::sign_off_gaps(records);
@@ -74,12 +100,12 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
         for m in act {
             s.push_str(&format!(
                 "- **{} {}**: {}\n",
-                m.id,
+                cell(&m.id),
                 kind(m),
                 m.status.label()
             ));
             for r in &m.reasons {
-                s.push_str(&format!("  - {}\n", r.replace('\n', " ")));
+                s.push_str(&format!("  - {}\n", cell(r)));
             }
             s.push_str("  - Done by: ________  Date: ________\n");
         }
@@ -94,7 +120,7 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
     for m in &health.members {
         s.push_str(&format!(
             "| {} | {} | {} | {:.3} | {:.2} | {} |\n",
-            m.id,
+            cell(&m.id),
             kind(m),
             m.status.label(),
             m.damage,
@@ -106,7 +132,7 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
     if !health.warnings.is_empty() {
         s.push_str("Warnings:\n\n");
         for w in &health.warnings {
-            s.push_str(&format!("- {w}\n"));
+            s.push_str(&format!("- {}\n", cell(w)));
         }
         s.push('\n');
     }
@@ -179,20 +205,48 @@ fn csv_field(s: &str) -> String {
     }
 }
 
+/// CSV text from outside: no control characters (a spreadsheet shows them
+/// raw), and a leading `=`, `+`, `-` or `@` quoted away so a spreadsheet
+/// does not run it as a formula (OWASP, "CSV Injection").
+fn csv_text(s: &str) -> String {
+    let t = text::terminal(s);
+    let t = if t.starts_with(['=', '+', '-', '@']) {
+        format!("'{t}")
+    } else {
+        t.into_owned()
+    };
+    csv_field(&t)
+}
+
 /// The health table as CSV (RFC 4180), one row per member, reasons joined
-/// with "; ".
-pub fn csv(health: &HealthReport) -> String {
+/// with "; ". After the members, rows with id `(log)` carry the chain head
+/// (kind `chain_head`) and each integrity problem (kind `integrity`,
+/// status `problem`), with the same columns, so the file stays one table.
+pub fn csv(
+    health: &HealthReport,
+    head: Option<&ChainHead>,
+    integrity: Option<&Integrity>,
+) -> String {
     let mut s = String::from("id,kind,status,damage,max_utilisation,impacts,reasons\r\n");
     for m in &health.members {
         s.push_str(&format!(
             "{},{},{},{:.6},{:.4},{},{}\r\n",
-            csv_field(&m.id),
+            csv_text(&m.id),
             kind(m),
             m.status.name(),
             m.damage,
             m.max_utilisation,
             m.impacts,
-            csv_field(&m.reasons.join("; "))
+            csv_text(&m.reasons.join("; "))
+        ));
+    }
+    if let Some(head) = head {
+        s.push_str(&format!("(log),chain_head,,,,,{head}\r\n"));
+    }
+    for i in integrity.map(|i| i.issues.as_slice()).unwrap_or_default() {
+        s.push_str(&format!(
+            "(log),integrity,problem,,,,{}\r\n",
+            csv_text(&i.to_string())
         ));
     }
     s
@@ -203,11 +257,16 @@ pub fn csv(health: &HealthReport) -> String {
 /// then the members, then every pre-flight record (kind `preflight`, id
 /// `#SEQ`, status `signed_off`), and a row per sign-off gap (kind
 /// `preflight`, status `missing`).
-pub fn csv_with_records(health: &HealthReport, records: &[Record]) -> String {
-    let all = csv(health);
+pub fn csv_with_records(
+    health: &HealthReport,
+    records: &[Record],
+    head: Option<&ChainHead>,
+    integrity: Option<&Integrity>,
+) -> String {
+    let all = csv(health, head, integrity);
     let (header, members) = all.split_once("\r\n").unwrap_or((&all, ""));
     let mut s = format!("{header}\r\n");
-    for p in super::pending(records) {
+    for p in crate::logbook::pending(records) {
         let why = format!(
             "detected {:.1} g on {} at {} ({}); not confirmed or dismissed",
             p.peak_g, p.face, p.time, p.source
@@ -215,12 +274,12 @@ pub fn csv_with_records(health: &HealthReport, records: &[Record]) -> String {
         s.push_str(&format!(
             "#{},detection,pending,,,,{}\r\n",
             p.seq,
-            csv_field(&why)
+            csv_text(&why)
         ));
     }
     s.push_str(members);
     for r in records {
-        if let super::Event::Preflight(p) = &r.event {
+        if let crate::logbook::Event::Preflight(p) = &r.event {
             let status = if p.signed_off {
                 "signed_off"
             } else {
@@ -230,12 +289,12 @@ pub fn csv_with_records(health: &HealthReport, records: &[Record]) -> String {
             s.push_str(&format!(
                 "#{},preflight,{status},,,,{}\r\n",
                 r.seq,
-                csv_field(&why)
+                csv_text(&why)
             ));
         }
     }
     for g in crate::preflight::sign_off_gaps(records) {
-        s.push_str(&format!(",preflight,missing,,,,{}\r\n", csv_field(&g)));
+        s.push_str(&format!(",preflight,missing,,,,{}\r\n", csv_text(&g)));
     }
     s
 }
@@ -273,7 +332,7 @@ mod tests {
 
     #[test]
     fn csv_quotes_per_rfc_4180() {
-        let c = csv(&health());
+        let c = csv(&health(), None, None);
         let lines: Vec<&str> = c.split("\r\n").collect();
         assert_eq!(
             lines[0],
@@ -293,6 +352,8 @@ mod tests {
             profile: "p.toml",
             log_path: "/d/v.cagelog",
             generated: "2026-12-01T23:00:00Z",
+            head: None,
+            integrity: None,
         };
         let md = markdown(&h, &[], &health());
         assert!(md.contains("- **S1 string**: DUE"));

@@ -42,7 +42,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
     let (tx, rx) = mpsc::channel::<Msg>();
     let commander = link.commander();
     spawn_feed(link, loaded.cage, loaded.profile, tx.clone());
-    crate::tui::run(model, tx, rx, |effect| match effect {
+    let signal = crate::tui::run(model, tx, rx, |effect| match effect {
         Effect::SimRoll(face) => {
             // Only the in-process simulator takes commands; on a real link the
             // operator flies the roll and the screen verifies it.
@@ -51,7 +51,11 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
             }
         }
     })?;
-    Ok(ExitCode::SUCCESS)
+    // Ended by a signal: the usual 128 + its number, after the restore.
+    Ok(match signal {
+        Some(n) => ExitCode::from(u8::try_from(128 + n).unwrap_or(u8::MAX)),
+        None => ExitCode::SUCCESS,
+    })
 }
 
 /// Member health from the vehicle's cage log, or why there is none. A log
@@ -91,11 +95,12 @@ fn live_view(st: &WatchState, tracker: &Tracker) -> LiveView {
     LiveView {
         state: match st.state {
             WatchStateKind::Resting => LiveState::Resting,
+            WatchStateKind::Propped => LiveState::Propped,
             WatchStateKind::Moving => LiveState::Moving,
             WatchStateKind::Airborne => LiveState::Airborne,
-            WatchStateKind::Stale if st.link.age_ms.is_none() => LiveState::Waiting,
             WatchStateKind::Stale => LiveState::Stale,
         },
+        reason: st.reason.clone(),
         face: st.face_index,
         error_deg: st.error_deg,
         rpy_deg: st.rpy_deg,

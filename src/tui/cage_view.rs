@@ -8,7 +8,7 @@ use crate::health::{MemberHealth, Status};
 use crate::tui::component::Component;
 use crate::tui::keys::{Binding, Key, Move};
 use crate::tui::model::{Shared, count};
-use crate::tui::table::{self, Column, Window};
+use crate::tui::table::{self, Column, Window, wrapped_height};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::{Modifier, Style};
@@ -114,11 +114,16 @@ impl Component for CageScreen {
 
     fn draw(&self, shared: &Shared, frame: &mut Frame, area: Rect) {
         let t = &shared.theme;
+        let detail_line = self.detail(shared);
+        // The selected member whole: as many rows as its text needs, up to
+        // a third of the body.
+        let detail_h = (wrapped_height(std::slice::from_ref(&detail_line), area.width) + 1)
+            .clamp(4, (area.height / 3).max(4));
         let [caution, summary, table_area, detail] = Layout::vertical([
             Constraint::Length(3),
             Constraint::Length(1),
             Constraint::Min(4),
-            Constraint::Length(4),
+            Constraint::Length(detail_h),
         ])
         .areas(area);
         frame.render_widget(
@@ -224,16 +229,21 @@ impl Component for CageScreen {
                 ),
             table_area,
         );
-        frame.render_widget(self.detail(shared), detail);
+        frame.render_widget(
+            Paragraph::new(detail_line)
+                .wrap(Wrap { trim: true })
+                .block(Block::default().borders(Borders::TOP).title(" Selected member ")),
+            detail,
+        );
     }
 }
 
 impl CageScreen {
     /// The selected member whole: every column and the full reasons.
-    fn detail(&self, shared: &Shared) -> Paragraph<'static> {
+    fn detail(&self, shared: &Shared) -> Line<'static> {
         let t = &shared.theme;
         let Some(m) = shared.cage.members.get(self.selected) else {
-            return Paragraph::new("");
+            return Line::raw("");
         };
         let p = &shared.profile;
         let (kind, cap) = match m.kind {
@@ -266,9 +276,7 @@ impl CageScreen {
             }
             None => spans.push(Span::styled(": no health (no cage log read)", t.dim)),
         }
-        Paragraph::new(Line::from(spans))
-            .wrap(Wrap { trim: true })
-            .block(Block::default().borders(Borders::TOP).title(" Selected member "))
+        Line::from(spans)
     }
 }
 

@@ -14,7 +14,7 @@ use crate::tui::component::Component;
 use crate::tui::keys::{Binding, Key, Move};
 use crate::tui::model::{Effect, LiveState, Shared, count};
 use crate::tui::net_view::{NetMarks, NetView};
-use crate::tui::table::{self, Column, Window};
+use crate::tui::table::{self, Column, Window, wrapped_height};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::Modifier;
@@ -354,9 +354,11 @@ impl Component for RightingScreen {
             .map(|l| (l.len() as u16).div_ceil(inner.width.max(1)))
             .sum::<u16>();
         let foot_h = 2 + self.log.len() as u16;
+        let head_lines = self.head_lines(shared);
+        let head_h = wrapped_height(&head_lines, inner.width).clamp(1, 4);
         let [caution, head, steps, detail, foot] = Layout::vertical([
             Constraint::Length(caution_h),
-            Constraint::Length(2),
+            Constraint::Length(head_h),
             Constraint::Min(3),
             Constraint::Length(3),
             Constraint::Length(foot_h),
@@ -374,7 +376,7 @@ impl Component for RightingScreen {
             caution,
         );
         frame.render_widget(
-            Paragraph::new(self.head_lines(shared)).wrap(Wrap { trim: true }),
+            Paragraph::new(head_lines).wrap(Wrap { trim: true }),
             head,
         );
         self.draw_steps(shared, frame, steps);

@@ -22,7 +22,7 @@ fn with_live(mut m: Model, live: LiveView) -> Model {
 fn demo() -> Model {
     let m = demo_model();
     let mut live = live_on(&m, DEMO_FACE, 12.0, LiveState::Resting);
-    live.battery_v = Some(7.92);
+    live.battery_v = Some(11.92);
     live.armed = Some(false);
     live.link.frames = 1234;
     let health = assess(&[], &m.shared.cage, &m.shared.profile.inspection);
@@ -46,7 +46,7 @@ fn airborne() -> Model {
     let m = demo_model();
     let mut live = live_on(&m, 0, 20.0, LiveState::Airborne);
     live.armed = Some(true);
-    live.battery_v = Some(7.61);
+    live.battery_v = Some(11.61);
     with_live(m, live)
 }
 

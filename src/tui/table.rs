@@ -4,6 +4,7 @@
 //! kept first, never a column cut to a letter).
 
 use ratatui::layout::Constraint;
+use ratatui::text::Line;
 
 /// The rows of a list shown in a window of `visible` rows.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -102,6 +103,21 @@ pub fn fit(columns: &[Column], width: u16) -> (Vec<usize>, Vec<Constraint>) {
 /// Pick the kept cells of a row.
 pub fn pick<T: Clone>(cells: &[T], kept: &[usize]) -> Vec<T> {
     kept.iter().filter_map(|&i| cells.get(i).cloned()).collect()
+}
+
+/// Rows a paragraph of `lines` takes when wrapped at `width` (an estimate
+/// that errs high: word wrap can only add a row per line).
+pub fn wrapped_height(lines: &[Line], width: u16) -> u16 {
+    let w = usize::from(width.max(1));
+    lines
+        .iter()
+        .map(|l| {
+            let n = l.width();
+            if n == 0 { 1 } else { n.div_ceil(w) + usize::from(n > w) }
+        })
+        .sum::<usize>()
+        .try_into()
+        .unwrap_or(u16::MAX)
 }
 
 #[cfg(test)]

@@ -107,8 +107,9 @@ pub fn state_style(shared: &Shared) -> Style {
 }
 
 /// The state in a word with its symbol and, for a face, the face: what the
-/// vehicle line and the Watch screen lead with.
-pub fn state_words(shared: &Shared) -> String {
+/// vehicle line and the Watch screen lead with. `long` adds how far off the
+/// nearest face a propped or moving vehicle lies.
+pub fn state_words(shared: &Shared, long: bool) -> String {
     let live = &shared.live;
     let s = live.state;
     let face = live.face.map(|f| shared.face_id(f).to_string());
@@ -118,8 +119,10 @@ pub fn state_words(shared: &Shared) -> String {
             "{} {} near {f}{}",
             s.symbol(),
             s.word(),
-            live.error_deg
-                .map_or(String::new(), |e| format!(" ({e:.0} deg off)"))
+            match live.error_deg {
+                Some(e) if long => format!(" ({e:.0} deg off)"),
+                _ => String::new(),
+            }
         ),
         _ => format!("{} {}", s.symbol(), s.word()),
     }
@@ -140,7 +143,7 @@ fn vehicle_line(shared: &Shared) -> Paragraph<'static> {
     };
     Paragraph::new(Line::from(vec![
         Span::styled(format!("{} ", shared.profile.vehicle.id), t.accent),
-        Span::styled(state_words(shared), state_style(shared)),
+        Span::styled(state_words(shared, false), state_style(shared)),
         Span::styled(
             format!(
                 "  link {} {:.0}Hz age {age} err {}  ",

@@ -104,7 +104,7 @@ fn lies_block(shared: &Shared) -> Paragraph<'static> {
     let live = &shared.live;
     let big = state_style(shared).add_modifier(Modifier::BOLD);
     let mut lines = vec![Line::from(Span::styled(
-        format!(" {} ", state_words(shared)),
+        format!(" {} ", state_words(shared, true)),
         big.add_modifier(Modifier::REVERSED),
     ))];
     let off = live.error_deg.map_or("-".to_string(), |e| format!("{e:.1} deg"));

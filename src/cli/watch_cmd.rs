@@ -1,7 +1,7 @@
 //! `cagehand watch`: live state of the vehicle. `--headless` prints one
-//! JSON object per line (a contract: scripts and checks parse it) on every
-//! change of state or face and once a second of link time; `--summary`
-//! adds one object when the input ends.
+//! JSON object per line (a contract: scripts and checks parse it; see
+//! docs/json.md) on every change of state or face and once a second of
+//! link time; `--summary` adds one object when the input ends.
 
 use super::ProfileArg;
 use super::link_args::LinkArgs;
@@ -45,6 +45,7 @@ struct Errors {
 
 #[derive(Debug, Serialize)]
 struct Summary {
+    schema: &'static str,
     summary: bool,
     source: String,
     frames_decoded: u64,
@@ -132,6 +133,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     if args.summary {
         let c = tracker.counters();
         let s = Summary {
+            schema: "cagehand.watch-summary/1",
             summary: true,
             source: link.source.clone(),
             frames_decoded: c.frames,

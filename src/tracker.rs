@@ -518,7 +518,10 @@ mod tests {
         assert!((s.error_deg.unwrap() - fit.error_deg).abs() < 0.01);
         assert!(s.reason.as_deref().unwrap().contains("not flat"));
         assert_eq!(serde_json::to_value(&s).unwrap()["state"], "propped");
-        assert!(tr.faces_seen().is_empty(), "propped is not a face rested on");
+        assert!(
+            tr.faces_seen().is_empty(),
+            "propped is not a face rested on"
+        );
     }
 
     #[test]

@@ -78,8 +78,21 @@ fn run_one(signal: &str, number: i32, dir: &Path) {
     let out = tmux(
         &sock,
         &[
-            "new-session", "-d", "-s", "t", "-x", "80", "-y", "24", "-e", &data, "-e",
-            "NO_COLOR=1", "sh", "-c", &script,
+            "new-session",
+            "-d",
+            "-s",
+            "t",
+            "-x",
+            "80",
+            "-y",
+            "24",
+            "-e",
+            &data,
+            "-e",
+            "NO_COLOR=1",
+            "sh",
+            "-c",
+            &script,
         ],
     );
     assert!(out.status.success(), "tmux new-session: {out:?}");

@@ -55,7 +55,9 @@ fn held_still_at_20_deg_of_roll_is_propped_within_the_dwell() {
     let off = propped["error_deg"].as_f64().expect("error_deg");
     assert!(off > TOLERANCE_DEG, "{propped}");
     assert!(
-        propped["reason"].as_str().is_some_and(|r| r.contains("not flat")),
+        propped["reason"]
+            .as_str()
+            .is_some_and(|r| r.contains("not flat")),
         "{propped}"
     );
     assert!(

@@ -144,7 +144,10 @@ impl Component for CageScreen {
                         format!("worst {}", h.worst().label()),
                         status_style(shared, h.worst()),
                     ),
-                    Span::styled(format!("  {} to act on", count(act.len(), "member")), t.text),
+                    Span::styled(
+                        format!("  {} to act on", count(act.len(), "member")),
+                        t.text,
+                    ),
                     Span::styled(format!("  cage log: {}", shared.health_source), t.dim),
                 ])
             }
@@ -157,15 +160,60 @@ impl Component for CageScreen {
         let visible = usize::from(table_area.height.saturating_sub(3)).max(1);
         let win = Window::new(self.selected, self.offset, visible, members.len());
         let columns = [
-            Column { header: "member", width: 6, rank: 0, flex: false },
-            Column { header: "status", width: 11, rank: 0, flex: false },
-            Column { header: "damage", width: 6, rank: 1, flex: false },
-            Column { header: "max u", width: 5, rank: 2, flex: false },
-            Column { header: "kind", width: 6, rank: 4, flex: false },
-            Column { header: "nodes", width: 7, rank: 5, flex: false },
-            Column { header: "len mm", width: 6, rank: 3, flex: false },
-            Column { header: "cap N", width: 6, rank: 3, flex: false },
-            Column { header: "why", width: 12, rank: 1, flex: true },
+            Column {
+                header: "member",
+                width: 6,
+                rank: 0,
+                flex: false,
+            },
+            Column {
+                header: "status",
+                width: 11,
+                rank: 0,
+                flex: false,
+            },
+            Column {
+                header: "damage",
+                width: 6,
+                rank: 1,
+                flex: false,
+            },
+            Column {
+                header: "max u",
+                width: 5,
+                rank: 2,
+                flex: false,
+            },
+            Column {
+                header: "kind",
+                width: 6,
+                rank: 4,
+                flex: false,
+            },
+            Column {
+                header: "nodes",
+                width: 7,
+                rank: 5,
+                flex: false,
+            },
+            Column {
+                header: "len mm",
+                width: 6,
+                rank: 3,
+                flex: false,
+            },
+            Column {
+                header: "cap N",
+                width: 6,
+                rank: 3,
+                flex: false,
+            },
+            Column {
+                header: "why",
+                width: 12,
+                rank: 1,
+                flex: true,
+            },
         ];
         let (kept, widths) = table::fit(&columns, table_area.width.saturating_sub(2));
         let rows: Vec<Row> = members
@@ -225,14 +273,16 @@ impl Component for CageScreen {
                 .block(
                     Block::default()
                         .borders(Borders::ALL)
-                        .title(format!(" {} ", win.title("members"))),
+                        .title(format!(" {} ", win.title("member"))),
                 ),
             table_area,
         );
         frame.render_widget(
-            Paragraph::new(detail_line)
-                .wrap(Wrap { trim: true })
-                .block(Block::default().borders(Borders::TOP).title(" Selected member ")),
+            Paragraph::new(detail_line).wrap(Wrap { trim: true }).block(
+                Block::default()
+                    .borders(Borders::TOP)
+                    .title(" Selected member "),
+            ),
             detail,
         );
     }
@@ -303,7 +353,13 @@ mod tests {
             .cage
             .members
             .iter()
-            .filter(|mem| s.lines().any(|l| l.trim_start_matches('│').trim_start().starts_with(&format!("{} ", mem.id))))
+            .filter(|mem| {
+                s.lines().any(|l| {
+                    l.trim_start_matches('│')
+                        .trim_start()
+                        .starts_with(&format!("{} ", mem.id))
+                })
+            })
             .count();
         assert!(
             s.contains(&format!("embers 1-{shown} of {n}")),
@@ -316,7 +372,10 @@ mod tests {
         let last = &m.shared.cage.members[n - 1].id;
         assert!(s.contains(&format!("of {n}")), "{s}");
         assert!(s.contains(&format!("{}-{n} of {n}", n - shown + 1)), "{s}");
-        assert!(s.contains(&format!("{last} ")), "last member shown and selected:\n{s}");
+        assert!(
+            s.contains(&format!("{last} ")),
+            "last member shown and selected:\n{s}"
+        );
     }
 
     #[test]

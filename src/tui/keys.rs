@@ -246,7 +246,11 @@ mod tests {
         assert_eq!(Move::PageDown.apply(25, 30, 10), 29);
         assert_eq!(Move::PageUp.apply(3, 30, 10), 0);
         assert_eq!(Move::Last.apply(0, 30, 10), 29);
-        assert_eq!(Move::Down.apply(0, 0, 10), 0, "an empty list selects nothing past 0");
+        assert_eq!(
+            Move::Down.apply(0, 0, 10),
+            0,
+            "an empty list selects nothing past 0"
+        );
     }
 
     #[test]

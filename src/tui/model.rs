@@ -491,7 +491,10 @@ mod tests {
         update(&mut m, key(KeyCode::Down));
         update(&mut m, key(KeyCode::Char('j')));
         update(&mut m, key(KeyCode::Up));
-        assert_eq!(m.screens.cage.selected, 1, "arrows and j/k move the selection");
+        assert_eq!(
+            m.screens.cage.selected, 1,
+            "arrows and j/k move the selection"
+        );
         for _ in 0..10 {
             update(&mut m, key(KeyCode::PageDown));
         }
@@ -575,7 +578,12 @@ mod tests {
         let start = 8;
         let msg = resting_on(&m, start, 1.0, true);
         update(&mut m, msg);
-        let plan = m.screens.righting.shown_plan().expect("a preview plan").clone();
+        let plan = m
+            .screens
+            .righting
+            .shown_plan()
+            .expect("a preview plan")
+            .clone();
         assert!(plan.reachable && !plan.steps.is_empty());
         // Enter commands step 1 and asks the simulator to roll.
         update(&mut m, key(KeyCode::Enter));

@@ -144,16 +144,39 @@ impl Component for PreflightScreen {
 
     fn draw(&self, shared: &Shared, frame: &mut Frame, area: Rect) {
         let t = &shared.theme;
-        let [table_area, detail] =
-            Layout::vertical([Constraint::Min(4), Constraint::Length(4)]).areas(area);
         let n = shared.profile.preflight.items.len();
+        // The table as tall as its items (no empty rows), the rest for the
+        // selected item whole.
+        let table_h = (n as u16 + 3).min(area.height.saturating_sub(4)).max(4);
+        let [table_area, detail] =
+            Layout::vertical([Constraint::Length(table_h), Constraint::Min(4)]).areas(area);
         let visible = usize::from(table_area.height.saturating_sub(3)).max(1);
         let win = Window::new(self.selected, self.offset, visible, n);
         let columns = [
-            Column { header: "#", width: 2, rank: 1, flex: false },
-            Column { header: "result", width: 6, rank: 0, flex: false },
-            Column { header: "item", width: 20, rank: 0, flex: true },
-            Column { header: "detail", width: 18, rank: 2, flex: true },
+            Column {
+                header: "#",
+                width: 2,
+                rank: 1,
+                flex: false,
+            },
+            Column {
+                header: "result",
+                width: 6,
+                rank: 0,
+                flex: false,
+            },
+            Column {
+                header: "item",
+                width: 20,
+                rank: 0,
+                flex: true,
+            },
+            Column {
+                header: "detail",
+                width: 18,
+                rank: 2,
+                flex: true,
+            },
         ];
         let (kept, widths) = table::fit(&columns, table_area.width.saturating_sub(2));
         let rows: Vec<Row> = (win.offset..win.offset + win.shown)
@@ -176,22 +199,27 @@ impl Component for PreflightScreen {
                 .block(
                     Block::default()
                         .borders(Borders::ALL)
-                        .title(format!(" Preflight checklist: {} ", win.title("items"))),
+                        .title(format!(" Preflight checklist: {} ", win.title("item"))),
                 ),
             table_area,
         );
         let detail_text = match Self::result(shared, self.selected) {
             Some((mark, text, d)) => Line::from(vec![
-                Span::styled(format!("{} {mark}: ", self.selected + 1), mark_style(shared, mark)),
+                Span::styled(
+                    format!("{} {mark}: ", self.selected + 1),
+                    mark_style(shared, mark),
+                ),
                 Span::styled(format!("{text}. "), t.text.add_modifier(Modifier::BOLD)),
                 Span::styled(d, t.text),
             ]),
             None => Line::styled("the profile lists no pre-flight items", t.dim),
         };
         frame.render_widget(
-            Paragraph::new(detail_text)
-                .wrap(Wrap { trim: true })
-                .block(Block::default().borders(Borders::TOP).title(" Selected item ")),
+            Paragraph::new(detail_text).wrap(Wrap { trim: true }).block(
+                Block::default()
+                    .borders(Borders::TOP)
+                    .title(" Selected item "),
+            ),
             detail,
         );
     }

@@ -163,8 +163,7 @@ impl RightingScreen {
         };
         if self.stepper.is_none() {
             let Some(plan) = self.preview.clone() else {
-                shared.notice =
-                    Some("no plan: wait until the vehicle rests on a face".to_string());
+                shared.notice = Some("no plan: wait until the vehicle rests on a face".to_string());
                 return true;
             };
             self.stepper = Some(Stepper::new(model.clone(), plan, DEFAULT_MOTION_TIMEOUT_S));
@@ -304,9 +303,16 @@ impl Component for RightingScreen {
             }
             return true;
         }
+        // The tracker's word, not only the rest detector's: a steady hover
+        // looks like resting on the bottom face but is airborne.
+        let resting = shared.live.state == LiveState::Resting;
         match rs {
-            Some(rs) if rs.status.state == RestState::Resting => {
-                if self.preview.as_ref().is_some_and(|p| p.from == rs.status.face) {
+            Some(rs) if resting && rs.status.state == RestState::Resting => {
+                if self
+                    .preview
+                    .as_ref()
+                    .is_some_and(|p| p.from == rs.status.face)
+                {
                     return false;
                 }
                 self.preview = Some(model.plan(rs.status.face, &rs.attitude));
@@ -324,8 +330,7 @@ impl Component for RightingScreen {
         let plan = self.shown_plan();
         let panel = if area.width >= NET_FROM_W {
             let [net_area, side] =
-                Layout::horizontal([Constraint::Min(30), Constraint::Length(PANEL_W)])
-                    .areas(area);
+                Layout::horizontal([Constraint::Min(30), Constraint::Length(PANEL_W)]).areas(area);
             let mut marks = NetMarks::live(shared);
             if let Some(p) = plan {
                 marks.path = path_faces(p);
@@ -375,10 +380,7 @@ impl Component for RightingScreen {
             .wrap(Wrap { trim: true }),
             caution,
         );
-        frame.render_widget(
-            Paragraph::new(head_lines).wrap(Wrap { trim: true }),
-            head,
-        );
+        frame.render_widget(Paragraph::new(head_lines).wrap(Wrap { trim: true }), head);
         self.draw_steps(shared, frame, steps);
         frame.render_widget(
             Paragraph::new(self.detail_lines(shared)).wrap(Wrap { trim: true }),
@@ -400,14 +402,18 @@ impl RightingScreen {
         let live = &shared.live;
         let phase = self.stepper.as_ref().map(|s| s.phase());
         if self.model.is_none() {
-            return vec![Line::styled("Righting is unavailable for this profile.", t.alarm)];
+            return vec![Line::styled(
+                "Righting is unavailable for this profile.",
+                t.alarm,
+            )];
         }
         let Some(p) = self.shown_plan() else {
             let why = match (live.state, live.face) {
                 (LiveState::Propped, Some(f)) => format!(
                     "No plan: propped near {}{}, not on a face. A plan starts from a face it rests on.",
                     shared.face_id(f),
-                    live.error_deg.map_or(String::new(), |e| format!(" ({e:.0} deg off)"))
+                    live.error_deg
+                        .map_or(String::new(), |e| format!(" ({e:.0} deg off)"))
                 ),
                 (LiveState::Airborne, _) => "No plan while airborne.".to_string(),
                 (LiveState::Stale, _) => format!(
@@ -468,14 +474,54 @@ impl RightingScreen {
         let visible = usize::from(area.height.saturating_sub(2)).max(1);
         let win = Window::new(self.selected, self.offset, visible, steps.len());
         let columns = [
-            Column { header: "", width: 4, rank: 0, flex: false },
-            Column { header: "#", width: 2, rank: 0, flex: false },
-            Column { header: "to", width: 4, rank: 0, flex: false },
-            Column { header: "deg", width: 5, rank: 1, flex: false },
-            Column { header: "rotor%", width: 6, rank: 1, flex: false },
-            Column { header: "move", width: 5, rank: 2, flex: false },
-            Column { header: "pivot", width: 9, rank: 3, flex: false },
-            Column { header: "expect r p y", width: 12, rank: 4, flex: true },
+            Column {
+                header: "",
+                width: 4,
+                rank: 0,
+                flex: false,
+            },
+            Column {
+                header: "#",
+                width: 2,
+                rank: 0,
+                flex: false,
+            },
+            Column {
+                header: "to",
+                width: 4,
+                rank: 0,
+                flex: false,
+            },
+            Column {
+                header: "deg",
+                width: 5,
+                rank: 1,
+                flex: false,
+            },
+            Column {
+                header: "rotor%",
+                width: 6,
+                rank: 1,
+                flex: false,
+            },
+            Column {
+                header: "move",
+                width: 5,
+                rank: 2,
+                flex: false,
+            },
+            Column {
+                header: "pivot",
+                width: 9,
+                rank: 3,
+                flex: false,
+            },
+            Column {
+                header: "expect r p y",
+                width: 12,
+                rank: 4,
+                flex: true,
+            },
         ];
         let (kept, widths) = table::fit(&columns, area.width);
         let current = self.current();
@@ -513,7 +559,7 @@ impl RightingScreen {
                 .block(
                     Block::default()
                         .borders(Borders::TOP)
-                        .title(format!(" {} ", win.title("steps"))),
+                        .title(format!(" {} ", win.title("step"))),
                 ),
             area,
         );
@@ -553,10 +599,7 @@ impl RightingScreen {
             "rotor% = share of the best rotor moment the step needs",
             t.dim,
         );
-        let Some(s) = self
-            .shown_plan()
-            .and_then(|p| p.steps.get(self.selected))
-        else {
+        let Some(s) = self.shown_plan().and_then(|p| p.steps.get(self.selected)) else {
             return vec![legend];
         };
         let pivot: Vec<&str> = s
@@ -665,5 +708,15 @@ mod tests {
         assert!(m.screens.righting.shown_plan().is_none());
         let s = render_text(&m, 80, 24);
         assert!(s.contains("propped near F9"), "{s}");
+    }
+
+    #[test]
+    fn airborne_has_no_plan_even_when_the_hover_is_steady() {
+        let mut m = demo_model();
+        // The rest detector says resting (a steady hover), the tracker airborne.
+        let mut live = live_on(&m, 8, 1.0, LiveState::Resting);
+        live.state = LiveState::Airborne;
+        update(&mut m, Msg::Live(Box::new(live)));
+        assert!(m.screens.righting.shown_plan().is_none());
     }
 }

@@ -58,7 +58,10 @@ fn propped() -> Model {
     let mut live = live_on(&m, fit.face, 5.0, LiveState::Propped);
     live.error_deg = Some(fit.error_deg);
     live.rpy_deg = Some([20.0, 0.0, 0.0]);
-    live.reason = Some(format!("still, {:.1} deg off: not flat on any face", fit.error_deg));
+    live.reason = Some(format!(
+        "still, {:.1} deg off: not flat on any face",
+        fit.error_deg
+    ));
     with_live(m, live)
 }
 
@@ -80,9 +83,27 @@ fn flagged() -> Model {
     let m = demo();
     let mut h: HealthReport = m.shared.health.clone().expect("demo health");
     let flags = [
-        (0, Status::ReplaceNow, 1.12, 1.4, "damage 1.12 reaches 1.00; utilisation 140% in the impact of 2026-11-30 exceeded the capacity"),
-        (3, Status::Due, 0.81, 0.9, "damage 0.81 reaches the replace-at threshold 0.80"),
-        (7, Status::Inspect, 0.35, 0.7, "damage 0.35 reaches the inspect-at threshold 0.30"),
+        (
+            0,
+            Status::ReplaceNow,
+            1.12,
+            1.4,
+            "damage 1.12 reaches 1.00; utilisation 140% in the impact of 2026-11-30 exceeded the capacity",
+        ),
+        (
+            3,
+            Status::Due,
+            0.81,
+            0.9,
+            "damage 0.81 reaches the replace-at threshold 0.80",
+        ),
+        (
+            7,
+            Status::Inspect,
+            0.35,
+            0.7,
+            "damage 0.35 reaches the inspect-at threshold 0.30",
+        ),
     ];
     for (i, status, damage, u, why) in flags {
         if let Some(mh) = h.members.get_mut(i) {
@@ -103,7 +124,10 @@ fn snap(name: &str, m: &Model, screens: &[Screen]) {
         for (w, h) in SIZES {
             update(&mut m, Msg::Resize(w, h));
             let text = render_text(&m, w, h);
-            insta::assert_snapshot!(format!("{name}_{}_{w}x{h}", screen.title().to_lowercase()), text);
+            insta::assert_snapshot!(
+                format!("{name}_{}_{w}x{h}", screen.title().to_lowercase()),
+                text
+            );
         }
     }
 }
@@ -120,17 +144,29 @@ fn no_data_state() {
 
 #[test]
 fn stale_state() {
-    snap("stale", &stale(), &[Screen::Watch, Screen::Righting, Screen::Preflight]);
+    snap(
+        "stale",
+        &stale(),
+        &[Screen::Watch, Screen::Righting, Screen::Preflight],
+    );
 }
 
 #[test]
 fn airborne_state() {
-    snap("airborne", &airborne(), &[Screen::Watch, Screen::Righting, Screen::Preflight]);
+    snap(
+        "airborne",
+        &airborne(),
+        &[Screen::Watch, Screen::Righting, Screen::Preflight],
+    );
 }
 
 #[test]
 fn propped_state() {
-    snap("propped", &propped(), &[Screen::Watch, Screen::Righting, Screen::Preflight]);
+    snap(
+        "propped",
+        &propped(),
+        &[Screen::Watch, Screen::Righting, Screen::Preflight],
+    );
 }
 
 #[test]
@@ -149,7 +185,10 @@ fn terminal_too_small() {
         let mut m = demo();
         m.screen = screen;
         let text = render_text(&m, 30, 8);
-        insta::assert_snapshot!(format!("too_small_{}_30x8", screen.title().to_lowercase()), text);
+        insta::assert_snapshot!(
+            format!("too_small_{}_30x8", screen.title().to_lowercase()),
+            text
+        );
     }
 }
 
@@ -160,6 +199,9 @@ fn help_overlay() {
         m.screen = screen;
         m.help = true;
         let text = render_text(&m, 80, 24);
-        insta::assert_snapshot!(format!("help_{}_80x24", screen.title().to_lowercase()), text);
+        insta::assert_snapshot!(
+            format!("help_{}_80x24", screen.title().to_lowercase()),
+            text
+        );
     }
 }

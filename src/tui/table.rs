@@ -37,20 +37,24 @@ impl Window {
         }
     }
 
-    /// "Members 11-30 of 30", "All 8 members", "No members": the rows
-    /// actually shown, for a table's title.
-    pub fn title(&self, noun_plural: &str) -> String {
+    /// "Members 11-30 of 30", "All 8 members", "1 step", "No members":
+    /// the rows actually shown, for a table's title. `noun` is singular.
+    pub fn title(&self, noun: &str) -> String {
         if self.len == 0 || self.shown == 0 {
-            return format!("No {noun_plural}");
+            return format!("No {noun}s");
         }
         let first = self.offset + 1;
         let last = self.offset + self.shown;
-        if first == 1 && last == self.len {
-            format!("All {} {noun_plural}", self.len)
+        if self.len == 1 {
+            format!("1 {noun}")
+        } else if first == 1 && last == self.len {
+            format!("All {} {noun}s", self.len)
         } else {
-            let mut c = noun_plural.chars();
-            let noun: String = c.next().map_or(String::new(), |f| f.to_uppercase().chain(c).collect());
-            format!("{noun} {first}-{last} of {}", self.len)
+            let mut c = noun.chars();
+            let noun: String = c
+                .next()
+                .map_or(String::new(), |f| f.to_uppercase().chain(c).collect());
+            format!("{noun}s {first}-{last} of {}", self.len)
         }
     }
 }
@@ -113,7 +117,11 @@ pub fn wrapped_height(lines: &[Line], width: u16) -> u16 {
         .iter()
         .map(|l| {
             let n = l.width();
-            if n == 0 { 1 } else { n.div_ceil(w) + usize::from(n > w) }
+            if n == 0 {
+                1
+            } else {
+                n.div_ceil(w) + usize::from(n > w)
+            }
         })
         .sum::<usize>()
         .try_into()
@@ -128,16 +136,17 @@ mod tests {
     fn window_keeps_the_selection_in_view_and_stops_at_the_end() {
         let w = Window::new(0, 0, 20, 30);
         assert_eq!((w.offset, w.shown), (0, 20));
-        assert_eq!(w.title("members"), "Members 1-20 of 30");
+        assert_eq!(w.title("member"), "Members 1-20 of 30");
         let w = Window::new(29, 0, 20, 30);
         assert_eq!((w.offset, w.shown), (10, 20));
-        assert_eq!(w.title("members"), "Members 11-30 of 30");
+        assert_eq!(w.title("member"), "Members 11-30 of 30");
         // An offset past the end is pulled back: no empty rows after the last.
         let w = Window::new(29, 25, 20, 30);
         assert_eq!(w.offset, 10);
         let w = Window::new(3, 0, 40, 30);
-        assert_eq!(w.title("members"), "All 30 members");
-        assert_eq!(Window::new(0, 0, 5, 0).title("members"), "No members");
+        assert_eq!(w.title("member"), "All 30 members");
+        assert_eq!(Window::new(0, 0, 5, 0).title("member"), "No members");
+        assert_eq!(Window::new(0, 0, 5, 1).title("step"), "1 step");
         // Moving up inside the window does not scroll.
         let w = Window::new(12, 10, 20, 30);
         assert_eq!(w.offset, 10);
@@ -146,10 +155,30 @@ mod tests {
     #[test]
     fn columns_drop_by_rank_and_keep_order() {
         let cols = [
-            Column { header: "id", width: 6, rank: 0, flex: false },
-            Column { header: "kind", width: 6, rank: 3, flex: false },
-            Column { header: "status", width: 8, rank: 1, flex: false },
-            Column { header: "why", width: 10, rank: 2, flex: true },
+            Column {
+                header: "id",
+                width: 6,
+                rank: 0,
+                flex: false,
+            },
+            Column {
+                header: "kind",
+                width: 6,
+                rank: 3,
+                flex: false,
+            },
+            Column {
+                header: "status",
+                width: 8,
+                rank: 1,
+                flex: false,
+            },
+            Column {
+                header: "why",
+                width: 10,
+                rank: 2,
+                flex: true,
+            },
         ];
         let (kept, c) = fit(&cols, 80);
         assert_eq!(kept, vec![0, 1, 2, 3]);

@@ -260,7 +260,11 @@ mod tests {
                 Screen::Preflight => keys::help_rows(s.preflight.keys()),
             });
             for n in names {
-                assert!(text.contains(&n), "{}: key {n} not in the help\n{text}", screen.title());
+                assert!(
+                    text.contains(&n),
+                    "{}: key {n} not in the help\n{text}",
+                    screen.title()
+                );
             }
         }
     }
@@ -272,28 +276,60 @@ mod tests {
         for screen in Screen::ALL {
             let s = &m0.screens;
             let table: Vec<crate::tui::keys::Key> = match screen {
-                Screen::Watch => s.watch.keys().iter().flat_map(|b| b.keys.iter().copied()).collect(),
-                Screen::Righting => s.righting.keys().iter().flat_map(|b| b.keys.iter().copied()).collect(),
-                Screen::Cage => s.cage.keys().iter().flat_map(|b| b.keys.iter().copied()).collect(),
-                Screen::Preflight => s.preflight.keys().iter().flat_map(|b| b.keys.iter().copied()).collect(),
+                Screen::Watch => s
+                    .watch
+                    .keys()
+                    .iter()
+                    .flat_map(|b| b.keys.iter().copied())
+                    .collect(),
+                Screen::Righting => s
+                    .righting
+                    .keys()
+                    .iter()
+                    .flat_map(|b| b.keys.iter().copied())
+                    .collect(),
+                Screen::Cage => s
+                    .cage
+                    .keys()
+                    .iter()
+                    .flat_map(|b| b.keys.iter().copied())
+                    .collect(),
+                Screen::Preflight => s
+                    .preflight
+                    .keys()
+                    .iter()
+                    .flat_map(|b| b.keys.iter().copied())
+                    .collect(),
             };
             for k in table {
                 let mut m = demo_model();
                 m.screen = screen;
                 let ev = match k {
-                    crate::tui::keys::Key::Char(c) => KeyEvent::new(KeyCode::Char(c), KeyModifiers::NONE),
-                    crate::tui::keys::Key::Enter => KeyEvent::new(KeyCode::Enter, KeyModifiers::NONE),
+                    crate::tui::keys::Key::Char(c) => {
+                        KeyEvent::new(KeyCode::Char(c), KeyModifiers::NONE)
+                    }
+                    crate::tui::keys::Key::Enter => {
+                        KeyEvent::new(KeyCode::Enter, KeyModifiers::NONE)
+                    }
                     crate::tui::keys::Key::Up => KeyEvent::new(KeyCode::Up, KeyModifiers::NONE),
                     crate::tui::keys::Key::Down => KeyEvent::new(KeyCode::Down, KeyModifiers::NONE),
-                    crate::tui::keys::Key::PageUp => KeyEvent::new(KeyCode::PageUp, KeyModifiers::NONE),
-                    crate::tui::keys::Key::PageDown => KeyEvent::new(KeyCode::PageDown, KeyModifiers::NONE),
+                    crate::tui::keys::Key::PageUp => {
+                        KeyEvent::new(KeyCode::PageUp, KeyModifiers::NONE)
+                    }
+                    crate::tui::keys::Key::PageDown => {
+                        KeyEvent::new(KeyCode::PageDown, KeyModifiers::NONE)
+                    }
                     crate::tui::keys::Key::Home => KeyEvent::new(KeyCode::Home, KeyModifiers::NONE),
                     crate::tui::keys::Key::End => KeyEvent::new(KeyCode::End, KeyModifiers::NONE),
                     other => panic!("add {other:?} to this test"),
                 };
                 update(&mut m, Msg::Key(ev));
                 assert!(
-                    !m.shared.notice.as_deref().unwrap_or("").contains("not bound"),
+                    !m.shared
+                        .notice
+                        .as_deref()
+                        .unwrap_or("")
+                        .contains("not bound"),
                     "{} key {k:?}",
                     screen.title()
                 );

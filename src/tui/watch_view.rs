@@ -107,7 +107,9 @@ fn lies_block(shared: &Shared) -> Paragraph<'static> {
         format!(" {} ", state_words(shared, true)),
         big.add_modifier(Modifier::REVERSED),
     ))];
-    let off = live.error_deg.map_or("-".to_string(), |e| format!("{e:.1} deg"));
+    let off = live
+        .error_deg
+        .map_or("-".to_string(), |e| format!("{e:.1} deg"));
     match (live.state, live.face) {
         (LiveState::Resting, Some(f)) => {
             let face = &shared.cage.faces[f];
@@ -157,15 +159,19 @@ fn lies_block(shared: &Shared) -> Paragraph<'static> {
         }
         _ => {
             lines.push(Line::styled(
-                live.reason.clone().unwrap_or_else(|| "no fresh data".into()),
+                live.reason
+                    .clone()
+                    .unwrap_or_else(|| "no fresh data".into()),
                 t.warn,
             ));
             lines.push(Line::styled("nothing shown is current", t.dim));
         }
     }
-    Paragraph::new(lines)
-        .wrap(Wrap { trim: true })
-        .block(Block::default().borders(Borders::ALL).title(" Where it lies "))
+    Paragraph::new(lines).wrap(Wrap { trim: true }).block(
+        Block::default()
+            .borders(Borders::ALL)
+            .title(" Where it lies "),
+    )
 }
 
 fn attitude_block(shared: &Shared) -> Paragraph<'static> {
@@ -213,9 +219,15 @@ fn link_block(shared: &Shared) -> Paragraph<'static> {
     let fresh = shared.live.state != LiveState::Stale;
     Paragraph::new(vec![
         Line::from(vec![
-            Span::styled(format!("{:.0} Hz", l.rate_hz), if fresh { t.good } else { t.alarm }),
+            Span::styled(
+                format!("{:.0} Hz", l.rate_hz),
+                if fresh { t.good } else { t.alarm },
+            ),
             Span::styled(format!("  age {age}"), t.text),
-            Span::styled(if fresh { "  fresh" } else { "  NOT FRESH" }, if fresh { t.dim } else { t.alarm }),
+            Span::styled(
+                if fresh { "  fresh" } else { "  NOT FRESH" },
+                if fresh { t.dim } else { t.alarm },
+            ),
         ]),
         Line::from(vec![Span::styled(
             format!("{} frames, {} bad", l.frames, l.errors),
@@ -233,7 +245,10 @@ fn legend_block(shared: &Shared) -> Paragraph<'static> {
     let t = &shared.theme;
     Paragraph::new(vec![
         Line::from(vec![
-            Span::styled("[F5]", t.text.add_modifier(Modifier::BOLD | Modifier::REVERSED)),
+            Span::styled(
+                "[F5]",
+                t.text.add_modifier(Modifier::BOLD | Modifier::REVERSED),
+            ),
             Span::styled(" resting on   ", t.dim),
             Span::styled("(F5)", t.warn),
             Span::styled(" nearest", t.dim),
@@ -264,7 +279,10 @@ mod tests {
         assert!(s.contains("F1^"), "take-off face marked:\n{s}");
         assert!(s.contains("RESTING on F5"), "{s}");
         assert!(s.contains("7.90 V"), "{s}");
-        assert!(s.contains("no: see 2 Righting"), "F5 is not a take-off face:\n{s}");
+        assert!(
+            s.contains("no: see 2 Righting"),
+            "F5 is not a take-off face:\n{s}"
+        );
     }
 
     #[test]

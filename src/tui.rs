@@ -6,7 +6,8 @@
 //! model dirty when `update` says something visible changed, and draws at
 //! most [`FRAME_CAP`] apart: no polling, no drawing when nothing changed.
 //! The terminal is restored on every exit: a quit key, an error (the
-//! guard's Drop), a panic (ratatui's hook), and SIGTERM, SIGINT or SIGHUP
+//! guard's Drop), a panic on any thread (ratatui's hook, then exit 101),
+//! and SIGTERM, SIGINT or SIGHUP
 //! (a signal thread sends [`Msg::Signal`]; the loop leaves, the guard
 //! restores, and [`run`] returns the signal so the caller exits with 128
 //! plus its number).
@@ -87,6 +88,15 @@ pub fn run(
     // Signals first: one arriving between init and here would otherwise
     // end the process with the terminal still in raw mode.
     spawn_signals(tx.clone())?;
+    // A panic on any thread ends the program: ratatui's hook (installed by
+    // `try_init`, run first) restores the terminal, this one prints the
+    // message and exits, so a reader thread's panic cannot leave the screens
+    // drawing into a terminal already given back.
+    let previous = std::panic::take_hook();
+    std::panic::set_hook(Box::new(move |info| {
+        previous(info);
+        std::process::exit(101);
+    }));
     let mut terminal = ratatui::try_init()?;
     let _restore = Restore;
     if let Ok(size) = terminal.size() {

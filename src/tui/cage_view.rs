@@ -82,6 +82,16 @@ fn status_style(shared: &Shared, s: Status) -> Style {
     }
 }
 
+/// A member's kind in a word and its capacity, N (one capacity function
+/// for the screens and the statics).
+fn kind_and_capacity(p: &crate::profile::Profile, m: &crate::cage::Member) -> (&'static str, f64) {
+    let kind = match m.kind {
+        MemberKind::Rod => "rod",
+        MemberKind::String => "string",
+    };
+    (kind, crate::statics::capacity_n(p, m.kind, m.length_m))
+}
+
 impl CageScreen {
     fn health<'a>(&self, shared: &'a Shared, i: usize) -> Option<&'a MemberHealth> {
         let m = shared.cage.members.get(i)?;
@@ -222,10 +232,7 @@ impl Component for CageScreen {
             .skip(win.offset)
             .take(win.shown)
             .map(|(i, m)| {
-                let (kind, cap) = match m.kind {
-                    MemberKind::Rod => ("rod", p.rod.capacity_n(m.length_m)),
-                    MemberKind::String => ("string", p.string.capacity_n()),
-                };
+                let (kind, cap) = kind_and_capacity(p, m);
                 let h = self.health(shared, i);
                 let nodes = format!(
                     "{}-{}",
@@ -296,10 +303,7 @@ impl CageScreen {
             return Line::raw("");
         };
         let p = &shared.profile;
-        let (kind, cap) = match m.kind {
-            MemberKind::Rod => ("rod", p.rod.capacity_n(m.length_m)),
-            MemberKind::String => ("string", p.string.capacity_n()),
-        };
+        let (kind, cap) = kind_and_capacity(p, m);
         let mut spans = vec![Span::styled(
             format!(
                 "{} {kind} {}-{}, {:.0} mm, capacity {cap:.0} N",

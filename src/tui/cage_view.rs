@@ -13,7 +13,7 @@ use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::{Modifier, Style};
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Block, Borders, Paragraph, Row, Table, Wrap};
+use ratatui::widgets::{Block, Borders, Paragraph, Row, Wrap};
 
 /// The Cage screen's own state: the selected member and the first row shown.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
@@ -265,23 +265,23 @@ impl Component for CageScreen {
                     format!("{cap:.0}"),
                     why,
                 ];
-                let row = Row::new(table::pick(&cells, &kept));
-                if i == self.selected {
-                    row.style(style.add_modifier(Modifier::REVERSED))
-                } else {
-                    row.style(style)
-                }
+                table::selectable(
+                    Row::new(table::pick(&cells, &kept)),
+                    style,
+                    i == self.selected,
+                )
             })
             .collect();
-        let header: Vec<&str> = kept.iter().map(|&i| columns[i].header).collect();
         frame.render_widget(
-            Table::new(rows, widths)
-                .header(Row::new(header).style(t.accent))
-                .block(
-                    Block::default()
-                        .borders(Borders::ALL)
-                        .title(format!(" {} ", win.title("member"))),
-                ),
+            table::build(
+                rows,
+                &columns,
+                &kept,
+                widths,
+                t.accent,
+                Borders::ALL,
+                format!(" {} ", win.title("member")),
+            ),
             table_area,
         );
         frame.render_widget(

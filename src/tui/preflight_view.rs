@@ -12,7 +12,7 @@ use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::{Modifier, Style};
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Block, Borders, Paragraph, Row, Table, Wrap};
+use ratatui::widgets::{Block, Borders, Paragraph, Row, Wrap};
 
 /// Result of an automatic check, in words.
 pub fn auto_result(model: &Shared, check: AutoCheck) -> (&'static str, String) {
@@ -184,23 +184,23 @@ impl Component for PreflightScreen {
                 let (mark, text, detail) = Self::result(shared, i)?;
                 let style = mark_style(shared, mark);
                 let cells = vec![format!("{}", i + 1), mark.to_string(), text, detail];
-                let row = Row::new(table::pick(&cells, &kept));
-                Some(if i == self.selected {
-                    row.style(style.add_modifier(Modifier::REVERSED))
-                } else {
-                    row.style(style)
-                })
+                Some(table::selectable(
+                    Row::new(table::pick(&cells, &kept)),
+                    style,
+                    i == self.selected,
+                ))
             })
             .collect();
-        let header: Vec<&str> = kept.iter().map(|&i| columns[i].header).collect();
         frame.render_widget(
-            Table::new(rows, widths)
-                .header(Row::new(header).style(t.accent))
-                .block(
-                    Block::default()
-                        .borders(Borders::ALL)
-                        .title(format!(" Preflight checklist: {} ", win.title("item"))),
-                ),
+            table::build(
+                rows,
+                &columns,
+                &kept,
+                widths,
+                t.accent,
+                Borders::ALL,
+                format!(" Preflight checklist: {} ", win.title("item")),
+            ),
             table_area,
         );
         let detail_text = match Self::result(shared, self.selected) {

@@ -19,7 +19,7 @@ use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::Modifier;
 use ratatui::text::{Line, Span};
-use ratatui::widgets::{Block, Borders, Paragraph, Row, Table, Wrap};
+use ratatui::widgets::{Block, Borders, Paragraph, Row, Wrap};
 use std::collections::VecDeque;
 
 /// How many stepper notices the screen keeps.
@@ -210,6 +210,15 @@ impl RightingScreen {
         let foot_h = 2 + self.log.len() as u16;
         usize::from(body_h.saturating_sub(2 + 3 + 2 + 3 + foot_h + 2)).max(1)
     }
+}
+
+/// The pivot's node ids joined, e.g. `N9-N6`.
+fn pivot_names(shared: &Shared, s: &Step) -> String {
+    s.pivot
+        .iter()
+        .map(|&i| shared.cage.nodes.get(i).map_or("?", |n| n.id.as_str()))
+        .collect::<Vec<_>>()
+        .join("-")
 }
 
 /// A stepper notice in words for the log.
@@ -552,25 +561,22 @@ impl RightingScreen {
                 }
             })
             .collect();
-        let header: Vec<&str> = kept.iter().map(|&i| columns[i].header).collect();
         frame.render_widget(
-            Table::new(rows, widths)
-                .header(Row::new(header).style(t.accent))
-                .block(
-                    Block::default()
-                        .borders(Borders::TOP)
-                        .title(format!(" {} ", win.title("step"))),
-                ),
+            table::build(
+                rows,
+                &columns,
+                &kept,
+                widths,
+                t.accent,
+                Borders::TOP,
+                format!(" {} ", win.title("step")),
+            ),
             area,
         );
     }
 
     fn step_cells(&self, shared: &Shared, k: usize, s: &Step, mark: &str) -> Vec<String> {
-        let pivot: Vec<&str> = s
-            .pivot
-            .iter()
-            .map(|&i| shared.cage.nodes.get(i).map_or("?", |n| n.id.as_str()))
-            .collect();
+        let pivot = pivot_names(shared, s);
         let [r, p, y] = rpy_deg(&s.target);
         vec![
             mark.to_string(),
@@ -582,7 +588,7 @@ impl RightingScreen {
                 MoveKind::Edge => "roll".to_string(),
                 MoveKind::Vertex => "pivot".to_string(),
             },
-            pivot.join("-"),
+            pivot,
             format!(
                 "{:.0} {:.0} {:.0}",
                 whole_deg(r),
@@ -602,11 +608,7 @@ impl RightingScreen {
         let Some(s) = self.shown_plan().and_then(|p| p.steps.get(self.selected)) else {
             return vec![legend];
         };
-        let pivot: Vec<&str> = s
-            .pivot
-            .iter()
-            .map(|&i| shared.cage.nodes.get(i).map_or("?", |n| n.id.as_str()))
-            .collect();
+        let pivot = pivot_names(shared, s);
         let [r, p, y] = rpy_deg(&s.target);
         let how = match s.kind {
             MoveKind::Edge => "roll over edge",
@@ -617,7 +619,7 @@ impl RightingScreen {
                 format!(
                     "Step {}: {how} {} by {:.1} deg onto {}, {:.0}% of the best rotor moment; expect r {:.0} p {:.0} y {:.0}",
                     self.selected + 1,
-                    pivot.join("-"),
+                    pivot,
                     s.angle_deg,
                     shared.face_id(s.to),
                     s.thrust_fraction * 100.0,

@@ -4,7 +4,9 @@
 //! kept first, never a column cut to a letter).
 
 use ratatui::layout::Constraint;
+use ratatui::style::Style;
 use ratatui::text::Line;
+use ratatui::widgets::{Block, Borders, Row, Table};
 
 /// The rows of a list shown in a window of `visible` rows.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
@@ -107,6 +109,33 @@ pub fn fit(columns: &[Column], width: u16) -> (Vec<usize>, Vec<Constraint>) {
 /// Pick the kept cells of a row.
 pub fn pick<T: Clone>(cells: &[T], kept: &[usize]) -> Vec<T> {
     kept.iter().filter_map(|&i| cells.get(i).cloned()).collect()
+}
+
+/// A table of the kept columns: their headers in `header_style`, the
+/// rows, and a block with `borders` and `title` (the rows shown).
+pub fn build<'a>(
+    rows: Vec<Row<'a>>,
+    columns: &[Column],
+    kept: &[usize],
+    widths: Vec<Constraint>,
+    header_style: Style,
+    borders: Borders,
+    title: String,
+) -> Table<'a> {
+    let header: Vec<&str> = kept.iter().map(|&i| columns[i].header).collect();
+    Table::new(rows, widths)
+        .header(Row::new(header).style(header_style))
+        .block(Block::default().borders(borders).title(title))
+}
+
+/// A row in `style`, reversed when it is the selected one (reverse carries
+/// the selection where colour cannot).
+pub fn selectable(row: Row<'_>, style: Style, selected: bool) -> Row<'_> {
+    if selected {
+        row.style(style.add_modifier(ratatui::style::Modifier::REVERSED))
+    } else {
+        row.style(style)
+    }
 }
 
 /// Rows a paragraph of `lines` takes when wrapped at `width` (an estimate

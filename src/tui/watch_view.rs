@@ -174,6 +174,12 @@ fn lies_block(shared: &Shared) -> Paragraph<'static> {
     )
 }
 
+/// Rounded to a tenth, with -0.0 made 0.0 (adding +0.0 does that), so a
+/// level vehicle never reads "-0.0".
+fn tenth(v: f64) -> f64 {
+    (v * 10.0).round() / 10.0 + 0.0
+}
+
 fn attitude_block(shared: &Shared) -> Paragraph<'static> {
     let t = &shared.theme;
     let live = &shared.live;
@@ -181,7 +187,10 @@ fn attitude_block(shared: &Shared) -> Paragraph<'static> {
     match live.rpy_deg {
         Some([r, p, y]) => lines.push(Line::from(vec![
             label(shared, "r p y"),
-            Span::styled(format!("{r:.1} {p:.1} {y:.1} deg"), t.text),
+            Span::styled(
+                format!("{:.1} {:.1} {:.1} deg", tenth(r), tenth(p), tenth(y)),
+                t.text,
+            ),
         ])),
         None => lines.push(Line::from(vec![
             label(shared, "r p y"),

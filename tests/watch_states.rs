@@ -84,3 +84,53 @@ fn no_data_is_stale_with_the_reason_no_data_yet() {
     assert_eq!(first["reason"], "no data yet", "{first}");
     assert!(first["face"].is_null(), "{first}");
 }
+
+#[test]
+fn attitude_and_attitude_quaternion_for_one_instant_count_once() {
+    use cagehand::link::mavlink::{Message, encode_frame};
+    // 3 s at 50 Hz, each instant sent twice: ATTITUDE and
+    // ATTITUDE_QUATERNION with the same time_boot_ms (as autopilots stream
+    // them). 100 messages a second, 50 attitude samples a second.
+    let mut bytes = Vec::new();
+    let mut seq = 0u8;
+    for k in 0..150u32 {
+        let ms = 1000 + k * 20;
+        for msg in [
+            Message::Attitude {
+                time_boot_ms: ms,
+                rpy_rad: [0.0; 3],
+                rates_rad_s: [0.0; 3],
+            },
+            Message::AttitudeQuaternion {
+                time_boot_ms: ms,
+                q: [1.0, 0.0, 0.0, 0.0],
+                rates_rad_s: [0.0; 3],
+            },
+        ] {
+            bytes.extend(encode_frame(2, seq, 1, 1, &msg, None));
+            seq = seq.wrapping_add(1);
+        }
+    }
+    let dir = tempfile::tempdir().expect("temp dir");
+    let path = dir.path().join("capture.bin");
+    std::fs::write(&path, &bytes).expect("write capture");
+    let spec = format!("raw:{}", path.display());
+    let o = Command::new(BIN)
+        .args(["watch", "--headless", "--proto", "mavlink", "--link", &spec])
+        .env("CAGEHAND_DATA", dir.path())
+        .output()
+        .expect("run cagehand");
+    assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
+    let last: Value = String::from_utf8_lossy(&o.stdout)
+        .lines()
+        .filter_map(|l| serde_json::from_str::<Value>(l).ok())
+        .filter(|v| v.get("state").is_some())
+        .last()
+        .expect("a state line");
+    assert_eq!(last["link"]["frames"], 300, "{last}");
+    let rate = last["link"]["rate_hz"].as_f64().expect("rate_hz");
+    assert!(
+        (rate - 50.0).abs() <= 1.5,
+        "samples, not messages: {rate} Hz\n{last}"
+    );
+}

@@ -123,9 +123,9 @@ fn attitude_and_attitude_quaternion_for_one_instant_count_once() {
     assert!(o.status.success(), "{}", String::from_utf8_lossy(&o.stderr));
     let last: Value = String::from_utf8_lossy(&o.stdout)
         .lines()
+        .rev()
         .filter_map(|l| serde_json::from_str::<Value>(l).ok())
-        .filter(|v| v.get("state").is_some())
-        .last()
+        .find(|v| v.get("state").is_some())
         .expect("a state line");
     assert_eq!(last["link"]["frames"], 300, "{last}");
     let rate = last["link"]["rate_hz"].as_f64().expect("rate_hz");

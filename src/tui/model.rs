@@ -135,6 +135,9 @@ pub struct LiveView {
     /// The latest attitude and the rest detector's answer, on the link
     /// clock (None while stale): what the righting stepper verifies from.
     pub rest: Option<RestSample>,
+    /// The pre-flight checklist evaluated by the core against this state
+    /// and the cage log (None until the feed has evaluated it).
+    pub preflight: Option<crate::preflight::Evaluation>,
 }
 
 /// One attitude with the rest detector's answer.
@@ -164,6 +167,7 @@ impl LiveView {
                 ..LinkView::default()
             },
             rest: None,
+            preflight: None,
         }
     }
 
@@ -457,6 +461,66 @@ pub(crate) fn live_on(m: &Model, face: usize, t_s: f64, state: LiveState) -> Liv
         },
     });
     live
+}
+
+/// The tracker's state after `samples` (time, sample), then `until_s` of
+/// link time: what the feed would evaluate the checklist against.
+#[cfg(test)]
+pub(crate) fn tracked(
+    m: &Model,
+    samples: &[(f64, crate::sample::Sample)],
+    until_s: f64,
+) -> crate::tracker::WatchState {
+    let mut tr = crate::tracker::Tracker::new(&m.shared.profile.watch, "sim");
+    for (t, s) in samples {
+        tr.update(&m.shared.cage, *t, s);
+    }
+    tr.tick(until_s);
+    tr.state(&m.shared.cage)
+}
+/// Samples held at attitude `q` for 1.5 s at 50 Hz.
+#[cfg(test)]
+pub(crate) fn held(
+    q: UnitQuaternion<f64>,
+    battery_v: Option<f64>,
+    armed: Option<bool>,
+) -> Vec<(f64, crate::sample::Sample)> {
+    (0..75)
+        .map(|k| {
+            let t = f64::from(k) * 0.02;
+            (
+                t,
+                crate::sample::Sample {
+                    t_s: t,
+                    attitude: Some(q),
+                    battery_v,
+                    armed,
+                    ..crate::sample::Sample::default()
+                },
+            )
+        })
+        .collect()
+}
+/// Attach the core's evaluation of the checklist against `st` and an empty
+/// cage log, as the feed does.
+#[cfg(test)]
+pub(crate) fn with_preflight(mut m: Model, st: &crate::tracker::WatchState) -> Model {
+    let eval = crate::preflight::evaluate(&crate::preflight::Inputs {
+        profile: &m.shared.profile,
+        cage: &m.shared.cage,
+        live: Some(st),
+        log: crate::preflight::LogInput::Read {
+            records: &[],
+            path: "(invented demo log)",
+            new_file: true,
+            trouble: None,
+        },
+        signing: None,
+    });
+    let mut live = m.shared.live.clone();
+    live.preflight = Some(eval);
+    update(&mut m, Msg::Live(Box::new(live)));
+    m
 }
 
 #[cfg(test)]

@@ -1,74 +1,18 @@
-//! The Preflight screen: the profile's checklist, automatic items evaluated
-//! from the live picture; the result column is the last to go when space
-//! is short, and the selected item is shown whole below the table.
+//! The Preflight screen: draws the checklist as the core evaluated it
+//! (src/preflight.rs); this view decides nothing. The result column is the
+//! last to go when space is short, and the selected item is shown whole
+//! below the table.
 
-use crate::health::Status;
-use crate::profile::AutoCheck;
+use crate::preflight::{ItemEval, Outcome};
 use crate::tui::component::Component;
 use crate::tui::keys::{Binding, Key, Move};
-use crate::tui::model::{LiveState, Shared};
+use crate::tui::model::Shared;
 use crate::tui::table::{self, Column, Window};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::{Modifier, Style};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Paragraph, Row, Wrap};
-
-/// Result of an automatic check, in words.
-pub fn auto_result(model: &Shared, check: AutoCheck) -> (&'static str, String) {
-    let live = &model.live;
-    match check {
-        AutoCheck::OnTakeoffFace => match (live.state, live.face) {
-            (LiveState::Resting, Some(f)) if model.takeoff.contains(&f) => {
-                ("PASS", format!("resting on {}", model.cage.faces[f].id))
-            }
-            (LiveState::Resting, Some(f)) => (
-                "FAIL",
-                format!("resting on {}, not a take-off face", model.cage.faces[f].id),
-            ),
-            (LiveState::Propped, _) => ("WAIT", "propped, not on a face".to_string()),
-            _ => ("WAIT", "not resting".to_string()),
-        },
-        AutoCheck::LinkFresh => match live.state {
-            LiveState::Stale if live.link.age_s.is_none() => ("WAIT", "no data yet".to_string()),
-            LiveState::Stale => (
-                "FAIL",
-                format!(
-                    "stale: {}",
-                    live.reason.as_deref().unwrap_or("no fresh data")
-                ),
-            ),
-            _ => ("PASS", format!("{:.0} Hz", live.link.rate_hz)),
-        },
-        AutoCheck::Battery => match live.battery_v {
-            Some(v) if v >= model.profile.preflight.min_battery_v => ("PASS", format!("{v:.2} V")),
-            Some(v) => (
-                "FAIL",
-                format!("{v:.2} V < {:.2} V", model.profile.preflight.min_battery_v),
-            ),
-            None => ("WAIT", "no battery data".to_string()),
-        },
-        AutoCheck::NoMemberDue => match &model.health {
-            None => ("WAIT", format!("no health: {}", model.health_source)),
-            Some(h) => {
-                let due: Vec<&str> = h
-                    .members
-                    .iter()
-                    .filter(|m| m.status >= Status::Due)
-                    .map(|m| m.id.as_str())
-                    .collect();
-                if due.is_empty() {
-                    (
-                        "PASS",
-                        format!("no member due ({} to inspect)", h.to_act_on().len()),
-                    )
-                } else {
-                    ("FAIL", format!("due or overloaded: {}", due.join(" ")))
-                }
-            }
-        },
-    }
-}
 
 /// The Preflight screen's own state: the selected item and the first row shown.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
@@ -102,23 +46,28 @@ const KEYS: &[Binding<PreflightAction>] = &[
 /// Rows around the table: its border and header, and the detail pane.
 const CHROME_ROWS: u16 = 3 + 4;
 
-fn mark_style(shared: &Shared, mark: &str) -> Style {
+fn mark_style(shared: &Shared, result: Outcome) -> Style {
     let t = &shared.theme;
-    match mark {
-        "PASS" => t.good,
-        "FAIL" => t.alarm,
-        _ => t.warn,
+    match result {
+        Outcome::Pass => t.good,
+        Outcome::Fail => t.alarm,
+        Outcome::Waiting | Outcome::Hand => t.warn,
     }
 }
 
+/// The result in capitals, as the table shows it.
+fn mark(result: Outcome) -> String {
+    result.name().to_uppercase()
+}
+
 impl PreflightScreen {
-    fn result(shared: &Shared, i: usize) -> Option<(&'static str, String, String)> {
-        let item = shared.profile.preflight.items.get(i)?;
-        let (mark, detail) = match item.check {
-            Some(c) => auto_result(shared, c),
-            None => ("HAND", "check by hand".to_string()),
-        };
-        Some((mark, item.text.clone(), detail))
+    /// The evaluated items (none until the feed has evaluated the list).
+    fn items(shared: &Shared) -> &[ItemEval] {
+        shared
+            .live
+            .preflight
+            .as_ref()
+            .map_or(&[], |e| e.items.as_slice())
     }
 }
 
@@ -135,7 +84,7 @@ impl Component for PreflightScreen {
 
     fn act(&mut self, action: PreflightAction, shared: &mut Shared) -> bool {
         let PreflightAction::Select(m) = action;
-        let len = shared.profile.preflight.items.len();
+        let len = Self::items(shared).len();
         let page = usize::from(shared.size.1.saturating_sub(3 + CHROME_ROWS)).max(1);
         self.selected = m.apply(self.selected, len, page);
         self.offset = Window::new(self.selected, self.offset, page, len).offset;
@@ -144,7 +93,8 @@ impl Component for PreflightScreen {
 
     fn draw(&self, shared: &Shared, frame: &mut Frame, area: Rect) {
         let t = &shared.theme;
-        let n = shared.profile.preflight.items.len();
+        let items = Self::items(shared);
+        let n = items.len();
         // The table as tall as its items (no empty rows), the rest for the
         // selected item whole.
         let table_h = (n as u16 + 3).min(area.height.saturating_sub(4)).max(4);
@@ -161,7 +111,7 @@ impl Component for PreflightScreen {
             },
             Column {
                 header: "result",
-                width: 6,
+                width: 7,
                 rank: 0,
                 flex: false,
             },
@@ -181,9 +131,14 @@ impl Component for PreflightScreen {
         let (kept, widths) = table::fit(&columns, table_area.width.saturating_sub(2));
         let rows: Vec<Row> = (win.offset..win.offset + win.shown)
             .filter_map(|i| {
-                let (mark, text, detail) = Self::result(shared, i)?;
-                let style = mark_style(shared, mark);
-                let cells = vec![format!("{}", i + 1), mark.to_string(), text, detail];
+                let item = items.get(i)?;
+                let style = mark_style(shared, item.result);
+                let cells = vec![
+                    item.n.to_string(),
+                    mark(item.result),
+                    item.text.clone(),
+                    item.detail.clone(),
+                ];
                 Some(table::selectable(
                     Row::new(table::pick(&cells, &kept)),
                     style,
@@ -203,16 +158,19 @@ impl Component for PreflightScreen {
             ),
             table_area,
         );
-        let detail_text = match Self::result(shared, self.selected) {
-            Some((mark, text, d)) => Line::from(vec![
+        let detail_text = match items.get(self.selected) {
+            Some(item) => Line::from(vec![
                 Span::styled(
-                    format!("{} {mark}: ", self.selected + 1),
-                    mark_style(shared, mark),
+                    format!("{} {}: ", item.n, mark(item.result)),
+                    mark_style(shared, item.result),
                 ),
-                Span::styled(format!("{text}. "), t.text.add_modifier(Modifier::BOLD)),
-                Span::styled(d, t.text),
+                Span::styled(
+                    format!("{}. ", item.text),
+                    t.text.add_modifier(Modifier::BOLD),
+                ),
+                Span::styled(item.detail.clone(), t.text),
             ]),
-            None => Line::styled("the profile lists no pre-flight items", t.dim),
+            None => Line::styled("evaluating the checklist: waiting for the feed", t.warn),
         };
         frame.render_widget(
             Paragraph::new(detail_text).wrap(Wrap { trim: true }).block(
@@ -227,20 +185,30 @@ impl Component for PreflightScreen {
 
 #[cfg(test)]
 mod tests {
-    use crate::tui::model::{Msg, demo_model, update};
+    use crate::tui::model::{Msg, demo_model, tracked, update, with_preflight};
     use crate::tui::view::render_text;
     use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 
     #[test]
     fn the_result_column_stays_when_narrow() {
-        let mut m = demo_model();
+        let m = demo_model();
+        let st = tracked(&m, &[], 0.0);
+        let mut m = with_preflight(m, &st);
         update(
             &mut m,
             Msg::Key(KeyEvent::new(KeyCode::Char('4'), KeyModifiers::NONE)),
         );
         let s = render_text(&m, 50, 14);
         assert!(s.contains("result"), "{s}");
-        assert!(s.contains("WAIT") || s.contains("HAND"), "{s}");
+        assert!(s.contains("WAITING") && s.contains("HAND"), "{s}");
         assert!(s.contains("Selected item"), "{s}");
+    }
+
+    #[test]
+    fn before_the_feed_evaluates_it_says_so() {
+        let mut m = demo_model();
+        m.screen = crate::tui::model::Screen::Preflight;
+        let s = render_text(&m, 80, 24);
+        assert!(s.contains("evaluating the checklist"), "{s}");
     }
 }

@@ -4,7 +4,9 @@
 //! The scenario (vehicle, faces, numbers) is the invented demo of ours.
 
 use crate::health::{HealthReport, Status, assess};
+use crate::sample::Sample;
 use crate::tui::model::{LiveState, LiveView, Model, Msg, Screen, demo_model, live_on, update};
+use crate::tui::model::{held, tracked, with_preflight};
 use crate::tui::view::render_text;
 
 const SIZES: [(u16, u16); 2] = [(80, 24), (160, 48)];
@@ -26,11 +28,16 @@ fn demo() -> Model {
     live.armed = Some(false);
     live.link.frames = 1234;
     let health = assess(&[], &m.shared.cage, &m.shared.profile.inspection);
-    with_live(m, live).with_health(Some(health), "no records yet (demo)".to_string())
+    let q = crate::rest::resting_attitude(&m.shared.cage, DEMO_FACE);
+    let st = tracked(&m, &held(q, Some(11.92), Some(false)), 1.5);
+    let m = with_live(m, live).with_health(Some(health), "no records yet (demo)".to_string());
+    with_preflight(m, &st)
 }
 
 fn no_data() -> Model {
-    demo_model()
+    let m = demo_model();
+    let st = tracked(&m, &[], 0.0);
+    with_preflight(m, &st)
 }
 
 fn stale() -> Model {
@@ -39,7 +46,10 @@ fn stale() -> Model {
     live.reason = Some("no attitude for 2.3 s".to_string());
     live.link.age_s = Some(2.3);
     live.link.frames = 811;
-    with_live(m, live)
+    let q = crate::rest::resting_attitude(&m.shared.cage, DEMO_FACE);
+    let st = tracked(&m, &held(q, None, None), 1.5 + 2.3);
+    let m = with_live(m, live);
+    with_preflight(m, &st)
 }
 
 fn airborne() -> Model {
@@ -47,7 +57,20 @@ fn airborne() -> Model {
     let mut live = live_on(&m, 0, 20.0, LiveState::Airborne);
     live.armed = Some(true);
     live.battery_v = Some(11.61);
-    with_live(m, live)
+    let q = crate::rest::resting_attitude(&m.shared.cage, 0);
+    let mut samples = held(q, Some(11.61), Some(true));
+    // Climbing at 1.5 m/s: the airborne cue.
+    samples.push((
+        1.5,
+        Sample {
+            t_s: 1.5,
+            velocity_ned_m_s: Some(nalgebra::Vector3::new(0.0, 0.0, -1.5)),
+            ..Sample::default()
+        },
+    ));
+    let st = tracked(&m, &samples, 1.5);
+    let m = with_live(m, live);
+    with_preflight(m, &st)
 }
 
 fn propped() -> Model {
@@ -62,7 +85,10 @@ fn propped() -> Model {
         "still, {:.1} deg off: not flat on any face",
         fit.error_deg
     ));
-    with_live(m, live)
+    let st = tracked(&m, &held(q, None, None), 1.5);
+    assert_eq!(st.state, crate::tracker::WatchStateKind::Propped);
+    let m = with_live(m, live);
+    with_preflight(m, &st)
 }
 
 fn unreachable() -> Model {
@@ -176,7 +202,7 @@ fn unreachable_face() {
 
 #[test]
 fn flagged_members() {
-    snap("flagged", &flagged(), &[Screen::Cage, Screen::Preflight]);
+    snap("flagged", &flagged(), &[Screen::Cage]);
 }
 
 #[test]

@@ -14,10 +14,15 @@ use crate::logbook::{Record, detection};
 use crate::preflight;
 use crate::sim::SimCommand;
 use crate::tracker::{Tracker, WatchState, WatchStateKind};
-use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample};
+use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample, count};
 use crate::tui::theme::{ColourDepth, Theme};
 use std::process::ExitCode;
 use std::sync::mpsc::{self, Sender};
+use std::time::{Duration, Instant};
+
+/// How often the feed thread reads the cage log again, to pick up records
+/// other processes wrote.
+const LOG_REREAD: Duration = Duration::from_secs(1);
 
 /// Open the screens on a loaded profile, fed by the link `link_args` names.
 pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Result<ExitCode> {
@@ -71,15 +76,15 @@ fn read_health(l: &Loaded, log: &LogOpts) -> (Option<crate::health::HealthReport
         Ok((book, report)) => {
             let problems = report.messages(book.path()).len();
             let note = if problems > 0 {
-                format!(" ({problems} problems: run `cagehand log show`)")
+                format!(" ({}: run `cagehand log show`)", count(problems, "problem"))
             } else {
                 String::new()
             };
             (
                 Some(assess(book.records(), &l.cage, &l.profile.inspection)),
                 format!(
-                    "{} records in {}{note}",
-                    book.records().len(),
+                    "{} in {}{note}",
+                    count(book.records().len(), "record"),
                     book.path().display()
                 ),
             )
@@ -92,6 +97,7 @@ fn live_view(
     st: &WatchState,
     tracker: &Tracker,
     preflight: Option<preflight::Evaluation>,
+    pending: Vec<crate::logbook::Pending>,
 ) -> LiveView {
     let errors = st.link.crc_errors + st.link.malformed + st.link.rejected;
     LiveView {
@@ -123,6 +129,7 @@ fn live_view(
                 status,
             }),
         preflight,
+        pending,
     }
 }
 
@@ -133,6 +140,8 @@ struct LogView {
     path: String,
     new_file: bool,
     error: Option<String>,
+    /// Detections not yet confirmed or dismissed.
+    pending: Vec<crate::logbook::Pending>,
 }
 
 impl LogView {
@@ -150,14 +159,26 @@ impl LogView {
                 path: book.path().display().to_string(),
                 new_file: report.new_file,
                 error: None,
+                pending: detection::pending(book.records()),
             },
             Err(e) => LogView {
                 records: Vec::new(),
                 path: String::new(),
                 new_file: false,
                 error: Some(e),
+                pending: Vec::new(),
             },
         }
+    }
+
+    /// What tells one reading of the log from another: the record count and
+    /// the newest sequence number (the log is append-only).
+    fn mark(&self) -> (usize, Option<u64>, bool) {
+        (
+            self.records.len(),
+            self.records.last().map(|r| r.seq),
+            self.error.is_some(),
+        )
     }
 
     fn evaluate(&self, l: &Loaded, st: &WatchState) -> preflight::Evaluation {
@@ -210,15 +231,36 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log);
+        let mut last_read = Instant::now();
         while let Ok(msg) = link.rx.recv() {
             let step = feed.push(super::live::feed_input(msg));
             let mut extra = step.note.clone().map(Msg::Notice);
+            let mut reread = last_read.elapsed() >= LOG_REREAD;
             if let Some(d) = &step.detection {
                 extra = Some(Msg::Notice(write_detection(&l, &log, d)));
-                book = LogView::read(&l, &log);
+                reread = true;
+            }
+            if reread {
+                // Records written by this program or by another one (a
+                // `cagehand log confirm` in a second terminal) show within
+                // about a second; the screens keep their own state.
+                let fresh = LogView::read(&l, &log);
+                last_read = Instant::now();
+                if fresh.mark() != book.mark() {
+                    let (health, source) = read_health(&l, &log);
+                    if tx.send(Msg::Health(health.map(Box::new), source)).is_err() {
+                        return;
+                    }
+                }
+                book = fresh;
             }
             let eval = book.evaluate(&l, &step.state);
-            let live = Msg::Live(Box::new(live_view(&step.state, feed.tracker(), Some(eval))));
+            let live = Msg::Live(Box::new(live_view(
+                &step.state,
+                feed.tracker(),
+                Some(eval),
+                book.pending.clone(),
+            )));
             if tx.send(live).is_err() {
                 return;
             }

@@ -138,6 +138,9 @@ pub struct LiveView {
     /// The pre-flight checklist evaluated by the core against this state
     /// and the cage log (None until the feed has evaluated it).
     pub preflight: Option<crate::preflight::Evaluation>,
+    /// Detections in the cage log not yet confirmed or dismissed: loud on
+    /// every screen until resolved.
+    pub pending: Vec<crate::logbook::Pending>,
 }
 
 /// One attitude with the rest detector's answer.
@@ -168,6 +171,7 @@ impl LiveView {
             },
             rest: None,
             preflight: None,
+            pending: Vec::new(),
         }
     }
 
@@ -197,6 +201,9 @@ pub enum Msg {
     Notice(String),
     /// A signal asked the program to end (SIGTERM, SIGINT, SIGHUP).
     Signal(i32),
+    /// The cage log changed (this program or another wrote to it): member
+    /// health anew, and where it came from or why there is none.
+    Health(Option<Box<HealthReport>>, String),
 }
 
 /// Side effects `update` asks the loop to carry out.
@@ -348,6 +355,11 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
             live.face = None;
             live.error_deg = None;
             live.rest = None;
+            true
+        }
+        Msg::Health(report, source) => {
+            model.shared.health = report.map(|b| *b);
+            model.shared.health_source = source;
             true
         }
         Msg::Signal(n) => {
@@ -691,6 +703,20 @@ mod tests {
         assert_eq!(m.shared.live.state, LiveState::Stale);
         assert_eq!(m.shared.live.face, None);
         assert!(m.shared.notice.as_deref().unwrap().contains("end of file"));
+    }
+
+    #[test]
+    fn a_changed_cage_log_replaces_the_health_and_keeps_stepping_state() {
+        let mut m = model();
+        m.screens.cage.selected = 5;
+        let report = crate::health::assess(&[], &m.shared.cage, &m.shared.profile.inspection);
+        update(
+            &mut m,
+            Msg::Health(Some(Box::new(report)), "2 records in the test log".into()),
+        );
+        assert!(m.shared.health.is_some());
+        assert_eq!(m.shared.health_source, "2 records in the test log");
+        assert_eq!(m.screens.cage.selected, 5, "the screen's own state stays");
     }
 
     #[test]

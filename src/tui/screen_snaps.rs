@@ -91,6 +91,21 @@ fn propped() -> Model {
     with_preflight(m, &st)
 }
 
+/// The demo with one detected impact not yet confirmed or dismissed.
+fn pending() -> Model {
+    let m = demo();
+    let mut live = m.shared.live.clone();
+    live.pending = vec![crate::logbook::Pending {
+        seq: 12,
+        time: "2026-12-02T05:40:00Z".to_string(),
+        peak_g: 6.4,
+        face: "F5".to_string(),
+        speed_m_per_s: Some(2.1),
+        source: "sim".to_string(),
+    }];
+    with_live(m, live)
+}
+
 fn unreachable() -> Model {
     let (mut p, c) = crate::cage::demo_cage();
     // A margin no rotor can meet: no roll is feasible, so no route.
@@ -192,6 +207,22 @@ fn propped_state() {
         "propped",
         &propped(),
         &[Screen::Watch, Screen::Righting, Screen::Preflight],
+    );
+}
+
+#[test]
+fn pending_detection() {
+    let m = pending();
+    snap(
+        "pending",
+        &m,
+        &[Screen::Watch, Screen::Righting, Screen::Cage],
+    );
+    // The line is whole at 80 columns.
+    let text = render_text(&m, 80, 24);
+    assert!(
+        text.contains("IMPACT #12 PENDING: 6.4 g on F5; confirm or dismiss it before flying"),
+        "{text}"
     );
 }
 

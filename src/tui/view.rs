@@ -20,15 +20,20 @@ pub fn view(model: &Model, frame: &mut Frame) {
         return;
     }
     let notice_rows = u16::from(model.shared.notice.is_some());
-    let [tabs, vehicle, body, notice] = Layout::vertical([
+    let pending_rows = u16::from(!model.shared.live.pending.is_empty());
+    let [tabs, vehicle, pending, body, notice] = Layout::vertical([
         Constraint::Length(1),
         Constraint::Length(1),
+        Constraint::Length(pending_rows),
         Constraint::Min(3),
         Constraint::Length(notice_rows),
     ])
     .areas(area);
     frame.render_widget(tab_line(model), tabs);
     frame.render_widget(vehicle_line(&model.shared), vehicle);
+    if let Some(line) = pending_line(&model.shared) {
+        frame.render_widget(Paragraph::new(line), pending);
+    }
     let (s, sh) = (&model.screens, &model.shared);
     match model.screen {
         Screen::Watch => s.watch.draw(sh, frame, body),
@@ -60,8 +65,9 @@ pub fn min_size(model: &Model) -> (u16, u16) {
         Screen::Cage => s.cage.min_size(),
         Screen::Preflight => s.preflight.min_size(),
     };
-    // Tab line, vehicle line and a message line around the body.
-    (w, h + 3)
+    // Tab line, vehicle line, pending-detection line and a message line
+    // around the body.
+    (w, h + 4)
 }
 
 fn too_small(model: &Model, frame: &mut Frame, (w, h): (u16, u16)) {
@@ -152,6 +158,32 @@ fn vehicle_line(shared: &Shared) -> Paragraph<'static> {
             t.dim,
         ),
         battery,
+    ]))
+}
+
+/// Detections not yet confirmed or dismissed, in one line that fits 80
+/// columns: what, and what to do. None when there are none.
+pub fn pending_line(shared: &Shared) -> Option<Line<'static>> {
+    let t = &shared.theme;
+    let p = &shared.live.pending;
+    let text = match p.as_slice() {
+        [] => return None,
+        [one] => format!(
+            "IMPACT #{} PENDING: {:.1} g on {}; confirm or dismiss it before flying",
+            one.seq, one.peak_g, one.face
+        ),
+        many => format!(
+            "{} IMPACTS PENDING ({}): confirm or dismiss each before flying",
+            many.len(),
+            many.iter()
+                .map(|d| format!("#{}", d.seq))
+                .collect::<Vec<_>>()
+                .join(" ")
+        ),
+    };
+    Some(Line::from(vec![
+        Span::styled("!! ", t.alarm),
+        Span::styled(text, t.alarm),
     ]))
 }
 

@@ -33,7 +33,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
         ));
     }
     let (health, health_source) = read_health(&loaded, log);
-    let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode)?;
+    let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode, || log.data_dir())?;
     let theme = Theme::new(ColourDepth::for_choice(super::color_choice()));
     let model = Model::new(
         loaded.profile.clone(),

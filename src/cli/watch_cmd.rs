@@ -174,7 +174,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let loaded = args.profile.load()?;
     let cage = &loaded.cage;
     let wall0 = Instant::now();
-    let link = args.link.open(Some(cage.clone()), Mode::Decode)?;
+    let link = args
+        .link
+        .open(Some(cage.clone()), Mode::Decode, || args.log.data_dir())?;
     let mut feed = Feed::new(cage.clone(), &loaded.profile, &link.source);
     let mut out = std::io::stdout().lock();
     let mut last_link = None;

@@ -14,6 +14,7 @@ pub mod net_view;
 pub mod preflight_view;
 pub mod righting_view;
 pub mod theme;
+pub mod vehicle_view;
 pub mod view;
 
 use model::{Effect, Model, Msg, update};

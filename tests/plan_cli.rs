@@ -95,16 +95,30 @@ fn cage_json_gives_node_positions_in_both_frames() {
     let pos = |id: &str, key: &str| -> [f64; 3] {
         let n = nodes.iter().find(|n| n["id"] == id).unwrap();
         let a = n[key].as_array().unwrap();
-        [a[0].as_f64().unwrap(), a[1].as_f64().unwrap(), a[2].as_f64().unwrap()]
+        [
+            a[0].as_f64().unwrap(),
+            a[1].as_f64().unwrap(),
+            a[2].as_f64().unwrap(),
+        ]
     };
     let dot = |a: [f64; 3], b: [f64; 3]| a[0] * b[0] + a[1] * b[1] + a[2] * b[2];
     for f in v["faces"].as_array().unwrap() {
         // The face normal is in the body frame: every node of the face has
         // the same body-frame offset along it (a plane), and the mount is a
         // rotation, so lengths agree between the frames.
-        let n: Vec<f64> = f["normal"].as_array().unwrap().iter().map(|x| x.as_f64().unwrap()).collect();
+        let n: Vec<f64> = f["normal"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_f64().unwrap())
+            .collect();
         let n = [n[0], n[1], n[2]];
-        let ids: Vec<&str> = f["nodes"].as_array().unwrap().iter().map(|x| x.as_str().unwrap()).collect();
+        let ids: Vec<&str> = f["nodes"]
+            .as_array()
+            .unwrap()
+            .iter()
+            .map(|x| x.as_str().unwrap())
+            .collect();
         let d0 = dot(pos(ids[0], "pos_body_m"), n);
         for id in &ids {
             assert!((dot(pos(id, "pos_body_m"), n) - d0).abs() < 1e-9);
@@ -156,7 +170,10 @@ fn recovery_map_has_one_plan_per_face() {
     assert_eq!(plans.len(), 20);
     assert!(plans.iter().all(|p| p["reachable"] == true));
     for p in plans {
-        assert!(p.get("schema").is_none(), "the schema is named once, at the top");
+        assert!(
+            p.get("schema").is_none(),
+            "the schema is named once, at the top"
+        );
         for s in p["steps"].as_array().unwrap() {
             check_rotors(&s["rotors"], 4);
         }
@@ -233,7 +250,12 @@ fn recovery_sheet_in_markdown_fits_80_columns() {
         assert!(out.lines().all(|l| l.chars().count() <= 80), "{out}");
     }
     let (_, out, _) = run(&["plan", "--from", "F10", "--format", "md"]);
-    for must in ["### Step 1", "Rotors: #1", "Where: tips toward", "Expect: on F1"] {
+    for must in [
+        "### Step 1",
+        "Rotors: #1",
+        "Where: tips toward",
+        "Expect: on F1",
+    ] {
         assert!(out.contains(must), "{must} missing:\n{out}");
     }
     // The readable table carries the rotor commands too.

@@ -3,7 +3,9 @@
 //! contract; the readable form is a short table an operator can read off
 //! a phone photo.
 
-use super::rotor_out::{ScheduleJson, RotorJson, rotors_json, schedule_json, setting_text, thinned};
+use super::rotor_out::{
+    RotorJson, ScheduleJson, rotors_json, schedule_json, setting_text, thinned,
+};
 use super::{ProfileArg, bad_input};
 use crate::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg, whole_deg};
 use crate::cage::Cage;
@@ -139,7 +141,12 @@ fn plan_json<'a>(model: &'a RightingModel, p: &'a Plan) -> PlanJson<'a> {
 
 /// Which way the step tips the vehicle, in its own terms.
 fn tips(model: &RightingModel, s: &Step) -> String {
-    step_words(&model.cage, &model.moves[s.move_index].roll, &s.start, &s.target)
+    step_words(
+        &model.cage,
+        &model.moves[s.move_index].roll,
+        &s.start,
+        &s.target,
+    )
 }
 
 /// Parse a face id such as `F7` (case-insensitive).
@@ -186,7 +193,11 @@ fn wrap(text: &str, width: usize) -> Vec<String> {
     let mut lines = Vec::new();
     let mut line = String::new();
     for item in text.split("  ").map(str::trim).filter(|i| !i.is_empty()) {
-        let sep = if item.contains(' ') && text.contains("  ") { "  " } else { " " };
+        let sep = if item.contains(' ') && text.contains("  ") {
+            "  "
+        } else {
+            " "
+        };
         let fits = line.chars().count() + sep.len() + item.chars().count() <= width;
         if item.chars().count() <= width && (line.is_empty() || fits) {
             if !line.is_empty() {
@@ -324,7 +335,12 @@ fn write_sheet(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io
     let fid = |i: usize| cage.faces[i].id.as_str();
     let rpy = |q| {
         let [r, pi, y] = rpy_deg(q);
-        format!("{:.0} / {:.0} / {:.0}", whole_deg(r), whole_deg(pi), whole_deg(y))
+        format!(
+            "{:.0} / {:.0} / {:.0}",
+            whole_deg(r),
+            whole_deg(pi),
+            whole_deg(y)
+        )
     };
     if !p.reachable {
         writeln!(out, "## {}: no route", fid(p.from))?;
@@ -371,11 +387,19 @@ fn write_sheet(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io
         md_item(
             out,
             "",
-            &format!("Start: on {}, roll / pitch / yaw {} deg.", fid(s.from), rpy(&s.start)),
+            &format!(
+                "Start: on {}, roll / pitch / yaw {} deg.",
+                fid(s.from),
+                rpy(&s.start)
+            ),
         )?;
         md_item(out, "", &format!("Where: {}.", tips(model, s)))?;
         for (label, text) in command_lines(model, s) {
-            let label = if label == "rotors:" { "Rotors:".to_string() } else { label };
+            let label = if label == "rotors:" {
+                "Rotors:".to_string()
+            } else {
+                label
+            };
             md_item(out, "", &format!("{label} {text}"))?;
         }
         md_item(
@@ -389,7 +413,11 @@ fn write_sheet(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io
         md_item(
             out,
             "",
-            &format!("Expect: on {}, roll / pitch / yaw {} deg.", fid(s.to), rpy(&s.target)),
+            &format!(
+                "Expect: on {}, roll / pitch / yaw {} deg.",
+                fid(s.to),
+                rpy(&s.target)
+            ),
         )?;
         writeln!(out)?;
     }
@@ -397,7 +425,11 @@ fn write_sheet(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io
 }
 
 /// The sheet's header: what the numbers mean.
-fn write_sheet_header(out: &mut impl Write, model: &RightingModel, name: &str) -> std::io::Result<()> {
+fn write_sheet_header(
+    out: &mut impl Write,
+    model: &RightingModel,
+    name: &str,
+) -> std::io::Result<()> {
     writeln!(out, "# Recovery sheet: {name}")?;
     writeln!(out)?;
     write_wrapped(

@@ -240,7 +240,12 @@ fn octahedron_vertex_pivot_needs_the_sideways_balance() {
         "[[rotor]]\nposition_m = [-0.05, -0.02, 0.04]\naxis = [{a}, {a}, {a}]\nmax_thrust_n = 20.0\nreverse_thrust_n = 0.0\n\n[righting]\ntakeoff_faces = [\"F1\"]\nvertex_pivots = true\ntorque_margin = 1.2\nfriction_coefficient = 0.6\n",
         a = -1.0 / s3
     );
-    let (_, c, m) = build(&explicit_toml(&octahedron(0.15), [0.0, 0.0, 0.03], 1.0, &extra));
+    let (_, c, m) = build(&explicit_toml(
+        &octahedron(0.15),
+        [0.0, 0.0, 0.03],
+        1.0,
+        &extra,
+    ));
     let from = face_with_normal(&c, [1.0 / s3, 1.0 / s3, 1.0 / s3]);
     let to = face_with_normal(&c, [1.0 / s3, -1.0 / s3, -1.0 / s3]);
     let mv = m
@@ -457,11 +462,18 @@ fn general_lp_agrees_with_the_exact_shared_axis_solution() {
     for mv in &exact.moves {
         for b_deg in [0.0, 10.0, 20.0] {
             let b = f64::to_radians(b_deg);
-            let a = best_moment(&rows_at(&c, &mv.roll, &exact.limits.rotors, mu, b), &exact.limits.rotors, tol);
+            let a = best_moment(
+                &rows_at(&c, &mv.roll, &exact.limits.rotors, mu, b),
+                &exact.limits.rotors,
+                tol,
+            );
             let t = best_moment(&rows_at(&c, &mv.roll, &tilted, mu, b), &tilted, tol);
             if let (Some((ea, _)), Some((eb, _))) = (a, t) {
                 compared += 1;
-                assert!(eb <= ea + 1e-5, "inner approximation never exceeds the exact value: {eb} > {ea}");
+                assert!(
+                    eb <= ea + 1e-5,
+                    "inner approximation never exceeds the exact value: {eb} > {ea}"
+                );
                 assert!(eb >= ea - 0.03 * ea.abs() - 1e-5, "{eb} vs {ea}");
             }
         }

@@ -38,10 +38,10 @@
 //! part turns with the roll, so a vertex pivot needs a changing setting
 //! (unless the centre of mass lies exactly over the pivot axis).
 
+use super::contact::{AngleRows, rows_at};
 pub use super::contact::{
     Condition, FRICTION_SIDES, gravity_at, moment_arms_m, resisting_moment_nm,
 };
-use super::contact::{AngleRows, rows_at};
 use super::moves::Roll;
 use crate::cage::Cage;
 use crate::profile::Rotor;
@@ -101,11 +101,7 @@ pub fn share(thrust_n: f64, rotor: &Rotor) -> f64 {
     } else {
         rotor.reverse_thrust_n
     };
-    if limit > 0.0 {
-        thrust_n / limit
-    } else {
-        0.0
-    }
+    if limit > 0.0 { thrust_n / limit } else { 0.0 }
 }
 
 /// The verdict on one roll.
@@ -153,9 +149,7 @@ pub fn checked_angles_deg(cage: &Cage, roll: &Roll) -> Vec<f64> {
     let tip = tip_angle_deg(cage, roll);
     let end = tip.min(roll.angle_deg);
     let steps = (end / ANGLE_STEP_DEG).ceil().max(1.0) as usize;
-    let mut out: Vec<f64> = (0..=steps)
-        .map(|i| end * i as f64 / steps as f64)
-        .collect();
+    let mut out: Vec<f64> = (0..=steps).map(|i| end * i as f64 / steps as f64).collect();
     if roll.angle_deg > end + 1e-9 {
         let rest = roll.angle_deg - end;
         let n = (rest / ANGLE_STEP_DEG).ceil().max(1.0) as usize;
@@ -218,7 +212,11 @@ pub fn best_moment(rows: &AngleRows, rotors: &[Rotor], tol: f64) -> Option<(f64,
         .map(|(r, &c)| lp.add_var(c, (-r.reverse_thrust_n, r.max_thrust_n)))
         .collect();
     for row in &rows.rows {
-        let expr: Vec<_> = vars.iter().copied().zip(row.coeffs.iter().copied()).collect();
+        let expr: Vec<_> = vars
+            .iter()
+            .copied()
+            .zip(row.coeffs.iter().copied())
+            .collect();
         let op = if row.equality {
             ComparisonOp::Eq
         } else {
@@ -278,11 +276,7 @@ pub fn least_thrust(rows: &[&AngleRows], limits: &Limits, tol: f64) -> Option<Ve
             }
         }
         let need = required_nm(ar.needed_nm, limits.torque_margin);
-        lp.add_constraint(
-            expr(&ar.arms_m).as_slice(),
-            ComparisonOp::Ge,
-            need + inside,
-        );
+        lp.add_constraint(expr(&ar.arms_m).as_slice(), ComparisonOp::Ge, need + inside);
     }
     let outcome = lp.solve().ok()?;
     let sol = outcome.solution()?;
@@ -294,9 +288,7 @@ pub fn least_thrust(rows: &[&AngleRows], limits: &Limits, tol: f64) -> Option<Ve
             if x.abs() < 1e-9 { 0.0 } else { x }
         })
         .collect();
-    rows.iter()
-        .all(|r| meets(r, limits, &t, tol))
-        .then_some(t)
+    rows.iter().all(|r| meets(r, limits, &t, tol)).then_some(t)
 }
 
 /// Rotor commands for a feasible roll: one setting where one exists,

@@ -215,6 +215,9 @@ pub struct Model {
     pub outbox: Vec<Effect>,
     /// First member row shown on the Cage screen.
     pub cage_scroll: usize,
+    /// Where the Righting screen's view of the vehicle looks from,
+    /// degrees clockwise from north (`<` `>` turn it).
+    pub view_azimuth_deg: f64,
 }
 
 impl Model {
@@ -252,6 +255,7 @@ impl Model {
             health_source: "no cage log read".to_string(),
             outbox: Vec::new(),
             cage_scroll: 0,
+            view_azimuth_deg: 0.0,
         }
     }
 
@@ -434,6 +438,12 @@ fn on_key(model: &mut Model, key: KeyEvent) -> bool {
             return had;
         }
         KeyCode::Enter if model.screen == Screen::Righting => return command_step(model),
+        KeyCode::Char(c @ ('<' | '>')) if model.screen == Screen::Righting => {
+            let turn = crate::tui::vehicle_view::TURN_STEP_DEG;
+            let d = if c == '>' { turn } else { -turn };
+            model.view_azimuth_deg = (model.view_azimuth_deg + d).rem_euclid(360.0);
+            return true;
+        }
         KeyCode::Down | KeyCode::Char('j') if model.screen == Screen::Cage => {
             let last = model.cage.members.len().saturating_sub(1);
             model.cage_scroll = (model.cage_scroll + 1).min(last);

@@ -21,6 +21,51 @@ pub fn path_faces(plan: &Plan) -> Vec<usize> {
     v
 }
 
+/// The vehicle as it lies, with the next step (`<` `>` turn the view).
+fn vehicle(model: &Model, frame: &mut Frame, area: Rect) {
+    use crate::tui::vehicle_view::{NextStep, VehicleView};
+    let Some(r) = model.righting.as_ref() else {
+        return;
+    };
+    let attitude = model
+        .live
+        .rest
+        .map_or_else(nalgebra::UnitQuaternion::identity, |x| x.attitude);
+    let current = r.stepper.as_ref().and_then(|s| match s.phase() {
+        Phase::Waiting { step } | Phase::Commanded { step, .. } | Phase::Rolling { step } => {
+            Some(step)
+        }
+        _ => None,
+    });
+    let step = model
+        .shown_plan()
+        .and_then(|p| p.steps.get(current.unwrap_or(0)));
+    let next = step.map(|s| NextStep {
+        pivot: &s.pivot,
+        thrust_n: &s.commands.thrust_n,
+        tip_body: crate::righting::describe::tip_direction_body(
+            &r.model.cage,
+            &r.model.moves[s.move_index].roll,
+        ),
+    });
+    frame.render_widget(
+        VehicleView {
+            cage: &r.model.cage,
+            rotors: &r.model.limits.rotors,
+            attitude,
+            next,
+            view_azimuth_deg: model.view_azimuth_deg,
+            theme: &model.theme,
+            block: Some(
+                Block::default()
+                    .borders(Borders::ALL)
+                    .title(" As it lies: < > turn the view "),
+            ),
+        },
+        area,
+    );
+}
+
 /// Draw the Righting screen.
 pub fn righting(model: &Model, frame: &mut Frame, area: Rect) {
     let t = &model.theme;
@@ -31,6 +76,9 @@ pub fn righting(model: &Model, frame: &mut Frame, area: Rect) {
     if let Some(p) = plan {
         marks.path = path_faces(p);
     }
+    let [net_area, lies] =
+        Layout::vertical([Constraint::Percentage(50), Constraint::Percentage(50)]).areas(net_area);
+    vehicle(model, frame, lies);
     frame.render_widget(
         NetView {
             cage: &model.cage,

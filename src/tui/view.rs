@@ -225,6 +225,7 @@ fn help(model: &Model, frame: &mut Frame) {
         ("4 / p", "Preflight: checklist"),
         ("Enter", "Righting: command the next step of the plan"),
         ("x", "Righting: abandon stepping and replan"),
+        ("< / >", "Righting: turn the view of the vehicle"),
         ("Up/Down", "Cage: scroll the members (PgUp/PgDn by 10)"),
         ("Tab", "next screen (Shift-Tab: previous)"),
         ("Esc", "clear the message line"),

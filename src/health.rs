@@ -396,6 +396,7 @@ mod tests {
             sn_exponent_string: 6.0,
             string_count_limit: 20,
             string_count_utilisation: 0.5,
+            derate: Default::default(),
         }
     }
 

@@ -24,3 +24,4 @@ pub mod sim;
 pub mod statics;
 pub mod tracker;
 pub mod tui;
+pub mod vehicle;

@@ -21,13 +21,29 @@ use std::time::Duration;
 /// CAGEHAND_LOCK_WAIT_S says otherwise (scripts that prefer to fail fast).
 const LOCK_WAIT: Duration = Duration::from_secs(5);
 
-/// The lock wait in force.
+/// The lock wait in force: CAGEHAND_LOCK_WAIT_S (seconds, 0 to 3600) when
+/// set, else 5 s. `cli::run` checks the variable before any command runs,
+/// so a value it cannot read is reported, never silently ignored.
 pub fn lock_wait() -> Duration {
-    env_nonempty("CAGEHAND_LOCK_WAIT_S")
-        .and_then(|s| s.trim().parse::<f64>().ok())
-        .filter(|s| s.is_finite() && *s >= 0.0 && *s <= 3600.0)
+    lock_wait_from_env().unwrap_or(LOCK_WAIT)
+}
+
+/// CAGEHAND_LOCK_WAIT_S read and checked: bad input when it is not a number
+/// of seconds from 0 to 3600.
+pub fn lock_wait_from_env() -> anyhow::Result<Duration> {
+    let Some(text) = env_nonempty("CAGEHAND_LOCK_WAIT_S") else {
+        return Ok(LOCK_WAIT);
+    };
+    text.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|s| s.is_finite() && (0.0..=3600.0).contains(s))
         .map(Duration::from_secs_f64)
-        .unwrap_or(LOCK_WAIT)
+        .ok_or_else(|| {
+            super::bad_input(format!(
+                "CAGEHAND_LOCK_WAIT_S={text:?}: expected a number of seconds from 0 to 3600"
+            ))
+        })
 }
 
 /// Where the logs live and who is writing: shared by `log` and `impact`.

@@ -31,7 +31,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
     }
     let (health, health_source) = read_health(&loaded, log);
     let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode)?;
-    let theme = Theme::new(ColourDepth::from_env());
+    let theme = Theme::new(ColourDepth::for_choice(super::color_choice()));
     let model = Model::new(
         loaded.profile.clone(),
         loaded.cage.clone(),

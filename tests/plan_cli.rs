@@ -262,3 +262,17 @@ fn recovery_sheet_in_markdown_fits_80_columns() {
     let (_, out, _) = run(&["plan", "--from", "F10"]);
     assert!(out.contains("rotors: #1"));
 }
+
+#[test]
+fn node_tags_from_the_profile_are_shown() {
+    let v = json(&[
+        "cage",
+        "--json",
+        "--profile",
+        "tests/fixtures/profiles/valid-prism.toml",
+    ]);
+    let n1 = &v["nodes"][0];
+    assert_eq!(n1["id"], "N1");
+    assert_eq!(n1["tag"], "yellow cap");
+    assert!(v["nodes"][1]["tag"].is_null());
+}

@@ -35,6 +35,8 @@ struct NodeJson<'a> {
     pos_m: [f64; 3],
     /// Body frame (FRD), the frame of the face normals and the rotors.
     pos_body_m: [f64; 3],
+    /// Physical tag from the profile, if any.
+    tag: Option<&'a str>,
 }
 
 #[derive(Debug, Serialize)]
@@ -130,6 +132,7 @@ fn report<'a>(
                 id: &n.id,
                 pos_m: n.pos_cage.into(),
                 pos_body_m: n.pos_body.into(),
+                tag: n.tag.as_deref(),
             })
             .collect(),
         members: c

@@ -74,6 +74,7 @@ struct StepJson<'a> {
     to: &'a str,
     kind: MoveKind,
     pivot: Vec<&'a str>,
+    pivot_tags: Vec<Option<&'a str>>,
     angle_deg: f64,
     thrust_fraction: f64,
     start_rpy_deg: [f64; 3],
@@ -127,6 +128,11 @@ fn plan_json<'a>(model: &'a RightingModel, p: &'a Plan) -> PlanJson<'a> {
                 to: fid(s.to),
                 kind: s.kind,
                 pivot: s.pivot.iter().map(|&i| cage.nodes[i].id.as_str()).collect(),
+                pivot_tags: s
+                    .pivot
+                    .iter()
+                    .map(|&i| cage.nodes[i].tag.as_deref())
+                    .collect(),
                 angle_deg: s.angle_deg,
                 thrust_fraction: s.thrust_fraction,
                 start_rpy_deg: rpy_deg(&s.start),
@@ -317,6 +323,10 @@ fn write_plan(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io:
             whole_deg(y)
         )?;
         write_wrapped(out, "      ", "      ", &tips(model, s))?;
+        if s.pivot.iter().any(|&i| cage.nodes[i].tag.is_some()) {
+            let labels: Vec<String> = s.pivot.iter().map(|&i| cage.nodes[i].label()).collect();
+            write_wrapped(out, "      pivot: ", "        ", &labels.join(" - "))?;
+        }
         for (label, text) in command_lines(model, s) {
             write_wrapped(out, &format!("      {label} "), "        ", &text)?;
         }
@@ -376,7 +386,7 @@ fn write_sheet(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io
         writeln!(out)?;
     }
     for (k, s) in p.steps.iter().enumerate() {
-        let pivot: Vec<&str> = s.pivot.iter().map(|&i| cage.nodes[i].id.as_str()).collect();
+        let pivot: Vec<String> = s.pivot.iter().map(|&i| cage.nodes[i].label()).collect();
         let what = match s.kind {
             MoveKind::Edge => format!("edge roll across {}", pivot.join("-")),
             MoveKind::Vertex => format!("pivot about node {}", pivot.join("-")),

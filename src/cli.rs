@@ -11,8 +11,10 @@ use std::process::ExitCode;
 mod cage_cmd;
 pub mod impact_cmd;
 pub mod link_args;
+pub mod live;
 pub mod log_cmd;
 mod plan_cmd;
+mod preflight_cmd;
 mod profile_cmd;
 mod record_cmd;
 mod rotor_out;
@@ -79,6 +81,8 @@ enum Command {
     Record(record_cmd::Args),
     /// The cage log: records, member health, findings, replacements, reports.
     Log(log_cmd::Args),
+    /// The pre-flight checklist: evaluate it, or sign it off (`preflight sign`).
+    Preflight(preflight_cmd::Args),
     /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
     Completions(CompletionsArgs),
     /// Print the manual page (roff) on stdout: `cagehand manual | man -l -`.
@@ -196,6 +200,7 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Watch(a)) => watch_cmd::run(&a),
         Some(Command::Sim(a)) => sim_cmd::run(&a),
         Some(Command::Record(a)) => record_cmd::run(&a),
+        Some(Command::Preflight(a)) => preflight_cmd::run(&a),
         Some(Command::Completions(a)) => {
             use clap::CommandFactory;
             let mut cmd = Cli::command();

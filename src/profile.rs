@@ -48,8 +48,9 @@ pub const DEMO_PROFILE_NAME: &str = "<built-in demo profile>";
 /// Where in a profile file something went wrong, and what.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
 pub enum ProfileError {
-    /// The file is not valid TOML (the parser's own account of the syntax).
-    #[error("{file}:{line}:{column}: {key}: {message}")]
+    /// The file is not valid TOML (the parser's own account of the syntax,
+    /// and the text it stopped at).
+    #[error("{file}:{line}:{column}: {key}: expected TOML syntax ({message}), found {found}")]
     Syntax {
         /// File name as given by the caller.
         file: String,
@@ -61,6 +62,8 @@ pub enum ProfileError {
         key: String,
         /// What the TOML parser expected there.
         message: String,
+        /// The text the parser stopped at.
+        found: String,
     },
     /// A value has the wrong type, is missing, unknown, out of range or
     /// makes no physical or logical sense.
@@ -224,12 +227,14 @@ impl Profile {
     /// Parse and validate profile text; `file` names it in messages.
     pub fn parse(text: &str, file: &str) -> Result<Profile, ProfileError> {
         let top = toml::de::DeTable::parse(text).map_err(|e| {
-            let (line, column) = line_col(text, e.span().map_or(0, |s| s.start));
+            let at = e.span().map_or(0, |s| s.start).min(text.len());
+            let (line, column) = line_col(text, at);
             ProfileError::Syntax {
                 file: file.to_string(),
                 line,
                 column,
                 key: "-".to_string(),
+                found: text_at(text, at),
                 message: e
                     .message()
                     .lines()
@@ -289,6 +294,21 @@ impl Profile {
     /// Total mass of the rods, from their section and density.
     pub fn rod_mass_kg(&self, total_rod_length_m: f64) -> f64 {
         self.rod.area_m2() * total_rod_length_m * self.rod.density_kg_m3
+    }
+}
+
+/// The text from `offset` to the end of its line (clipped), for "found".
+fn text_at(text: &str, offset: usize) -> String {
+    let rest = text.get(offset..).unwrap_or("");
+    let line = rest.lines().next().unwrap_or("").trim_end();
+    if line.is_empty() {
+        if rest.trim().is_empty() {
+            "the end of the file".to_string()
+        } else {
+            "the end of the line".to_string()
+        }
+    } else {
+        format!("{:?}", read::clip(line))
     }
 }
 

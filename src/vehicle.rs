@@ -306,7 +306,7 @@ mod tests {
         // (Roark's Formulas for Stress and Strain, Table 15.1) gives 763 N.
         // In the six-strut cage at equilibrium spacing every rod carries
         // sqrt(6) times the string tension (Tibert & Pellegrino 2003, the
-        // expanded octahedron's self-stress), so 400 N of pretension puts
+        // expanded octahedron's self-stress; docs/references.md), so 400 N of pretension puts
         // about 980 N on each rod: beyond buckling. The string's own
         // capacity (700 N x 0.6 = 420 N) is not reached.
         let text = DEMO_PROFILE_TOML.replace("pretension_n = 20.0", "pretension_n = 400.0");

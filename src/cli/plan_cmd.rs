@@ -233,6 +233,20 @@ fn wrap(text: &str, width: usize) -> Vec<String> {
     lines
 }
 
+/// "F9 -> F1: 2 steps, 92 deg": a route in one line, `joint` between the
+/// faces.
+fn route_line(cage: &Cage, p: &Plan, joint: &str) -> String {
+    let fid = |i: usize| cage.faces[i].id.as_str();
+    let n = p.steps.len();
+    format!(
+        "{} {joint} {}: {n} step{}, {:.0} deg",
+        fid(p.from),
+        p.goal.map_or("-", fid),
+        if n == 1 { "" } else { "s" },
+        p.total_angle_deg
+    )
+}
+
 /// Write `text` wrapped to the photo width, the first line after
 /// `first`, the rest after `rest` (both counted in the width).
 fn write_wrapped(out: &mut impl Write, first: &str, rest: &str, text: &str) -> std::io::Result<()> {
@@ -289,15 +303,7 @@ fn write_plan(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io:
         )?;
         return Ok(());
     }
-    writeln!(
-        out,
-        "{} -> {}: {} step{}, {:.0} deg in all",
-        fid(p.from),
-        p.goal.map_or("-", fid),
-        p.steps.len(),
-        if p.steps.len() == 1 { "" } else { "s" },
-        p.total_angle_deg
-    )?;
+    writeln!(out, "{} in all", route_line(cage, p, "->"))?;
     writeln!(
         out,
         " #  from -> to    pivot     kind    angle  thrust  expect r/p/y deg"
@@ -371,15 +377,7 @@ fn write_sheet(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io
         writeln!(out)?;
         return Ok(());
     }
-    writeln!(
-        out,
-        "## {} to {}: {} step{}, {:.0} deg",
-        fid(p.from),
-        p.goal.map_or("-", fid),
-        p.steps.len(),
-        if p.steps.len() == 1 { "" } else { "s" },
-        p.total_angle_deg
-    )?;
+    writeln!(out, "## {}", route_line(cage, p, "to"))?;
     writeln!(out)?;
     if let Some(n) = &p.note {
         md_item(out, "", &format!("Note: {n}"))?;

@@ -16,6 +16,7 @@ pub mod impact;
 pub mod impact_detect;
 pub mod link;
 pub mod logbook;
+pub mod logwork;
 pub mod net;
 pub mod preflight;
 pub mod profile;

@@ -51,6 +51,7 @@ use serde::{Deserialize, Serialize};
 
 pub mod detection;
 pub mod export;
+pub mod follow;
 pub mod format;
 pub mod store;
 

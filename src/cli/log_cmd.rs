@@ -154,6 +154,7 @@ pub fn same_log_args(l: &Loaded, opts: &LogOpts) -> String {
         s.push_str(&format!(" --profile {}", shell_word(&l.profile.source)));
     }
     if let Ok(d) = opts.data_dir() {
+        let d = std::path::absolute(&d).unwrap_or(d);
         s.push_str(&format!(" --data {}", shell_word(&d.display().to_string())));
     }
     s
@@ -241,6 +242,49 @@ enum Action {
         #[arg(long, hide = true, default_value_t = 1)]
         repeat: u32,
     },
+    /// List detected impacts neither confirmed nor dismissed.
+    Pending {
+        /// Print JSON (an array of {seq, time, peak_g, face, speed_m_per_s, source}).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Confirm a detected impact: analyse it as `cagehand impact` does, with
+    /// the face and the measured peak taken from the detection unless given.
+    #[command(group(clap::ArgGroup::new("where").args(["face", "node"])))]
+    #[command(group(clap::ArgGroup::new("how").args(["speed", "peak_accel_g"])))]
+    Confirm {
+        /// Sequence number of the detection record (`log pending`).
+        seq: u64,
+        /// Struck face id (F1..), instead of the detected one.
+        #[arg(long, value_name = "ID")]
+        face: Option<String>,
+        /// Struck node id (N1..), instead of the detected face.
+        #[arg(long, value_name = "ID")]
+        node: Option<String>,
+        /// Peak acceleration in g, instead of the detected peak.
+        #[arg(long, value_name = "G", allow_negative_numbers = true)]
+        peak_accel_g: Option<f64>,
+        /// Approach speed normal to the ground, instead of the peak.
+        #[arg(long, value_name = "M_PER_S", allow_negative_numbers = true)]
+        speed: Option<f64>,
+        /// Ground surface preset (with --speed).
+        #[arg(long, value_name = "NAME", requires = "speed")]
+        surface: Option<String>,
+        /// Free text stored with the impact.
+        #[arg(long, value_name = "TEXT")]
+        note: Option<String>,
+        /// Print JSON (as `cagehand impact --json`, with `detection`).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Dismiss a detected impact that was not a crash, with the reason.
+    Dismiss {
+        /// Sequence number of the detection record (`log pending`).
+        seq: u64,
+        /// Why it was not a crash ("hand launch", "dropped on the bench").
+        #[arg(long, value_name = "TEXT")]
+        reason: String,
+    },
     /// Write a maintenance report.
     Export {
         /// md or csv.
@@ -323,6 +367,13 @@ fn record(
     Ok((rec, health::changes(&before, &after)))
 }
 
+/// The detection `seq` is pending in this log, or bad input saying what
+/// became of it.
+pub fn check_pending(book: &Logbook, seq: u64) -> anyhow::Result<()> {
+    crate::logwork::check_pending(book, seq)
+        .map_err(|e| bad_input(format!("{}: {e}", book.path().display())))
+}
+
 /// Record an analysed impact in the log: the record and the status changes.
 pub fn record_impact(
     l: &Loaded,
@@ -335,6 +386,7 @@ pub fn record_impact(
 
 #[derive(Serialize)]
 struct ShowJson<'a> {
+    schema: &'static str,
     vehicle: &'a str,
     log: String,
     records: &'a [Record],
@@ -377,6 +429,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             }
             if *json {
                 let j = ShowJson {
+                    schema: "cagehand.log/1",
                     vehicle: &l.profile.vehicle.id,
                     log: book.path().display().to_string(),
                     records: book.records(),
@@ -410,6 +463,12 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             for w in &h.warnings {
                 eprintln!("cagehand: warning: {w}");
             }
+            let pending = crate::logbook::detection::pending_warning(&crate::logbook::pending(
+                book.records(),
+            ));
+            if *json && let Some(p) = &pending {
+                eprintln!("cagehand: warning: PENDING: {p}");
+            }
             if *json {
                 writeln!(out, "{}", serde_json::to_string_pretty(&h.members)?)?;
             } else {
@@ -430,6 +489,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 }
                 if let Some(n) = &note {
                     writeln!(out, "WARNING: {n}")?;
+                }
+                if let Some(p) = &pending {
+                    writeln!(out, "PENDING: {p}")?;
                 }
                 write_health_table(&mut out, &h)?;
                 let act = h.to_act_on();
@@ -457,7 +519,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 note: note.clone(),
             });
             let (rec, ch) = record(&l, opts, &mut book, ev)?;
-            writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
+            writeln!(
+                out,
+                "recorded #{} in the cage log of {} ({}): {}",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display(),
+                rec.event.summary()
+            )?;
             write_changes(&mut out, &ch)?;
         }
         Action::Replace { member, part, note } => {
@@ -469,7 +538,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 note: note.clone(),
             });
             let (rec, ch) = record(&l, opts, &mut book, ev)?;
-            writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
+            writeln!(
+                out,
+                "recorded #{} in the cage log of {} ({}): {}",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display(),
+                rec.event.summary()
+            )?;
             write_changes(&mut out, &ch)?;
         }
         Action::Note { text, repeat } => {
@@ -494,6 +570,129 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     .context("nothing was recorded")?;
                 writeln!(out, "recorded #{}", rec.seq)?;
             }
+            eprintln!(
+                "cagehand: written to the cage log of {} ({})",
+                l.profile.vehicle.id,
+                book.path().display()
+            );
+        }
+        Action::Pending { json } => {
+            let (book, _) = opts.open_reporting(&l, Access::Read)?;
+            let pending = crate::logbook::pending(book.records());
+            if *json {
+                // The contract: an array of pending detections.
+                writeln!(out, "{}", serde_json::to_string_pretty(&pending)?)?;
+            } else if pending.is_empty() {
+                writeln!(
+                    out,
+                    "no pending detections in the cage log of {} ({})",
+                    l.profile.vehicle.id,
+                    book.path().display()
+                )?;
+            } else {
+                writeln!(
+                    out,
+                    "{} pending detection(s) in the cage log of {} ({}):",
+                    pending.len(),
+                    l.profile.vehicle.id,
+                    book.path().display()
+                )?;
+                for p in &pending {
+                    let speed = match p.speed_m_per_s {
+                        Some(v) => format!("{v:.1} m/s"),
+                        None => "speed unknown".to_string(),
+                    };
+                    writeln!(
+                        out,
+                        "#{:<4} {}  {:>5.1} g  {:<5} {speed}  ({})",
+                        p.seq, p.time, p.peak_g, p.face, p.source
+                    )?;
+                }
+                let args = same_log_args(&l, opts);
+                writeln!(
+                    out,
+                    "confirm: `cagehand log confirm SEQ{args}`; dismiss: `cagehand log dismiss SEQ --reason TEXT{args}`"
+                )?;
+            }
+        }
+        Action::Confirm {
+            seq,
+            face,
+            node,
+            peak_accel_g,
+            speed,
+            surface,
+            note,
+            json,
+        } => {
+            // Pre-fill from the detection (read now; checked again under the
+            // write lock before anything is recorded).
+            let (book, _) = opts.open_reporting(&l, Access::Read)?;
+            check_pending(&book, *seq)?;
+            let Some(d) = crate::logbook::detection::detection(book.records(), *seq).cloned()
+            else {
+                return Err(bad_input(format!("record #{seq} is not a detection")));
+            };
+            drop(book);
+            let (face, node) = match (face, node) {
+                (None, None) => (Some(d.face.clone()), None),
+                other => (other.0.clone(), other.1.clone()),
+            };
+            let peak_accel_g = match (peak_accel_g, speed) {
+                (None, None) => Some(d.peak_g),
+                (g, _) => *g,
+            };
+            let impact_args = super::impact_cmd::Args {
+                profile: super::ProfileArg {
+                    profile: args.profile.clone(),
+                },
+                face,
+                node,
+                speed: *speed,
+                peak_accel_g,
+                surface: surface.clone(),
+                contact_duration_s: None,
+                dry_run: false,
+                note: note.clone(),
+                log: opts.clone(),
+                json: *json,
+            };
+            drop(out);
+            return super::impact_cmd::run_loaded(&impact_args, &l, Some(*seq));
+        }
+        Action::Dismiss { seq, reason } => {
+            if reason.trim().is_empty() {
+                return Err(bad_input(
+                    "--reason is empty: say why it was not a crash (e.g. \"hand launch\")",
+                ));
+            }
+            let operator = opts.operator()?;
+            let mut book = opts.open(&l, Access::Write)?;
+            check_pending(&book, *seq)?;
+            let v = crate::logwork::Vehicle {
+                profile: &l.profile,
+                cage: &l.cage,
+            };
+            let rec = crate::logwork::dismiss(
+                v,
+                &mut book,
+                &operator,
+                jiff::Timestamp::now(),
+                *seq,
+                reason,
+            )
+            .map_err(|e| match e {
+                crate::logwork::WorkError::Store(s) => store_err(s),
+                other => bad_input(other.to_string()),
+            })?
+            .record;
+            writeln!(
+                out,
+                "detection #{seq} dismissed: record #{} in the cage log of {} ({})",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display()
+            )?;
         }
         Action::Export { format, out: path } => {
             let (book, report) = opts.open_reporting(&l, Access::Read)?;
@@ -523,7 +722,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         None => md,
                     }
                 }
-                ExportFormat::Csv => export::csv(&h),
+                ExportFormat::Csv => export::csv_with_records(&h, book.records()),
             };
             match path {
                 Some(p) => {

@@ -16,8 +16,10 @@ use crate::sim::SimCommand;
 use crate::tracker::{Tracker, WatchState, WatchStateKind};
 use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample};
 use crate::tui::theme::{ColourDepth, Theme};
+use std::path::Path;
 use std::process::ExitCode;
 use std::sync::mpsc::{self, Sender};
+use std::time::{Duration, Instant};
 
 /// Open the screens on a loaded profile, fed by the link `link_args` names.
 pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Result<ExitCode> {
@@ -28,7 +30,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
         ));
     }
     let (health, health_source) = read_health(&loaded, log);
-    let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode)?;
+    let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode, || log.data_dir())?;
     let theme = Theme::new(ColourDepth::for_choice(super::color_choice()));
     let model = Model::new(
         loaded.profile.clone(),
@@ -171,6 +173,7 @@ impl LogView {
             live: Some(st),
             log,
             signing: None,
+            margin: None,
         })
     }
 }
@@ -205,12 +208,20 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log);
+        // Records another process writes are seen within about a second.
+        let mut follower = crate::logbook::follow::Follower::new(Path::new(&book.path));
+        let mut looked = Instant::now();
         while let Ok(msg) = link.rx.recv() {
             let step = feed.push(super::live::feed_input(msg));
             let mut extra = step.note.clone().map(Msg::Notice);
             if let Some(d) = &step.detection {
                 extra = Some(Msg::Notice(write_detection(&l, &log, d)));
                 book = LogView::read(&l, &log);
+            } else if looked.elapsed() >= Duration::from_secs(1) {
+                looked = Instant::now();
+                if follower.changed() {
+                    book = LogView::read(&l, &log);
+                }
             }
             let eval = book.evaluate(&l, &step.state);
             let live = Msg::Live(Box::new(live_view(&step.state, feed.tracker(), Some(eval))));

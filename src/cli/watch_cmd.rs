@@ -109,13 +109,10 @@ fn log_detection(
             } else {
                 format!("already in the log as #{} (a replay)", logged.seq)
             };
+            let args = super::log_cmd::same_log_args(l, opts);
             eprintln!(
-                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}` or `cagehand log dismiss {} --reason TEXT`{}",
-                d.peak_g,
-                d.face,
-                logged.seq,
-                logged.seq,
-                super::log_cmd::same_log_args(l, opts)
+                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}{args}` or `cagehand log dismiss {} --reason TEXT{args}`",
+                d.peak_g, d.face, logged.seq, logged.seq,
             );
             (Some(logged), Some(path))
         }
@@ -173,7 +170,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let loaded = args.profile.load()?;
     let cage = &loaded.cage;
     let wall0 = Instant::now();
-    let link = args.link.open(Some(cage.clone()), Mode::Decode)?;
+    let link = args
+        .link
+        .open(Some(cage.clone()), Mode::Decode, || args.log.data_dir())?;
     let mut feed = Feed::new(cage.clone(), &loaded.profile, &link.source);
     let mut out = std::io::stdout().lock();
     let mut last_link = None;

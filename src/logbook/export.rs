@@ -57,6 +57,14 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
         health.worst().label()
     ));
     s.push_str(&format!("> **Caution.** {CAUTION}\n\n"));
+    let pending = super::pending(records);
+    if let Some(w) = super::detection::pending_warning(&pending) {
+        s.push_str(&format!("> **PENDING DETECTIONS.** {}.\n\n", cell(&w)));
+    }
+    let gaps = crate::preflight::sign_off_gaps(records);
+    for g in &gaps {
+        s.push_str(&format!("> **Pre-flight.** {}\n\n", cell(g)));
+    }
 
     s.push_str("## Members to act on\n\n");
     let act = health.to_act_on();
@@ -77,6 +85,8 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
         }
         s.push('\n');
     }
+
+    s.push_str(&preflight_section(records));
 
     s.push_str("## Member health\n\n");
     s.push_str("| Member | Kind | Status | Damage D | Max utilisation | Impacts |\n");
@@ -121,6 +131,45 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
     s
 }
 
+/// The last sign-off: who, when, each item with its result, ticks and
+/// overrides.
+fn preflight_section(records: &[Record]) -> String {
+    let mut s = String::from("## Pre-flight\n\n");
+    let Some((r, p)) = crate::preflight::last_sign_off(records) else {
+        s.push_str("No pre-flight sign-off is recorded in this log.\n\n");
+        return s;
+    };
+    s.push_str(&format!(
+        "Last sign-off: record #{} by {} at {}.\n\n",
+        r.seq,
+        cell(&r.operator),
+        cell(&r.time)
+    ));
+    s.push_str("| # | Result | Item | Detail | Ticked / override |\n");
+    s.push_str("|---:|---|---|---|---|\n");
+    for i in &p.items {
+        let mark = match (&i.override_reason, i.ticked) {
+            (Some(why), _) => format!("OVERRIDDEN: {why}"),
+            (None, Some(true)) => "ticked".to_string(),
+            (None, Some(false)) => "not ticked".to_string(),
+            (None, None) => String::new(),
+        };
+        s.push_str(&format!(
+            "| {} | {} | {} | {} | {} |\n",
+            i.n,
+            i.result.name(),
+            cell(&i.text),
+            cell(i.detail.as_deref().unwrap_or("")),
+            cell(&mark)
+        ));
+    }
+    if let Some(n) = &p.note {
+        s.push_str(&format!("\nNote: {}\n", cell(n)));
+    }
+    s.push('\n');
+    s
+}
+
 /// RFC 4180 field: quoted when it holds a comma, quote or line break.
 fn csv_field(s: &str) -> String {
     if s.contains([',', '"', '\n', '\r']) {
@@ -145,6 +194,48 @@ pub fn csv(health: &HealthReport) -> String {
             m.impacts,
             csv_field(&m.reasons.join("; "))
         ));
+    }
+    s
+}
+
+/// The health table as CSV with the log's loud facts as rows of their
+/// own, in the same columns: pending detections first (status `pending`),
+/// then the members, then every pre-flight record (kind `preflight`, id
+/// `#SEQ`, status `signed_off`), and a row per sign-off gap (kind
+/// `preflight`, status `missing`).
+pub fn csv_with_records(health: &HealthReport, records: &[Record]) -> String {
+    let all = csv(health);
+    let (header, members) = all.split_once("\r\n").unwrap_or((&all, ""));
+    let mut s = format!("{header}\r\n");
+    for p in super::pending(records) {
+        let why = format!(
+            "detected {:.1} g on {} at {} ({}); not confirmed or dismissed",
+            p.peak_g, p.face, p.time, p.source
+        );
+        s.push_str(&format!(
+            "#{},detection,pending,,,,{}\r\n",
+            p.seq,
+            csv_field(&why)
+        ));
+    }
+    s.push_str(members);
+    for r in records {
+        if let super::Event::Preflight(p) = &r.event {
+            let status = if p.signed_off {
+                "signed_off"
+            } else {
+                "not_signed_off"
+            };
+            let why = format!("by {} at {}: {}", r.operator, r.time, r.event.summary());
+            s.push_str(&format!(
+                "#{},preflight,{status},,,,{}\r\n",
+                r.seq,
+                csv_field(&why)
+            ));
+        }
+    }
+    for g in crate::preflight::sign_off_gaps(records) {
+        s.push_str(&format!(",preflight,missing,,,,{}\r\n", csv_field(&g)));
     }
     s
 }

@@ -72,6 +72,18 @@ pub struct Node {
     pub pos_cage: Vector3<f64>,
     /// Position, body frame (after the mount rotation).
     pub pos_body: Vector3<f64>,
+    /// Physical tag from the profile (explicit cages), shown beside the id.
+    pub tag: Option<String>,
+}
+
+impl Node {
+    /// The id with its tag, e.g. `N3 (red band)`, or the id alone.
+    pub fn label(&self) -> String {
+        match &self.tag {
+            Some(t) => format!("{} ({t})", self.id),
+            None => self.id.clone(),
+        }
+    }
 }
 
 /// A rod or string.
@@ -276,6 +288,13 @@ impl Cage {
                 id: id.clone(),
                 pos_cage: *p,
                 pos_body: mount * p,
+                tag: match &profile.cage {
+                    crate::profile::CageShape::Explicit { nodes, .. } => nodes
+                        .iter()
+                        .find(|n| &n.id == id)
+                        .and_then(|n| n.tag.clone()),
+                    _ => None,
+                },
             })
             .collect();
         let com_body = mount * Vector3::from(profile.vehicle.com_m);

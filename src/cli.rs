@@ -17,6 +17,7 @@ mod plan_cmd;
 mod preflight_cmd;
 mod profile_cmd;
 mod record_cmd;
+mod rotor_out;
 mod sim_cmd;
 mod tui_cmd;
 mod watch_cmd;

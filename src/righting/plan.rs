@@ -11,7 +11,8 @@
 //! than the angle between the first and last normals, and weights >= 1
 //! only raise the cost. Admissible and consistent.
 
-use super::{Move, MoveKind, RightingModel};
+use super::feasibility::Condition;
+use super::{Move, MoveKind, RightingModel, RotorCommands};
 use crate::attitude::{angle_between_deg, rotate_about_world};
 use crate::rest::resting_attitude;
 use nalgebra::UnitQuaternion;
@@ -34,6 +35,11 @@ pub struct Step {
     pub angle_deg: f64,
     /// Needed / available moment at the worst angle of the roll.
     pub thrust_fraction: f64,
+    /// What to set the rotors to (from the feasibility LP): one setting,
+    /// or a schedule by roll angle.
+    pub commands: RotorCommands,
+    /// Attitude before the step (the previous step's target).
+    pub start: UnitQuaternion<f64>,
     /// Attitude to expect after the step: the attitude before it, rotated
     /// about the world-frame pivot axis by the roll angle (and by any
     /// passive rolls that follow).
@@ -259,6 +265,7 @@ impl RightingModel {
         let (mut total, mut cost) = (0.0, 0.0);
         for &k in moves {
             let m: &Move = &self.moves[k];
+            let start = q;
             for r in std::iter::once(&m.roll).chain(&m.settle) {
                 q = rotate_about_world(&q, &(q * r.axis_body), r.angle_deg.to_radians());
             }
@@ -271,6 +278,8 @@ impl RightingModel {
                 pivot: m.roll.pivot.clone(),
                 angle_deg: m.roll.angle_deg,
                 thrust_fraction: m.feasibility.thrust_fraction.unwrap_or(0.0),
+                commands: m.feasibility.commands.clone().unwrap_or_default(),
+                start,
                 target: q,
                 move_index: k,
             });
@@ -360,6 +369,14 @@ impl RightingModel {
                 m.feasibility.available_nm,
                 100.0 / self.limits.torque_margin,
                 self.limits.torque_margin
+            ),
+            None if m.feasibility.blocked_by == Some(Condition::Sideways) => format!(
+                "cannot be balanced: on its single node no thrust within the rotors' limits cancels gravity's sideways moment at {:.0} deg into the pivot while lifting the cage",
+                m.feasibility.worst_angle_deg
+            ),
+            None if m.feasibility.blocked_by == Some(Condition::Between) => format!(
+                "cannot be made as an edge roll: at {:.0} deg into the roll no thrust within the rotors' limits keeps the ground's push between the two pivot nodes (the cage would turn about one node)",
+                m.feasibility.worst_angle_deg
             ),
             None => {
                 let forward_only = self.limits.rotors.iter().all(|r| r.reverse_thrust_n <= 0.0);

@@ -9,6 +9,7 @@ pub mod attitude;
 pub mod cage;
 pub mod caution;
 pub mod cli;
+pub mod geodesic;
 pub mod health;
 pub mod hull;
 pub mod impact;

@@ -16,6 +16,7 @@ pub mod link_args;
 pub mod log_cmd;
 mod plan_cmd;
 mod profile_cmd;
+mod progress;
 mod record_cmd;
 mod sim_cmd;
 mod tui_cmd;

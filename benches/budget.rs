@@ -1,0 +1,213 @@
+//! The budget benchmarks (DEVELOPERS.md, "Performance budget"): the live
+//! path (MAVLink decoding, line parsing, face identification, drawing the
+//! Watch screen) and the cage computations (hull, recovery map, impact) on
+//! the demo and on geodesic cages generated in code
+//! (`cagehand::geodesic`: level 2 has 320 faces and 561 members, level 3
+//! 1280 faces and 2241 members, level 4 2562 nodes).
+//!
+//! `cargo bench` runs them all (a few minutes, most of it the 2241-member
+//! impact); `cargo bench -- impact` runs one group. CI only compiles them.
+
+use cagehand::cage::Cage;
+use cagehand::hull::Hull;
+use cagehand::impact::{ImpactInput, Strike, analyse_impact};
+use cagehand::link::Proto;
+use cagehand::link::line::LineDecoder;
+use cagehand::link::mavlink::{MavConfig, MavDecoder, SampleMaker};
+use cagehand::profile::Profile;
+use cagehand::righting::RightingModel;
+use cagehand::sim::Sim;
+use cagehand::sim::wire::Wire;
+use divan::counter::{BytesCount, ItemsCount};
+use divan::{Bencher, black_box};
+use nalgebra::Vector3;
+
+fn main() {
+    divan::main();
+}
+
+fn demo() -> (Profile, Cage) {
+    let p = Profile::demo().expect("demo profile");
+    let c = Cage::from_profile(&p).expect("demo cage");
+    (p, c)
+}
+
+fn geodesic(k: u32) -> (Profile, Cage) {
+    let p = Profile::parse(&cagehand::geodesic::profile_toml(k), "geodesic").expect("profile");
+    let c = Cage::from_profile(&p).expect("cage");
+    (p, c)
+}
+
+/// About a megabyte of the simulator's telemetry on the wire: attitude and
+/// IMU every step, velocity every fifth, status and battery once a second.
+fn stream(proto: Proto, bytes: usize) -> Vec<u8> {
+    let (_, c) = demo();
+    let mut sim = Sim::new(&c, 7);
+    let mut wire = Wire::new(proto);
+    let mut out = Vec::with_capacity(bytes + 1024);
+    while out.len() < bytes {
+        sim.step(0.01);
+        out.extend(wire.encode(&sim.telemetry()));
+    }
+    out
+}
+
+mod live {
+    use super::*;
+
+    /// MAVLink decoding and sample making, bytes per second.
+    #[divan::bench(sample_count = 20)]
+    fn decode_mavlink(b: Bencher) {
+        let data = stream(Proto::Mavlink, 1 << 20);
+        b.counter(BytesCount::new(data.len())).bench(|| {
+            let mut d = MavDecoder::new(MavConfig::default());
+            let mut maker = SampleMaker::default();
+            let mut n = 0usize;
+            for chunk in data.chunks(4096) {
+                d.push(chunk);
+                while let Some(f) = d.pop() {
+                    black_box(maker.sample(&f, 0.0));
+                    n += 1;
+                }
+            }
+            n
+        });
+    }
+
+    /// Line protocol parsing, samples per second.
+    #[divan::bench(sample_count = 20)]
+    fn parse_lines(b: Bencher) {
+        let data = stream(Proto::Line, 1 << 20);
+        let lines = data.iter().filter(|&&c| c == b'\n').count();
+        b.counter(ItemsCount::new(lines)).bench(|| {
+            let mut d = LineDecoder::new();
+            let mut n = 0usize;
+            for chunk in data.chunks(4096) {
+                d.push(chunk, 0.0);
+                while let Some(s) = d.pop() {
+                    black_box(s);
+                    n += 1;
+                }
+            }
+            n
+        });
+    }
+
+    fn gravities() -> Vec<Vector3<f64>> {
+        (0..1000)
+            .map(|i| {
+                let (th, ph) = (i as f64 * 0.0031, i as f64 * 0.0173);
+                Vector3::new(th.sin() * ph.cos(), th.sin() * ph.sin(), th.cos())
+            })
+            .collect()
+    }
+
+    /// Face identification of one sample on the demo cage (20 faces).
+    #[divan::bench]
+    fn fit_face_demo(b: Bencher) {
+        let (_, c) = demo();
+        let g = gravities();
+        b.counter(ItemsCount::new(g.len())).bench(|| {
+            for x in &g {
+                black_box(cagehand::rest::fit_face(&c, x));
+            }
+        });
+    }
+
+    /// Face identification of one sample on a 1280-face cage.
+    #[divan::bench(sample_count = 20)]
+    fn fit_face_1280(b: Bencher) {
+        let (_, c) = geodesic(3);
+        let g = gravities();
+        b.counter(ItemsCount::new(g.len())).bench(|| {
+            for x in &g {
+                black_box(cagehand::rest::fit_face(&c, x));
+            }
+        });
+    }
+
+    /// One full Watch frame of the demo drawn into a TestBackend (120x36).
+    #[divan::bench(sample_count = 20)]
+    fn draw_watch(b: Bencher) {
+        use cagehand::tui::model::{LiveState, LiveView, Model, Msg, update};
+        use cagehand::tui::theme::{ColourDepth, Theme};
+        use ratatui::Terminal;
+        use ratatui::backend::TestBackend;
+        let (p, c) = demo();
+        let mut model = Model::new(p, c, "sim", Theme::new(ColourDepth::True));
+        let mut live = LiveView::waiting("sim");
+        live.state = LiveState::Resting;
+        live.face = Some(0);
+        live.error_deg = Some(1.5);
+        live.rpy_deg = Some([1.0, -0.5, 30.0]);
+        live.battery_v = Some(11.9);
+        live.armed = Some(false);
+        live.link.rate_hz = 100.0;
+        live.link.age_s = Some(0.01);
+        live.link.frames = 12_345;
+        update(&mut model, Msg::Live(Box::new(live)));
+        let mut term = Terminal::new(TestBackend::new(120, 36)).expect("test backend");
+        b.bench_local(|| {
+            term.draw(|f| cagehand::tui::view::view(&model, f))
+                .map(|_| ())
+                .expect("draw");
+        });
+    }
+}
+
+mod cage {
+    use super::*;
+
+    /// Convex hull of the 2562 nodes of a level-4 geodesic cage.
+    #[divan::bench(sample_count = 10)]
+    fn hull_2562(b: Bencher) {
+        let (pts, _) = cagehand::geodesic::sphere(4);
+        let pts: Vec<[f64; 3]> = pts.iter().map(|p| [p.x, p.y, p.z]).collect();
+        b.bench(|| Hull::new(&pts).expect("hull").faces.len());
+    }
+
+    /// Recovery map (a plan from every face) of the demo.
+    #[divan::bench(sample_count = 20)]
+    fn recovery_map_demo(b: Bencher) {
+        let (p, c) = demo();
+        let m = RightingModel::new(&p, &c).expect("model");
+        b.bench(|| m.recovery_map().len());
+    }
+
+    /// Recovery map of a 1280-face cage, the model built each time too
+    /// (as `plan --all` does).
+    #[divan::bench(sample_count = 5)]
+    fn recovery_map_1280(b: Bencher) {
+        let (p, c) = geodesic(3);
+        b.bench(|| {
+            let m = RightingModel::new(&p, &c).expect("model");
+            m.recovery_map().len()
+        });
+    }
+
+    fn impact(b: Bencher, (p, c): (Profile, Cage)) {
+        b.bench(|| {
+            analyse_impact(&c, &p, Strike::Face(0), &ImpactInput::PeakAccel { g: 20.0 })
+                .expect("impact")
+                .force_n
+        });
+    }
+
+    /// Impact (peak acceleration 20 g on F1) on the demo, 30 members.
+    #[divan::bench(sample_count = 20)]
+    fn impact_demo(b: Bencher) {
+        impact(b, demo());
+    }
+
+    /// Impact on the 561-member geodesic cage.
+    #[divan::bench(sample_count = 5)]
+    fn impact_561(b: Bencher) {
+        impact(b, geodesic(2));
+    }
+
+    /// Impact on the 2241-member geodesic cage.
+    #[divan::bench(sample_count = 2, sample_size = 1)]
+    fn impact_2241(b: Bencher) {
+        impact(b, geodesic(3));
+    }
+}

@@ -190,7 +190,10 @@ fn flags_beat_the_environment() {
     let text = std::fs::read_to_string(dir.path().join("kestrel-demo.cagelog")).unwrap();
     let last = text.lines().last().unwrap();
     assert!(last.contains("\"operator\":\""), "{last}");
-    assert!(!last.contains("\"operator\":\"\""), "an empty operator: {last}");
+    assert!(
+        !last.contains("\"operator\":\"\""),
+        "an empty operator: {last}"
+    );
 }
 
 #[test]

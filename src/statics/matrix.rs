@@ -11,6 +11,14 @@ pub(crate) const RANK_TOLERANCE: f64 = 1e-9;
 /// The equilibrium matrix A (3n x b) at positions `pos`: `A t = f`.
 pub fn equilibrium_matrix(pos: &[Vector3<f64>], bars: &[Bar]) -> DMatrix<f64> {
     let mut a = DMatrix::zeros(3 * pos.len(), bars.len());
+    for_each_entry(pos, bars, |row, col, v| a[(row, col)] = v);
+    a
+}
+
+/// The non-zero entries of A (row, column, value): column j holds the unit
+/// vector from member j's second node to its first at the first node and
+/// its negative at the second; a member of zero length has none.
+fn for_each_entry(pos: &[Vector3<f64>], bars: &[Bar], mut put: impl FnMut(usize, usize, f64)) {
     for (j, bar) in bars.iter().enumerate() {
         let [p, q] = bar.nodes;
         let d = pos[p] - pos[q];
@@ -19,11 +27,10 @@ pub fn equilibrium_matrix(pos: &[Vector3<f64>], bars: &[Bar]) -> DMatrix<f64> {
             continue;
         }
         for k in 0..3 {
-            a[(3 * p + k, j)] = d[k] / l;
-            a[(3 * q + k, j)] = -d[k] / l;
+            put(3 * p + k, j, d[k] / l);
+            put(3 * q + k, j, -d[k] / l);
         }
     }
-    a
 }
 
 /// The SVD of A padded with zero rows to at least b rows, so its V holds
@@ -118,18 +125,7 @@ impl RowSpace {
         use faer::linalg::svd::{ComputeSvdVectors, svd, svd_scratch};
         let (b, m) = (bars.len(), 3 * pos.len());
         let mut at = faer::Mat::<f64>::zeros(b, m);
-        for (j, bar) in bars.iter().enumerate() {
-            let [p, q] = bar.nodes;
-            let d = pos[p] - pos[q];
-            let l = d.norm();
-            if l <= 0.0 {
-                continue;
-            }
-            for k in 0..3 {
-                at[(j, 3 * p + k)] = d[k] / l;
-                at[(j, 3 * q + k)] = -d[k] / l;
-            }
-        }
+        for_each_entry(pos, bars, |row, col, v| at[(col, row)] = v);
         let size = b.min(m);
         if size == 0 {
             return Ok(RowSpace {

@@ -52,7 +52,7 @@ impl Large {
         if self.terminal {
             let _ = write!(err, "\rcagehand: {what} {done}/{total}");
             self.open_line.set(true);
-        } else if done % 4 == 0 || done >= total {
+        } else if done.is_multiple_of(4) || done >= total {
             let _ = writeln!(err, "cagehand: {what} {done}/{total}");
         }
     }

@@ -3,7 +3,7 @@
 //! so the crew knows it is working and not hung. Small cages print
 //! nothing; stdout (and so `--json`) is never touched.
 
-use crate::cage::Cage;
+use cagehand::cage::Cage;
 use std::cell::Cell;
 use std::io::{IsTerminal, Write};
 

@@ -1,17 +1,17 @@
 //! `cagehand watch`: live state of the vehicle. `--headless` prints one
-//! JSON object per line (a contract: scripts and checks parse it) on every
-//! change of state or face and once a second of link time; for every
-//! detected impact a line with a `detection` object, after writing the
-//! detection to the vehicle's cage log; `--summary` adds one object when
-//! the input ends.
+//! JSON object per line (a contract: scripts and checks parse it; see
+//! docs/json.md) on every change of state or face and once a second of
+//! link time; for every detected impact a line with a `detection` object,
+//! after writing the detection to the vehicle's cage log; `--summary` adds
+//! one object when the input ends.
 
 use super::link_args::LinkArgs;
 use super::log_cmd::LogOpts;
 use super::{Loaded, ProfileArg};
-use crate::feed::Feed;
-use crate::link::transport::Mode;
-use crate::logbook::{Access, DetectionEvent, detection};
-use crate::tracker::WatchStateKind;
+use crate::transport::Mode;
+use cagehand::feed::Feed;
+use cagehand::logbook::{Access, DetectionEvent, detection};
+use cagehand::tracker::WatchStateKind;
 use serde::Serialize;
 use std::collections::BTreeSet;
 use std::io::Write;
@@ -50,6 +50,7 @@ struct Errors {
 
 #[derive(Debug, Serialize)]
 struct Summary {
+    schema: &'static str,
     summary: bool,
     source: String,
     frames_decoded: u64,
@@ -109,13 +110,10 @@ fn log_detection(
             } else {
                 format!("already in the log as #{} (a replay)", logged.seq)
             };
+            let args = super::log_cmd::same_log_args(l, opts);
             eprintln!(
-                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}` or `cagehand log dismiss {} --reason TEXT`{}",
-                d.peak_g,
-                d.face,
-                logged.seq,
-                logged.seq,
-                super::log_cmd::same_log_args(l, opts)
+                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}{args}` or `cagehand log dismiss {} --reason TEXT{args}`",
+                d.peak_g, d.face, logged.seq, logged.seq,
             );
             (Some(logged), Some(path))
         }
@@ -173,7 +171,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let loaded = args.profile.load()?;
     let cage = &loaded.cage;
     let wall0 = Instant::now();
-    let link = args.link.open(Some(cage.clone()), Mode::Decode)?;
+    let link = args
+        .link
+        .open(Some(cage.clone()), Mode::Decode, || args.log.data_dir())?;
     let mut feed = Feed::new(cage.clone(), &loaded.profile, &link.source);
     let mut out = std::io::stdout().lock();
     let mut last_link = None;
@@ -229,6 +229,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         let tracker = feed.tracker();
         let c = tracker.counters();
         let s = Summary {
+            schema: "cagehand.watch-summary/1",
             summary: true,
             source: link.source.clone(),
             frames_decoded: c.frames,

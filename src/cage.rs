@@ -308,10 +308,14 @@ impl Cage {
             .iter()
             .flat_map(|p| p.iter().map(|x| x.abs()))
             .fold(0.0_f64, f64::max);
-        let member_on = |a: usize, b: usize| {
-            let e = [a.min(b), a.max(b)];
-            members.iter().position(|m| m.nodes == e)
-        };
+        // The first member on each node pair, found by hashing rather than
+        // a scan of every member for every face edge.
+        let mut by_nodes: std::collections::HashMap<[usize; 2], usize> =
+            std::collections::HashMap::with_capacity(members.len());
+        for (j, m) in members.iter().enumerate() {
+            by_nodes.entry(m.nodes).or_insert(j);
+        }
+        let member_on = |a: usize, b: usize| by_nodes.get(&[a.min(b), a.max(b)]).copied();
         let mut faces: Vec<Face> = hull
             .faces
             .iter()

@@ -16,6 +16,7 @@ pub mod log_cmd;
 mod plan_cmd;
 mod preflight_cmd;
 mod profile_cmd;
+mod progress;
 mod record_cmd;
 mod rotor_out;
 mod sim_cmd;

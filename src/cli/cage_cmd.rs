@@ -191,6 +191,7 @@ fn report<'a>(
 /// Run the cage command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
+    super::progress::Large::new(&l.cage).stage("self-stress of the cage");
     let ss = self_stress(
         &Structure::from_cage(&l.cage, &l.profile),
         l.profile.string.pretension_n,

@@ -70,6 +70,15 @@ pub struct Plan {
     pub steps: Vec<Step>,
 }
 
+/// What every plan of one map shares: the graph, the cost to go from every
+/// face and the goals, computed once per map (or per single plan) and
+/// handed to the plans and their explanations.
+struct Routes {
+    pg: PlanGraph,
+    to_go: Vec<Option<f64>>,
+    goals: Vec<usize>,
+}
+
 /// The graph of resting faces (node weight: face index) and feasible moves
 /// (edge weight: move index), one edge per ordered pair of faces, the
 /// cheapest.
@@ -126,8 +135,13 @@ impl RightingModel {
 
     /// The A* heuristic: angle from `face`'s normal to the nearest goal's.
     pub fn heuristic_deg(&self, face: usize) -> f64 {
+        self.heuristic_to(face, &self.goals())
+    }
+
+    /// [`RightingModel::heuristic_deg`] with the goals given.
+    fn heuristic_to(&self, face: usize, goals: &[usize]) -> f64 {
         let n = self.cage.faces[face].normal_body;
-        self.goals()
+        goals
             .iter()
             .map(|&g| angle_between_deg(&n, &self.cage.faces[g].normal_body))
             .fold(f64::INFINITY, f64::min)
@@ -137,7 +151,11 @@ impl RightingModel {
     /// one Dijkstra run from a virtual source joined to every goal, on the
     /// reversed graph.
     pub fn cost_to_go(&self) -> Vec<Option<f64>> {
-        let pg = self.graph();
+        self.cost_to_go_on(&self.graph(), &self.goals())
+    }
+
+    /// [`RightingModel::cost_to_go`] on a graph already built.
+    fn cost_to_go_on(&self, pg: &PlanGraph, goals: &[usize]) -> Vec<Option<f64>> {
         let mut rev: DiGraph<(), f64> = DiGraph::new();
         let nodes: Vec<NodeIndex> = pg.graph.node_indices().map(|_| rev.add_node(())).collect();
         for e in pg.graph.edge_references() {
@@ -145,7 +163,7 @@ impl RightingModel {
             rev.add_edge(nodes[e.target().index()], nodes[e.source().index()], cost);
         }
         let source = rev.add_node(());
-        for g in self.goals() {
+        for &g in goals {
             if let Some(n) = pg.node[g] {
                 rev.add_edge(source, nodes[n.index()], 0.0);
             }
@@ -160,9 +178,8 @@ impl RightingModel {
     /// The recovery map: a plan from every face, each starting at the
     /// face's zero-yaw resting attitude.
     pub fn recovery_map(&self) -> Vec<Plan> {
-        let pg = self.graph();
-        let to_go = self.cost_to_go();
-        let goals = self.goals();
+        let routes = self.routes();
+        let (pg, to_go, goals) = (&routes.pg, &routes.to_go, &routes.goals);
         (0..self.cage.faces.len())
             .map(|face| {
                 let start = self.settle_face(face);
@@ -192,9 +209,17 @@ impl RightingModel {
                         }
                     }
                 }
-                self.assemble(face, start, &attitude, &moves)
+                self.assemble(face, start, &attitude, &moves, &routes)
             })
             .collect()
+    }
+
+    /// The graph, cost to go and goals, once.
+    fn routes(&self) -> Routes {
+        let pg = self.graph();
+        let goals = self.goals();
+        let to_go = self.cost_to_go_on(&pg, &goals);
+        Routes { pg, to_go, goals }
     }
 
     /// One plan by A* from `face`, the steps' target attitudes starting from
@@ -217,8 +242,11 @@ impl RightingModel {
             };
         }
         let start = self.settle_face(face);
-        let pg = self.graph();
-        let goals = self.goals();
+        let routes = self.routes();
+        let (pg, goals) = (&routes.pg, &routes.goals);
+        let heuristic: Vec<f64> = (0..self.cage.faces.len())
+            .map(|f| self.heuristic_to(f, goals))
+            .collect();
         let moves = pg.node[start]
             .and_then(|s| {
                 petgraph::algo::astar(
@@ -226,7 +254,7 @@ impl RightingModel {
                     s,
                     |n| goals.contains(&pg.graph[n]),
                     |e| self.cost_deg(&self.moves[*e.weight()]),
-                    |n| self.heuristic_deg(pg.graph[n]),
+                    |n| heuristic[pg.graph[n]],
                 )
             })
             .map(|(_, path)| {
@@ -235,8 +263,8 @@ impl RightingModel {
                     .collect::<Vec<usize>>()
             });
         match moves {
-            Some(m) => self.assemble(face, start, attitude, &m),
-            None => self.assemble(face, start, attitude, &[]),
+            Some(m) => self.assemble(face, start, attitude, &m, &routes),
+            None => self.assemble(face, start, attitude, &[], &routes),
         }
     }
 
@@ -247,6 +275,7 @@ impl RightingModel {
         start: usize,
         attitude: &UnitQuaternion<f64>,
         moves: &[usize],
+        routes: &Routes,
     ) -> Plan {
         let f = |i: usize| self.cage.faces[i].id.as_str();
         let note = (start != face).then(|| {
@@ -285,13 +314,12 @@ impl RightingModel {
             });
         }
         let end = steps.last().map_or(start, |s| s.to);
-        let goals = self.goals();
-        let reachable = goals.contains(&end);
+        let reachable = routes.goals.contains(&end);
         Plan {
             from: face,
             goal: reachable.then_some(end),
             reachable,
-            reason: (!reachable).then(|| self.explain(start)),
+            reason: (!reachable).then(|| self.explain_on(start, routes)),
             note,
             total_angle_deg: total,
             cost_deg: cost,
@@ -302,11 +330,16 @@ impl RightingModel {
     /// Why no take-off face can be reached from `face`: the move out of
     /// the set of faces it can reach that comes closest to being feasible.
     pub fn explain(&self, face: usize) -> String {
+        self.explain_on(face, &self.routes())
+    }
+
+    /// [`RightingModel::explain`] with the map's routes already worked out.
+    fn explain_on(&self, face: usize, routes: &Routes) -> String {
         let f = |i: usize| self.cage.faces[i].id.as_str();
-        if self.goals().is_empty() {
+        let (pg, to_go) = (&routes.pg, &routes.to_go);
+        if routes.goals.is_empty() {
             return "the profile's take-off faces include none this vehicle can rest on".into();
         }
-        let pg = self.graph();
         let mut reach = vec![false; self.cage.faces.len()];
         if let Some(n) = pg.node.get(face).copied().flatten() {
             let mut dfs = petgraph::visit::Dfs::new(&pg.graph, n);
@@ -316,7 +349,6 @@ impl RightingModel {
         }
         // Prefer a missing move after which a route exists (one move short);
         // otherwise any move out of the faces the rotors can reach.
-        let to_go = self.cost_to_go();
         let out: Vec<&Move> = self
             .moves
             .iter()

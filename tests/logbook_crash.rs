@@ -17,8 +17,8 @@ fn cagehand(data: &Path, args: &[&str]) -> Command {
         .args(args)
         .arg("--data")
         .arg(data)
-        .arg("--operator")
-        .arg("crash-test")
+        // By the environment: `--operator` is only on the actions that write.
+        .env("CAGEHAND_OPERATOR", "crash-test")
         .env_remove("CAGEHAND_DATA");
     c
 }

@@ -178,10 +178,17 @@ struct MemberJson<'a> {
     utilisation: f64,
 }
 
+/// The schema of `impact --json` (and of `log confirm --json`, which adds
+/// to it): docs/json.md.
+pub const IMPACT_SCHEMA: &str = "cagehand.impact/1";
+
 #[derive(Debug, Serialize)]
 struct Report<'a> {
+    schema: &'static str,
     vehicle: &'a str,
     strike: &'a str,
+    /// False: the cage found an equilibrium and the figures below hold.
+    beyond_model: bool,
     force_n: f64,
     method: ImpactMethod,
     input: &'a ImpactInput,
@@ -239,6 +246,7 @@ fn record_beyond_model(
     let mut out = std::io::stdout().lock();
     if args.json {
         let j = serde_json::json!({
+            "schema": IMPACT_SCHEMA,
             "vehicle": l.profile.vehicle.id,
             "strike": resolved.strike_id,
             "beyond_model": true,
@@ -320,8 +328,10 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     };
     let cage = &l.cage;
     let report = Report {
+        schema: IMPACT_SCHEMA,
         vehicle: &l.profile.vehicle.id,
         strike: &resolved.strike_id,
+        beyond_model: false,
         force_n: a.force_n,
         method: a.method,
         input: &resolved.input,

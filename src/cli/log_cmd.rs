@@ -46,7 +46,38 @@ pub fn lock_wait_from_env() -> anyhow::Result<Duration> {
         })
 }
 
-/// Where the logs live and who is writing: shared by `log` and `impact`.
+/// Where the logs live, for the `log` actions: `--data` on every action,
+/// `--operator` ([`OperatorArg`]) only on those that write a record.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct DataArg {
+    /// Folder holding the cage logs (else $CAGEHAND_DATA, else the
+    /// platform's data folder, e.g. ~/.local/share/cagehand).
+    #[arg(long, value_name = "DIR", global = true)]
+    pub data: Option<PathBuf>,
+}
+
+/// Who writes the record: offered only where a record is written.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct OperatorArg {
+    /// Who records the event (else $CAGEHAND_OPERATOR, else the account
+    /// name the operating system gives for the current user).
+    #[arg(long, value_name = "NAME")]
+    pub operator: Option<String>,
+}
+
+impl DataArg {
+    /// The log options of an action: this folder, and the operator when
+    /// the action writes (None: reading needs nobody's name).
+    pub fn with(&self, who: Option<&OperatorArg>) -> LogOpts {
+        LogOpts {
+            data: self.data.clone(),
+            operator: who.and_then(|w| w.operator.clone()),
+        }
+    }
+}
+
+/// Where the logs live and who is writing: for the commands that write a
+/// record (`impact`, `watch`, `preflight`); `log` builds it per action.
 #[derive(Debug, Clone, Default, clap::Args)]
 pub struct LogOpts {
     /// Folder holding the cage logs (else $CAGEHAND_DATA, else the
@@ -220,6 +251,8 @@ enum Action {
         /// Free text.
         #[arg(long)]
         note: Option<String>,
+        #[command(flatten)]
+        who: OperatorArg,
     },
     /// Record a member replacement.
     Replace {
@@ -231,6 +264,8 @@ enum Action {
         /// Free text.
         #[arg(long)]
         note: Option<String>,
+        #[command(flatten)]
+        who: OperatorArg,
     },
     /// Record a note.
     Note {
@@ -240,6 +275,8 @@ enum Action {
         /// crash safety).
         #[arg(long, hide = true, default_value_t = 1)]
         repeat: u32,
+        #[command(flatten)]
+        who: OperatorArg,
     },
     /// Write a maintenance report.
     Export {
@@ -260,9 +297,21 @@ pub struct Args {
     #[arg(long, value_name = "FILE", global = true)]
     profile: Option<std::path::PathBuf>,
     #[command(flatten)]
-    opts: LogOpts,
+    data: DataArg,
     #[command(subcommand)]
     action: Action,
+}
+
+impl Action {
+    /// The operator option of an action that writes a record.
+    fn who(&self) -> Option<&OperatorArg> {
+        match self {
+            Action::Finding { who, .. } | Action::Replace { who, .. } | Action::Note { who, .. } => {
+                Some(who)
+            }
+            Action::Show { .. } | Action::Health { .. } | Action::Export { .. } => None,
+        }
+    }
 }
 
 /// A member id of this cage, or bad input listing the valid ones.
@@ -333,11 +382,31 @@ pub fn record_impact(
     record(l, opts, book, Event::Impact(event))
 }
 
+/// `log show --json` (docs/json.md).
 #[derive(Serialize)]
 struct ShowJson<'a> {
+    schema: &'static str,
     vehicle: &'a str,
     log: String,
     records: &'a [Record],
+}
+
+/// `log health --json` (docs/json.md).
+#[derive(Serialize)]
+struct HealthJson<'a> {
+    schema: &'static str,
+    vehicle: &'a str,
+    log: String,
+    /// False when there is no log file: every member then reads ok
+    /// because nothing is recorded, not because the cage is sound.
+    log_found: bool,
+    records: usize,
+    /// What a reader must know about the log (no log, records skipped).
+    log_warning: Option<String>,
+    worst: crate::health::Status,
+    members: &'a [crate::health::MemberHealth],
+    /// Log entries naming members this cage does not have.
+    warnings: &'a [String],
 }
 
 fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<()> {
@@ -367,7 +436,7 @@ fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<
 /// Run `cagehand log`.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = super::load_profile(args.profile.as_deref())?;
-    let opts = &args.opts;
+    let opts = &args.data.with(args.action.who());
     let mut out = std::io::stdout().lock();
     match &args.action {
         Action::Show { json } => {
@@ -377,6 +446,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             }
             if *json {
                 let j = ShowJson {
+                    schema: "cagehand.log/1",
                     vehicle: &l.profile.vehicle.id,
                     log: book.path().display().to_string(),
                     records: book.records(),
@@ -411,7 +481,18 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 eprintln!("cagehand: warning: {w}");
             }
             if *json {
-                writeln!(out, "{}", serde_json::to_string_pretty(&h.members)?)?;
+                let j = HealthJson {
+                    schema: "cagehand.health/1",
+                    vehicle: &l.profile.vehicle.id,
+                    log: book.path().display().to_string(),
+                    log_found: !report.new_file,
+                    records: book.records().len(),
+                    log_warning: note.clone(),
+                    worst: h.worst(),
+                    members: &h.members,
+                    warnings: &h.warnings,
+                };
+                writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
             } else {
                 if report.new_file {
                     writeln!(
@@ -447,7 +528,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 writeln!(out, "Caution: {}", export::CAUTION)?;
             }
         }
-        Action::Finding { member, kind, note } => {
+        Action::Finding {
+            member, kind, note, ..
+        } => {
             let member = member_id(&l, member)?;
             let kind = finding_kind(kind)?;
             let mut book = opts.open(&l, Access::Write)?;
@@ -460,7 +543,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
             write_changes(&mut out, &ch)?;
         }
-        Action::Replace { member, part, note } => {
+        Action::Replace {
+            member, part, note, ..
+        } => {
             let member = member_id(&l, member)?;
             let mut book = opts.open(&l, Access::Write)?;
             let ev = Event::Replacement(ReplacementEvent {
@@ -472,7 +557,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
             write_changes(&mut out, &ch)?;
         }
-        Action::Note { text, repeat } => {
+        Action::Note { text, repeat, .. } => {
             if text.trim().is_empty() {
                 return Err(bad_input("the note is empty"));
             }

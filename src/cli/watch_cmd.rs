@@ -86,6 +86,25 @@ struct DetectionJson<'a> {
     detection: DetectionLine<'a>,
 }
 
+/// The schema every headless line carries (docs/json.md).
+const WATCH_SCHEMA: &str = "cagehand.watch/1";
+
+/// One headless line: the schema, then the line's own fields.
+#[derive(Debug, Serialize)]
+struct Line<'a, T: Serialize> {
+    schema: &'static str,
+    #[serde(flatten)]
+    body: &'a T,
+}
+
+/// A headless line as JSON text.
+fn line(body: &impl Serialize) -> serde_json::Result<String> {
+    serde_json::to_string(&Line {
+        schema: WATCH_SCHEMA,
+        body,
+    })
+}
+
 /// Write a detection to the vehicle's log at once (the log is opened for
 /// this one write, so other writers are not held off while watching).
 /// Says on stderr where it went, or why it could not be written.
@@ -156,7 +175,7 @@ fn write_detection(
             log,
         },
     };
-    Ok(writeln!(out, "{}", serde_json::to_string(&line)?).is_ok())
+    Ok(writeln!(out, "{}", self::line(&line)?).is_ok())
 }
 
 /// Run the watch.
@@ -200,7 +219,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         let link_moved = step.ended && last_link.as_ref() != Some(&st.link);
         if step.changed || st.t >= next_periodic || link_moved {
             states.insert(st.state);
-            if writeln!(out, "{}", serde_json::to_string(st)?).is_err() {
+            if writeln!(out, "{}", line(st)?).is_err() {
                 return Ok(ExitCode::SUCCESS); // the reader of our output went away
             }
             lines += 1;
@@ -249,7 +268,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             link_time_s: tracker.state(cage).t,
             wall_time_s: (wall0.elapsed().as_secs_f64() * 1000.0).round() / 1000.0,
         };
-        let _ = writeln!(out, "{}", serde_json::to_string(&s)?);
+        let _ = writeln!(out, "{}", line(&s)?);
     }
     Ok(ExitCode::SUCCESS)
 }

@@ -371,3 +371,35 @@ fn a_crash_beyond_the_model_is_still_recorded_and_condemns_the_cage() {
     let s3 = member(&members, "S3");
     assert_eq!(s3["status"], "ok");
 }
+
+#[test]
+fn operator_is_offered_only_where_a_record_is_written() {
+    // Issue 14: an option only where it means something. Reading actions
+    // refuse --operator as bad usage (exit 2); writing ones offer it.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    for read in [
+        &["log", "show"][..],
+        &["log", "health"],
+        &["log", "export", "--format", "csv"],
+    ] {
+        let mut args = read.to_vec();
+        args.extend(["--operator", "bo"]);
+        let o = cmd(d, &args);
+        assert_eq!(o.status.code(), Some(2), "{args:?}");
+        let mut help = read[..2].to_vec();
+        help.push("--help");
+        assert!(!ok(&cmd(d, &help)).contains("--operator"), "{help:?}");
+        // --data still works where a log is read.
+        let mut args = read.to_vec();
+        args.extend(["--data", &d.display().to_string()]);
+        ok(&cmd(d, &args));
+    }
+    for write in ["finding", "replace", "note"] {
+        assert!(
+            ok(&cmd(d, &["log", write, "--help"])).contains("--operator"),
+            "{write}"
+        );
+    }
+    assert!(ok(&cmd(d, &["impact", "--help"])).contains("--operator"));
+}

@@ -300,7 +300,7 @@ fn disk_full_in_the_middle_of_a_record_leaves_no_partial_record() {
     }
     let dir = tempfile::tempdir().unwrap();
     let script = format!(
-        "trap '' XFSZ; ulimit -f 2; exec '{BIN}' log --data '{}' --operator t note filler --repeat 100",
+        "trap '' XFSZ; ulimit -f 2; exec '{BIN}' log --data '{}' note filler --operator t --repeat 100",
         dir.path().display()
     );
     let o = Command::new("/bin/bash")

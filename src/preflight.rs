@@ -34,6 +34,8 @@ use std::collections::{BTreeMap, BTreeSet};
 pub const CAGE_LOG_TEXT: &str = "Cage log clear: no pending detection, no member DUE or REPLACE NOW, no member at INSPECT without an ok finding since the event that put it there";
 /// The text of the signing item.
 pub const SIGNING_TEXT: &str = "Telemetry signed (MAVLink 2 signing key in use)";
+/// The text of the remaining-margin item, before the minimum speed.
+pub const MARGIN_TEXT: &str = "The cage takes at least";
 /// The text of the informational last-pre-flight item.
 pub const LAST_PREFLIGHT_TEXT: &str = "Last pre-flight sign-off (for information)";
 
@@ -51,6 +53,9 @@ pub enum Check {
     Battery,
     /// Signed telemetry, when asked for.
     Signing,
+    /// The cage can still take the profile's `min_margin_speed_m_per_s` on
+    /// every face (when the profile sets it).
+    Margin,
     /// When and by whom the previous pre-flight was signed (never blocks).
     LastPreflight,
 }
@@ -168,6 +173,20 @@ pub struct Inputs<'a> {
     pub log: LogInput<'a>,
     /// Signed telemetry is asked for: Some(whether a key is in use).
     pub signing: Option<bool>,
+    /// The remaining margin of the cage, when it has been computed (the
+    /// margin item waits without it).
+    pub margin: Option<&'a MarginSummary>,
+}
+
+/// What the margin item needs of the remaining-margin computation.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MarginSummary {
+    /// The face that takes the lowest impact speed.
+    pub weakest_face: String,
+    /// That speed, m/s (0 when grounded).
+    pub speed_m_per_s: f64,
+    /// Members counted as failed, which ground the cage (empty: none).
+    pub grounded_by: Vec<String>,
 }
 
 /// The checklist evaluated.
@@ -239,6 +258,12 @@ pub fn evaluate(inp: &Inputs) -> Evaluation {
     if inp.signing.is_some() && !has(&list, Check::Signing) {
         list.push((SIGNING_TEXT.to_string(), Some(Check::Signing)));
     }
+    if let Some(min) = inp.profile.preflight.min_margin_speed_m_per_s {
+        list.push((
+            format!("{MARGIN_TEXT} {min:.1} m/s on every face"),
+            Some(Check::Margin),
+        ));
+    }
     list.push((LAST_PREFLIGHT_TEXT.to_string(), Some(Check::LastPreflight)));
     let items = list
         .into_iter()
@@ -284,6 +309,7 @@ fn evaluate_check(c: Check, inp: &Inputs) -> (Outcome, String, bool) {
         Check::LinkFresh => link_fresh(inp),
         Check::Battery => battery(inp),
         Check::Signing => signing(inp),
+        Check::Margin => margin(inp),
         Check::LastPreflight => last_preflight(inp),
     }
 }
@@ -468,6 +494,42 @@ fn signing(inp: &Inputs) -> (Outcome, String, bool) {
                 true,
             ),
         },
+    }
+}
+
+fn margin(inp: &Inputs) -> (Outcome, String, bool) {
+    let min = inp
+        .profile
+        .preflight
+        .min_margin_speed_m_per_s
+        .unwrap_or(0.0);
+    match inp.margin {
+        None => (
+            Outcome::Waiting,
+            "the remaining margin has not been computed".to_string(),
+            true,
+        ),
+        Some(m) if !m.grounded_by.is_empty() => (
+            Outcome::Fail,
+            format!("grounded: {} count as failed", m.grounded_by.join(" ")),
+            true,
+        ),
+        Some(m) if m.speed_m_per_s < min => (
+            Outcome::Fail,
+            format!(
+                "{} takes only {:.1} m/s (minimum {min:.1} m/s)",
+                m.weakest_face, m.speed_m_per_s
+            ),
+            true,
+        ),
+        Some(m) => (
+            Outcome::Pass,
+            format!(
+                "weakest face {} takes {:.1} m/s (minimum {min:.1} m/s)",
+                m.weakest_face, m.speed_m_per_s
+            ),
+            true,
+        ),
     }
 }
 

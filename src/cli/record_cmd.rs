@@ -2,9 +2,9 @@
 //! our recording format (src/link/record.rs), for `--link file:PATH`.
 
 use super::link_args::LinkArgs;
-use crate::link::record::{Header, RecordWriter};
-use crate::link::transport::{LinkEvent, LinkMsg, Mode};
+use crate::transport::{LinkEvent, LinkMsg, Mode};
 use anyhow::Context;
+use cagehand::link::record::{Header, RecordWriter};
 use serde::Serialize;
 use std::io::Write;
 use std::path::PathBuf;
@@ -46,10 +46,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     super::check_duration_s(args.duration_s)?;
     let spec = args.link.spec()?;
     let cage = match spec {
-        crate::link::spec::LinkSpec::Sim { .. } => Some(args.profile.load()?.cage),
+        cagehand::link::spec::LinkSpec::Sim { .. } => Some(args.profile.load()?.cage),
         _ => None,
     };
-    let link = args.link.open(cage, Mode::Raw)?;
+    // A recording keeps the bytes as they came: nothing is checked, so no
+    // replay floor (and no data folder) is needed.
+    let link = args.link.open(cage, Mode::Raw, || {
+        Err(super::bad_input("recording keeps no replay floor"))
+    })?;
     let file = std::fs::OpenOptions::new()
         .write(true)
         .create_new(true)

@@ -6,18 +6,23 @@
 use super::Loaded;
 use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, lock_wait};
-use crate::feed::Feed;
-use crate::health::assess;
-use crate::link::transport::{Link, Mode};
-use crate::logbook::store::{Access, Logbook};
-use crate::logbook::{Record, detection};
-use crate::preflight;
-use crate::sim::SimCommand;
-use crate::tracker::{Tracker, WatchState, WatchStateKind};
-use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample};
+use crate::transport::{Link, Mode};
+use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample, count};
 use crate::tui::theme::{ColourDepth, Theme};
+use cagehand::feed::Feed;
+use cagehand::health::assess;
+use cagehand::logbook::store::{Access, Logbook};
+use cagehand::logbook::{Record, detection};
+use cagehand::preflight;
+use cagehand::sim::SimCommand;
+use cagehand::tracker::{Tracker, WatchState, WatchStateKind};
 use std::process::ExitCode;
 use std::sync::mpsc::{self, Sender};
+use std::time::{Duration, Instant};
+
+/// How often the feed thread reads the cage log again, to pick up records
+/// other processes wrote.
+const LOG_REREAD: Duration = Duration::from_secs(1);
 
 /// Open the screens on a loaded profile, fed by the link `link_args` names.
 pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Result<ExitCode> {
@@ -28,7 +33,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
         ));
     }
     let (health, health_source) = read_health(&loaded, log);
-    let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode)?;
+    let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode, || log.data_dir())?;
     let theme = Theme::new(ColourDepth::for_choice(super::color_choice()));
     let model = Model::new(
         loaded.profile.clone(),
@@ -40,7 +45,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
     let (tx, rx) = mpsc::channel::<Msg>();
     let commander = link.commander();
     spawn_feed(link, loaded, log.clone(), tx.clone());
-    crate::tui::run(model, tx, rx, |effect| match effect {
+    let signal = crate::tui::run(model, tx, rx, |effect| match effect {
         Effect::SimRoll(face) => {
             // Only the in-process simulator takes commands; on a real link the
             // operator flies the roll and the screen verifies it.
@@ -49,12 +54,16 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
             }
         }
     })?;
-    Ok(ExitCode::SUCCESS)
+    // Ended by a signal: the usual 128 + its number, after the restore.
+    Ok(match signal {
+        Some(n) => ExitCode::from(u8::try_from(128 + n).unwrap_or(u8::MAX)),
+        None => ExitCode::SUCCESS,
+    })
 }
 
 /// Member health from the vehicle's cage log, or why there is none. A log
 /// that cannot be read does not stop the screens; they say why.
-fn read_health(l: &Loaded, log: &LogOpts) -> (Option<crate::health::HealthReport>, String) {
+fn read_health(l: &Loaded, log: &LogOpts) -> (Option<cagehand::health::HealthReport>, String) {
     let dir = match log.data_dir() {
         Ok(d) => d,
         Err(e) => return (None, format!("{e:#}")),
@@ -65,17 +74,17 @@ fn read_health(l: &Loaded, log: &LogOpts) -> (Option<crate::health::HealthReport
             format!("no records yet in {}", book.path().display()),
         ),
         Ok((book, report)) => {
-            let problems = report.messages(book.path()).len();
-            let note = if problems > 0 {
-                format!(" ({problems} problems: run `cagehand log show`)")
-            } else {
-                String::new()
+            // Integrity problems (skipped, changed or removed records) say
+            // what they affect; the screens show this line.
+            let note = match report.integrity.headline() {
+                Some(h) => format!(" ({h}: run `cagehand log verify`)"),
+                None => String::new(),
             };
             (
                 Some(assess(book.records(), &l.cage, &l.profile.inspection)),
                 format!(
-                    "{} records in {}{note}",
-                    book.records().len(),
+                    "{} in {}{note}",
+                    count(book.records().len(), "record"),
                     book.path().display()
                 ),
             )
@@ -88,16 +97,18 @@ fn live_view(
     st: &WatchState,
     tracker: &Tracker,
     preflight: Option<preflight::Evaluation>,
+    pending: Vec<cagehand::logbook::Pending>,
 ) -> LiveView {
     let errors = st.link.crc_errors + st.link.malformed + st.link.rejected;
     LiveView {
         state: match st.state {
             WatchStateKind::Resting => LiveState::Resting,
+            WatchStateKind::Propped => LiveState::Propped,
             WatchStateKind::Moving => LiveState::Moving,
             WatchStateKind::Airborne => LiveState::Airborne,
-            WatchStateKind::Stale if st.link.age_ms.is_none() => LiveState::Waiting,
             WatchStateKind::Stale => LiveState::Stale,
         },
+        reason: st.reason.clone(),
         face: st.face_index,
         error_deg: st.error_deg,
         rpy_deg: st.rpy_deg,
@@ -118,6 +129,7 @@ fn live_view(
                 status,
             }),
         preflight,
+        pending,
     }
 }
 
@@ -127,7 +139,12 @@ struct LogView {
     records: Vec<Record>,
     path: String,
     new_file: bool,
+    /// The log's integrity problems in one line (damage may be
+    /// understated): fails the pre-flight as `log health` warns of it.
+    trouble: Option<String>,
     error: Option<String>,
+    /// Detections not yet confirmed or dismissed.
+    pending: Vec<cagehand::logbook::Pending>,
 }
 
 impl LogView {
@@ -144,15 +161,29 @@ impl LogView {
                 records: book.records().to_vec(),
                 path: book.path().display().to_string(),
                 new_file: report.new_file,
+                trouble: report.integrity.headline(),
                 error: None,
+                pending: detection::pending(book.records()),
             },
             Err(e) => LogView {
                 records: Vec::new(),
                 path: String::new(),
                 new_file: false,
+                trouble: None,
                 error: Some(e),
+                pending: Vec::new(),
             },
         }
+    }
+
+    /// What tells one reading of the log from another: the record count and
+    /// the newest sequence number (the log is append-only).
+    fn mark(&self) -> (usize, Option<u64>, bool) {
+        (
+            self.records.len(),
+            self.records.last().map(|r| r.seq),
+            self.error.is_some(),
+        )
     }
 
     fn evaluate(&self, l: &Loaded, st: &WatchState) -> preflight::Evaluation {
@@ -162,7 +193,7 @@ impl LogView {
                 records: &self.records,
                 path: &self.path,
                 new_file: self.new_file,
-                trouble: None,
+                trouble: self.trouble.as_deref(),
             },
         };
         preflight::evaluate(&preflight::Inputs {
@@ -171,13 +202,14 @@ impl LogView {
             live: Some(st),
             log,
             signing: None,
+            margin: None,
         })
     }
 }
 
 /// Write a detection to the log at once; the notice says where it went
 /// (vehicle and file) or why it could not be written.
-fn write_detection(l: &Loaded, log: &LogOpts, d: &crate::logbook::DetectionEvent) -> String {
+fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEvent) -> String {
     let vehicle = &l.profile.vehicle.id;
     let args = super::log_cmd::same_log_args(l, log);
     let written = log.operator().and_then(|operator| {
@@ -205,15 +237,36 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log);
+        let mut last_read = Instant::now();
         while let Ok(msg) = link.rx.recv() {
             let step = feed.push(super::live::feed_input(msg));
             let mut extra = step.note.clone().map(Msg::Notice);
+            let mut reread = last_read.elapsed() >= LOG_REREAD;
             if let Some(d) = &step.detection {
                 extra = Some(Msg::Notice(write_detection(&l, &log, d)));
-                book = LogView::read(&l, &log);
+                reread = true;
+            }
+            if reread {
+                // Records written by this program or by another one (a
+                // `cagehand log confirm` in a second terminal) show within
+                // about a second; the screens keep their own state.
+                let fresh = LogView::read(&l, &log);
+                last_read = Instant::now();
+                if fresh.mark() != book.mark() {
+                    let (health, source) = read_health(&l, &log);
+                    if tx.send(Msg::Health(health.map(Box::new), source)).is_err() {
+                        return;
+                    }
+                }
+                book = fresh;
             }
             let eval = book.evaluate(&l, &step.state);
-            let live = Msg::Live(Box::new(live_view(&step.state, feed.tracker(), Some(eval))));
+            let live = Msg::Live(Box::new(live_view(
+                &step.state,
+                feed.tracker(),
+                Some(eval),
+                book.pending.clone(),
+            )));
             if tx.send(live).is_err() {
                 return;
             }

@@ -1,17 +1,17 @@
 //! `cagehand watch`: live state of the vehicle. `--headless` prints one
-//! JSON object per line (a contract: scripts and checks parse it) on every
-//! change of state or face and once a second of link time; for every
-//! detected impact a line with a `detection` object, after writing the
-//! detection to the vehicle's cage log; `--summary` adds one object when
-//! the input ends.
+//! JSON object per line (a contract: scripts and checks parse it; see
+//! docs/json.md) on every change of state or face and once a second of
+//! link time; for every detected impact a line with a `detection` object,
+//! after writing the detection to the vehicle's cage log; `--summary` adds
+//! one object when the input ends.
 
 use super::link_args::LinkArgs;
 use super::log_cmd::LogOpts;
 use super::{Loaded, ProfileArg};
-use crate::feed::Feed;
-use crate::link::transport::Mode;
-use crate::logbook::{Access, DetectionEvent, detection};
-use crate::tracker::WatchStateKind;
+use crate::transport::Mode;
+use cagehand::feed::Feed;
+use cagehand::logbook::{Access, DetectionEvent, detection};
+use cagehand::tracker::WatchStateKind;
 use serde::Serialize;
 use std::collections::BTreeSet;
 use std::io::Write;
@@ -50,6 +50,7 @@ struct Errors {
 
 #[derive(Debug, Serialize)]
 struct Summary {
+    schema: &'static str,
     summary: bool,
     source: String,
     frames_decoded: u64,
@@ -81,28 +82,12 @@ struct DetectionLine<'a> {
     log: Option<String>,
 }
 
+/// A detection line: its own schema beside the state lines'
+/// (`cagehand.watch/1`) and the summary's (docs/json.md).
 #[derive(Debug, Serialize)]
 struct DetectionJson<'a> {
-    detection: DetectionLine<'a>,
-}
-
-/// The schema every headless line carries (docs/json.md).
-const WATCH_SCHEMA: &str = "cagehand.watch/1";
-
-/// One headless line: the schema, then the line's own fields.
-#[derive(Debug, Serialize)]
-struct Line<'a, T: Serialize> {
     schema: &'static str,
-    #[serde(flatten)]
-    body: &'a T,
-}
-
-/// A headless line as JSON text.
-fn line(body: &impl Serialize) -> serde_json::Result<String> {
-    serde_json::to_string(&Line {
-        schema: WATCH_SCHEMA,
-        body,
-    })
+    detection: DetectionLine<'a>,
 }
 
 /// Write a detection to the vehicle's log at once (the log is opened for
@@ -128,13 +113,10 @@ fn log_detection(
             } else {
                 format!("already in the log as #{} (a replay)", logged.seq)
             };
+            let args = super::log_cmd::same_log_args(l, opts);
             eprintln!(
-                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}` or `cagehand log dismiss {} --reason TEXT`{}",
-                d.peak_g,
-                d.face,
-                logged.seq,
-                logged.seq,
-                super::log_cmd::same_log_args(l, opts)
+                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}{args}` or `cagehand log dismiss {} --reason TEXT{args}`",
+                d.peak_g, d.face, logged.seq, logged.seq,
             );
             (Some(logged), Some(path))
         }
@@ -161,6 +143,7 @@ fn write_detection(
 ) -> anyhow::Result<bool> {
     let (logged, log) = log_detection(loaded, opts, d);
     let line = DetectionJson {
+        schema: "cagehand.watch-detection/1",
         detection: DetectionLine {
             schema: "cagehand.detection/1",
             link_time_s: d.link_time_s,
@@ -175,7 +158,7 @@ fn write_detection(
             log,
         },
     };
-    Ok(writeln!(out, "{}", self::line(&line)?).is_ok())
+    Ok(writeln!(out, "{}", serde_json::to_string(&line)?).is_ok())
 }
 
 /// Run the watch.
@@ -192,7 +175,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let loaded = args.profile.load()?;
     let cage = &loaded.cage;
     let wall0 = Instant::now();
-    let link = args.link.open(Some(cage.clone()), Mode::Decode)?;
+    let link = args
+        .link
+        .open(Some(cage.clone()), Mode::Decode, || args.log.data_dir())?;
     let mut feed = Feed::new(cage.clone(), &loaded.profile, &link.source);
     let mut out = std::io::stdout().lock();
     let mut last_link = None;
@@ -219,7 +204,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         let link_moved = step.ended && last_link.as_ref() != Some(&st.link);
         if step.changed || st.t >= next_periodic || link_moved {
             states.insert(st.state);
-            if writeln!(out, "{}", line(st)?).is_err() {
+            if writeln!(out, "{}", serde_json::to_string(st)?).is_err() {
                 return Ok(ExitCode::SUCCESS); // the reader of our output went away
             }
             lines += 1;
@@ -248,6 +233,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         let tracker = feed.tracker();
         let c = tracker.counters();
         let s = Summary {
+            schema: "cagehand.watch-summary/1",
             summary: true,
             source: link.source.clone(),
             frames_decoded: c.frames,
@@ -268,7 +254,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             link_time_s: tracker.state(cage).t,
             wall_time_s: (wall0.elapsed().as_secs_f64() * 1000.0).round() / 1000.0,
         };
-        let _ = writeln!(out, "{}", line(&s)?);
+        let _ = writeln!(out, "{}", serde_json::to_string(&s)?);
     }
     Ok(ExitCode::SUCCESS)
 }

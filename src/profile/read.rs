@@ -3,7 +3,7 @@
 //!
 //! The file is parsed by `toml` into a tree that keeps the span of every
 //! key and value ([`toml::de::DeTable`]); the sections then read their keys
-//! from it through [`Table`]. Every message is ours (what was expected, what
+//! from it through `Table`. Every message is ours (what was expected, what
 //! was found), located at the span the parser gave, so no text is scanned
 //! and no library message is interpreted.
 

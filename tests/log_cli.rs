@@ -388,6 +388,7 @@ fn operator_is_offered_only_where_a_record_is_written() {
     // refuse --operator as bad usage (exit 2); writing ones offer it.
     let dir = tempfile::tempdir().unwrap();
     let d = dir.path();
+    let data = d.display().to_string();
     for read in [
         &["log", "show"][..],
         &["log", "health"],
@@ -402,7 +403,7 @@ fn operator_is_offered_only_where_a_record_is_written() {
         assert!(!ok(&cmd(d, &help)).contains("--operator"), "{help:?}");
         // --data still works where a log is read.
         let mut args = read.to_vec();
-        args.extend(["--data", &d.display().to_string()]);
+        args.extend(["--data", &data]);
         ok(&cmd(d, &args));
     }
     for write in ["finding", "replace", "note"] {

@@ -568,6 +568,9 @@ struct HealthJson<'a> {
     records: usize,
     /// What a reader must know about the log (no log, records skipped).
     log_warning: Option<String>,
+    /// Detected impacts neither confirmed nor dismissed: the health below
+    /// does not count them yet.
+    pending_warning: Option<String>,
     worst: cagehand::health::Status,
     members: &'a [cagehand::health::MemberHealth],
     /// Log entries naming members this cage does not have.
@@ -658,6 +661,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     log_found: !report.new_file,
                     records: book.records().len(),
                     log_warning: note.clone(),
+                    pending_warning: pending.clone(),
                     worst: h.worst(),
                     members: &h.members,
                     warnings: &h.warnings,

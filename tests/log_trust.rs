@@ -69,7 +69,8 @@ fn four_records(d: &Path) {
 fn status(d: &Path, id: &str) -> String {
     let h: serde_json::Value =
         serde_json::from_str(&ok(&cmd(d, &["log", "health", "--json"]))).unwrap();
-    h.as_array()
+    h["members"]
+        .as_array()
         .unwrap()
         .iter()
         .find(|m| m["id"] == id)
@@ -278,7 +279,7 @@ fn a_duplicated_line_is_counted_once_and_reported() {
     write_lines(d, &l);
     let h: serde_json::Value =
         serde_json::from_str(&ok(&cmd(d, &["log", "health", "--json"]))).unwrap();
-    for m in h.as_array().unwrap() {
+    for m in h["members"].as_array().unwrap() {
         assert_eq!(m["impacts"], 1, "{m}");
     }
     let out = ok(&cmd(d, &["log", "health"]));

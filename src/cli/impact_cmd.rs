@@ -180,10 +180,17 @@ struct MemberJson<'a> {
     utilisation: f64,
 }
 
+/// The schema of `impact --json` (and of `log confirm --json`, which adds
+/// to it): docs/json.md.
+pub const IMPACT_SCHEMA: &str = "cagehand.impact/1";
+
 #[derive(Debug, Serialize)]
 struct Report<'a> {
+    schema: &'static str,
     vehicle: &'a str,
     strike: &'a str,
+    /// False: the cage found an equilibrium and the figures below hold.
+    beyond_model: bool,
     force_n: f64,
     method: ImpactMethod,
     input: &'a ImpactInput,
@@ -196,11 +203,9 @@ struct Report<'a> {
     recorded: bool,
     /// Sequence number of the log record, when recorded.
     record_seq: Option<u64>,
-    /// The detection this impact confirms (`log confirm`).
-    #[serde(skip_serializing_if = "Option::is_none")]
+    /// The detection this impact confirms (`log confirm`), else null.
     detection: Option<u64>,
-    /// The cage log written to, when recorded.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    /// The cage log written to; null for a dry run.
     log: Option<String>,
     /// Members whose status the impact changed, when recorded.
     status_changes: Vec<StatusChange>,
@@ -253,6 +258,7 @@ fn record_beyond_model(
     let mut out = std::io::stdout().lock();
     if args.json {
         let j = serde_json::json!({
+            "schema": IMPACT_SCHEMA,
             "vehicle": l.profile.vehicle.id,
             "strike": resolved.strike_id,
             "beyond_model": true,
@@ -355,8 +361,10 @@ pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Re
     };
     let cage = &l.cage;
     let report = Report {
+        schema: IMPACT_SCHEMA,
         vehicle: &l.profile.vehicle.id,
         strike: &resolved.strike_id,
+        beyond_model: false,
         force_n: a.force_n,
         method: a.method,
         input: &resolved.input,

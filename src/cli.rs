@@ -14,6 +14,7 @@ mod cage_cmd;
 pub mod impact_cmd;
 pub mod link_args;
 pub mod log_cmd;
+pub mod margin_cmd;
 mod plan_cmd;
 mod profile_cmd;
 mod record_cmd;
@@ -41,7 +42,8 @@ pub struct Cli {
 
 #[derive(Debug, Subcommand)]
 enum Command {
-    /// Cage geometry, faces, members and statics report.
+    /// Cage geometry, faces, members and statics report; `cage margin`:
+    /// the remaining margin per face.
     Cage(cage_cmd::Args),
     /// Profile tools.
     Profile(profile_cmd::Args),

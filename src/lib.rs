@@ -15,6 +15,7 @@ pub mod impact;
 pub mod impact_detect;
 pub mod link;
 pub mod logbook;
+pub mod margin;
 pub mod net;
 pub mod profile;
 pub mod rest;

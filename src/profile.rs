@@ -278,6 +278,33 @@ pub struct Inspection {
     pub string_count_limit: u32,
     /// Utilisation that counts towards the string count rule.
     pub string_count_utilisation: f64,
+    /// Capacity factors for members with an open finding (remaining margin).
+    pub derate: Derate,
+}
+
+/// Capacity factors, each in (0, 1], for a member with an open finding of
+/// that kind (`[inspection.derate]`): the remaining margin counts the member
+/// at its capacity times the factor. The defaults are conservative planning
+/// values (from memory, no published source): a fray halves a line's
+/// strength; slack or a loose end costs a fifth.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct Derate {
+    /// Frayed fibres.
+    pub fray: f64,
+    /// A string gone slack.
+    pub slack: f64,
+    /// A termination coming undone.
+    pub loose_end: f64,
+}
+
+impl Default for Derate {
+    fn default() -> Self {
+        Derate {
+            fray: 0.5,
+            slack: 0.8,
+            loose_end: 0.8,
+        }
+    }
 }
 
 /// One checklist item.

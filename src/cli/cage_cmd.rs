@@ -18,6 +18,15 @@ pub struct Args {
     /// Print JSON instead of the readable report.
     #[arg(long)]
     json: bool,
+    #[command(subcommand)]
+    action: Option<Action>,
+}
+
+#[derive(Debug, clap::Subcommand)]
+enum Action {
+    /// Remaining margin: per face, the impact speed at which the first
+    /// member reaches its capacity, with the cage as the log says it is.
+    Margin(super::margin_cmd::Args),
 }
 
 #[derive(Debug, Serialize)]
@@ -171,6 +180,9 @@ fn report<'a>(
 
 /// Run the cage command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
+    if let Some(Action::Margin(m)) = &args.action {
+        return super::margin_cmd::run(m, &args.profile);
+    }
     let l = args.profile.load()?;
     let ss = self_stress(
         &Structure::from_cage(&l.cage, &l.profile),

@@ -457,7 +457,19 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         log_path: &log_path,
                         generated: &generated,
                     };
-                    let md = export::markdown(&header, book.records(), &h);
+                    let margin = super::margin_cmd::compute(
+                        &l,
+                        book.records(),
+                        None,
+                        crate::margin::Strikes::Faces,
+                    )
+                    .map_err(|e| format!("{e:#}"));
+                    let md = export::markdown_with_margin(
+                        &header,
+                        book.records(),
+                        &h,
+                        Some(margin.as_ref().map_err(Clone::clone)),
+                    );
                     match &note {
                         // The warning goes right under the title, where a
                         // reader of the printed report cannot miss it.

@@ -214,6 +214,17 @@ struct RawInspection {
     string_count_limit: S<u32>,
     #[serde(default = "count_util")]
     string_count_utilisation: S<f64>,
+    #[serde(default)]
+    derate: RawDerate,
+}
+
+/// `[inspection.derate]`: capacity factors per finding kind.
+#[derive(Debug, Default, Deserialize)]
+#[serde(deny_unknown_fields)]
+struct RawDerate {
+    fray: Option<S<f64>>,
+    slack: Option<S<f64>>,
+    loose_end: Option<S<f64>>,
 }
 
 impl Default for RawInspection {
@@ -227,6 +238,7 @@ impl Default for RawInspection {
             sn_exponent_string: sn_string(),
             string_count_limit: count_limit(),
             string_count_utilisation: count_util(),
+            derate: RawDerate::default(),
         }
     }
 }
@@ -648,6 +660,29 @@ pub(super) fn validate(raw: RawProfile, v: &Validator) -> Result<Profile, Profil
             0.0,
             10.0,
         )?,
+        derate: {
+            let d = &inspection.derate;
+            let defaults = Derate::default();
+            let factor = |x: &Option<S<f64>>, key: &str, default: f64| match x {
+                Some(x) if *x.get_ref() > 0.0 => v.within(x, key, 0.0, 1.0),
+                Some(x) => Err(v.invalid(
+                    x.span(),
+                    key,
+                    "a capacity factor above 0 and at most 1",
+                    fmt_num(*x.get_ref()),
+                )),
+                None => Ok(default),
+            };
+            Derate {
+                fray: factor(&d.fray, "inspection.derate.fray", defaults.fray)?,
+                slack: factor(&d.slack, "inspection.derate.slack", defaults.slack)?,
+                loose_end: factor(
+                    &d.loose_end,
+                    "inspection.derate.loose_end",
+                    defaults.loose_end,
+                )?,
+            }
+        },
     };
     if *raw_inspect_damage.get_ref() <= 0.0 {
         return Err(v.invalid(

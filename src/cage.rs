@@ -16,6 +16,7 @@
 
 use crate::attitude::{angle_between_deg, rotation_from_rpy_deg};
 use crate::hull::{Hull, HullError};
+pub use crate::profile::icosa6_positions;
 use crate::profile::{CageShape, Profile, TakeoffFaces};
 use nalgebra::{DMatrix, DVector, Rotation3, Vector3};
 use serde::Serialize;
@@ -138,27 +139,6 @@ pub struct Cage {
     pub mass_kg: f64,
     /// Lumped mass at each node (rod mass at its ends plus payload share).
     pub node_mass_kg: Vec<f64>,
-}
-
-/// Node positions of the six-strut icosahedral tensegrity (REFERENCES.md):
-/// (+-s/2, 0, +-L/2), (+-L/2, +-s/2, 0), (0, +-L/2, +-s/2). Rods join the
-/// pairs (2k, 2k+1).
-pub fn icosa6_positions(rod_length_m: f64, spacing_m: f64) -> [[f64; 3]; 12] {
-    let (h, s) = (rod_length_m / 2.0, spacing_m / 2.0);
-    [
-        [s, 0.0, h],
-        [s, 0.0, -h],
-        [-s, 0.0, h],
-        [-s, 0.0, -h],
-        [h, s, 0.0],
-        [-h, s, 0.0],
-        [h, -s, 0.0],
-        [-h, -s, 0.0],
-        [0.0, h, s],
-        [0.0, -h, s],
-        [0.0, h, -s],
-        [0.0, -h, -s],
-    ]
 }
 
 /// Short hull edges of the six-strut cage that carry no member: between the

@@ -3,8 +3,6 @@
 //! Errors become a message on stderr and an exit code: 2 for bad usage or
 //! bad input, 1 for a runtime failure.
 
-use crate::cage::Cage;
-use crate::profile::Profile;
 use anyhow::Context;
 use clap::{Parser, Subcommand};
 use std::path::{Path, PathBuf};
@@ -13,9 +11,11 @@ use std::process::ExitCode;
 mod cage_cmd;
 pub mod impact_cmd;
 pub mod link_args;
+pub mod live;
 pub mod log_cmd;
 pub mod margin_cmd;
 mod plan_cmd;
+mod preflight_cmd;
 mod profile_cmd;
 mod record_cmd;
 mod sim_cmd;
@@ -36,8 +36,31 @@ pub fn bad_input(msg: impl Into<String>) -> anyhow::Error {
 #[derive(Debug, Parser)]
 #[command(name = "cagehand", version, about, long_about = None)]
 pub struct Cli {
+    /// Colour on the screens: auto (honours NO_COLOR and whether the output
+    /// is a terminal), always, or never.
+    #[arg(long, value_enum, default_value_t = ColorChoice::Auto, global = true)]
+    color: ColorChoice,
     #[command(subcommand)]
     command: Option<Command>,
+}
+
+/// When to use colour (`--color`).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum ColorChoice {
+    /// Colour when the output is a terminal and NO_COLOR is not set.
+    Auto,
+    /// Colour even when NO_COLOR is set.
+    Always,
+    /// No colour at all.
+    Never,
+}
+
+/// The `--color` choice of this run, set once in `main`.
+static COLOR_CHOICE: std::sync::OnceLock<ColorChoice> = std::sync::OnceLock::new();
+
+/// The `--color` choice of this run (auto before arguments are parsed).
+pub fn color_choice() -> ColorChoice {
+    COLOR_CHOICE.get().copied().unwrap_or(ColorChoice::Auto)
 }
 
 #[derive(Debug, Subcommand)]
@@ -59,6 +82,20 @@ enum Command {
     Record(record_cmd::Args),
     /// The cage log: records, member health, findings, replacements, reports.
     Log(log_cmd::Args),
+    /// The pre-flight checklist: evaluate it, or sign it off (`preflight sign`).
+    Preflight(preflight_cmd::Args),
+    /// Print a shell completion script (bash, zsh, fish, elvish, powershell).
+    Completions(CompletionsArgs),
+    /// Print the manual page (roff) on stdout: `cagehand manual | man -l -`.
+    Manual,
+}
+
+/// `cagehand completions SHELL`.
+#[derive(Debug, clap::Args)]
+struct CompletionsArgs {
+    /// The shell to complete for.
+    #[arg(value_enum)]
+    shell: clap_complete::Shell,
 }
 
 /// The profile a command works on: a file, or the built-in demo.
@@ -69,13 +106,7 @@ pub struct ProfileArg {
     pub profile: Option<PathBuf>,
 }
 
-/// A validated profile and the cage built from it.
-pub struct Loaded {
-    /// The profile.
-    pub profile: Profile,
-    /// Its cage.
-    pub cage: Cage,
-}
+pub use crate::vehicle::Loaded;
 
 impl ProfileArg {
     /// Load and validate the profile, and build its cage.
@@ -84,31 +115,22 @@ impl ProfileArg {
     }
 }
 
-/// Load a profile file (or the demo) and build its cage; every failure is bad input.
+/// Load a profile file (or the demo) through the core's validated loader;
+/// a refused profile is bad input (exit 2).
 pub fn load_profile(path: Option<&Path>) -> anyhow::Result<Loaded> {
-    let (text, name) = match path {
-        None => (
-            crate::profile::DEMO_PROFILE_TOML.to_string(),
-            crate::profile::DEMO_PROFILE_NAME.to_string(),
-        ),
-        Some(p) => (
-            std::fs::read_to_string(p)
+    let loaded = match path {
+        None => crate::vehicle::demo(),
+        Some(p) => {
+            let bytes = std::fs::read(p)
                 .with_context(|| format!("cannot read profile {}", p.display()))
-                .map_err(|e| bad_input(format!("{e:#}")))?,
-            p.display().to_string(),
-        ),
+                .map_err(|e| bad_input(format!("{e:#}")))?;
+            crate::vehicle::load(&bytes, &p.display().to_string())
+        }
     };
-    let profile = Profile::parse(&text, &name).map_err(|e| bad_input(e.to_string()))?;
-    let cage =
-        Cage::from_profile(&profile).map_err(|e| bad_input(format!("{}: {e}", profile.source)))?;
-    // Take-off face ids can only be checked once the hull has numbered the
-    // faces; point at the key all the same.
-    if let Err(e) = cage.takeoff_faces(&profile.righting.takeoff_faces) {
-        let (line, column) =
-            crate::profile::locate_key(&text, "righting", "takeoff_faces").unwrap_or((1, 1));
-        return Err(bad_input(format!("{name}:{line}:{column}: {e}")));
-    }
-    Ok(Loaded { profile, cage })
+    loaded.map_err(|e| match e {
+        crate::vehicle::LoadError::Profile(_) => bad_input(e.to_string()),
+        crate::vehicle::LoadError::Statics { .. } => anyhow::Error::new(e),
+    })
 }
 
 /// `--duration-s`, when given, must be a positive number of seconds.
@@ -140,6 +162,7 @@ pub fn main() -> ExitCode {
             return ExitCode::from(code);
         }
     };
+    let _ = COLOR_CHOICE.set(cli.color);
     match run(cli) {
         Ok(code) => code,
         Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
@@ -163,6 +186,7 @@ fn is_broken_pipe(e: &anyhow::Error) -> bool {
 }
 
 fn run(cli: Cli) -> anyhow::Result<ExitCode> {
+    log_cmd::lock_wait_from_env()?;
     match cli.command {
         None => tui_cmd::run(
             load_profile(None)?,
@@ -177,5 +201,19 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Watch(a)) => watch_cmd::run(&a),
         Some(Command::Sim(a)) => sim_cmd::run(&a),
         Some(Command::Record(a)) => record_cmd::run(&a),
+        Some(Command::Preflight(a)) => preflight_cmd::run(&a),
+        Some(Command::Completions(a)) => {
+            use clap::CommandFactory;
+            let mut cmd = Cli::command();
+            let mut out = std::io::stdout().lock();
+            clap_complete::generate(a.shell, &mut cmd, "cagehand", &mut out);
+            Ok(ExitCode::SUCCESS)
+        }
+        Some(Command::Manual) => {
+            use clap::CommandFactory;
+            let mut out = std::io::stdout().lock();
+            clap_mangen::Man::new(Cli::command()).render(&mut out)?;
+            Ok(ExitCode::SUCCESS)
+        }
     }
 }

@@ -19,8 +19,11 @@
 //!   `string_count_utilisation` make it DUE.
 //! - **Findings**: a cut or crack makes it REPLACE NOW, a fray DUE (they do not heal); slack
 //!   or a loose end make it INSPECT until a later `ok` finding on the same
-//!   member (both can be put right in the field). `ok` clears nothing that
-//!   was computed from impacts, nor a cut, crack or fray.
+//!   member (both can be put right in the field). An `ok` finding after the
+//!   latest impact that added damage is the inspection that damage at the
+//!   INSPECT level asks for: the member returns to OK with the reason
+//!   "inspected" (a later damaging impact asks for a new one). `ok` clears
+//!   nothing at DUE or above, nor a cut, crack or fray.
 //! - **Replacement** resets the member: damage, counts, maximum and
 //!   findings before it no longer count.
 
@@ -160,6 +163,8 @@ struct Acc {
     serious: Vec<String>,
     minor: Vec<String>,
     last_ok: Option<String>,
+    /// An `ok` finding recorded after the latest impact that added damage.
+    inspected_since_damage: Option<String>,
     replaced: Option<String>,
     /// Findings still in force (fray until replaced; slack and loose end
     /// until a later `ok`), for the capacity derating of the margin.
@@ -269,6 +274,8 @@ fn accumulate(records: &[Record], cage: &Cage, rules: &Inspection) -> (Vec<Acc>,
                         // least one cycle (u >= 1 uses up a whole life).
                         a.damage += u.powf(k).min(1.0);
                         a.damaging += 1;
+                        // New damage: an earlier inspection no longer covers it.
+                        a.inspected_since_damage = None;
                     }
                     if cage.members[i].kind == MemberKind::String
                         && u >= rules.string_count_utilisation
@@ -306,6 +313,7 @@ fn accumulate(records: &[Record], cage: &Cage, rules: &Inspection) -> (Vec<Acc>,
                     FindingKind::Ok => {
                         a.minor.clear();
                         a.last_ok = Some(format!("inspected ok ({when})"));
+                        a.inspected_since_damage = Some(format!("#{} by {}", r.seq, r.operator));
                     }
                 }
             }
@@ -323,7 +331,9 @@ fn accumulate(records: &[Record], cage: &Cage, rules: &Inspection) -> (Vec<Acc>,
                     ..Acc::default()
                 };
             }
-            Event::Preflight(_) | Event::Note(_) => {}
+            // A detection is not yet a load: it counts once confirmed (an
+            // impact record), and blocks the pre-flight until then.
+            Event::Preflight(_) | Event::Note(_) | Event::Detection(_) | Event::Dismissal(_) => {}
         }
     }
     (acc, unknown)
@@ -353,11 +363,19 @@ fn judge(id: &str, kind: MemberKind, a: Acc, rules: &Inspection) -> MemberHealth
             rules.due_damage
         ));
     } else if d >= rules.inspect_damage {
-        status = status.max(Status::Inspect);
-        reasons.push(format!(
-            "{damage_words}: reached the inspect level {:.2} (due at {:.2})",
-            rules.inspect_damage, rules.due_damage
-        ));
+        match &a.inspected_since_damage {
+            Some(by) => reasons.push(format!(
+                "inspected: {damage_words} reached the inspect level {:.2} (due at {:.2}), and an ok finding ({by}) was recorded after the impact that raised it",
+                rules.inspect_damage, rules.due_damage
+            )),
+            None => {
+                status = status.max(Status::Inspect);
+                reasons.push(format!(
+                    "{damage_words}: reached the inspect level {:.2} (due at {:.2}); record an `ok` finding once inspected",
+                    rules.inspect_damage, rules.due_damage
+                ));
+            }
+        }
     }
     if kind == MemberKind::String && a.counted >= rules.string_count_limit {
         status = status.max(Status::Due);
@@ -378,7 +396,7 @@ fn judge(id: &str, kind: MemberKind, a: Acc, rules: &Inspection) -> MemberHealth
         status = status.max(Status::Inspect);
         reasons.extend(a.minor);
     }
-    if status == Status::Ok {
+    if status == Status::Ok && d < rules.inspect_damage {
         reasons.push(format!(
             "{damage_words}, below the inspect level {:.2}; largest utilisation {:.2}",
             rules.inspect_damage, a.max_u
@@ -425,7 +443,7 @@ mod tests {
             sn_exponent_string: 6.0,
             string_count_limit: 20,
             string_count_utilisation: 0.5,
-            derate: crate::profile::Derate::default(),
+            derate: Default::default(),
         }
     }
 
@@ -449,6 +467,7 @@ mod tests {
             face_displacement_m: 0.004,
             slack_strings: vec![],
             beyond_model: false,
+            detection: None,
             members: loads
                 .iter()
                 .map(|(m, u)| MemberLoadRecord {
@@ -634,6 +653,37 @@ mod tests {
         ev.push(finding("S1", FindingKind::Ok));
         let h = assess(&log(ev), &cage, &rules());
         assert_eq!(get(&h, "S1").status, Status::Due);
+    }
+
+    #[test]
+    fn an_ok_finding_after_the_damaging_impact_is_the_inspection() {
+        // S1 at u = 0.9 once: 0.9^6 = 0.531441 (by hand), between the
+        // inspect level 0.3 and the due level 0.7: INSPECT.
+        let (cage, _) = demo();
+        let h = assess(&log(vec![impact(&[("S1", 0.9)])]), &cage, &rules());
+        assert_eq!(get(&h, "S1").status, Status::Inspect);
+        // An ok finding after it: OK, "inspected".
+        let ev = vec![impact(&[("S1", 0.9)]), finding("S1", FindingKind::Ok)];
+        let h = assess(&log(ev), &cage, &rules());
+        let s1 = get(&h, "S1");
+        assert_eq!(s1.status, Status::Ok);
+        assert!(s1.reasons[0].starts_with("inspected"), "{:?}", s1.reasons);
+        // An ok finding before the damaging impact does not count.
+        let ev = vec![finding("S1", FindingKind::Ok), impact(&[("S1", 0.9)])];
+        let h = assess(&log(ev), &cage, &rules());
+        assert_eq!(get(&h, "S1").status, Status::Inspect);
+        // A further damaging impact after the inspection asks for another.
+        let ev = vec![
+            impact(&[("S1", 0.9)]),
+            finding("S1", FindingKind::Ok),
+            impact(&[("S1", 0.25)]),
+        ];
+        let h = assess(&log(ev), &cage, &rules());
+        assert_eq!(get(&h, "S1").status, Status::Inspect);
+        // An ok finding on another member inspects only that one.
+        let ev = vec![impact(&[("S1", 0.9)]), finding("S2", FindingKind::Ok)];
+        let h = assess(&log(ev), &cage, &rules());
+        assert_eq!(get(&h, "S1").status, Status::Inspect);
     }
 
     #[test]

@@ -2,6 +2,7 @@
 //! the recording format (`record`) are pure and take bytes from the caller;
 //! `transport` sits at the edge (sockets, serial ports, files, threads).
 
+pub mod clock;
 pub mod line;
 pub mod mavlink;
 pub mod record;
@@ -44,7 +45,7 @@ impl Counters {
 }
 
 /// Which decoder reads a link.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, clap::ValueEnum, Serialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Default, Serialize)]
 #[serde(rename_all = "lowercase")]
 pub enum Proto {
     /// MAVLink v1/v2.
@@ -54,6 +55,16 @@ pub enum Proto {
     /// Decide from the data: the first protocol to give a good frame wins.
     #[default]
     Auto,
+}
+
+/// A protocol choice that cannot be honoured.
+#[derive(Debug, Clone, PartialEq, Eq, thiserror::Error)]
+pub enum ProtoError {
+    /// Lines carry no signature: with a key, nothing they say could be trusted.
+    #[error(
+        "the line protocol cannot be used with a signing key: lines carry no signature, so none of them could be trusted; read signed MAVLink 2 (protocol mavlink or auto), or leave out the key"
+    )]
+    LineWithKey,
 }
 
 /// A decoder for one link, whichever protocol it speaks.
@@ -69,8 +80,11 @@ pub struct Decoder {
 const MAX_QUEUED_SAMPLES: usize = 512;
 
 impl Decoder {
-    /// A decoder for `proto` with the MAVLink filters in `cfg`.
-    pub fn new(proto: Proto, cfg: mavlink::MavConfig) -> Decoder {
+    /// A decoder for `proto` with the MAVLink filters in `cfg`. With a
+    /// signing key only signed MAVLink is read: `Auto` never settles on
+    /// lines, and `Line` is refused.
+    pub fn new(proto: Proto, cfg: mavlink::MavConfig) -> Result<Decoder, ProtoError> {
+        let keyed = cfg.signing_key.is_some();
         let mav = || {
             Some((
                 mavlink::MavDecoder::new(cfg.clone()),
@@ -78,16 +92,24 @@ impl Decoder {
             ))
         };
         let (m, l) = match proto {
+            Proto::Line if keyed => return Err(ProtoError::LineWithKey),
+            Proto::Auto if keyed => (mav(), None),
             Proto::Mavlink => (mav(), None),
             Proto::Line => (None, Some(line::LineDecoder::new())),
             Proto::Auto => (mav(), Some(line::LineDecoder::new())),
         };
-        Decoder {
+        Ok(Decoder {
             mav: m,
             line: l,
             out: Default::default(),
             extra: Counters::default(),
-        }
+        })
+    }
+
+    /// The signature checker, when a key is set: live links set its wall
+    /// clock and save its replay floor.
+    pub fn verifier_mut(&mut self) -> Option<&mut mavlink::Verifier> {
+        self.mav.as_mut().and_then(|(m, _)| m.verifier_mut())
     }
 
     /// The protocol in use (auto until the data has decided).
@@ -115,10 +137,15 @@ impl Decoder {
         }
     }
 
-    /// End of input: a last line without a newline still counts.
+    /// End of input: a last line without a newline still counts, and
+    /// MAVLink bytes held for a frame that never completed are searched
+    /// again for the frames behind them.
     pub fn finish(&mut self, arrival_s: f64) {
         if let Some(l) = self.line.as_mut() {
             l.finish(arrival_s);
+        }
+        if let Some((m, _)) = self.mav.as_mut() {
+            m.finish();
         }
         self.settle();
         self.collect(arrival_s);
@@ -170,13 +197,14 @@ impl Decoder {
     }
 
     fn collect(&mut self, arrival_s: f64) {
-        let mut got = Vec::new();
+        // Straight into the bounded queue: nothing allocated per sample.
+        let (out, extra) = (&mut self.out, &mut self.extra);
         if let Some((m, maker)) = self.mav.as_mut() {
             while let Some(f) = m.pop() {
                 match maker.sample(&f, arrival_s) {
-                    mavlink::SampleOutcome::Sample(s) => got.push(s),
+                    mavlink::SampleOutcome::Sample(s) => queue(out, extra, s),
                     mavlink::SampleOutcome::Nothing => {}
-                    mavlink::SampleOutcome::Malformed => self.extra.malformed += 1,
+                    mavlink::SampleOutcome::Malformed => extra.malformed += 1,
                 }
             }
         }
@@ -184,18 +212,20 @@ impl Decoder {
             // While undecided, line samples wait in the line decoder's queue.
             if self.mav.is_none() {
                 while let Some(s) = l.pop() {
-                    got.push(s);
+                    queue(out, extra, s);
                 }
             }
         }
-        for s in got {
-            if self.out.len() >= MAX_QUEUED_SAMPLES {
-                self.out.pop_front();
-                self.extra.dropped += 1;
-            }
-            self.out.push_back(s);
-        }
     }
+}
+
+/// Queue a sample, dropping (and counting) the oldest when full.
+fn queue(out: &mut std::collections::VecDeque<Sample>, extra: &mut Counters, s: Sample) {
+    if out.len() >= MAX_QUEUED_SAMPLES {
+        out.pop_front();
+        extra.dropped += 1;
+    }
+    out.push_back(s);
 }
 
 #[cfg(test)]
@@ -206,7 +236,7 @@ mod tests {
 
     #[test]
     fn samples_nobody_takes_are_dropped_and_counted() {
-        let mut d = Decoder::new(Proto::Line, Default::default());
+        let mut d = Decoder::new(Proto::Line, Default::default()).expect("no key");
         let text = "t=1 vbat=12\n".repeat(MAX_QUEUED_SAMPLES + 10);
         d.push(text.as_bytes(), 0.0);
         let c = d.counters();
@@ -217,7 +247,7 @@ mod tests {
         #![proptest_config(ProptestConfig::with_cases(64))]
         #[test]
         fn auto_decoder_survives_arbitrary_bytes(data in proptest::collection::vec(any::<u8>(), 0..3000)) {
-            let mut d = Decoder::new(Proto::Auto, Default::default());
+            let mut d = Decoder::new(Proto::Auto, Default::default()).expect("no key");
             d.push(&data, 0.0);
             d.finish(0.0);
             let mut n = 0;
@@ -227,8 +257,58 @@ mod tests {
     }
 
     #[test]
+    fn a_key_means_signed_mavlink_only() {
+        let key = mavlink::SigningKey::from_bytes([5u8; 32]);
+        let cfg = mavlink::MavConfig {
+            signing_key: Some(key.clone()),
+            ..Default::default()
+        };
+        assert_eq!(
+            Decoder::new(Proto::Line, cfg.clone()).err(),
+            Some(ProtoError::LineWithKey)
+        );
+        // Unsigned text first cannot win the protocol choice.
+        let mut d = Decoder::new(Proto::Auto, cfg).expect("auto with a key");
+        assert_eq!(d.proto(), Proto::Mavlink);
+        d.push(
+            b"t=0 roll=0 pitch=0 yaw=0 vbat=12.6 armed=0
+"
+            .repeat(3)
+            .as_slice(),
+            0.0,
+        );
+        assert_eq!(d.proto(), Proto::Mavlink);
+        assert!(d.pop().is_none());
+        let msg = mavlink::Message::Attitude {
+            time_boot_ms: 1500,
+            rpy_rad: [0.0; 3],
+            rates_rad_s: [0.0; 3],
+        };
+        for (i, k) in [&key, &key, &mavlink::SigningKey::from_bytes([6u8; 32])]
+            .into_iter()
+            .enumerate()
+        {
+            let sign = mavlink::SignWith {
+                key: k,
+                link_id: 0,
+                timestamp: 1000 + i as u64,
+            };
+            d.push(
+                &mavlink::encode_frame(2, i as u8, 1, 1, &msg, Some(sign)),
+                0.0,
+            );
+        }
+        d.push(&mavlink::encode_frame(2, 9, 1, 1, &msg, None), 0.0);
+        let c = d.counters();
+        // Two genuine frames decoded; the wrongly signed and the unsigned
+        // one counted as rejected, not as decoded.
+        assert_eq!((c.frames, c.rejected, c.malformed), (2, 2, 0));
+        assert_eq!(d.pop().map(|s| s.t_s), Some(1.5));
+    }
+
+    #[test]
     fn auto_settles_on_lines_for_text() {
-        let mut d = Decoder::new(Proto::Auto, Default::default());
+        let mut d = Decoder::new(Proto::Auto, Default::default()).expect("no key");
         d.push(b"t=1 roll=0 pitch=0 yaw=0\n", 0.0);
         assert_eq!(d.proto(), Proto::Line);
         assert_eq!(d.pop().map(|s| s.t_s), Some(1.0));
@@ -236,17 +316,17 @@ mod tests {
 
     #[test]
     fn auto_settles_on_mavlink_for_frames() {
-        // REFERENCES.md v1 ATTITUDE frame (pymavlink 2.4.50 reference frames).
+        // docs/references.md v1 ATTITUDE frame (pymavlink 2.4.50 reference frames).
         let hex = "fe1c0001011e40e20100cdcccc3dcdcc4cbe0000c03f0ad7233c0ad7a3bc8fc2f53c4c6c";
         let bytes: Vec<u8> = (0..hex.len())
             .step_by(2)
             .map(|i| u8::from_str_radix(&hex[i..i + 2], 16).expect("hex"))
             .collect();
-        let mut d = Decoder::new(Proto::Auto, Default::default());
+        let mut d = Decoder::new(Proto::Auto, Default::default()).expect("no key");
         d.push(&bytes, 0.0);
         assert_eq!(d.proto(), Proto::Mavlink);
         assert_eq!(d.counters().frames, 1);
-        // time_boot_ms 123456 -> 123.456 s (REFERENCES.md).
+        // time_boot_ms 123456 -> 123.456 s (docs/references.md).
         assert_eq!(d.pop().map(|s| s.t_s), Some(123.456));
     }
 }

@@ -21,10 +21,16 @@
 //!   space. A line whose checksum, JSON or fields do not check is corrupt.
 //! - Every record has `seq` (1, 2, .. in file order), `time` (UTC, RFC 3339,
 //!   e.g. `2026-12-01T22:40:00.123Z`), `operator` and `event`, one of
-//!   `impact`, `finding`, `replacement`, `preflight`, `note`, with the
-//!   fields of [`ImpactEvent`], [`FindingEvent`], [`ReplacementEvent`],
-//!   [`PreflightEvent`] and [`NoteEvent`]. Readers ignore fields they do not
-//!   know, so later versions may add fields without a new format number.
+//!   `impact`, `finding`, `replacement`, `preflight`, `note`, `detection`,
+//!   `dismissal`, with the fields of [`ImpactEvent`], [`FindingEvent`],
+//!   [`ReplacementEvent`], [`PreflightEvent`], [`NoteEvent`],
+//!   [`DetectionEvent`] and [`DismissalEvent`]. Readers ignore fields they
+//!   do not know, so later versions may add fields without a new format
+//!   number.
+//! - A `detection` is an impact the live feed detected, written at once; an
+//!   `impact` with `"detection": SEQ` confirms it, a `dismissal` naming it
+//!   dismisses it; until one of them is written it is *pending*
+//!   ([`detection::pending`]).
 //! - Empty lines are ignored.
 //!
 //! Durability: a record is written with one `write` of the whole line (the
@@ -43,9 +49,12 @@
 use crate::impact::{ImpactInput, ImpactMethod};
 use serde::{Deserialize, Serialize};
 
+pub mod detection;
 pub mod export;
 pub mod format;
 pub mod store;
+
+pub use detection::{DetectionEvent, DismissalEvent, Pending, pending};
 
 pub use format::{FormatError, Parsed, Problem, TornTail, encode_header, encode_record, parse};
 pub use store::{Access, Logbook, OpenReport, SetAside, StoreError, log_file_name};
@@ -81,6 +90,10 @@ pub enum Event {
     Preflight(PreflightEvent),
     /// Free text.
     Note(NoteEvent),
+    /// An impact the live feed detected, awaiting confirmation or dismissal.
+    Detection(DetectionEvent),
+    /// A detection the crew judged not to be a crash, with the reason.
+    Dismissal(DismissalEvent),
 }
 
 impl Event {
@@ -92,6 +105,8 @@ impl Event {
             Event::Replacement(_) => "replacement",
             Event::Preflight(_) => "preflight",
             Event::Note(_) => "note",
+            Event::Detection(_) => "detection",
+            Event::Dismissal(_) => "dismissal",
         }
     }
 
@@ -112,9 +127,13 @@ impl Event {
                     Some(m) => format!(", worst {} at {:.2}", m.member, m.utilisation.abs()),
                     None => String::new(),
                 };
+                let confirms = match i.detection {
+                    Some(seq) => format!(", confirms detection #{seq}"),
+                    None => String::new(),
+                };
                 with_note(
                     format!(
-                        "impact on {} ({}), {:.0} N by {}{}",
+                        "impact on {} ({}), {:.0} N by {}{}{confirms}",
                         i.strike, i.input, i.force_n, i.method, worst
                     ),
                     &i.note,
@@ -134,9 +153,19 @@ impl Event {
                     .iter()
                     .filter(|i| i.result == ItemResult::Fail)
                     .count();
+                let overridden = p
+                    .items
+                    .iter()
+                    .filter(|i| i.override_reason.is_some())
+                    .count();
+                let overridden = if overridden > 0 {
+                    format!(", {overridden} overridden")
+                } else {
+                    String::new()
+                };
                 with_note(
                     format!(
-                        "pre-flight {} ({} items, {failed} failed)",
+                        "pre-flight {} ({} items, {failed} failed{overridden})",
                         if p.signed_off {
                             "signed off"
                         } else {
@@ -148,6 +177,8 @@ impl Event {
                 )
             }
             Event::Note(n) => n.text.clone(),
+            Event::Detection(d) => d.summary(),
+            Event::Dismissal(d) => format!("detection #{} dismissed: {}", d.detection, d.reason),
         }
     }
 }
@@ -228,6 +259,10 @@ pub struct ImpactEvent {
     /// be replaced. Written only when true, so older lines are unchanged.
     #[serde(default, skip_serializing_if = "std::ops::Not::not")]
     pub beyond_model: bool,
+    /// The `detection` record this impact confirms, by sequence number.
+    /// Written only when set, so older lines are unchanged.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub detection: Option<u64>,
 }
 
 impl ImpactEvent {
@@ -253,6 +288,7 @@ impl ImpactEvent {
             members: Vec::new(),
             note: note.filter(|n| !n.trim().is_empty()),
             beyond_model: true,
+            detection: None,
         }
     }
 
@@ -292,6 +328,7 @@ impl ImpactEvent {
                 .collect(),
             note: note.filter(|n| !n.trim().is_empty()),
             beyond_model: false,
+            detection: None,
         }
     }
 }
@@ -370,20 +407,44 @@ pub struct ReplacementEvent {
 }
 
 /// The result of one pre-flight item.
-#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize)]
+#[derive(Debug, Clone, Copy, PartialEq, Eq, Serialize, Deserialize, Default)]
 #[serde(rename_all = "snake_case")]
 pub enum ItemResult {
     /// Checked and fine.
     Pass,
-    /// Checked and not fine.
+    /// Checked and not fine (the default: a result never read is no pass).
+    #[default]
     Fail,
-    /// Not checked (with the operator's reason in the detail).
+    /// Not checked (with the operator's reason in the detail); older records.
     Skipped,
+    /// An automatic item that had no data to decide on.
+    Waiting,
+    /// An item the crew checks by hand (see `ticked`).
+    Hand,
+}
+
+impl ItemResult {
+    /// The name as written in the file and in JSON.
+    pub fn name(self) -> &'static str {
+        match self {
+            ItemResult::Pass => "pass",
+            ItemResult::Fail => "fail",
+            ItemResult::Skipped => "skipped",
+            ItemResult::Waiting => "waiting",
+            ItemResult::Hand => "hand",
+        }
+    }
 }
 
 /// One checklist item as it was signed.
-#[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
+#[derive(Debug, Clone, PartialEq, Serialize, Deserialize, Default)]
 pub struct PreflightItemResult {
+    /// The item's number on the checklist (1-based; 0 in older records).
+    #[serde(default)]
+    pub n: u32,
+    /// `auto` or `hand` (absent in older records).
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub kind: Option<String>,
     /// The item's text, as the profile gave it at the time.
     pub text: String,
     /// The result.
@@ -391,6 +452,13 @@ pub struct PreflightItemResult {
     /// Measured value or reason, if any.
     #[serde(default)]
     pub detail: Option<String>,
+    /// For a hand item: whether the operator ticked it.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub ticked: Option<bool>,
+    /// For an automatic item that did not pass: the operator's reason for
+    /// signing all the same.
+    #[serde(default, skip_serializing_if = "Option::is_none")]
+    pub override_reason: Option<String>,
 }
 
 /// A pre-flight checklist run.
@@ -426,6 +494,9 @@ impl Record {
         }
         if self.operator.trim().is_empty() {
             return Err("operator is empty".to_string());
+        }
+        if let Event::Detection(d) = &self.event {
+            return d.check();
         }
         if let Event::Impact(i) = &self.event {
             let mut nums = vec![

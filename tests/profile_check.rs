@@ -26,13 +26,13 @@ const BAD: &[(&str, &str, &str, &str)] = &[
         "unknown-key.toml",
         ":7:1:",
         "vehicle.mass_lb",
-        "unknown field",
+        "found an unknown key `mass_lb`",
     ),
     (
         "wrong-type.toml",
         ":6:11:",
         "vehicle.mass_kg",
-        "expected f64",
+        "expected a number, found the text \"heavy\"",
     ),
     (
         "negative-mass.toml",
@@ -107,6 +107,123 @@ const BAD: &[(&str, &str, &str, &str)] = &[
         "at least 1",
     ),
     ("bad-toml.toml", ":3:9:", "", "expected `]`"),
+    // A comment after a section header does not move the location.
+    (
+        "comment-after-header.toml",
+        ":95:18:",
+        "righting.takeoff_faces[1]",
+        "expected a face of this cage (it has F1..F8), found F99",
+    ),
+    // Plausibility: the pretension alone must leave every member within
+    // its capacity. The prism's rods (aluminium tube 6/4 mm, E 70 GPa,
+    // 379.4 mm) buckle at pi^2 E I / L^2 = 245.0 N (Euler, pinned ends;
+    // Roark's Formulas for Stress and Strain, Table 15.1); its one
+    // self-stress state puts 1.614 times the largest string tension on
+    // each rod (the `cage` command's own table), so 200 N loads the rods
+    // to about 323 N.
+    (
+        "pretension-buckles-rods.toml",
+        ":77:16:",
+        "cage.string_section.pretension_n",
+        "against a capacity of 245.0 N before any impact",
+    ),
+    (
+        "pretension-breaks-strings.toml",
+        ":77:16:",
+        "cage.string_section.pretension_n",
+        "expected a pretension below the strings' capacity of 292.5 N",
+    ),
+    (
+        "huge-rotor-position.toml",
+        ":88:22:",
+        "rotor[2].position_m[2]",
+        "expected a number from -100 to 100 m, found 1e30 m",
+    ),
+    (
+        "huge-thrust.toml",
+        ":89:16:",
+        "rotor[2].max_thrust_n",
+        "no larger than 100000 N (a plausible physical value), found 1e30 N",
+    ),
+    (
+        "duplicate-takeoff-face.toml",
+        ":95:30:",
+        "righting.takeoff_faces[3]",
+        "expected each take-off face listed once, found F1 again",
+    ),
+    (
+        "duplicate-payload-node.toml",
+        ":12:48:",
+        "cage.payload_nodes[6]",
+        "expected each payload node listed once, found \"N1\" again",
+    ),
+    // A check on the built cage, located at the key that decides it. The
+    // rods: 3 x 379.4 mm of tube 6/4 mm (area 15.71 mm^2) at 2700 kg/m^3
+    // weigh 0.048 kg (hand computation).
+    (
+        "rods-too-heavy.toml",
+        ":7:11:",
+        "vehicle.mass_kg",
+        "expected a mass above the rods' own 0.048 kg (by their section and density), found 0.04 kg",
+    ),
+    // serde's own phrasings ("missing field", "wanted string or table",
+    // "did not match any variant") are ours now.
+    (
+        "missing-field.toml",
+        ":4:1:",
+        "vehicle.mass_kg",
+        "expected a number, found no `mass_kg` in [vehicle]",
+    ),
+    (
+        "takeoff-faces-number.toml",
+        ":95:17:",
+        "righting.takeoff_faces",
+        "expected \"auto\" or a non-empty list of face ids such as [\"F1\", \"F2\"], found the whole number 5",
+    ),
+    (
+        "check-number.toml",
+        ":108:9:",
+        "preflight.item[2].check",
+        "expected a text in quotes, found the whole number 5",
+    ),
+    (
+        "check-unknown.toml",
+        ":108:9:",
+        "preflight.item[2].check",
+        "expected one of no_member_due, on_takeoff_face, link_fresh, battery, found \"on_any_face\"",
+    ),
+    (
+        "section-not-table.toml",
+        ":4:9:",
+        "mount",
+        "expected a table [mount], found the whole number 5",
+    ),
+    // The byte 0xb0 (Latin-1 degree sign) is the 39th character of line 6.
+    (
+        "not-utf8.toml",
+        ":6:39:",
+        "",
+        "expected UTF-8 text, found the byte 0xb0",
+    ),
+    // The log's own rule (`profile::is_valid_vehicle_id`).
+    (
+        "bad-vehicle-id.toml",
+        ":5:6:",
+        "vehicle.id",
+        "expected an id of 1 to 128 letters, digits, '.', '_' or '-', not starting with '.', found \".hidden\"",
+    ),
+    (
+        "derate-out-of-range.toml",
+        ":101:8:",
+        "inspection.derate.fray",
+        "expected a positive number no larger than 1",
+    ),
+    (
+        "margin-speed-negative.toml",
+        ":102:28:",
+        "preflight.min_margin_speed_m_per_s",
+        "expected a positive number, found -2 m/s",
+    ),
 ];
 
 #[test]

@@ -22,12 +22,13 @@ fn an_unknown_takeoff_face_is_refused_where_it_is_written() {
         .position(|l| l.contains("F99"))
         .expect("the fixture names F99")
         + 1;
+    // The list item itself: `takeoff_faces = ["F99"]`, column 18.
     assert!(
-        err.contains(&format!(":{line}:1: ")),
+        err.contains(&format!(":{line}:18: righting.takeoff_faces[1]: ")),
         "line {line} in {err}"
     );
     assert!(
-        err.contains("F99 is not a face of this cage (it has F1..F8)"),
+        err.contains("expected a face of this cage (it has F1..F8), found F99"),
         "{err}"
     );
 }

@@ -99,12 +99,6 @@ struct Report<'a> {
     moves: Vec<MoveJson<'a>>,
 }
 
-/// Capacity of a member: rods the smaller of Euler buckling and crushing,
-/// strings the breaking load times termination efficiency.
-pub fn capacity_n(profile: &Profile, kind: MemberKind, length_m: f64) -> f64 {
-    crate::statics::capacity_n(profile, kind, length_m)
-}
-
 fn report<'a>(
     p: &'a Profile,
     c: &'a Cage,
@@ -138,7 +132,7 @@ fn report<'a>(
                 tag: m.tag.as_deref(),
                 length_m: m.length_m,
                 prestress_n: ss.prestress_n.get(j).copied().unwrap_or(0.0),
-                capacity_n: capacity_n(p, m.kind, m.length_m),
+                capacity_n: crate::statics::capacity_n(p, m.kind, m.length_m),
             })
             .collect(),
         faces: c

@@ -13,12 +13,12 @@ use std::path::{Path, PathBuf};
 #[derive(Debug, Clone, clap::Args)]
 pub struct LinkArgs {
     /// udp:HOST:PORT (listen; 127.0.0.1 unless named), serial:PATH@BAUD,
-    /// file:PATH (a recording), raw:PATH (a plain byte capture), sim[:SEED].
+    /// file:PATH (a recording), raw:PATH (a plain byte capture), `sim[:SEED]`.
     #[arg(long, value_name = "SPEC", default_value = "sim")]
     pub link: String,
     /// Protocol on the link.
-    #[arg(long, value_enum, default_value_t = Proto::Auto)]
-    pub proto: Proto,
+    #[arg(long, value_enum, default_value_t = ProtoArg::Auto)]
+    pub proto: ProtoArg,
     /// Accept UDP only from this sender (IP or IP:PORT); repeatable.
     #[arg(long, value_name = "ADDR")]
     pub allow: Vec<String>,
@@ -32,6 +32,28 @@ pub struct LinkArgs {
     /// Pace of file: replays and of the sim link: `max` or a factor (1 = as recorded).
     #[arg(long, value_name = "SPEED", default_value = "1")]
     pub replay_speed: String,
+}
+
+/// The protocol as typed (the core's [`Proto`] knows no command line).
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum ProtoArg {
+    /// MAVLink v1/v2.
+    Mavlink,
+    /// key=value lines.
+    Line,
+    /// Decide from the data: the first protocol to give a good frame wins
+    /// (MAVLink only when a signing key is given).
+    Auto,
+}
+
+impl From<ProtoArg> for Proto {
+    fn from(p: ProtoArg) -> Proto {
+        match p {
+            ProtoArg::Mavlink => Proto::Mavlink,
+            ProtoArg::Line => Proto::Line,
+            ProtoArg::Auto => Proto::Auto,
+        }
+    }
 }
 
 /// Read a signing key file, warning when others can read it.
@@ -62,7 +84,7 @@ impl LinkArgs {
     pub fn default_sim() -> LinkArgs {
         LinkArgs {
             link: "sim".to_string(),
-            proto: Proto::Auto,
+            proto: ProtoArg::Auto,
             allow: Vec::new(),
             sysid: None,
             signing_key: None,
@@ -77,8 +99,15 @@ impl LinkArgs {
             .map_err(|e: crate::link::spec::SpecError| bad_input(e.to_string()))
     }
 
-    /// Open the link (the cage feeds the sim link).
-    pub fn open(&self, cage: Option<Cage>, mode: Mode) -> anyhow::Result<Link> {
+    /// Open the link (the cage feeds the sim link). `data_dir` is where a
+    /// live link with a signing key keeps its replay floor; it is asked
+    /// for only then (watch passes the log's data folder).
+    pub fn open(
+        &self,
+        cage: Option<Cage>,
+        mode: Mode,
+        data_dir: impl FnOnce() -> anyhow::Result<PathBuf>,
+    ) -> anyhow::Result<Link> {
         let spec = self.spec()?;
         let allow = self
             .allow
@@ -96,15 +125,28 @@ impl LinkArgs {
             .parse()
             .map_err(|e: String| bad_input(format!("--replay-speed {e}")))?;
         let signing_key = self.signing_key.as_deref().map(read_key).transpose()?;
+        if signing_key.is_some() && self.proto == ProtoArg::Line {
+            return Err(bad_input(
+                "--proto line cannot be used with --signing-key: lines carry no signature, so none of them could be trusted; use --proto mavlink (or auto) with a vehicle that signs its MAVLink 2 frames, or leave out the key",
+            ));
+        }
+        let live = matches!(spec, LinkSpec::Udp(_) | LinkSpec::Serial { .. });
+        let data_dir = if signing_key.is_some() && live && mode == Mode::Decode {
+            Some(data_dir()?)
+        } else {
+            None
+        };
         let opts = LinkOptions {
-            proto: self.proto,
+            proto: self.proto.into(),
             mav: MavConfig {
                 sysid: self.sysid,
                 signing_key,
+                replay_floor: None,
             },
             allow,
             replay_speed,
             cage,
+            data_dir,
         };
         transport::open(&spec, opts, mode).map_err(|e| {
             if e.is_bad_input() {

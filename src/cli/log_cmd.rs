@@ -21,13 +21,29 @@ use std::time::Duration;
 /// CAGEHAND_LOCK_WAIT_S says otherwise (scripts that prefer to fail fast).
 const LOCK_WAIT: Duration = Duration::from_secs(5);
 
-/// The lock wait in force.
+/// The lock wait in force: CAGEHAND_LOCK_WAIT_S (seconds, 0 to 3600) when
+/// set, else 5 s. `cli::run` checks the variable before any command runs,
+/// so a value it cannot read is reported, never silently ignored.
 pub fn lock_wait() -> Duration {
-    env_nonempty("CAGEHAND_LOCK_WAIT_S")
-        .and_then(|s| s.trim().parse::<f64>().ok())
-        .filter(|s| s.is_finite() && *s >= 0.0 && *s <= 3600.0)
+    lock_wait_from_env().unwrap_or(LOCK_WAIT)
+}
+
+/// CAGEHAND_LOCK_WAIT_S read and checked: bad input when it is not a number
+/// of seconds from 0 to 3600.
+pub fn lock_wait_from_env() -> anyhow::Result<Duration> {
+    let Some(text) = env_nonempty("CAGEHAND_LOCK_WAIT_S") else {
+        return Ok(LOCK_WAIT);
+    };
+    text.trim()
+        .parse::<f64>()
+        .ok()
+        .filter(|s| s.is_finite() && (0.0..=3600.0).contains(s))
         .map(Duration::from_secs_f64)
-        .unwrap_or(LOCK_WAIT)
+        .ok_or_else(|| {
+            super::bad_input(format!(
+                "CAGEHAND_LOCK_WAIT_S={text:?}: expected a number of seconds from 0 to 3600"
+            ))
+        })
 }
 
 /// Where the logs live and who is writing: shared by `log` and `impact`.
@@ -37,7 +53,8 @@ pub struct LogOpts {
     /// platform's data folder, e.g. ~/.local/share/cagehand).
     #[arg(long, value_name = "DIR", global = true)]
     pub data: Option<PathBuf>,
-    /// Who records the event (else $CAGEHAND_OPERATOR, else the login name).
+    /// Who records the event (else $CAGEHAND_OPERATOR, else the account
+    /// name the operating system gives for the current user).
     #[arg(long, value_name = "NAME", global = true)]
     pub operator: Option<String>,
 }
@@ -60,16 +77,26 @@ impl LogOpts {
             .ok_or_else(|| bad_input("no data folder: give --data DIR or set CAGEHAND_DATA"))
     }
 
-    /// The operator: --operator, else CAGEHAND_OPERATOR, else USER/LOGNAME.
-    pub fn operator(&self) -> anyhow::Result<String> {
+    /// The operator, if one can be found: --operator, else
+    /// CAGEHAND_OPERATOR, else the account name the operating system gives
+    /// for the current user (the password database, so a container or an
+    /// SSH session without $USER still has one), else USER/LOGNAME. The
+    /// screens ask when this is None.
+    pub fn operator_opt(&self) -> Option<String> {
         self.operator
             .clone()
             .filter(|s| !s.trim().is_empty())
             .or_else(|| env_nonempty("CAGEHAND_OPERATOR"))
+            .or_else(|| whoami::username().ok().filter(|s| !s.trim().is_empty()))
             .or_else(|| env_nonempty("USER"))
             .or_else(|| env_nonempty("LOGNAME"))
             .or_else(|| env_nonempty("USERNAME"))
             .map(|s| s.trim().to_string())
+    }
+
+    /// The operator (see [`LogOpts::operator_opt`]), or bad input.
+    pub fn operator(&self) -> anyhow::Result<String> {
+        self.operator_opt()
             .ok_or_else(|| bad_input("no operator: give --operator NAME or set CAGEHAND_OPERATOR"))
     }
 
@@ -104,6 +131,32 @@ impl LogOpts {
         }
         Ok((book, report))
     }
+}
+
+/// A word for a shell command line, quoted when it needs to be.
+fn shell_word(s: &str) -> String {
+    if !s.is_empty()
+        && s.bytes()
+            .all(|b| b.is_ascii_alphanumeric() || b"/._-+:=@,".contains(&b))
+    {
+        s.to_string()
+    } else {
+        format!("'{}'", s.replace('\'', "'\\''"))
+    }
+}
+
+/// The ` --profile F --data D` a hinted command needs to reach the same
+/// vehicle's log as this one (empty parts left out), so a pasted hint never
+/// records on another vehicle or in another folder.
+pub fn same_log_args(l: &Loaded, opts: &LogOpts) -> String {
+    let mut s = String::new();
+    if l.profile.source != crate::profile::DEMO_PROFILE_NAME {
+        s.push_str(&format!(" --profile {}", shell_word(&l.profile.source)));
+    }
+    if let Ok(d) = opts.data_dir() {
+        s.push_str(&format!(" --data {}", shell_word(&d.display().to_string())));
+    }
+    s
 }
 
 /// What a reader of health or a report must know about the log itself: it

@@ -45,7 +45,11 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         crate::link::spec::LinkSpec::Sim { .. } => Some(args.profile.load()?.cage),
         _ => None,
     };
-    let link = args.link.open(cage, Mode::Raw)?;
+    // A recording keeps the bytes as they came: nothing is checked, so no
+    // replay floor (and no data folder) is needed.
+    let link = args.link.open(cage, Mode::Raw, || {
+        Err(super::bad_input("recording keeps no replay floor"))
+    })?;
     let file = std::fs::OpenOptions::new()
         .write(true)
         .create_new(true)

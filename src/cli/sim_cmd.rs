@@ -10,6 +10,7 @@
 //! `resting` (with the face and its neighbours), `done`.
 
 use super::ProfileArg;
+use super::link_args::ProtoArg;
 use crate::link::Proto;
 use crate::link::spec::LinkSpec;
 use crate::sim::wire::Wire;
@@ -33,8 +34,8 @@ pub struct Args {
     #[arg(long, value_name = "SPEC")]
     to: String,
     /// Protocol to send (auto means MAVLink).
-    #[arg(long, value_enum, default_value_t = Proto::Mavlink)]
-    proto: Proto,
+    #[arg(long, value_enum, default_value_t = ProtoArg::Mavlink)]
+    proto: ProtoArg,
     /// Seed: the same seed flies the same flight.
     #[arg(long, default_value_t = 1)]
     seed: u64,
@@ -76,10 +77,10 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let mut emit =
         |v: serde_json::Value| -> bool { writeln!(out, "{v}").and_then(|_| out.flush()).is_ok() };
     emit(
-        json!({"event": "started", "command_addr": sock.local_addr()?.to_string(), "to": to.to_string(), "seed": args.seed, "proto": args.proto}),
+        json!({"event": "started", "command_addr": sock.local_addr()?.to_string(), "to": to.to_string(), "seed": args.seed, "proto": Proto::from(args.proto)}),
     );
     let mut sim = Sim::new(cage, args.seed);
-    let mut wire = Wire::new(args.proto);
+    let mut wire = Wire::new(args.proto.into());
     let neighbours = |sim: &Sim, f: usize| -> Vec<String> {
         // ok: f comes from the simulator's resting face, an index into these faces.
         let face = &cage.faces[f];

@@ -1,25 +1,23 @@
 //! Opening the screens: build the model, read the cage log, start the feed
-//! thread (link -> tracker -> live picture), and hand over to the terminal
-//! loop, which carries out the model's effects.
+//! thread (link -> core feed -> live picture; detections written to the
+//! cage log at once), and hand over to the terminal loop, which carries out
+//! the model's effects.
 
 use super::Loaded;
 use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, lock_wait};
-use crate::cage::Cage;
+use crate::feed::Feed;
 use crate::health::assess;
-use crate::impact_detect::ImpactDetector;
-use crate::link::transport::{Link, LinkEvent, LinkMsg, Mode};
+use crate::link::transport::{Link, Mode};
 use crate::logbook::store::{Access, Logbook};
-use crate::profile::Profile;
+use crate::logbook::{Record, detection};
+use crate::preflight;
 use crate::sim::SimCommand;
 use crate::tracker::{Tracker, WatchState, WatchStateKind};
 use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample};
 use crate::tui::theme::{ColourDepth, Theme};
 use std::process::ExitCode;
 use std::sync::mpsc::{self, Sender};
-
-/// Bounces closer together than this are one impact.
-const IMPACT_REFRACTORY_S: f64 = 1.0;
 
 /// Open the screens on a loaded profile, fed by the link `link_args` names.
 pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Result<ExitCode> {
@@ -30,8 +28,8 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
         ));
     }
     let (health, health_source) = read_health(&loaded, log);
-    let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode)?;
-    let theme = Theme::new(ColourDepth::from_env());
+    let link = link_args.open(Some(loaded.cage.clone()), Mode::Decode, || log.data_dir())?;
+    let theme = Theme::new(ColourDepth::for_choice(super::color_choice()));
     let model = Model::new(
         loaded.profile.clone(),
         loaded.cage.clone(),
@@ -41,7 +39,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
     .with_health(health, health_source);
     let (tx, rx) = mpsc::channel::<Msg>();
     let commander = link.commander();
-    spawn_feed(link, loaded.cage, loaded.profile, tx.clone());
+    spawn_feed(link, loaded, log.clone(), tx.clone());
     crate::tui::run(model, tx, rx, |effect| match effect {
         Effect::SimRoll(face) => {
             // Only the in-process simulator takes commands; on a real link the
@@ -86,7 +84,11 @@ fn read_health(l: &Loaded, log: &LogOpts) -> (Option<crate::health::HealthReport
     }
 }
 
-fn live_view(st: &WatchState, tracker: &Tracker) -> LiveView {
+fn live_view(
+    st: &WatchState,
+    tracker: &Tracker,
+    preflight: Option<preflight::Evaluation>,
+) -> LiveView {
     let errors = st.link.crc_errors + st.link.malformed + st.link.rejected;
     LiveView {
         state: match st.state {
@@ -115,66 +117,113 @@ fn live_view(st: &WatchState, tracker: &Tracker) -> LiveView {
                 attitude,
                 status,
             }),
+        preflight,
     }
 }
 
-/// The link's reader messages through the tracker and the impact detector,
-/// into the screens' channel. Ends when the link ends or the screens close.
-fn spawn_feed(link: Link, cage: Cage, profile: Profile, tx: Sender<Msg>) {
+/// The cage log as the feed thread last read it (for the pre-flight
+/// evaluation): re-read after each detection it writes.
+struct LogView {
+    records: Vec<Record>,
+    path: String,
+    new_file: bool,
+    error: Option<String>,
+}
+
+impl LogView {
+    fn read(l: &Loaded, log: &LogOpts) -> LogView {
+        let opened = log
+            .data_dir()
+            .map_err(|e| format!("{e:#}"))
+            .and_then(|dir| {
+                Logbook::open(&dir, &l.profile.vehicle.id, Access::Read, lock_wait())
+                    .map_err(|e| e.to_string())
+            });
+        match opened {
+            Ok((book, report)) => LogView {
+                records: book.records().to_vec(),
+                path: book.path().display().to_string(),
+                new_file: report.new_file,
+                error: None,
+            },
+            Err(e) => LogView {
+                records: Vec::new(),
+                path: String::new(),
+                new_file: false,
+                error: Some(e),
+            },
+        }
+    }
+
+    fn evaluate(&self, l: &Loaded, st: &WatchState) -> preflight::Evaluation {
+        let log = match &self.error {
+            Some(e) => preflight::LogInput::Unreadable(e),
+            None => preflight::LogInput::Read {
+                records: &self.records,
+                path: &self.path,
+                new_file: self.new_file,
+                trouble: None,
+            },
+        };
+        preflight::evaluate(&preflight::Inputs {
+            profile: &l.profile,
+            cage: &l.cage,
+            live: Some(st),
+            log,
+            signing: None,
+        })
+    }
+}
+
+/// Write a detection to the log at once; the notice says where it went
+/// (vehicle and file) or why it could not be written.
+fn write_detection(l: &Loaded, log: &LogOpts, d: &crate::logbook::DetectionEvent) -> String {
+    let vehicle = &l.profile.vehicle.id;
+    let args = super::log_cmd::same_log_args(l, log);
+    let written = log.operator().and_then(|operator| {
+        let mut book = log.open(l, Access::Write)?;
+        let logged = detection::record(&mut book, &operator, jiff::Timestamp::now(), d.clone())
+            .map_err(super::log_cmd::store_err)?;
+        Ok((logged, book.path().display().to_string()))
+    });
+    match written {
+        Ok((logged, path)) => format!(
+            "impact {:.1} g on {}: detection #{} in the log of {vehicle} ({path}); pending until `cagehand log confirm {}{args}` or `log dismiss {} --reason TEXT`",
+            d.peak_g, d.face, logged.seq, logged.seq, logged.seq
+        ),
+        Err(e) => format!(
+            "impact {:.1} g on {} NOT logged for {vehicle}: {e:#}; record it with `cagehand impact --face {} --peak-accel-g {:.1}{args}`",
+            d.peak_g, d.face, d.face, d.peak_g
+        ),
+    }
+}
+
+/// The link's reader messages through the core feed into the screens'
+/// channel; detections are written to the log as they come. Ends when the
+/// link ends or the screens close.
+fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
     std::thread::spawn(move || {
-        let mut tracker = Tracker::new(&profile.watch, &link.source);
-        let mut detector = ImpactDetector::new(
-            &cage,
-            profile.impact.detect_threshold_g,
-            IMPACT_REFRACTORY_S,
-        );
+        let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
+        let mut book = LogView::read(&l, &log);
         while let Ok(msg) = link.rx.recv() {
-            let mut extra = None;
-            match msg {
-                LinkMsg::Sample { at_s, sample } => {
-                    tracker.update(&cage, at_s, &sample);
-                    if let Some(p) = detector.push(&sample) {
-                        extra = Some(Msg::Notice(format!(
-                            "impact detected: {:.1} g, likely on {}; record it with `cagehand impact --face {} --peak-accel-g {:.1}`",
-                            p.peak_g, p.face_id, p.face_id, p.peak_g
-                        )));
-                    }
-                }
-                LinkMsg::Health { at_s, counters } => {
-                    tracker.tick(at_s);
-                    tracker.set_counters(counters);
-                }
-                LinkMsg::Tick { at_s } | LinkMsg::Bytes { at_s, .. } => tracker.tick(at_s),
-                LinkMsg::Event { at_s, event } => {
-                    tracker.tick(at_s);
-                    extra = Some(Msg::Notice(match event {
-                        LinkEvent::Lost(s) => format!("link lost: {s}"),
-                        LinkEvent::Note(s) => s,
-                        LinkEvent::Reopened => "link reopened".to_string(),
-                    }));
-                }
-                LinkMsg::End { at_s } => {
-                    tracker.tick(at_s);
-                    let _ = tx.send(Msg::Live(Box::new(live_view(
-                        &tracker.state(&cage),
-                        &tracker,
-                    ))));
-                    let _ = tx.send(Msg::LinkEnded("end of input".to_string()));
-                    return;
-                }
+            let step = feed.push(super::live::feed_input(msg));
+            let mut extra = step.note.clone().map(Msg::Notice);
+            if let Some(d) = &step.detection {
+                extra = Some(Msg::Notice(write_detection(&l, &log, d)));
+                book = LogView::read(&l, &log);
             }
-            if tx
-                .send(Msg::Live(Box::new(live_view(
-                    &tracker.state(&cage),
-                    &tracker,
-                ))))
-                .is_err()
-            {
+            let eval = book.evaluate(&l, &step.state);
+            let live = Msg::Live(Box::new(live_view(&step.state, feed.tracker(), Some(eval))));
+            if tx.send(live).is_err() {
                 return;
             }
             if let Some(m) = extra
                 && tx.send(m).is_err()
             {
+                return;
+            }
+            if step.ended {
+                let _ = tx.send(Msg::LinkEnded("end of input".to_string()));
                 return;
             }
         }

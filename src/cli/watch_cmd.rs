@@ -1,12 +1,17 @@
 //! `cagehand watch`: live state of the vehicle. `--headless` prints one
 //! JSON object per line (a contract: scripts and checks parse it) on every
-//! change of state or face and once a second of link time; `--summary`
-//! adds one object when the input ends.
+//! change of state or face and once a second of link time; for every
+//! detected impact a line with a `detection` object, after writing the
+//! detection to the vehicle's cage log; `--summary` adds one object when
+//! the input ends.
 
-use super::ProfileArg;
 use super::link_args::LinkArgs;
-use crate::link::transport::{LinkEvent, LinkMsg, Mode};
-use crate::tracker::{Tracker, WatchStateKind};
+use super::log_cmd::LogOpts;
+use super::{Loaded, ProfileArg};
+use crate::feed::Feed;
+use crate::link::transport::Mode;
+use crate::logbook::{Access, DetectionEvent, detection};
+use crate::tracker::WatchStateKind;
 use serde::Serialize;
 use std::collections::BTreeSet;
 use std::io::Write;
@@ -22,7 +27,7 @@ pub struct Args {
     #[command(flatten)]
     link: LinkArgs,
     #[command(flatten)]
-    log: super::log_cmd::LogOpts,
+    log: LogOpts,
     /// Print JSON lines instead of the screen.
     #[arg(long)]
     headless: bool,
@@ -56,6 +61,104 @@ struct Summary {
     wall_time_s: f64,
 }
 
+/// The `detection` object of a headless line.
+#[derive(Debug, Serialize)]
+struct DetectionLine<'a> {
+    schema: &'static str,
+    /// Peak time on the link's sample clock, s.
+    link_time_s: f64,
+    peak_g: f64,
+    face: &'a str,
+    speed_m_per_s: Option<f64>,
+    direction_body: [f64; 3],
+    source: &'a str,
+    /// The detection's record in the cage log; null when it could not be
+    /// written (the reason is on stderr).
+    logged_seq: Option<u64>,
+    /// False when the log already held it (the same recording replayed).
+    new_record: bool,
+    vehicle: &'a str,
+    log: Option<String>,
+}
+
+#[derive(Debug, Serialize)]
+struct DetectionJson<'a> {
+    detection: DetectionLine<'a>,
+}
+
+/// Write a detection to the vehicle's log at once (the log is opened for
+/// this one write, so other writers are not held off while watching).
+/// Says on stderr where it went, or why it could not be written.
+fn log_detection(
+    l: &Loaded,
+    opts: &LogOpts,
+    d: &DetectionEvent,
+) -> (Option<detection::Logged>, Option<String>) {
+    let vehicle = &l.profile.vehicle.id;
+    let written = opts.operator().and_then(|operator| {
+        let mut book = opts.open(l, Access::Write)?;
+        let path = book.path().display().to_string();
+        let logged = detection::record(&mut book, &operator, jiff::Timestamp::now(), d.clone())
+            .map_err(super::log_cmd::store_err)?;
+        Ok((logged, path))
+    });
+    match written {
+        Ok((logged, path)) => {
+            let what = if logged.new {
+                format!("written as #{}", logged.seq)
+            } else {
+                format!("already in the log as #{} (a replay)", logged.seq)
+            };
+            eprintln!(
+                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}` or `cagehand log dismiss {} --reason TEXT`{}",
+                d.peak_g,
+                d.face,
+                logged.seq,
+                logged.seq,
+                super::log_cmd::same_log_args(l, opts)
+            );
+            (Some(logged), Some(path))
+        }
+        Err(e) => {
+            eprintln!(
+                "cagehand: impact detected: {:.1} g, likely on {}, but NOT written to the cage log of {vehicle}: {e:#}; record it by hand with `cagehand impact --face {} --peak-accel-g {:.1}{}`",
+                d.peak_g,
+                d.face,
+                d.face,
+                d.peak_g,
+                super::log_cmd::same_log_args(l, opts)
+            );
+            (None, None)
+        }
+    }
+}
+
+/// Log a detection and print its line; false when stdout has gone away.
+fn write_detection(
+    out: &mut impl Write,
+    loaded: &Loaded,
+    opts: &LogOpts,
+    d: &DetectionEvent,
+) -> anyhow::Result<bool> {
+    let (logged, log) = log_detection(loaded, opts, d);
+    let line = DetectionJson {
+        detection: DetectionLine {
+            schema: "cagehand.detection/1",
+            link_time_s: d.link_time_s,
+            peak_g: d.peak_g,
+            face: &d.face,
+            speed_m_per_s: d.speed_m_per_s,
+            direction_body: d.direction_body,
+            source: &d.source,
+            logged_seq: logged.map(|l| l.seq),
+            new_record: logged.is_some_and(|l| l.new),
+            vehicle: &loaded.profile.vehicle.id,
+            log,
+        },
+    };
+    Ok(writeln!(out, "{}", serde_json::to_string(&line)?).is_ok())
+}
+
 /// Run the watch.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     if !args.headless {
@@ -70,10 +173,11 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let loaded = args.profile.load()?;
     let cage = &loaded.cage;
     let wall0 = Instant::now();
-    let link = args.link.open(Some(cage.clone()), Mode::Decode)?;
-    let mut tracker = Tracker::new(&loaded.profile.watch, &link.source);
+    let link = args
+        .link
+        .open(Some(cage.clone()), Mode::Decode, || args.log.data_dir())?;
+    let mut feed = Feed::new(cage.clone(), &loaded.profile, &link.source);
     let mut out = std::io::stdout().lock();
-    let mut last_key = None;
     let mut last_link = None;
     let mut next_periodic = 0.0;
     let mut lines = 0u64;
@@ -84,52 +188,47 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             Err(RecvTimeoutError::Timeout) => continue,
             Err(RecvTimeoutError::Disconnected) => break,
         };
-        let mut ended = false;
-        match msg {
-            LinkMsg::Sample { at_s, sample } => tracker.update(cage, at_s, &sample),
-            LinkMsg::Health { at_s, counters } => {
-                tracker.tick(at_s);
-                tracker.set_counters(counters);
-            }
-            LinkMsg::Tick { at_s } => tracker.tick(at_s),
-            LinkMsg::Bytes { at_s, .. } => tracker.tick(at_s),
-            LinkMsg::Event { at_s, event } => {
-                tracker.tick(at_s);
-                let text = match event {
-                    LinkEvent::Lost(s) | LinkEvent::Note(s) => s,
-                    LinkEvent::Reopened => "link reopened".to_string(),
-                };
-                let _ = writeln!(
-                    std::io::stderr().lock(),
-                    "cagehand: {}: {text}",
-                    link.source
-                );
-            }
-            LinkMsg::End { at_s } => {
-                tracker.tick(at_s);
-                ended = true;
-            }
+        let step = feed.push(super::live::feed_input(msg));
+        if let Some(text) = &step.note {
+            let _ = writeln!(
+                std::io::stderr().lock(),
+                "cagehand: {}: {text}",
+                link.source
+            );
         }
-        let st = tracker.state(cage);
-        let key = (st.state, st.face.clone());
+        let st = &step.state;
         // At the end, a last line if the link's counters moved since the
         // last one, so the last line agrees with the summary.
-        let link_moved = ended && last_link.as_ref() != Some(&st.link);
-        if last_key.as_ref() != Some(&key) || st.t >= next_periodic || link_moved {
+        let link_moved = step.ended && last_link.as_ref() != Some(&st.link);
+        if step.changed || st.t >= next_periodic || link_moved {
             states.insert(st.state);
-            if writeln!(out, "{}", serde_json::to_string(&st)?).is_err() {
+            if writeln!(out, "{}", serde_json::to_string(st)?).is_err() {
                 return Ok(ExitCode::SUCCESS); // the reader of our output went away
             }
             lines += 1;
-            last_key = Some(key);
             last_link = Some(st.link.clone());
             next_periodic = st.t.floor() + 1.0;
         }
-        if ended || args.duration_s.is_some_and(|d| st.t >= d) {
+        if let Some(d) = &step.detection {
+            if !write_detection(&mut out, &loaded, &args.log, d)? {
+                return Ok(ExitCode::SUCCESS);
+            }
+            lines += 1;
+        }
+        if step.ended {
+            break;
+        }
+        if args.duration_s.is_some_and(|d| st.t >= d) {
+            // Stopping early: an impact in progress is still reported.
+            if let Some(d) = feed.finish() {
+                write_detection(&mut out, &loaded, &args.log, &d)?;
+                lines += 1;
+            }
             break;
         }
     }
     if args.summary {
+        let tracker = feed.tracker();
         let c = tracker.counters();
         let s = Summary {
             summary: true,

@@ -1,11 +1,12 @@
-//! The line protocol for custom firmware (DESIGN.md): one sample per line of
+//! The line protocol for custom firmware (docs/design.md): one sample per line of
 //! whitespace-separated `key=value` pairs. Keys: `t` (s), `roll pitch yaw`
 //! (degrees, Z-Y-X) or `qw qx qy qz`, optional `ax ay az` (m/s^2, body),
 //! `vn ve vd` (m/s, NED), `vbat` (V), `armed` (0/1). Unknown keys are
 //! ignored; a line that does not parse is counted and skipped. Lines are
 //! bounded: a longer line is malformed and read past to its newline.
 //! Empty lines and lines starting with `#` are skipped silently. A line
-//! without `t` takes the arrival time.
+//! without `t` takes the arrival time; a `t` beyond what the link clock can
+//! step through (docs/links.md) is malformed, as the clock would stand still.
 
 use crate::attitude::quat_from_rpy_deg;
 use crate::link::Counters;
@@ -32,6 +33,13 @@ pub enum LineError {
         /// Value text.
         found: String,
     },
+    /// A time the link clock cannot step through (beyond
+    /// [`MAX_TIME_S`](crate::link::clock::MAX_TIME_S) either way).
+    #[error(
+        "key t: expected a time within {max:e} s either side of zero, found {0:?}",
+        max = crate::link::clock::MAX_TIME_S
+    )]
+    TimeRange(String),
     /// `armed` not 0 or 1.
     #[error("key armed: expected 0 or 1, found {0:?}")]
     BadArmed(String),
@@ -94,39 +102,39 @@ pub fn parse_line(line: &str, arrival_s: f64) -> Result<Option<Sample>, LineErro
                 }
             }
         };
+        if k == "t" && !crate::link::clock::time_in_range(x) {
+            return Err(LineError::TimeRange(v.chars().take(40).collect()));
+        }
         vals[idx] = Some(x);
     }
     if vals.iter().all(Option::is_none) {
         return Err(LineError::Empty);
     }
-    let group =
-        |r: std::ops::Range<usize>, name: &'static str| -> Result<Option<Vec<f64>>, LineError> {
-            let g: Vec<Option<f64>> = vals[r].to_vec();
-            if g.iter().all(Option::is_some) {
-                Ok(Some(g.into_iter().flatten().collect()))
-            } else if g.iter().all(Option::is_none) {
-                Ok(None)
-            } else {
-                Err(LineError::Incomplete(name))
-            }
-        };
+    // Groups come whole or not at all (nothing allocated per line).
+    let group = |r: std::ops::Range<usize>, name: &'static str| -> Result<bool, LineError> {
+        let n = vals[r.clone()].iter().filter(|v| v.is_some()).count();
+        match n {
+            0 => Ok(false),
+            n if n == r.len() => Ok(true),
+            _ => Err(LineError::Incomplete(name)),
+        }
+    };
+    let v = |i: usize| vals[i].unwrap_or(0.0);
     let rpy = group(1..4, "roll pitch yaw")?;
     let q = group(4..8, "qw qx qy qz")?;
     let acc = group(8..11, "ax ay az")?;
     let vel = group(11..14, "vn ve vd")?;
     let attitude = match (rpy, q) {
-        (Some(_), Some(_)) => return Err(LineError::BothAttitudes),
-        (Some(e), None) => Some(quat_from_rpy_deg(e[0], e[1], e[2])),
-        (None, Some(q)) => {
-            Some(unit_quaternion([q[0], q[1], q[2], q[3]]).ok_or(LineError::NotUnit)?)
-        }
-        (None, None) => None,
+        (true, true) => return Err(LineError::BothAttitudes),
+        (true, false) => Some(quat_from_rpy_deg(v(1), v(2), v(3))),
+        (false, true) => Some(unit_quaternion([v(4), v(5), v(6), v(7)]).ok_or(LineError::NotUnit)?),
+        (false, false) => None,
     };
     Ok(Some(Sample {
         t_s: vals[0].unwrap_or(arrival_s),
         attitude,
-        accel_body_m_s2: acc.map(|a| Vector3::new(a[0], a[1], a[2])),
-        velocity_ned_m_s: vel.map(|v| Vector3::new(v[0], v[1], v[2])),
+        accel_body_m_s2: acc.then(|| Vector3::new(v(8), v(9), v(10))),
+        velocity_ned_m_s: vel.then(|| Vector3::new(v(11), v(12), v(13))),
         battery_v: vals[14],
         armed: vals[15].map(|a| a > 0.5),
     }))
@@ -219,7 +227,7 @@ mod tests {
         .expect("parses")
         .expect("a sample");
         assert_eq!(s.t_s, 12.5);
-        // REFERENCES.md: roll 10, pitch 20, yaw 30 deg -> q (computed, scipy Rotation).
+        // docs/references.md: roll 10, pitch 20, yaw 30 deg -> q (computed, scipy Rotation).
         let q = s.attitude.expect("attitude").coords;
         assert_relative_eq!(q.w, 0.951548525, epsilon = 1e-9);
         assert_relative_eq!(q.x, 0.038134576, epsilon = 1e-9);
@@ -241,7 +249,7 @@ mod tests {
         .expect("a sample");
         assert_eq!(s.t_s, 4.0);
         let rpy = rpy_deg(&s.attitude.expect("attitude"));
-        // Same REFERENCES.md attitude vector, the other way round.
+        // Same docs/references.md attitude vector, the other way round.
         assert_relative_eq!(rpy[0], 10.0, epsilon = 1e-6);
         assert_relative_eq!(rpy[1], 20.0, epsilon = 1e-6);
         assert_relative_eq!(rpy[2], 30.0, epsilon = 1e-6);
@@ -277,6 +285,10 @@ mod tests {
                 LineError::BothAttitudes,
             ),
             ("foo=1 bar=2", LineError::Empty),
+            // 3e15 s: doubles there are 0.5 apart, so a 0.25 s tick cannot
+            // step the clock (IEEE 754 binary64 spacing, docs/links.md).
+            ("t=3e15 vbat=12", LineError::TimeRange("3e15".into())),
+            ("t=-3e15 vbat=12", LineError::TimeRange("-3e15".into())),
         ];
         for (line, want) in cases {
             assert_eq!(parse_line(line, 0.0), Err(want), "{line}");

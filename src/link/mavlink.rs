@@ -1,18 +1,22 @@
-//! MAVLink v1 and v2 framing for the DESIGN.md subset, hand-written: the
+//! MAVLink v1 and v2 framing for the docs/design.md subset, hand-written: the
 //! subset is eight messages, and a decoder we own can count every kind of
 //! trouble (bad CRC, unknown id, refused sender) the link-health line shows.
 //!
 //! The streaming decoder takes bytes as they arrive and hands back frames.
-//! Its rules (REFERENCES.md, MAVLink): the CRC is CRC-16/MCRF4XX over every
+//! Its rules (docs/references.md, MAVLink): the CRC is CRC-16/MCRF4XX over every
 //! byte after the start byte, then the message's CRC_EXTRA; a MAVLink 2
 //! payload may be truncated (trailing zeros dropped) and is zero-filled; a
 //! payload longer than we know is accepted and the rest ignored; after a bad
 //! candidate the search resumes one byte past its start byte; a frame with
 //! an id outside the subset cannot be checked, so it is counted and skipped
 //! whole when the byte after it starts another frame (else it is noise and
-//! the search resumes one byte on). Memory is bounded: the buffer never holds more than one chunk plus
-//! one incomplete frame, and the output queue drops (and counts) its oldest
-//! frames when nobody pulls.
+//! the search resumes one byte on), and never when a frame we can check
+//! (a known id with a good CRC) starts inside it: the checkable frame wins.
+//! At the end of a finite input ([`MavDecoder::finish`]) a candidate still
+//! waiting for bytes is resumed past, so the frames it claimed are read.
+//! Memory is bounded: the buffer never holds more than one chunk plus two
+//! frames' worth (an unknown frame and a candidate inside it), and the
+//! output queue drops (and counts) its oldest frames when nobody pulls.
 
 pub mod messages;
 pub mod signing;
@@ -22,7 +26,7 @@ use crate::sample::{STANDARD_GRAVITY_M_S2, Sample};
 use crc::{CRC_16_MCRF4XX, Crc};
 pub use messages::Message;
 use nalgebra::{Quaternion, UnitQuaternion, Vector3};
-pub use signing::{SignatureVerdict, SigningKey, Verifier};
+pub use signing::{ReplayFloor, SignatureVerdict, SigningKey, Verifier};
 use std::collections::VecDeque;
 
 /// MAVLink 1 start byte.
@@ -36,6 +40,9 @@ const HDR_V2: usize = 10;
 pub const MAX_FRAME_LEN: usize = HDR_V2 + 255 + 2 + signing::SIGNATURE_LEN;
 /// Bytes taken from the caller per parse pass (bounds the buffer).
 const CHUNK: usize = 1024;
+/// Most bytes the decoder ever holds: one chunk, plus an unknown frame and
+/// a candidate inside it still waiting for its bytes.
+pub const MAX_BUFFERED: usize = CHUNK + 2 * MAX_FRAME_LEN;
 /// Frames kept for the caller before the oldest are dropped.
 const MAX_QUEUED: usize = 256;
 
@@ -73,6 +80,9 @@ pub struct MavConfig {
     pub sysid: Option<u8>,
     /// With a key, only frames signed with it (and not replayed) pass.
     pub signing_key: Option<SigningKey>,
+    /// The replay floor saved by an earlier run with the same key (live
+    /// links); none starts afresh.
+    pub replay_floor: Option<ReplayFloor>,
 }
 
 /// Streaming MAVLink decoder: push bytes, pull frames.
@@ -104,7 +114,9 @@ impl MavDecoder {
         MavDecoder {
             buf: Vec::with_capacity(CHUNK + MAX_FRAME_LEN),
             sysid: cfg.sysid,
-            verifier: cfg.signing_key.map(Verifier::new),
+            verifier: cfg
+                .signing_key
+                .map(|k| Verifier::with_floor(k, cfg.replay_floor.unwrap_or_default())),
             out: VecDeque::new(),
             counters: Counters::default(),
         }
@@ -120,6 +132,12 @@ impl MavDecoder {
         self.buf.len()
     }
 
+    /// The signature checker, when a key is set (the caller sets its wall
+    /// clock and saves its floor).
+    pub fn verifier_mut(&mut self) -> Option<&mut Verifier> {
+        self.verifier.as_mut()
+    }
+
     /// Feed received bytes.
     pub fn push(&mut self, data: &[u8]) {
         for chunk in data.chunks(CHUNK) {
@@ -133,7 +151,18 @@ impl MavDecoder {
         self.out.pop_front()
     }
 
+    /// End of input: nothing more will come, so a candidate still waiting
+    /// for bytes is no frame. The search resumes one byte past it, so good
+    /// frames it claimed are read after all.
+    pub fn finish(&mut self) {
+        self.parse_with(true);
+    }
+
     fn parse(&mut self) {
+        self.parse_with(false);
+    }
+
+    fn parse_with(&mut self, at_end: bool) {
         let mut i = 0;
         loop {
             match self.buf[i..]
@@ -146,7 +175,11 @@ impl MavDecoder {
                 }
                 Some(k) => i += k,
             }
-            match self.candidate(i) {
+            match self.candidate(i, at_end) {
+                Candidate::Incomplete if at_end => {
+                    self.counters.crc_errors += 1;
+                    i += 1;
+                }
                 Candidate::Incomplete => break,
                 Candidate::Bad => {
                     self.counters.crc_errors += 1;
@@ -174,49 +207,37 @@ impl MavDecoder {
         self.buf.drain(..i.min(self.buf.len()));
     }
 
-    fn candidate(&mut self, i: usize) -> Candidate {
+    fn candidate(&mut self, i: usize, at_end: bool) -> Candidate {
         let b = &self.buf[i..];
-        let v2 = b[0] == STX_V2;
-        let hdr = if v2 { HDR_V2 } else { HDR_V1 };
-        if b.len() < hdr {
-            return Candidate::Incomplete;
-        }
-        let len = b[1] as usize;
-        let (incompat, seq, sysid, compid, msgid) = if v2 {
-            let id = u32::from_le_bytes([b[7], b[8], b[9], 0]);
-            (b[2], b[4], b[5], b[6], id)
-        } else {
-            (0, b[2], b[3], b[4], b[5] as u32)
+        let shape = match Shape::of(b) {
+            ShapeOf::Incomplete => return Candidate::Incomplete,
+            ShapeOf::Bad => return Candidate::Bad,
+            ShapeOf::Shape(s) => s,
         };
-        if incompat & !signing::INCOMPAT_SIGNED != 0 {
-            // A flag we do not understand: this cannot be a frame we can read.
-            return Candidate::Bad;
-        }
-        let signed = incompat & signing::INCOMPAT_SIGNED != 0;
-        let total = hdr + len + 2 + if signed { signing::SIGNATURE_LEN } else { 0 };
-        if b.len() < total {
-            return Candidate::Incomplete;
-        }
-        let Some(info) = messages::lookup(msgid) else {
+        let total = shape.total;
+        let Some(info) = messages::lookup(shape.msgid) else {
             // Unknown ids cannot be checked. Take it as a frame only when the
-            // next byte starts another one; otherwise a stray start byte in
-            // noise would swallow the good frames after it.
-            return match b.get(total) {
-                None => Candidate::Incomplete,
-                Some(&n) if n == STX_V1 || n == STX_V2 => Candidate::Unknown(total),
-                Some(_) => Candidate::Bad,
+            // next byte starts another one (or the input ends with it), and
+            // no frame we can check starts inside it: otherwise a stray
+            // start byte would swallow the good frames after it.
+            let next_ok = match b.get(total) {
+                None if at_end => true,
+                None => return Candidate::Incomplete,
+                Some(&n) => n == STX_V1 || n == STX_V2,
+            };
+            if !next_ok {
+                return Candidate::Bad;
+            }
+            return match checkable_frame_inside(&b[..total.min(b.len())], &b[1..], at_end) {
+                Inside::Found => Candidate::Bad,
+                Inside::Wait => Candidate::Incomplete,
+                Inside::None => Candidate::Unknown(total),
             };
         };
-        let crc_at = hdr + len;
-        let crc = u16::from_le_bytes([b[crc_at], b[crc_at + 1]]);
-        if checksum(&b[1..crc_at], info.crc_extra) != crc {
+        if !shape.crc_ok(b, info) {
             return Candidate::Bad;
         }
-        if !v2 && len < info.base_len {
-            // Only MAVLink 2 may drop trailing zeros; a short v1 payload is
-            // damaged or from a sender we cannot read.
-            return Candidate::Bad;
-        }
+        let (sysid, compid, signed) = (shape.sysid, shape.compid, shape.signed);
         if self.sysid.is_some_and(|want| want != sysid) {
             return Candidate::Rejected(total);
         }
@@ -226,13 +247,13 @@ impl MavDecoder {
             return Candidate::Rejected(total);
         }
         let mut payload = [0u8; messages::MAX_FULL_LEN];
-        let n = len.min(info.full_len);
-        payload[..n].copy_from_slice(&b[hdr..hdr + n]);
-        match Message::decode(msgid, &payload) {
+        let n = shape.len.min(info.full_len);
+        payload[..n].copy_from_slice(&b[shape.hdr..shape.hdr + n]);
+        match Message::decode(shape.msgid, &payload) {
             Some(message) => Candidate::Good(
                 Frame {
-                    version: if v2 { 2 } else { 1 },
-                    seq,
+                    version: if shape.v2 { 2 } else { 1 },
+                    seq: shape.seq,
                     sysid,
                     compid,
                     signed,
@@ -244,6 +265,119 @@ impl MavDecoder {
             None => Candidate::Unknown(total),
         }
     }
+}
+
+/// The header of a candidate frame.
+#[derive(Debug, Clone, Copy)]
+struct Shape {
+    v2: bool,
+    hdr: usize,
+    len: usize,
+    seq: u8,
+    sysid: u8,
+    compid: u8,
+    msgid: u32,
+    signed: bool,
+    /// Whole frame length, signature included.
+    total: usize,
+}
+
+enum ShapeOf {
+    Incomplete,
+    Bad,
+    Shape(Shape),
+}
+
+impl Shape {
+    /// Read the header at the start of `b` (which begins with a start byte).
+    fn of(b: &[u8]) -> ShapeOf {
+        let v2 = b[0] == STX_V2;
+        let hdr = if v2 { HDR_V2 } else { HDR_V1 };
+        if b.len() < hdr {
+            return ShapeOf::Incomplete;
+        }
+        let len = b[1] as usize;
+        let (incompat, seq, sysid, compid, msgid) = if v2 {
+            let id = u32::from_le_bytes([b[7], b[8], b[9], 0]);
+            (b[2], b[4], b[5], b[6], id)
+        } else {
+            (0, b[2], b[3], b[4], b[5] as u32)
+        };
+        if incompat & !signing::INCOMPAT_SIGNED != 0 {
+            // A flag we do not understand: this cannot be a frame we can read.
+            return ShapeOf::Bad;
+        }
+        let signed = incompat & signing::INCOMPAT_SIGNED != 0;
+        let total = hdr + len + 2 + if signed { signing::SIGNATURE_LEN } else { 0 };
+        if b.len() < total {
+            return ShapeOf::Incomplete;
+        }
+        ShapeOf::Shape(Shape {
+            v2,
+            hdr,
+            len,
+            seq,
+            sysid,
+            compid,
+            msgid,
+            signed,
+            total,
+        })
+    }
+
+    /// The CRC matches, and a MAVLink 1 payload is not shorter than its
+    /// message (only MAVLink 2 may drop trailing zeros; a short v1 payload
+    /// is damaged or from a sender we cannot read).
+    fn crc_ok(&self, b: &[u8], info: &messages::MessageInfo) -> bool {
+        let crc_at = self.hdr + self.len;
+        let crc = u16::from_le_bytes([b[crc_at], b[crc_at + 1]]);
+        checksum(&b[1..crc_at], info.crc_extra) == crc && (self.v2 || self.len >= info.base_len)
+    }
+}
+
+enum Inside {
+    /// A frame we can check starts inside.
+    Found,
+    /// A candidate inside needs bytes that have not come yet.
+    Wait,
+    /// Nothing we can check starts inside.
+    None,
+}
+
+/// Whether a frame of a known id with a good CRC starts inside `claimed`
+/// (after its first byte). `rest` is everything buffered from the byte after
+/// the claim's start, since an inner frame may run past the claim.
+fn checkable_frame_inside(claimed: &[u8], rest: &[u8], at_end: bool) -> Inside {
+    let mut wait = false;
+    for (k, _) in claimed
+        .iter()
+        .enumerate()
+        .skip(1)
+        .filter(|(_, b)| **b == STX_V1 || **b == STX_V2)
+    {
+        let b = &rest[k - 1..];
+        match Shape::of(b) {
+            ShapeOf::Bad => {}
+            ShapeOf::Incomplete => {
+                // Only a known id could win; wait for its bytes.
+                let known = if b[0] == STX_V2 {
+                    b.len() < HDR_V2
+                        || messages::lookup(u32::from_le_bytes([b[7], b[8], b[9], 0])).is_some()
+                } else {
+                    b.len() < HDR_V1 || messages::lookup(u32::from(b[5])).is_some()
+                };
+                wait |= known && !at_end;
+            }
+            ShapeOf::Shape(s) => {
+                if let Some(info) = messages::lookup(s.msgid)
+                    && s.crc_ok(b, info)
+                {
+                    return Inside::Found;
+                }
+            }
+        }
+    }
+    if wait { Inside::Wait } else { Inside::None }
 }
 
 /// Signing parameters for an outgoing frame.
@@ -366,16 +500,16 @@ impl SampleMaker {
                 s.battery_v = Some(f64::from(*voltage_battery_mv) / 1000.0);
             }
             Message::BatteryStatus { voltages_mv, .. } => {
-                let known: Vec<u16> = voltages_mv
-                    .iter()
-                    .copied()
-                    .filter(|&v| v != messages::UNKNOWN_U16)
-                    .collect();
-                if known.is_empty() {
+                let (mut sum_mv, mut known) = (0.0, 0usize);
+                for &v in voltages_mv.iter().filter(|&&v| v != messages::UNKNOWN_U16) {
+                    sum_mv += f64::from(v);
+                    known += 1;
+                }
+                if known == 0 {
                     return SampleOutcome::Nothing;
                 }
                 s.t_s = t(None, self);
-                s.battery_v = Some(known.iter().map(|&v| f64::from(v)).sum::<f64>() / 1000.0);
+                s.battery_v = Some(sum_mv / 1000.0);
             }
             Message::ScaledImu {
                 time_boot_ms,

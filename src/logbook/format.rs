@@ -438,11 +438,13 @@ mod tests {
                         text: "Battery".into(),
                         result: ItemResult::Pass,
                         detail: Some("8.1 V".into()),
+                        ..Default::default()
                     },
                     PreflightItemResult {
                         text: "Props".into(),
                         result: ItemResult::Skipped,
                         detail: None,
+                        ..Default::default()
                     },
                 ],
                 signed_off: true,
@@ -573,6 +575,7 @@ mod tests {
             face_displacement_m: 0.0,
             slack_strings: vec![],
             beyond_model: false,
+            detection: None,
             members: vec![],
             note: None,
         });

@@ -140,13 +140,8 @@ impl OpenReport {
 
 /// The log file name for a vehicle id: `<id>.cagelog`.
 pub fn log_file_name(vehicle_id: &str) -> Result<String, StoreError> {
-    let ok = !vehicle_id.is_empty()
-        && vehicle_id.len() <= 128
-        && !vehicle_id.starts_with('.')
-        && vehicle_id
-            .bytes()
-            .all(|b| b.is_ascii_alphanumeric() || b == b'.' || b == b'_' || b == b'-');
-    if ok {
+    // The one rule `profile check` also applies.
+    if crate::profile::is_valid_vehicle_id(vehicle_id) {
         Ok(format!("{vehicle_id}.cagelog"))
     } else {
         Err(StoreError::BadVehicleId(vehicle_id.to_string()))

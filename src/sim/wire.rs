@@ -148,7 +148,7 @@ mod tests {
         for proto in [Proto::Mavlink, Proto::Line] {
             let mut sim = Sim::new(&c, 5);
             let mut w = Wire::new(proto);
-            let mut d = Decoder::new(Proto::Auto, Default::default());
+            let mut d = Decoder::new(Proto::Auto, Default::default()).expect("no key");
             let mut last = None;
             for _ in 0..100 {
                 sim.step(1.0 / SIM_RATE_HZ);

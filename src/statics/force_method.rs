@@ -41,7 +41,7 @@ pub(crate) fn max_passes(b: usize) -> usize {
 /// frame) on the structure carrying `prestress_n`.
 ///
 /// Fails with [`StaticsError::ActiveSetCycled`] when the set of slack
-/// strings has not settled after [`max_passes`] passes.
+/// strings has not settled after `max_passes` passes.
 pub fn linear_load_case(
     s: &Structure,
     prestress_n: &[f64],

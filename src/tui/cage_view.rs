@@ -56,10 +56,11 @@ pub fn cage(model: &Model, frame: &mut Frame, area: Rect) {
         .enumerate()
         .skip(model.cage_scroll)
         .map(|(i, m)| {
-            let (kind, cap) = match m.kind {
-                MemberKind::Rod => ("rod", p.rod.capacity_n(m.length_m)),
-                MemberKind::String => ("string", p.string.capacity_n()),
+            let kind = match m.kind {
+                MemberKind::Rod => "rod",
+                MemberKind::String => "string",
             };
+            let cap = crate::statics::capacity_n(p, m.kind, m.length_m);
             let h = model
                 .health
                 .as_ref()

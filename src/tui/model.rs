@@ -109,6 +109,9 @@ pub struct LiveView {
     /// The latest attitude and the rest detector's answer, on the link
     /// clock (None while stale): what the righting stepper verifies from.
     pub rest: Option<RestSample>,
+    /// The pre-flight checklist evaluated by the core against this state
+    /// and the cage log (None until the feed has evaluated it).
+    pub preflight: Option<crate::preflight::Evaluation>,
 }
 
 /// One attitude with the rest detector's answer.
@@ -137,6 +140,7 @@ impl LiveView {
                 ..LinkView::default()
             },
             rest: None,
+            preflight: None,
         }
     }
 }

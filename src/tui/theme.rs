@@ -27,6 +27,19 @@ impl ColourDepth {
         }
     }
 
+    /// Decide from the `--color` choice: `never` is no colour, `always`
+    /// ignores NO_COLOR, `auto` reads the environment.
+    pub fn for_choice(choice: crate::cli::ColorChoice) -> ColourDepth {
+        use crate::cli::ColorChoice;
+        match choice {
+            ColorChoice::Never => ColourDepth::None,
+            ColorChoice::Always => {
+                ColourDepth::detect(None, std::env::var("COLORTERM").ok().as_deref())
+            }
+            ColorChoice::Auto => ColourDepth::from_env(),
+        }
+    }
+
     /// Decide from this process's environment.
     pub fn from_env() -> ColourDepth {
         ColourDepth::detect(

@@ -1,4 +1,4 @@
-//! Payloads of the MAVLink messages cagehand reads (DESIGN.md subset), as
+//! Payloads of the MAVLink messages cagehand reads (docs/design.md subset), as
 //! typed values, with the wire layout of common.xml: fields sorted by type
 //! size, extensions appended. Decoding takes a payload already zero-filled to
 //! the full length; encoding (for the simulator and tests) writes the full
@@ -19,7 +19,7 @@ pub struct MessageInfo {
     pub full_len: usize,
 }
 
-/// The message table. Values from REFERENCES.md (MAVLink common.xml).
+/// The message table. Values from docs/references.md (MAVLink common.xml).
 pub const KNOWN: [MessageInfo; 8] = [
     info(0, "HEARTBEAT", 50, 9, 9),
     info(1, "SYS_STATUS", 124, 31, 43),

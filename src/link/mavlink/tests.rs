@@ -1,4 +1,4 @@
-//! Decoder checks against REFERENCES.md frames and frames produced by an
+//! Decoder checks against docs/references.md frames and frames produced by an
 //! independent implementation (pymavlink 2.4.50, tests/fixtures/mavlink).
 
 use super::*;
@@ -12,7 +12,7 @@ fn unhex(s: &str) -> Vec<u8> {
         .collect()
 }
 
-// pymavlink 2.4.50 reference frames, REFERENCES.md.
+// pymavlink 2.4.50 reference frames, docs/references.md.
 const REF_V1_ATTITUDE: &str =
     "fe1c0001011e40e20100cdcccc3dcdcc4cbe0000c03f0ad7233c0ad7a3bc8fc2f53c4c6c";
 const REF_V2_ATTQ: &str = "fd2400000101011f000040e20100e145393f64b6d53d75fb1fbd6a582e3f0ad7233c0ad7a3bc8fc2f53c0000803f9a55";
@@ -44,7 +44,7 @@ fn decode_all(cfg: MavConfig, bytes: &[u8]) -> (Vec<Frame>, Counters) {
 #[test]
 fn crc_check_value() {
     // CRC catalogue, CRC-16/MCRF4XX: check value of "123456789" is 0x6F91
-    // (REFERENCES.md). Our checksum appends CRC_EXTRA, so compare the plain CRC.
+    // (docs/references.md). Our checksum appends CRC_EXTRA, so compare the plain CRC.
     assert_eq!(X25.checksum(b"123456789"), 0x6F91);
 }
 
@@ -53,7 +53,7 @@ fn reference_v1_attitude() {
     let (f, c) = decode_all(MavConfig::default(), &unhex(REF_V1_ATTITUDE));
     assert_eq!(c.frames, 1);
     assert_eq!((f[0].version, f[0].sysid, f[0].compid), (1, 1, 1));
-    // pymavlink 2.4.50 reference frames, REFERENCES.md: time 123456 ms,
+    // pymavlink 2.4.50 reference frames, docs/references.md: time 123456 ms,
     // roll 0.1, pitch -0.2, yaw 1.5 rad, rates 0.01, -0.02, 0.03.
     let Message::Attitude {
         time_boot_ms,
@@ -72,7 +72,7 @@ fn reference_v1_attitude() {
 fn reference_v2_attitude_quaternion() {
     let (f, c) = decode_all(MavConfig::default(), &unhex(REF_V2_ATTQ));
     assert_eq!(c.frames, 1);
-    // pymavlink 2.4.50 reference frames, REFERENCES.md.
+    // pymavlink 2.4.50 reference frames, docs/references.md.
     let Message::AttitudeQuaternion {
         time_boot_ms, q, ..
     } = f[0].message
@@ -91,7 +91,7 @@ fn reference_v2_attitude_quaternion() {
 #[test]
 fn reference_v2_heartbeat_armed() {
     let (f, _) = decode_all(MavConfig::default(), &unhex(REF_V2_HEARTBEAT));
-    // pymavlink 2.4.50 reference frames, REFERENCES.md: quadrotor, armed
+    // pymavlink 2.4.50 reference frames, docs/references.md: quadrotor, armed
     // (base_mode 0x81), active.
     let Message::Heartbeat {
         mav_type,
@@ -301,7 +301,7 @@ fn longer_payload_than_known_is_accepted() {
 
 #[test]
 fn short_v1_payload_is_bad_even_with_a_good_crc() {
-    // REFERENCES.md (MAVLink): v2 drops trailing zero bytes; v1 senders may
+    // docs/references.md (MAVLink): v2 drops trailing zero bytes; v1 senders may
     // send length >= base, never less. A v1 HEARTBEAT of 8 of its 9 bytes.
     let mut frame = vec![STX_V1, 8, 0, 1, 1, 0, 7, 0, 0, 0, 2, 3, 0x81, 4];
     let crc = checksum(&frame[1..], 50);
@@ -361,8 +361,8 @@ fn signing_right_key_wrong_key_unsigned_and_replay() {
     let (s1, _) = fixture("signed_attitude_1", 2);
     let (unsigned, _) = fixture("attitude", 2);
     let with = |k: &SigningKey| MavConfig {
-        sysid: None,
         signing_key: Some(k.clone()),
+        ..Default::default()
     };
     // Right key: both accepted.
     let mut both = s0.clone();
@@ -407,7 +407,7 @@ proptest! {
         let mut d = MavDecoder::new(MavConfig::default());
         for chunk in garbage.chunks(split) {
             d.push(chunk);
-            prop_assert!(d.buffered() <= CHUNK + MAX_FRAME_LEN);
+            prop_assert!(d.buffered() <= MAX_BUFFERED);
         }
         while d.pop().is_some() {}
         // A candidate started in the garbage can hold at most one maximum
@@ -420,6 +420,111 @@ proptest! {
             while let Some(f) = d.pop() { last = Some(f); }
         }
         prop_assert_eq!(last.map(|f| f.message.id()), Some(30));
-        prop_assert!(d.buffered() <= CHUNK + MAX_FRAME_LEN);
+        prop_assert!(d.buffered() <= MAX_BUFFERED);
     }
+}
+
+#[test]
+fn a_false_start_at_the_end_of_input_does_not_hide_the_frames_after_it() {
+    // A v2 start byte claiming a 200-byte payload of ATTITUDE, then three
+    // good frames (108 bytes): the claim can never complete, so at the end
+    // of the input the search resumes past it (docs/links.md).
+    let mut s = vec![0xFD, 200, 0, 0, 0, 1, 1, 30, 0, 0];
+    let good = unhex(REF_V1_ATTITUDE);
+    for _ in 0..3 {
+        s.extend_from_slice(&good);
+    }
+    let mut d = MavDecoder::new(MavConfig::default());
+    d.push(&s);
+    assert_eq!(d.counters().frames, 0, "still waiting for the claim");
+    d.finish();
+    let mut n = 0;
+    while d.pop().is_some() {
+        n += 1;
+    }
+    assert_eq!(n, 3);
+    assert_eq!(d.buffered(), 0);
+    // A frame cut short at the end is counted once, not read.
+    let mut d = MavDecoder::new(MavConfig::default());
+    d.push(&good[..20]);
+    d.finish();
+    assert_eq!((d.counters().frames, d.counters().crc_errors), (0, 1));
+}
+
+#[test]
+fn a_checkable_frame_inside_an_unknown_one_wins() {
+    // An unknown id (STATUSTEXT, 253) claiming 100 bytes, a good ATTITUDE
+    // frame starting 10 bytes in, padding so that the byte after the claim
+    // is a start byte (the case where the unknown frame used to be skipped
+    // whole), then a good frame there.
+    let good = unhex(REF_V1_ATTITUDE);
+    let mut s = vec![0xFD, 100, 0, 0, 0, 1, 1, 253, 0, 0];
+    s.extend_from_slice(&good);
+    let claim_end = 10 + 100 + 2;
+    s.resize(claim_end, 0x00);
+    s.extend_from_slice(&good);
+    let (f, c) = decode_all(MavConfig::default(), &s);
+    assert_eq!(f.len(), 2, "{c:?}");
+    assert_eq!(c.unknown, 0);
+    // A genuine unknown frame whose payload holds a start byte but no
+    // checkable frame is still skipped whole and counted as unknown.
+    let mut s = vec![0xFD, 20, 0, 0, 0, 1, 1, 253, 0, 0];
+    s.extend_from_slice(&[0xFE; 20]);
+    s.extend_from_slice(&[0x12, 0x34]);
+    s.extend_from_slice(&good);
+    let mut d = MavDecoder::new(MavConfig::default());
+    d.push(&s);
+    d.finish();
+    let c = d.counters();
+    assert_eq!((c.frames, c.unknown), (1, 1), "{c:?}");
+}
+
+#[test]
+fn signatures_are_held_to_the_saved_floor_and_the_new_stream_window() {
+    let key = SigningKey::from_bytes([3u8; 32]);
+    let msg = Message::Heartbeat {
+        mav_type: 2,
+        autopilot: 3,
+        base_mode: 0,
+        custom_mode: 0,
+        system_status: 3,
+    };
+    let frame = |link_id: u8, timestamp: u64| {
+        encode_frame(
+            2,
+            0,
+            1,
+            1,
+            &msg,
+            Some(SignWith {
+                key: &key,
+                link_id,
+                timestamp,
+            }),
+        )
+    };
+    let wall = 500_000_000_000u64;
+    // A first run accepts a frame and its floor is kept.
+    let mut d = MavDecoder::new(MavConfig {
+        signing_key: Some(key.clone()),
+        ..Default::default()
+    });
+    d.verifier_mut().expect("keyed").set_wall_clock(wall);
+    let captured = frame(0, wall + 10);
+    d.push(&captured);
+    assert_eq!(d.counters().frames, 1);
+    let floor = d.verifier_mut().expect("keyed").floor().clone();
+    // The next run, from that floor: the captured frame is a replay, a
+    // frame signed long ago on a new link id is too old, a fresh one passes.
+    let mut d = MavDecoder::new(MavConfig {
+        signing_key: Some(key.clone()),
+        replay_floor: Some(floor),
+        ..Default::default()
+    });
+    d.verifier_mut().expect("keyed").set_wall_clock(wall + 100);
+    d.push(&captured);
+    d.push(&frame(9, wall - 2 * signing::NEW_STREAM_WINDOW_TICKS));
+    assert_eq!((d.counters().frames, d.counters().rejected), (0, 2));
+    d.push(&frame(0, wall + 200));
+    assert_eq!(d.counters().frames, 1);
 }

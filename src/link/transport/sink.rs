@@ -1,0 +1,212 @@
+//! The reader's side of the channel: the decoder, the link clock, what was
+//! last sent, and the replay floor it keeps for live links with a key.
+
+use super::floor::FloorStore;
+use super::{LinkEvent, LinkMsg};
+use crate::link::clock::{TICK_S, silence_ticks};
+use crate::link::{Counters, Decoder};
+use std::sync::mpsc::{SyncSender, TrySendError};
+
+/// The reader's side of the channel, with its decoder.
+pub(super) struct Sink {
+    pub(super) tx: SyncSender<LinkMsg>,
+    pub(super) decoder: Decoder,
+    pub(super) raw: bool,
+    pub(super) blocking: bool,
+    pub(super) sample_clock: bool,
+    pub(super) clock_s: f64,
+    pub(super) last_sent_s: f64,
+    /// Counters last sent in a `Health` message (None: send them again).
+    pub(super) health_sent: Option<Counters>,
+    /// A sample has set the clock (`sample_clock` links only).
+    pub(super) clock_from_sample: bool,
+    /// Where the replay floor is kept (live links with a signing key).
+    pub(super) floor: Option<FloorStore>,
+}
+
+impl Sink {
+    /// A sink for a reader: `blocking` waits for the consumer instead of
+    /// dropping; `sample_clock` runs the link clock on sender time.
+    pub(super) fn new(
+        tx: SyncSender<LinkMsg>,
+        decoder: Decoder,
+        raw: bool,
+        blocking: bool,
+        sample_clock: bool,
+        floor: Option<FloorStore>,
+    ) -> Sink {
+        Sink {
+            tx,
+            decoder,
+            raw,
+            blocking,
+            sample_clock,
+            clock_s: 0.0,
+            last_sent_s: 0.0,
+            health_sent: None,
+            clock_from_sample: false,
+            floor,
+        }
+    }
+
+    /// Send; false once the consumer is gone.
+    pub(super) fn send(&mut self, msg: LinkMsg) -> bool {
+        self.last_sent_s = self.clock_s;
+        if self.blocking {
+            return self.tx.send(msg).is_ok();
+        }
+        match self.tx.try_send(msg) {
+            Ok(()) => true,
+            Err(TrySendError::Full(LinkMsg::Sample { .. })) => {
+                self.decoder.count_dropped(1);
+                true
+            }
+            Err(TrySendError::Full(LinkMsg::Health { .. })) => {
+                // Lost: send the counters with the next batch.
+                self.health_sent = None;
+                true
+            }
+            Err(TrySendError::Full(_)) => true,
+            Err(TrySendError::Disconnected(_)) => false,
+        }
+    }
+
+    pub(super) fn advance(&mut self, at_s: f64) {
+        if at_s.is_finite() && at_s > self.clock_s {
+            self.clock_s = at_s;
+        }
+    }
+
+    /// Bytes that arrived at `at_s`.
+    pub(super) fn data(&mut self, at_s: f64, bytes: &[u8]) -> bool {
+        self.advance(at_s);
+        if self.raw {
+            let at_s = self.clock_s;
+            return self.send(LinkMsg::Bytes {
+                at_s,
+                data: bytes.to_vec(),
+            });
+        }
+        if self.floor.is_some()
+            && let Some(v) = self.decoder.verifier_mut()
+        {
+            v.set_wall_clock(super::floor::wall_timestamp());
+        }
+        if self.sample_clock {
+            // One line at a time, so each sample's counters are its own
+            // (a captured line's frames count includes that line, no more).
+            for piece in bytes.split_inclusive(|&b| b == b'\n') {
+                self.decoder.push(piece, self.clock_s);
+                if !self.flush() {
+                    return false;
+                }
+            }
+            return true;
+        }
+        self.decoder.push(bytes, self.clock_s);
+        let ok = self.flush();
+        self.keep_floor(false);
+        ok
+    }
+
+    /// Save the replay floor when it moved (at most every
+    /// [`super::floor::SAVE_EVERY`], or now when `now`). A failure is told
+    /// once, as a note.
+    fn keep_floor(&mut self, now: bool) {
+        let Some(store) = self.floor.as_mut() else {
+            return;
+        };
+        let Some(v) = self.decoder.verifier_mut() else {
+            return;
+        };
+        if let Some(msg) = store.keep(v, now) {
+            let at_s = self.clock_s;
+            self.send(LinkMsg::Event {
+                at_s,
+                event: LinkEvent::Note(msg),
+            });
+        }
+    }
+
+    /// Send what the decoder has: the counters first (when they changed),
+    /// so a consumer never shows a sample with counters older than it, then
+    /// the samples, then the counters again if they changed meanwhile.
+    pub(super) fn flush(&mut self) -> bool {
+        while let Some(sample) = self.decoder.pop() {
+            if self.sample_clock {
+                if !self.gap_ticks(sample.t_s) {
+                    return false;
+                }
+                self.advance(sample.t_s);
+                self.clock_from_sample = true;
+            }
+            if !self.health() {
+                return false;
+            }
+            let at_s = self.clock_s;
+            if !self.send(LinkMsg::Sample { at_s, sample }) {
+                return false;
+            }
+        }
+        self.health()
+    }
+
+    /// The counters, if they changed since they were last sent.
+    fn health(&mut self) -> bool {
+        let counters = self.decoder.counters();
+        if self.health_sent == Some(counters) {
+            return true;
+        }
+        let at_s = self.clock_s;
+        self.health_sent = Some(counters);
+        self.send(LinkMsg::Health { at_s, counters })
+    }
+
+    /// Ticks for a silence in a capture on the sender's clock, as replays
+    /// of recordings have. Only between samples (the first sample sets the
+    /// clock); capped as [`silence_ticks`] caps them.
+    fn gap_ticks(&mut self, next_s: f64) -> bool {
+        if !self.clock_from_sample {
+            return true;
+        }
+        for t in silence_ticks(self.clock_s, next_s) {
+            self.advance(t);
+            if !self.send(LinkMsg::Tick { at_s: t }) {
+                return false;
+            }
+        }
+        true
+    }
+
+    /// A tick if the link has been quiet for [`TICK_S`].
+    pub(super) fn tick(&mut self, at_s: f64) -> bool {
+        self.advance(at_s);
+        self.keep_floor(false);
+        if self.clock_s - self.last_sent_s >= TICK_S {
+            let at_s = self.clock_s;
+            return self.send(LinkMsg::Tick { at_s });
+        }
+        true
+    }
+
+    pub(super) fn event(&mut self, event: LinkEvent) -> bool {
+        let at_s = self.clock_s;
+        self.send(LinkMsg::Event { at_s, event })
+    }
+
+    /// A finite input ended.
+    pub(super) fn end(&mut self) {
+        self.decoder.finish(self.clock_s);
+        self.flush();
+        let at_s = self.clock_s;
+        let _ = self.tx.send(LinkMsg::End { at_s });
+    }
+}
+
+impl Drop for Sink {
+    fn drop(&mut self) {
+        // The reader is ending: what the floor learned since its last save
+        // must not be lost, or those frames could be replayed next run.
+        self.keep_floor(true);
+    }
+}

@@ -1,0 +1,197 @@
+//! The validated vehicle: a profile, the cage built from it, and every
+//! check that needs both. Every command and the screens load a vehicle
+//! through [`load`] (or [`demo`]); nothing else builds a cage from a file.
+//!
+//! The profile checks each key on its own and against its section
+//! (`crate::profile`); the checks here need the built cage (the hull's face
+//! numbering, member lengths, the self-stress). Each refusal is located at
+//! the key it is about through [`Profile::invalid`].
+//!
+//! To add a check that needs the cage: write a [`CageCheck`] function below
+//! and list it in [`CAGE_CHECKS`]; point its refusal at a key path from
+//! `crate::profile` (`takeoff_face_path`, `member_path`, `cage_key`, ...).
+
+use crate::cage::{Cage, CageError};
+use crate::profile::{
+    DEMO_PROFILE_NAME, DEMO_PROFILE_TOML, Profile, ProfileError, TakeoffFaces, cage_key,
+    pretension_path, takeoff_face_path, vehicle_key,
+};
+use crate::statics::{StaticsError, Structure, self_stress};
+
+/// A profile that passed every check, and its cage.
+#[derive(Debug, Clone)]
+pub struct Loaded {
+    /// The profile.
+    pub profile: Profile,
+    /// Its cage.
+    pub cage: Cage,
+}
+
+/// Why a vehicle could not be loaded.
+#[derive(Debug, Clone, PartialEq, thiserror::Error)]
+pub enum LoadError {
+    /// The profile is refused, at a key (bad input).
+    #[error(transparent)]
+    Profile(#[from] ProfileError),
+    /// A computation the checks need did not finish (not the file's fault).
+    #[error("{file}: checking the prestress: {source}")]
+    Statics {
+        /// File name as given by the caller.
+        file: String,
+        /// What failed.
+        source: StaticsError,
+    },
+}
+
+/// A check that needs the built cage.
+pub type CageCheck = fn(&Profile, &Cage) -> Result<(), LoadError>;
+
+/// The checks that need the built cage, in the order they run.
+pub const CAGE_CHECKS: &[CageCheck] = &[takeoff_faces_exist, prestress_within_capacity];
+
+/// Load a vehicle from a profile file's bytes; `file` names it in messages.
+pub fn load(bytes: &[u8], file: &str) -> Result<Loaded, LoadError> {
+    Loaded::new(Profile::parse_bytes(bytes, file)?)
+}
+
+/// The bundled demo vehicle (invented data).
+pub fn demo() -> Result<Loaded, LoadError> {
+    load(DEMO_PROFILE_TOML.as_bytes(), DEMO_PROFILE_NAME)
+}
+
+impl Loaded {
+    /// Build the cage of a parsed profile and run every check on both.
+    pub fn new(profile: Profile) -> Result<Loaded, LoadError> {
+        let cage = Cage::from_profile(&profile).map_err(|e| cage_refusal(&profile, e))?;
+        for check in CAGE_CHECKS {
+            check(&profile, &cage)?;
+        }
+        Ok(Loaded { profile, cage })
+    }
+}
+
+/// A cage that cannot be built, located at the key that decides it.
+fn cage_refusal(p: &Profile, e: CageError) -> LoadError {
+    let err = match e {
+        CageError::Hull(h) => p.invalid(
+            &cage_key("node"),
+            "nodes that span a volume (a convex cage)",
+            h.to_string(),
+        ),
+        CageError::RodsTooHeavy { rods_kg, mass_kg } => p.invalid(
+            &vehicle_key("mass_kg"),
+            format!("a mass above the rods' own {rods_kg:.3} kg (by their section and density)"),
+            format!("{mass_kg} kg"),
+        ),
+        CageError::PayloadCannotCarryCom { com_m, nodes } => p.invalid(
+            &vehicle_key("com_m"),
+            "a centre of mass the payload nodes can carry without a negative share of the payload (name payload nodes around it, or none to use them all)",
+            format!("{com_m:?} with payload nodes {nodes:?}"),
+        ),
+        CageError::UnknownFace(id, count) => p.invalid(
+            &takeoff_face_path(0).parent().unwrap_or_default(),
+            format!("a face of this cage (it has F1..F{count})"),
+            id,
+        ),
+    };
+    LoadError::Profile(err)
+}
+
+/// Every listed take-off face is a face of the cage (the hull numbers them).
+fn takeoff_faces_exist(p: &Profile, c: &Cage) -> Result<(), LoadError> {
+    let TakeoffFaces::List(ids) = &p.righting.takeoff_faces else {
+        return Ok(());
+    };
+    for (i, id) in ids.iter().enumerate() {
+        if c.face_index(id).is_none() {
+            return Err(p
+                .invalid(
+                    &takeoff_face_path(i),
+                    format!("a face of this cage (it has F1..F{})", c.faces.len()),
+                    format!("{id}, which is not a face of this cage"),
+                )
+                .into());
+        }
+    }
+    Ok(())
+}
+
+/// The pretension alone must leave every member within its capacity: a
+/// rod that buckles under the prestress has no reserve for any impact.
+/// A cage with no self-stress carries no prestress (the impact analysis
+/// refuses it on its own).
+fn prestress_within_capacity(p: &Profile, c: &Cage) -> Result<(), LoadError> {
+    let s = Structure::from_cage(c, p);
+    let ss = self_stress(&s, p.string.pretension_n).map_err(|source| LoadError::Statics {
+        file: p.source.clone(),
+        source,
+    })?;
+    // A utilisation that is not a number counts as beyond capacity (fail safe).
+    let mut worst: Option<(usize, f64, f64, f64)> = None;
+    for (j, (bar, &t)) in s.bars.iter().zip(&ss.prestress_n).enumerate() {
+        let u = bar.utilisation(t);
+        let u = if u.is_nan() { f64::INFINITY } else { u };
+        if worst.is_none_or(|w| u > w.1) {
+            worst = Some((j, u, t, bar.capacity_n));
+        }
+    }
+    let Some((j, u, force_n, capacity_n)) = worst else {
+        return Ok(());
+    };
+    if u < 1.0 {
+        return Ok(());
+    }
+    let limit_n = if u.is_finite() && u > 0.0 {
+        p.string.pretension_n / u
+    } else {
+        0.0
+    };
+    Err(p
+        .invalid(
+            &pretension_path(),
+            format!(
+                "a pretension that leaves every member within its capacity (below {limit_n:.1} N for this cage)"
+            ),
+            format!(
+                "{} N, which loads {} to {:.1} N against a capacity of {:.1} N before any impact",
+                p.string.pretension_n,
+                s.member_id(j),
+                force_n.abs(),
+                capacity_n
+            ),
+        )
+        .into())
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn the_demo_vehicle_loads() {
+        let l = demo().expect("demo vehicle");
+        assert_eq!(l.cage.faces.len(), 20);
+    }
+
+    #[test]
+    fn a_pretension_that_buckles_the_rods_is_refused_at_its_key() {
+        // The demo's rods: CFRP tube 8/6 mm, E 90 GPa, L 0.40 m. Pinned-end
+        // Euler load pi^2 E I / L^2 with I = pi (D^4 - d^4) / 64 = 137.4 mm^4
+        // (Roark's Formulas for Stress and Strain, Table 15.1) gives 763 N.
+        // In the six-strut cage at equilibrium spacing every rod carries
+        // sqrt(6) times the string tension (Tibert & Pellegrino 2003, the
+        // expanded octahedron's self-stress; docs/references.md), so 400 N of pretension puts
+        // about 980 N on each rod: beyond buckling. The string's own
+        // capacity (700 N x 0.6 = 420 N) is not reached.
+        let text = DEMO_PROFILE_TOML.replace("pretension_n = 20.0", "pretension_n = 400.0");
+        let e = load(text.as_bytes(), "p.toml").unwrap_err();
+        let line = text
+            .lines()
+            .position(|l| l.starts_with("pretension_n"))
+            .unwrap()
+            + 1;
+        let msg = e.to_string();
+        assert!(msg.starts_with(&format!("p.toml:{line}:16: cage.string_section.pretension_n: expected a pretension that leaves every member within its capacity")), "{msg}");
+        assert!(msg.contains("against a capacity of 763.0 N"), "{msg}");
+    }
+}

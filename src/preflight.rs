@@ -53,6 +53,9 @@ pub enum Check {
     Signing,
     /// When and by whom the previous pre-flight was signed (never blocks).
     LastPreflight,
+    /// The remaining margin: every face takes at least the profile's
+    /// `min_margin_speed_m_per_s` (when the profile sets it).
+    Margin,
 }
 
 impl Check {
@@ -236,6 +239,12 @@ pub fn evaluate(inp: &Inputs) -> Evaluation {
     if !has(&list, Check::CageLog) {
         list.push((CAGE_LOG_TEXT.to_string(), Some(Check::CageLog)));
     }
+    if let Some(v) = inp.profile.preflight.min_margin_speed_m_per_s {
+        list.push((
+            format!("The cage takes at least {v} m/s on every face (remaining margin)"),
+            Some(Check::Margin),
+        ));
+    }
     if inp.signing.is_some() && !has(&list, Check::Signing) {
         list.push((SIGNING_TEXT.to_string(), Some(Check::Signing)));
     }
@@ -285,6 +294,78 @@ fn evaluate_check(c: Check, inp: &Inputs) -> (Outcome, String, bool) {
         Check::Battery => battery(inp),
         Check::Signing => signing(inp),
         Check::LastPreflight => last_preflight(inp),
+        Check::Margin => margin(inp),
+    }
+}
+
+/// Every face takes at least the profile's minimum speed on its default
+/// surface, with the cage as the log says it is (see `crate::margin`).
+/// Grounded, an unreadable log or no answer from the model cannot be
+/// overridden.
+fn margin(inp: &Inputs) -> (Outcome, String, bool) {
+    use crate::margin::{CageCondition, Strikes, margin_table};
+    let min = inp
+        .profile
+        .preflight
+        .min_margin_speed_m_per_s
+        .unwrap_or(0.0);
+    let records = match inp.log {
+        LogInput::Unreadable(why) => {
+            return (
+                Outcome::Fail,
+                format!("cannot read the cage log ({why}): the margin is unknown"),
+                false,
+            );
+        }
+        LogInput::Read { records, .. } => records,
+    };
+    let condition = CageCondition::from_log(records, inp.cage, &inp.profile.inspection);
+    let t = match margin_table(inp.cage, inp.profile, &condition, None, Strikes::Faces) {
+        Ok(t) => t,
+        Err(e) => {
+            return (
+                Outcome::Fail,
+                format!("the remaining margin could not be computed: {e}"),
+                false,
+            );
+        }
+    };
+    if t.grounded() {
+        return (
+            Outcome::Fail,
+            format!(
+                "grounded: {} at REPLACE NOW count as failed (0 m/s)",
+                t.grounded_by.join(" ")
+            ),
+            false,
+        );
+    }
+    let Some(w) = t.weakest_face() else {
+        return (Outcome::Fail, "the cage has no faces".to_string(), false);
+    };
+    let v = w.failure.speed_m_per_s;
+    let who = w
+        .first_member
+        .as_deref()
+        .unwrap_or("no member (beyond the model)");
+    if v >= min {
+        (
+            Outcome::Pass,
+            format!(
+                "weakest {} at {v:.2} m/s on {} ({who} first); model estimate",
+                w.id, t.surface
+            ),
+            true,
+        )
+    } else {
+        (
+            Outcome::Fail,
+            format!(
+                "{} takes only {v:.2} m/s on {} ({who} first), below {min} m/s",
+                w.id, t.surface
+            ),
+            true,
+        )
     }
 }
 

@@ -440,3 +440,57 @@ fn gaps_in_sign_offs_are_said_plainly() {
             .contains("signed by ana at 2026-12-01T22:03:00.000Z (#3)")
     );
 }
+
+#[test]
+fn the_margin_item_follows_the_profile_minimum_and_the_log() {
+    // The demo (invented data) takes about 4.8 m/s on its weakest face on
+    // packed soil (the margin tests check that figure against the impact
+    // analysis); a minimum above it fails, below it passes, and a cut
+    // (REPLACE NOW) grounds the cage whatever the minimum.
+    let (mut p, c) = demo();
+    let run = |p: &Profile, records: &[Record]| {
+        evaluate(&Inputs {
+            profile: p,
+            cage: &c,
+            live: None,
+            log: LogInput::Read {
+                records,
+                path: "/d/v.cagelog",
+                new_file: records.is_empty(),
+                trouble: None,
+            },
+            signing: None,
+        })
+    };
+    assert!(
+        run(&p, &[])
+            .items
+            .iter()
+            .all(|i| i.check != Some(Check::Margin)),
+        "no item without a minimum"
+    );
+    p.preflight.min_margin_speed_m_per_s = Some(3.0);
+    let e = run(&p, &[]);
+    let it = item(&e, Check::Margin);
+    assert_eq!(it.result, Outcome::Pass, "{}", it.detail);
+    assert!(
+        it.text.contains("at least 3 m/s on every face"),
+        "{}",
+        it.text
+    );
+    p.preflight.min_margin_speed_m_per_s = Some(6.0);
+    let e = run(&p, &[]);
+    let it = item(&e, Check::Margin);
+    assert_eq!(it.result, Outcome::Fail, "{}", it.detail);
+    assert!(it.blocks());
+    p.preflight.min_margin_speed_m_per_s = Some(0.5);
+    let recs = log(vec![finding("S3", FindingKind::Cut)]);
+    let e = run(&p, &recs);
+    let it = item(&e, Check::Margin);
+    assert_eq!(it.result, Outcome::Fail);
+    assert!(
+        !it.can_override && it.detail.contains("S3"),
+        "{}",
+        it.detail
+    );
+}

@@ -169,6 +169,14 @@ pub fn run(args: &Args, parent: &ProfileArg) -> anyhow::Result<ExitCode> {
     if let Some(n) = trust_note(&open, &book) {
         eprintln!("cagehand: warning: {n}");
     }
+    // A pending detection is a crash the margin does not include yet: say
+    // so on every output (stderr for JSON, the table too).
+    let pending = crate::logbook::detection::pending_warning(&crate::logbook::detection::pending(
+        book.records(),
+    ));
+    if let Some(w) = &pending {
+        eprintln!("cagehand: warning: {w} (the margin below does not include it)");
+    }
     let strikes = if args.nodes {
         Strikes::FacesAndNodes
     } else {
@@ -193,6 +201,9 @@ pub fn run(args: &Args, parent: &ProfileArg) -> anyhow::Result<ExitCode> {
         out,
         "the impact speed at which the first member reaches its capacity"
     )?;
+    if let Some(w) = &pending {
+        writeln!(out, "WARNING: {w}: the margin below does not include it")?;
+    }
     if t.grounded() {
         writeln!(
             out,

@@ -106,7 +106,7 @@ pub struct ProfileArg {
     pub profile: Option<PathBuf>,
 }
 
-pub use crate::vehicle::Loaded;
+pub use cagehand::vehicle::Loaded;
 
 impl ProfileArg {
     /// Load and validate the profile, and build its cage.
@@ -119,17 +119,17 @@ impl ProfileArg {
 /// a refused profile is bad input (exit 2).
 pub fn load_profile(path: Option<&Path>) -> anyhow::Result<Loaded> {
     let loaded = match path {
-        None => crate::vehicle::demo(),
+        None => cagehand::vehicle::demo(),
         Some(p) => {
             let bytes = std::fs::read(p)
                 .with_context(|| format!("cannot read profile {}", p.display()))
                 .map_err(|e| bad_input(format!("{e:#}")))?;
-            crate::vehicle::load(&bytes, &p.display().to_string())
+            cagehand::vehicle::load(&bytes, &p.display().to_string())
         }
     };
     loaded.map_err(|e| match e {
-        crate::vehicle::LoadError::Profile(_) => bad_input(e.to_string()),
-        crate::vehicle::LoadError::Statics { .. } => anyhow::Error::new(e),
+        cagehand::vehicle::LoadError::Profile(_) => bad_input(e.to_string()),
+        cagehand::vehicle::LoadError::Statics { .. } => anyhow::Error::new(e),
     })
 }
 
@@ -167,7 +167,11 @@ pub fn main() -> ExitCode {
         Ok(code) => code,
         Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
-            eprintln!("cagehand: {e:#}");
+            // Errors quote files and arguments: escaped, lines kept.
+            eprintln!(
+                "cagehand: {}",
+                cagehand::text::terminal_lines(&format!("{e:#}"))
+            );
             if e.downcast_ref::<BadInput>().is_some() {
                 ExitCode::from(2)
             } else {

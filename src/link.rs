@@ -1,13 +1,13 @@
 //! Links: where telemetry comes from. The decoders (`mavlink`, `line`) and
 //! the recording format (`record`) are pure and take bytes from the caller;
-//! `transport` sits at the edge (sockets, serial ports, files, threads).
+//! The transports that open sockets, serial ports and files are the
+//! application's (`src/transport.rs` in the binary).
 
 pub mod clock;
 pub mod line;
 pub mod mavlink;
 pub mod record;
 pub mod spec;
-pub mod transport;
 
 use crate::sample::Sample;
 use serde::Serialize;

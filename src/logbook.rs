@@ -3,22 +3,27 @@
 //! notes. Member health ([`crate::health`]) is computed from it, so the log
 //! is the single source of truth about the cage's history.
 //!
-//! # File format, version 1 (a contract: stable, documented in the README)
+//! # File format, version 2 (a contract: stable, documented in docs/logbook.md)
 //!
-//! The file is UTF-8 text, one line per item, each line ended by `\n`:
+//! The file is UTF-8 text, one line per item, each line ended by `\n` (a
+//! reader also takes `\r\n`, and a last line without its end):
 //!
 //! ```text
-//! cagehand-logbook format=1 vehicle=kestrel-demo
-//! {"seq":1,"time":"2026-12-01T22:40:00Z","operator":"ana","event":"note","text":"new cage"} sha256=<64 hex>
-//! {"seq":2,...,"event":"impact",...} sha256=<64 hex>
+//! cagehand-logbook format=2 vehicle=kestrel-demo
+//! {"seq":1,"time":"2026-12-01T22:40:00.000Z","operator":"ana","event":"note","text":"new cage"} prev=<64 hex> sha256=<64 hex>
+//! {"seq":2,...,"event":"impact",...} prev=<64 hex> sha256=<64 hex>
 //! ```
 //!
 //! - Line 1, the header: the word `cagehand-logbook`, then `format=N` (this
-//!   program writes and reads 1, and refuses a larger N rather than
+//!   program writes 2, reads 1 and 2, and refuses a larger N rather than
 //!   misreading it), then `vehicle=ID` (the profile's `vehicle.id`).
-//! - Every further line is one record: a JSON object, one space, `sha256=`
-//!   and the lower-case hex SHA-256 of exactly the JSON bytes before the
-//!   space. A line whose checksum, JSON or fields do not check is corrupt.
+//! - Every further line is one record: a JSON object, ` prev=` and the
+//!   chain value before it, ` sha256=` and the SHA-256 of every byte before
+//!   ` sha256=`. The records form a hash chain ([`chain`](mod@chain)): an
+//!   edit, deletion, reordering or duplicate shows at the first record it
+//!   touches, and the chain head printed by every report anchors the newest.
+//!   A format-1 line is the JSON, ` sha256=` and the SHA-256 of the JSON
+//!   alone; a format-1 log is continued with chained records.
 //! - Every record has `seq` (1, 2, .. in file order), `time` (UTC, RFC 3339,
 //!   e.g. `2026-12-01T22:40:00.123Z`), `operator` and `event`, one of
 //!   `impact`, `finding`, `replacement`, `preflight`, `note`, `detection`,
@@ -36,31 +41,34 @@
 //! Durability: a record is written with one `write` of the whole line (the
 //! header too, for a new file), then `fsync` (`sync_data`), before the
 //! command reports success; a failed write is cut back to the old length.
-//! An advisory lock on the file keeps two writers apart. A torn or corrupt
-//! *last* line (a crash mid-write) is moved to a side file
-//! `<vehicle>.cagelog.set-aside` and reported; a corrupt line in the middle
-//! is reported with its line number and skipped, and the rest loads (whole
+//! An advisory lock on the file keeps two writers apart. A torn *last* line
+//! (no line end and a failing hash: a crash mid-write) is moved to a side
+//! file `<vehicle>.cagelog.set-aside` and reported; any other line that
+//! does not check stays, is reported with its line number every time and
+//! skipped, and the rest loads (whole
 //! records inside a damaged line, e.g. two lines run together by a damaged
 //! newline, are recovered by their checksums).
 //!
-//! The parsing and encoding are pure ([`format`](mod@format)); the file handling is in
-//! [`store`](mod@store).
+//! The parsing and encoding are pure ([`format`](mod@format), [`chain`](mod@chain));
+//! the file handling is in [`store`](mod@store).
 
 use crate::impact::{ImpactInput, ImpactMethod};
 use serde::{Deserialize, Serialize};
 
+pub mod chain;
 pub mod detection;
-pub mod export;
+pub mod follow;
 pub mod format;
 pub mod store;
 
+pub use chain::{ChainHead, Integrity, Issue, IssueKind};
 pub use detection::{DetectionEvent, DismissalEvent, Pending, pending};
-
-pub use format::{FormatError, Parsed, Problem, TornTail, encode_header, encode_record, parse};
+pub use format::{FormatError, Parsed, TornTail, encode_header, encode_log, encode_record, parse};
 pub use store::{Access, Logbook, OpenReport, SetAside, StoreError, log_file_name};
 
-/// The format version this program writes, and the highest it reads.
-pub const FORMAT_VERSION: u32 = 1;
+/// The format version this program writes, and the highest it reads
+/// (format 1 logs are read and continued; see docs/logbook.md).
+pub const FORMAT_VERSION: u32 = 2;
 
 /// One record of the log: when, who, what.
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]

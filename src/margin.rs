@@ -352,6 +352,17 @@ impl MarginTable {
         !self.grounded_by.is_empty()
     }
 
+    /// What the pre-flight margin item needs: the weakest face, its speed
+    /// and the members that ground the cage; None for a cage without faces.
+    pub fn summary(&self) -> Option<crate::preflight::MarginSummary> {
+        self.weakest_face()
+            .map(|w| crate::preflight::MarginSummary {
+                weakest_face: w.id.clone(),
+                speed_m_per_s: w.failure.speed_m_per_s,
+                grounded_by: self.grounded_by.clone(),
+            })
+    }
+
     /// The face that takes the lowest speed (the first of equals).
     pub fn weakest_face(&self) -> Option<&StrikeMargin> {
         self.faces.iter().fold(None, |best, m| match best {

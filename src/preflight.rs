@@ -34,6 +34,8 @@ use std::collections::{BTreeMap, BTreeSet};
 pub const CAGE_LOG_TEXT: &str = "Cage log clear: no pending detection, no member DUE or REPLACE NOW, no member at INSPECT without an ok finding since the event that put it there";
 /// The text of the signing item.
 pub const SIGNING_TEXT: &str = "Telemetry signed (MAVLink 2 signing key in use)";
+/// The text of the remaining-margin item, before the minimum speed.
+pub const MARGIN_TEXT: &str = "The cage takes at least";
 /// The text of the informational last-pre-flight item.
 pub const LAST_PREFLIGHT_TEXT: &str = "Last pre-flight sign-off (for information)";
 
@@ -51,11 +53,11 @@ pub enum Check {
     Battery,
     /// Signed telemetry, when asked for.
     Signing,
+    /// The cage can still take the profile's `min_margin_speed_m_per_s` on
+    /// every face (when the profile sets it).
+    Margin,
     /// When and by whom the previous pre-flight was signed (never blocks).
     LastPreflight,
-    /// The remaining margin: every face takes at least the profile's
-    /// `min_margin_speed_m_per_s` (when the profile sets it).
-    Margin,
 }
 
 impl Check {
@@ -171,6 +173,20 @@ pub struct Inputs<'a> {
     pub log: LogInput<'a>,
     /// Signed telemetry is asked for: Some(whether a key is in use).
     pub signing: Option<bool>,
+    /// The remaining margin of the cage, when it has been computed (the
+    /// margin item waits without it).
+    pub margin: Option<&'a MarginSummary>,
+}
+
+/// What the margin item needs of the remaining-margin computation.
+#[derive(Debug, Clone, PartialEq)]
+pub struct MarginSummary {
+    /// The face that takes the lowest impact speed.
+    pub weakest_face: String,
+    /// That speed, m/s (0 when grounded).
+    pub speed_m_per_s: f64,
+    /// Members counted as failed, which ground the cage (empty: none).
+    pub grounded_by: Vec<String>,
 }
 
 /// The checklist evaluated.
@@ -239,14 +255,14 @@ pub fn evaluate(inp: &Inputs) -> Evaluation {
     if !has(&list, Check::CageLog) {
         list.push((CAGE_LOG_TEXT.to_string(), Some(Check::CageLog)));
     }
-    if let Some(v) = inp.profile.preflight.min_margin_speed_m_per_s {
-        list.push((
-            format!("The cage takes at least {v} m/s on every face (remaining margin)"),
-            Some(Check::Margin),
-        ));
-    }
     if inp.signing.is_some() && !has(&list, Check::Signing) {
         list.push((SIGNING_TEXT.to_string(), Some(Check::Signing)));
+    }
+    if let Some(min) = inp.profile.preflight.min_margin_speed_m_per_s {
+        list.push((
+            format!("{MARGIN_TEXT} {min:.1} m/s on every face"),
+            Some(Check::Margin),
+        ));
     }
     list.push((LAST_PREFLIGHT_TEXT.to_string(), Some(Check::LastPreflight)));
     let items = list
@@ -293,79 +309,8 @@ fn evaluate_check(c: Check, inp: &Inputs) -> (Outcome, String, bool) {
         Check::LinkFresh => link_fresh(inp),
         Check::Battery => battery(inp),
         Check::Signing => signing(inp),
-        Check::LastPreflight => last_preflight(inp),
         Check::Margin => margin(inp),
-    }
-}
-
-/// Every face takes at least the profile's minimum speed on its default
-/// surface, with the cage as the log says it is (see `crate::margin`).
-/// Grounded, an unreadable log or no answer from the model cannot be
-/// overridden.
-fn margin(inp: &Inputs) -> (Outcome, String, bool) {
-    use crate::margin::{CageCondition, Strikes, margin_table};
-    let min = inp
-        .profile
-        .preflight
-        .min_margin_speed_m_per_s
-        .unwrap_or(0.0);
-    let records = match inp.log {
-        LogInput::Unreadable(why) => {
-            return (
-                Outcome::Fail,
-                format!("cannot read the cage log ({why}): the margin is unknown"),
-                false,
-            );
-        }
-        LogInput::Read { records, .. } => records,
-    };
-    let condition = CageCondition::from_log(records, inp.cage, &inp.profile.inspection);
-    let t = match margin_table(inp.cage, inp.profile, &condition, None, Strikes::Faces) {
-        Ok(t) => t,
-        Err(e) => {
-            return (
-                Outcome::Fail,
-                format!("the remaining margin could not be computed: {e}"),
-                false,
-            );
-        }
-    };
-    if t.grounded() {
-        return (
-            Outcome::Fail,
-            format!(
-                "grounded: {} at REPLACE NOW count as failed (0 m/s)",
-                t.grounded_by.join(" ")
-            ),
-            false,
-        );
-    }
-    let Some(w) = t.weakest_face() else {
-        return (Outcome::Fail, "the cage has no faces".to_string(), false);
-    };
-    let v = w.failure.speed_m_per_s;
-    let who = w
-        .first_member
-        .as_deref()
-        .unwrap_or("no member (beyond the model)");
-    if v >= min {
-        (
-            Outcome::Pass,
-            format!(
-                "weakest {} at {v:.2} m/s on {} ({who} first); model estimate",
-                w.id, t.surface
-            ),
-            true,
-        )
-    } else {
-        (
-            Outcome::Fail,
-            format!(
-                "{} takes only {v:.2} m/s on {} ({who} first), below {min} m/s",
-                w.id, t.surface
-            ),
-            true,
-        )
+        Check::LastPreflight => last_preflight(inp),
     }
 }
 
@@ -549,6 +494,42 @@ fn signing(inp: &Inputs) -> (Outcome, String, bool) {
                 true,
             ),
         },
+    }
+}
+
+fn margin(inp: &Inputs) -> (Outcome, String, bool) {
+    let min = inp
+        .profile
+        .preflight
+        .min_margin_speed_m_per_s
+        .unwrap_or(0.0);
+    match inp.margin {
+        None => (
+            Outcome::Waiting,
+            "the remaining margin has not been computed".to_string(),
+            true,
+        ),
+        Some(m) if !m.grounded_by.is_empty() => (
+            Outcome::Fail,
+            format!("grounded: {} count as failed", m.grounded_by.join(" ")),
+            true,
+        ),
+        Some(m) if m.speed_m_per_s < min => (
+            Outcome::Fail,
+            format!(
+                "{} takes only {:.1} m/s (minimum {min:.1} m/s)",
+                m.weakest_face, m.speed_m_per_s
+            ),
+            true,
+        ),
+        Some(m) => (
+            Outcome::Pass,
+            format!(
+                "weakest face {} takes {:.1} m/s (minimum {min:.1} m/s)",
+                m.weakest_face, m.speed_m_per_s
+            ),
+            true,
+        ),
     }
 }
 

@@ -167,7 +167,9 @@ fn corrupt_middle_record_is_reported_with_its_line() {
     let (seqs, stderr) = shown(dir.path());
     assert_eq!(seqs, vec![1, 3]);
     assert!(
-        stderr.contains(&format!("{LOG}:3: corrupt record skipped")),
+        stderr.contains(&format!(
+            "{LOG}:3: corrupt record skipped (it claims number 2)"
+        )),
         "{stderr}"
     );
     // Appending does not touch the middle; the next number follows the last.

@@ -2,10 +2,10 @@
 //! report or as JSON (a contract: scripts parse it).
 
 use super::ProfileArg;
-use crate::cage::{Cage, MemberKind};
-use crate::profile::Profile;
-use crate::righting::{MoveKind, RightingModel};
-use crate::statics::{SelfStress, Structure, self_stress};
+use cagehand::cage::{Cage, MemberKind};
+use cagehand::profile::Profile;
+use cagehand::righting::{MoveKind, RightingModel};
+use cagehand::statics::{SelfStress, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -132,7 +132,7 @@ fn report<'a>(
                 tag: m.tag.as_deref(),
                 length_m: m.length_m,
                 prestress_n: ss.prestress_n.get(j).copied().unwrap_or(0.0),
-                capacity_n: crate::statics::capacity_n(p, m.kind, m.length_m),
+                capacity_n: cagehand::statics::capacity_n(p, m.kind, m.length_m),
             })
             .collect(),
         faces: c
@@ -190,10 +190,13 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(out, "{}", serde_json::to_string_pretty(&r)?)?;
         return Ok(ExitCode::SUCCESS);
     }
+    let t = cagehand::text::terminal;
     writeln!(
         out,
         "{} ({}), {:.3} kg",
-        r.vehicle.id, r.vehicle.name, r.vehicle.mass_kg
+        t(r.vehicle.id),
+        t(r.vehicle.name),
+        r.vehicle.mass_kg
     )?;
     writeln!(
         out,
@@ -212,8 +215,8 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(
             out,
             "{:<5} {:<19} {:>7}  {:<4}  {:>9.1}  {:>10.1}",
-            f.id,
-            f.nodes.join(" "),
+            t(f.id),
+            t(&f.nodes.join(" ")),
             f.strings,
             if f.stable { "yes" } else { "no" },
             f.tilt_deg,
@@ -233,17 +236,17 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(
             out,
             "{:<7} {:<7} {:<9} {:>10.1}  {:>12.2}  {:>11.1}  {}",
-            m.id,
+            t(m.id),
             kind,
-            m.nodes.join("-"),
+            t(&m.nodes.join("-")),
             m.length_m * 1e3,
             m.prestress_n,
             m.capacity_n,
-            m.tag.unwrap_or("")
+            t(m.tag.unwrap_or(""))
         )?;
     }
     writeln!(out)?;
-    writeln!(out, "statics: {}", ss.message)?;
+    writeln!(out, "statics: {}", t(&ss.message))?;
     if ss.prestress_ok && ss.mechanisms > 0 {
         writeln!(
             out,
@@ -252,7 +255,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         )?;
     }
     writeln!(out)?;
-    for line in crate::caution::CAUTION_LINES {
+    for line in cagehand::caution::CAUTION_LINES {
         writeln!(out, "{line}")?;
     }
     Ok(ExitCode::SUCCESS)

@@ -4,11 +4,11 @@
 
 use super::log_cmd::{self, LogOpts};
 use super::{Loaded, ProfileArg, bad_input};
-use crate::cage::MemberKind;
-use crate::health::StatusChange;
-use crate::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
-use crate::logbook::{Access, ImpactEvent, ImpactSource, StrikeRef};
-use crate::statics::{StaticsError, Structure, self_stress};
+use cagehand::cage::MemberKind;
+use cagehand::health::StatusChange;
+use cagehand::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
+use cagehand::logbook::{Access, ImpactEvent, ImpactSource, StrikeRef};
+use cagehand::statics::{StaticsError, Structure, self_stress};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -194,6 +194,12 @@ struct Report<'a> {
     recorded: bool,
     /// Sequence number of the log record, when recorded.
     record_seq: Option<u64>,
+    /// The detection this impact confirms (`log confirm`).
+    #[serde(skip_serializing_if = "Option::is_none")]
+    detection: Option<u64>,
+    /// The cage log written to, when recorded.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    log: Option<String>,
     /// Members whose status the impact changed, when recorded.
     status_changes: Vec<StatusChange>,
 }
@@ -209,14 +215,16 @@ fn method_text(m: ImpactMethod) -> &'static str {
 }
 
 /// Record an impact the cage found no equilibrium for, and say so loudly.
+#[allow(clippy::too_many_arguments)]
 fn record_beyond_model(
     args: &Args,
     l: &Loaded,
     resolved: &Resolved,
-    book: &mut crate::logbook::Logbook,
+    book: &mut cagehand::logbook::Logbook,
     lost_at_n: f64,
     residual_n: f64,
     why: &anyhow::Error,
+    detection: Option<u64>,
 ) -> anyhow::Result<ExitCode> {
     let strike = match resolved.strike {
         Strike::Face(_) => StrikeRef::Face(resolved.strike_id.clone()),
@@ -227,7 +235,7 @@ fn record_beyond_model(
         ImpactInput::Speed { .. } => ImpactMethod::EnergyBalance,
         ImpactInput::SpeedAndDuration { .. } => ImpactMethod::HalfSinePulse,
     };
-    let event = ImpactEvent::beyond_model(
+    let mut event = ImpactEvent::beyond_model(
         strike,
         &resolved.input,
         method,
@@ -235,6 +243,10 @@ fn record_beyond_model(
         residual_n,
         args.note.clone(),
     );
+    if detection.is_some() {
+        event.source = ImpactSource::Detected;
+        event.detection = detection;
+    }
     let (rec, changes) = log_cmd::record_impact(l, &args.log, book, event)?;
     let mut out = std::io::stdout().lock();
     if args.json {
@@ -246,23 +258,27 @@ fn record_beyond_model(
             "message": why.to_string(),
             "recorded": true,
             "record_seq": rec.seq,
+            "detection": detection,
+            "log": book.path().display().to_string(),
             "status_changes": changes,
         });
         writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
         return Ok(ExitCode::SUCCESS);
     }
-    writeln!(out, "{why}")?;
+    writeln!(out, "{}", cagehand::text::terminal(&why.to_string()))?;
     writeln!(
         out,
-        "RECORDED as #{} beyond the model: every member is now REPLACE NOW ({} status changes).",
+        "RECORDED as #{} beyond the model in the cage log of {} ({}): every member is now REPLACE NOW ({} status changes).",
         rec.seq,
+        l.profile.vehicle.id,
+        book.path().display(),
         changes.len()
     )?;
     writeln!(
         out,
         "Treat the whole cage as damaged; do not fly it before a full inspection."
     )?;
-    for line in crate::caution::CAUTION_LINES {
+    for line in cagehand::caution::CAUTION_LINES {
         writeln!(out, "{line}")?;
     }
     Ok(ExitCode::SUCCESS)
@@ -271,15 +287,25 @@ fn record_beyond_model(
 /// Run the impact command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
-    let resolved = resolve(args, &l)?;
+    run_loaded(args, &l, None)
+}
+
+/// Analyse and record an impact on a loaded profile; with `detection`, the
+/// impact confirms that pending detection (`log confirm`): checked under
+/// the log's write lock, recorded with `"detection": SEQ`.
+pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Result<ExitCode> {
+    let resolved = resolve(args, l)?;
     // Open (and lock) the log before the analysis, so a log that cannot be
     // written is reported before any work, and no other writer slips in.
     let mut book = if args.dry_run {
         None
     } else {
-        Some(args.log.open(&l, Access::Write)?)
+        Some(args.log.open(l, Access::Write)?)
     };
-    let a = match (analyse(&l, &resolved), book.as_mut()) {
+    if let (Some(seq), Some(book)) = (detection, book.as_ref()) {
+        log_cmd::check_pending(book, seq)?;
+    }
+    let a = match (analyse(l, &resolved), book.as_mut()) {
         (Ok(a), _) => a,
         (Err(e), Some(book)) => {
             // The worst crash is the one that most needs logging: record it
@@ -290,7 +316,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             else {
                 return Err(e);
             };
-            return record_beyond_model(args, &l, &resolved, book, load, residual_n, &e);
+            return record_beyond_model(args, l, &resolved, book, load, residual_n, &e, detection);
         }
         (Err(e), None) => return Err(e),
     };
@@ -305,15 +331,20 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 Strike::Face(_) => StrikeRef::Face(resolved.strike_id.clone()),
                 Strike::Node(_) => StrikeRef::Node(resolved.strike_id.clone()),
             };
-            let event = ImpactEvent::from_analysis(
+            let mut event = ImpactEvent::from_analysis(
                 &l.cage,
                 strike,
                 &resolved.input,
                 &a,
-                ImpactSource::Entered,
+                if detection.is_some() {
+                    ImpactSource::Detected
+                } else {
+                    ImpactSource::Entered
+                },
                 args.note.clone(),
             );
-            let (rec, changes) = log_cmd::record_impact(&l, &args.log, book, event)?;
+            event.detection = detection;
+            let (rec, changes) = log_cmd::record_impact(l, &args.log, book, event)?;
             (Some(rec.seq), changes)
         }
         None => (None, Vec::new()),
@@ -347,6 +378,8 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             .collect(),
         recorded: record_seq.is_some(),
         record_seq,
+        detection,
+        log: book.as_ref().map(|b| b.path().display().to_string()),
         status_changes,
     };
     let mut out = std::io::stdout().lock();
@@ -357,15 +390,20 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     match (report.record_seq, &book) {
         (Some(seq), Some(book)) => writeln!(
             out,
-            "impact on {} of {} recorded as #{seq} in {}",
-            report.strike,
-            report.vehicle,
-            book.path().display()
+            "impact on {} of {} recorded as #{seq} in {}{}",
+            cagehand::text::terminal(report.strike),
+            cagehand::text::terminal(report.vehicle),
+            book.path().display(),
+            match detection {
+                Some(d) => format!(", confirming detection #{d}"),
+                None => String::new(),
+            }
         )?,
         _ => writeln!(
             out,
             "impact on {} of {} (dry run, not recorded)",
-            report.strike, report.vehicle
+            cagehand::text::terminal(report.strike),
+            cagehand::text::terminal(report.vehicle)
         )?,
     }
     writeln!(

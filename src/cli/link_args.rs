@@ -1,11 +1,11 @@
 //! The link flags shared by `watch` and `record`, turned into an open link.
 
 use super::bad_input;
-use crate::cage::Cage;
-use crate::link::Proto;
-use crate::link::mavlink::{MavConfig, SigningKey};
-use crate::link::spec::{AllowEntry, LinkSpec, ReplaySpeed};
-use crate::link::transport::{self, Link, LinkOptions, Mode};
+use crate::transport::{self, Link, LinkOptions, Mode};
+use cagehand::cage::Cage;
+use cagehand::link::Proto;
+use cagehand::link::mavlink::{MavConfig, SigningKey};
+use cagehand::link::spec::{AllowEntry, LinkSpec, ReplaySpeed};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 
@@ -96,7 +96,7 @@ impl LinkArgs {
     pub fn spec(&self) -> anyhow::Result<LinkSpec> {
         self.link
             .parse()
-            .map_err(|e: crate::link::spec::SpecError| bad_input(e.to_string()))
+            .map_err(|e: cagehand::link::spec::SpecError| bad_input(e.to_string()))
     }
 
     /// Open the link (the cage feeds the sim link). `data_dir` is where a

@@ -2,8 +2,8 @@
 //! edge (link readers) meets the core feed, shared by the screens, the
 //! headless watch and `preflight --link`.
 
-use crate::feed::FeedInput;
-use crate::link::transport::{LinkEvent, LinkMsg};
+use crate::transport::{LinkEvent, LinkMsg};
+use cagehand::feed::FeedInput;
 
 /// A reader's message as a feed input.
 pub fn feed_input(msg: LinkMsg) -> FeedInput {

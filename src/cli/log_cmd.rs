@@ -3,14 +3,15 @@
 //! helpers `impact` uses to record an impact.
 
 use super::{Loaded, bad_input};
-use crate::health::{self, HealthReport, StatusChange};
-use crate::logbook::export::{self, ReportHeader};
-use crate::logbook::store::OpenReport;
-use crate::logbook::{
-    Access, Event, FindingEvent, FindingKind, ImpactEvent, Logbook, NoteEvent, Record,
-    ReplacementEvent, StoreError,
-};
 use anyhow::Context;
+use cagehand::health::{self, HealthReport, StatusChange};
+use cagehand::logbook::store::OpenReport;
+use cagehand::logbook::{
+    Access, ChainHead, Event, FindingEvent, FindingKind, ImpactEvent, Integrity, Logbook,
+    NoteEvent, Record, ReplacementEvent, StoreError,
+};
+use cagehand::report::{self as export, ReportHeader};
+use cagehand::text::terminal;
 use serde::Serialize;
 use std::io::Write;
 use std::path::{Path, PathBuf};
@@ -127,7 +128,7 @@ impl LogOpts {
         let (book, report) =
             Logbook::open(&dir, &l.profile.vehicle.id, access, lock_wait()).map_err(store_err)?;
         for m in report.messages(book.path()) {
-            eprintln!("cagehand: warning: {m}");
+            eprintln!("cagehand: warning: {}", terminal(&m));
         }
         Ok((book, report))
     }
@@ -150,18 +151,19 @@ fn shell_word(s: &str) -> String {
 /// records on another vehicle or in another folder.
 pub fn same_log_args(l: &Loaded, opts: &LogOpts) -> String {
     let mut s = String::new();
-    if l.profile.source != crate::profile::DEMO_PROFILE_NAME {
+    if l.profile.source != cagehand::profile::DEMO_PROFILE_NAME {
         s.push_str(&format!(" --profile {}", shell_word(&l.profile.source)));
     }
     if let Ok(d) = opts.data_dir() {
+        let d = std::path::absolute(&d).unwrap_or(d);
         s.push_str(&format!(" --data {}", shell_word(&d.display().to_string())));
     }
     s
 }
 
 /// What a reader of health or a report must know about the log itself: it
-/// does not exist (so "ok" means "nothing recorded"), or records were
-/// skipped (so damage may be understated).
+/// does not exist (so "ok" means "nothing recorded"), or it has integrity
+/// problems (records skipped, changed, removed: damage may be understated).
 pub fn trust_note(report: &OpenReport, book: &Logbook) -> Option<String> {
     if report.new_file {
         return Some(format!(
@@ -169,21 +171,50 @@ pub fn trust_note(report: &OpenReport, book: &Logbook) -> Option<String> {
             book.path().display()
         ));
     }
-    let skipped = report.problems.len() + usize::from(report.torn_tail.is_some());
-    (skipped > 0).then(|| {
-        format!(
-            "{skipped} damaged record(s) skipped: damage may be understated; see `cagehand log show`"
-        )
-    })
+    report
+        .integrity
+        .headline()
+        .map(|h| format!("{h}; see `cagehand log verify`"))
+}
+
+/// The integrity problems, one indented line each, for the readable
+/// outputs (escaped: they quote the file).
+fn write_integrity(out: &mut impl Write, integrity: &Integrity) -> anyhow::Result<()> {
+    for i in &integrity.issues {
+        writeln!(out, "  {}", terminal(&i.to_string()))?;
+    }
+    Ok(())
+}
+
+/// `SEQ:HASH`, or a dash when there is no log.
+fn head_text(book: &Logbook) -> String {
+    book.head()
+        .map(ChainHead::to_string)
+        .unwrap_or_else(|| "- (no log yet)".to_string())
+}
+
+/// The first line of `log show` and `log verify`: whose log, where, how
+/// many records, and the chain head.
+fn write_title(out: &mut impl Write, l: &Loaded, book: &Logbook) -> anyhow::Result<()> {
+    writeln!(
+        out,
+        "cage log of {} ({}): {} records, chain head {}",
+        terminal(&l.profile.vehicle.id),
+        terminal(&book.path().display().to_string()),
+        book.records().len(),
+        head_text(book)
+    )?;
+    Ok(())
 }
 
 /// Map a store error to an exit code: a log or id we cannot read is bad
 /// input (2); I/O and a held lock are runtime failures (1).
 pub fn store_err(e: StoreError) -> anyhow::Error {
     match e {
-        StoreError::Format { .. } | StoreError::BadVehicleId(_) | StoreError::Record(_) => {
-            bad_input(e.to_string())
-        }
+        StoreError::Format { .. }
+        | StoreError::BadVehicleId(_)
+        | StoreError::Record(_)
+        | StoreError::SequenceExhausted { .. } => bad_input(e.to_string()),
         other => anyhow::Error::new(other),
     }
 }
@@ -240,6 +271,60 @@ enum Action {
         /// crash safety).
         #[arg(long, hide = true, default_value_t = 1)]
         repeat: u32,
+    },
+    /// List detected impacts neither confirmed nor dismissed.
+    Pending {
+        /// Print JSON (an array of {seq, time, peak_g, face, speed_m_per_s, source}).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Confirm a detected impact: analyse it as `cagehand impact` does, with
+    /// the face and the measured peak taken from the detection unless given.
+    #[command(group(clap::ArgGroup::new("where").args(["face", "node"])))]
+    #[command(group(clap::ArgGroup::new("how").args(["speed", "peak_accel_g"])))]
+    Confirm {
+        /// Sequence number of the detection record (`log pending`).
+        seq: u64,
+        /// Struck face id (F1..), instead of the detected one.
+        #[arg(long, value_name = "ID")]
+        face: Option<String>,
+        /// Struck node id (N1..), instead of the detected face.
+        #[arg(long, value_name = "ID")]
+        node: Option<String>,
+        /// Peak acceleration in g, instead of the detected peak.
+        #[arg(long, value_name = "G", allow_negative_numbers = true)]
+        peak_accel_g: Option<f64>,
+        /// Approach speed normal to the ground, instead of the peak.
+        #[arg(long, value_name = "M_PER_S", allow_negative_numbers = true)]
+        speed: Option<f64>,
+        /// Ground surface preset (with --speed).
+        #[arg(long, value_name = "NAME", requires = "speed")]
+        surface: Option<String>,
+        /// Free text stored with the impact.
+        #[arg(long, value_name = "TEXT")]
+        note: Option<String>,
+        /// Print JSON (as `cagehand impact --json`, with `detection`).
+        #[arg(long)]
+        json: bool,
+    },
+    /// Dismiss a detected impact that was not a crash, with the reason.
+    Dismiss {
+        /// Sequence number of the detection record (`log pending`).
+        seq: u64,
+        /// Why it was not a crash ("hand launch", "dropped on the bench").
+        #[arg(long, value_name = "TEXT")]
+        reason: String,
+    },
+    /// Check the log's hash chain, and optionally that it still holds a
+    /// chain head kept from an earlier report; exit 1 on any problem.
+    Verify {
+        /// A chain head `SEQ:HASH` as a report printed it (16 or more hex
+        /// digits of the hash).
+        #[arg(long, value_name = "SEQ:HASH")]
+        head: Option<String>,
+        /// Print JSON.
+        #[arg(long)]
+        json: bool,
     },
     /// Write a maintenance report.
     Export {
@@ -298,9 +383,15 @@ pub fn write_changes(out: &mut impl Write, changes: &[StatusChange]) -> anyhow::
         writeln!(out, "no member changed status")?;
     }
     for c in changes {
-        writeln!(out, "{}: {} -> {}", c.id, c.from.label(), c.to.label())?;
+        writeln!(
+            out,
+            "{}: {} -> {}",
+            terminal(&c.id),
+            c.from.label(),
+            c.to.label()
+        )?;
         for r in &c.reasons {
-            writeln!(out, "    {r}")?;
+            writeln!(out, "    {}", terminal(r))?;
         }
     }
     Ok(())
@@ -323,6 +414,13 @@ fn record(
     Ok((rec, health::changes(&before, &after)))
 }
 
+/// The detection `seq` is pending in this log, or bad input saying what
+/// became of it.
+pub fn check_pending(book: &Logbook, seq: u64) -> anyhow::Result<()> {
+    cagehand::logwork::check_pending(book, seq)
+        .map_err(|e| bad_input(format!("{}: {e}", book.path().display())))
+}
+
 /// Record an analysed impact in the log: the record and the status changes.
 pub fn record_impact(
     l: &Loaded,
@@ -335,9 +433,67 @@ pub fn record_impact(
 
 #[derive(Serialize)]
 struct ShowJson<'a> {
+    schema: &'static str,
     vehicle: &'a str,
     log: String,
     records: &'a [Record],
+    integrity: IntegrityJson<'a>,
+}
+
+#[derive(Serialize)]
+struct IssueJson<'a> {
+    line: usize,
+    kind: cagehand::logbook::IssueKind,
+    detail: &'a str,
+    effect: &'static str,
+}
+
+/// The log's integrity for scripts (`cagehand.log_show/1`,
+/// `cagehand.log_verify/1`; docs/json.md).
+#[derive(Serialize)]
+struct IntegrityJson<'a> {
+    sound: bool,
+    head: Option<String>,
+    issues: Vec<IssueJson<'a>>,
+    notes: &'a [String],
+    unchained_records: usize,
+}
+
+fn integrity_json<'a>(book: &Logbook, i: &'a Integrity) -> IntegrityJson<'a> {
+    IntegrityJson {
+        sound: i.is_sound(),
+        head: book.head().map(ChainHead::to_string),
+        issues: i
+            .issues
+            .iter()
+            .map(|x| IssueJson {
+                line: x.line,
+                kind: x.kind,
+                detail: &x.detail,
+                effect: x.kind.effect(),
+            })
+            .collect(),
+        notes: &i.notes,
+        unchained_records: i.unchained,
+    }
+}
+
+#[derive(Serialize)]
+struct VerifyJson<'a> {
+    schema: &'static str,
+    vehicle: &'a str,
+    log: String,
+    exists: bool,
+    records: usize,
+    integrity: IntegrityJson<'a>,
+    kept_head: Option<KeptHeadJson>,
+}
+
+#[derive(Serialize)]
+struct KeptHeadJson {
+    head: String,
+    matches: bool,
+    detail: String,
 }
 
 fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<()> {
@@ -347,13 +503,13 @@ fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<
     )?;
     for m in &h.members {
         let kind = match m.kind {
-            crate::cage::MemberKind::Rod => "rod",
-            crate::cage::MemberKind::String => "string",
+            cagehand::cage::MemberKind::Rod => "rod",
+            cagehand::cage::MemberKind::String => "string",
         };
         writeln!(
             out,
             "{:<7} {:<7} {:<12} {:>7.3}  {:>6.0}%  {:>7}",
-            m.id,
+            terminal(&m.id),
             kind,
             m.status.label(),
             m.damage,
@@ -377,28 +533,28 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             }
             if *json {
                 let j = ShowJson {
+                    schema: "cagehand.log_show/1",
                     vehicle: &l.profile.vehicle.id,
                     log: book.path().display().to_string(),
                     records: book.records(),
+                    integrity: integrity_json(&book, &report.integrity),
                 };
                 writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
             } else {
-                writeln!(
-                    out,
-                    "cage log of {} ({}): {} records",
-                    l.profile.vehicle.id,
-                    book.path().display(),
-                    book.records().len()
-                )?;
+                write_title(&mut out, &l, &book)?;
+                if let Some(h) = report.integrity.headline() {
+                    writeln!(out, "WARNING: {h}")?;
+                    write_integrity(&mut out, &report.integrity)?;
+                }
                 for r in book.records() {
                     writeln!(
                         out,
                         "#{:<4} {}  {:<10} {:<11} {}",
                         r.seq,
-                        r.time,
-                        r.operator,
+                        terminal(&r.time),
+                        terminal(&r.operator),
                         r.event.name(),
-                        r.event.summary()
+                        terminal(&r.event.summary())
                     )?;
                 }
             }
@@ -408,28 +564,39 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let note = trust_note(&report, &book);
             let h = assess(&l, book.records());
             for w in &h.warnings {
-                eprintln!("cagehand: warning: {w}");
+                eprintln!("cagehand: warning: {}", terminal(w));
+            }
+            let pending = cagehand::logbook::detection::pending_warning(
+                &cagehand::logbook::pending(book.records()),
+            );
+            if *json && let Some(p) = &pending {
+                eprintln!("cagehand: warning: PENDING: {p}");
             }
             if *json {
                 writeln!(out, "{}", serde_json::to_string_pretty(&h.members)?)?;
             } else {
+                let vid = terminal(&l.profile.vehicle.id);
                 if report.new_file {
-                    writeln!(
-                        out,
-                        "health of {}: NO RECORDS (no cage log found)",
-                        l.profile.vehicle.id
-                    )?;
+                    writeln!(out, "health of {vid}: NO RECORDS (no cage log found)")?;
                 } else {
                     writeln!(
                         out,
-                        "health of {} from {} records: worst {}",
-                        l.profile.vehicle.id,
+                        "health of {vid} from {} records: worst {}",
                         book.records().len(),
                         h.worst().label()
                     )?;
+                    writeln!(
+                        out,
+                        "chain head {} (keep it to check the log later: `cagehand log verify --head SEQ:HASH`)",
+                        head_text(&book)
+                    )?;
                 }
                 if let Some(n) = &note {
-                    writeln!(out, "WARNING: {n}")?;
+                    writeln!(out, "WARNING: {}", terminal(n))?;
+                    write_integrity(&mut out, &report.integrity)?;
+                }
+                if let Some(p) = &pending {
+                    writeln!(out, "PENDING: {p}")?;
                 }
                 write_health_table(&mut out, &h)?;
                 let act = h.to_act_on();
@@ -437,9 +604,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     writeln!(out)?;
                     writeln!(out, "to act on:")?;
                     for m in act {
-                        writeln!(out, "{} {}", m.id, m.status.label())?;
+                        writeln!(out, "{} {}", terminal(&m.id), m.status.label())?;
                         for r in &m.reasons {
-                            writeln!(out, "    {r}")?;
+                            writeln!(out, "    {}", terminal(r))?;
                         }
                     }
                 }
@@ -457,7 +624,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 note: note.clone(),
             });
             let (rec, ch) = record(&l, opts, &mut book, ev)?;
-            writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
+            writeln!(
+                out,
+                "recorded #{} in the cage log of {} ({}): {}",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display(),
+                terminal(&rec.event.summary())
+            )?;
             write_changes(&mut out, &ch)?;
         }
         Action::Replace { member, part, note } => {
@@ -469,7 +643,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 note: note.clone(),
             });
             let (rec, ch) = record(&l, opts, &mut book, ev)?;
-            writeln!(out, "recorded #{}: {}", rec.seq, rec.event.summary())?;
+            writeln!(
+                out,
+                "recorded #{} in the cage log of {} ({}): {}",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display(),
+                terminal(&rec.event.summary())
+            )?;
             write_changes(&mut out, &ch)?;
         }
         Action::Note { text, repeat } => {
@@ -494,6 +675,132 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     .context("nothing was recorded")?;
                 writeln!(out, "recorded #{}", rec.seq)?;
             }
+            eprintln!(
+                "cagehand: written to the cage log of {} ({})",
+                l.profile.vehicle.id,
+                book.path().display()
+            );
+        }
+        Action::Pending { json } => {
+            let (book, _) = opts.open_reporting(&l, Access::Read)?;
+            let pending = cagehand::logbook::pending(book.records());
+            if *json {
+                // The issue's contract: an array of pending detections.
+                writeln!(out, "{}", serde_json::to_string_pretty(&pending)?)?;
+            } else if pending.is_empty() {
+                writeln!(
+                    out,
+                    "no pending detections in the cage log of {} ({})",
+                    l.profile.vehicle.id,
+                    book.path().display()
+                )?;
+            } else {
+                writeln!(
+                    out,
+                    "{} pending detection(s) in the cage log of {} ({}):",
+                    pending.len(),
+                    l.profile.vehicle.id,
+                    book.path().display()
+                )?;
+                for p in &pending {
+                    let speed = match p.speed_m_per_s {
+                        Some(v) => format!("{v:.1} m/s"),
+                        None => "speed unknown".to_string(),
+                    };
+                    writeln!(
+                        out,
+                        "#{:<4} {}  {:>5.1} g  {:<5} {speed}  ({})",
+                        p.seq, p.time, p.peak_g, p.face, p.source
+                    )?;
+                }
+                let args = same_log_args(&l, opts);
+                writeln!(
+                    out,
+                    "confirm: `cagehand log confirm SEQ{args}`; dismiss: `cagehand log dismiss SEQ --reason TEXT{args}`"
+                )?;
+            }
+        }
+        Action::Confirm {
+            seq,
+            face,
+            node,
+            peak_accel_g,
+            speed,
+            surface,
+            note,
+            json,
+        } => {
+            // Pre-fill from the detection (read now; checked again under the
+            // write lock before anything is recorded).
+            let (book, _) = opts.open_reporting(&l, Access::Read)?;
+            check_pending(&book, *seq)?;
+            let Some(d) = cagehand::logbook::detection::detection(book.records(), *seq).cloned()
+            else {
+                return Err(bad_input(format!("record #{seq} is not a detection")));
+            };
+            drop(book);
+            let (face, node) = match (face, node) {
+                (None, None) => (Some(d.face.clone()), None),
+                other => (other.0.clone(), other.1.clone()),
+            };
+            let peak_accel_g = match (peak_accel_g, speed) {
+                (None, None) => Some(d.peak_g),
+                (g, _) => *g,
+            };
+            let impact_args = super::impact_cmd::Args {
+                profile: super::ProfileArg {
+                    profile: args.profile.clone(),
+                },
+                face,
+                node,
+                speed: *speed,
+                peak_accel_g,
+                surface: surface.clone(),
+                contact_duration_s: None,
+                dry_run: false,
+                note: note.clone(),
+                log: opts.clone(),
+                json: *json,
+            };
+            drop(out);
+            return super::impact_cmd::run_loaded(&impact_args, &l, Some(*seq));
+        }
+        Action::Dismiss { seq, reason } => {
+            if reason.trim().is_empty() {
+                return Err(bad_input(
+                    "--reason is empty: say why it was not a crash (e.g. \"hand launch\")",
+                ));
+            }
+            let operator = opts.operator()?;
+            let mut book = opts.open(&l, Access::Write)?;
+            check_pending(&book, *seq)?;
+            let v = cagehand::logwork::Vehicle {
+                profile: &l.profile,
+                cage: &l.cage,
+            };
+            let rec = cagehand::logwork::dismiss(
+                v,
+                &mut book,
+                &operator,
+                jiff::Timestamp::now(),
+                *seq,
+                reason,
+            )
+            .map_err(|e| match e {
+                cagehand::logwork::WorkError::Store(s) => store_err(s),
+                other => bad_input(other.to_string()),
+            })?
+            .record;
+            writeln!(
+                out,
+                "detection #{seq} dismissed: record #{} in the cage log of {} ({})",
+                rec.seq,
+                l.profile.vehicle.id,
+                book.path().display()
+            )?;
+        }
+        Action::Verify { head, json } => {
+            return verify(&mut out, &l, opts, head.as_deref(), *json);
         }
         Action::Export { format, out: path } => {
             let (book, report) = opts.open_reporting(&l, Access::Read)?;
@@ -502,19 +809,21 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let text = match format {
                 ExportFormat::Md => {
                     let log_path = book.path().display().to_string();
-                    let generated = crate::logbook::format_time(jiff::Timestamp::now());
+                    let generated = cagehand::logbook::format_time(jiff::Timestamp::now());
                     let header = ReportHeader {
                         vehicle_id: &l.profile.vehicle.id,
                         vehicle_name: &l.profile.vehicle.name,
                         profile: &l.profile.source,
                         log_path: &log_path,
                         generated: &generated,
+                        head: book.head(),
+                        integrity: Some(&report.integrity),
                     };
                     let margin = super::margin_cmd::compute(
                         &l,
                         book.records(),
                         None,
-                        crate::margin::Strikes::Faces,
+                        cagehand::margin::Strikes::Faces,
                     )
                     .map_err(|e| format!("{e:#}"));
                     let md = export::markdown_with_margin(
@@ -523,19 +832,29 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         &h,
                         Some(margin.as_ref().map_err(Clone::clone)),
                     );
-                    match &note {
+                    match (&note, report.new_file) {
                         // The warning goes right under the title, where a
                         // reader of the printed report cannot miss it.
-                        Some(n) => match md.split_once('\n') {
-                            Some((title, rest)) => {
-                                format!("{title}\n\n> **Warning.** {n}\n{rest}")
+                        // (Integrity problems are placed there by the
+                        // report itself.)
+                        (Some(n), true) => match md.split_once('\n') {
+                            Some((title, rest)) => format!(
+                                "{title}\n\n> **Warning.** {}\n{rest}",
+                                cagehand::text::markdown(n)
+                            ),
+                            None => {
+                                format!("> **Warning.** {}\n\n{md}", cagehand::text::markdown(n))
                             }
-                            None => format!("> **Warning.** {n}\n\n{md}"),
                         },
-                        None => md,
+                        _ => md,
                     }
                 }
-                ExportFormat::Csv => export::csv(&h),
+                ExportFormat::Csv => export::csv_with_records(
+                    &h,
+                    book.records(),
+                    book.head(),
+                    Some(&report.integrity),
+                ),
             };
             match path {
                 Some(p) => {
@@ -547,6 +866,79 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
     }
     Ok(ExitCode::SUCCESS)
+}
+
+/// `log verify`: the whole chain, and a kept head when given. Exit 1 when
+/// anything does not check (a script's `&&` stops there).
+fn verify(
+    out: &mut impl Write,
+    l: &Loaded,
+    opts: &LogOpts,
+    head: Option<&str>,
+    json: bool,
+) -> anyhow::Result<ExitCode> {
+    let kept: Option<ChainHead> = head
+        .map(|h| h.parse::<ChainHead>().map_err(bad_input))
+        .transpose()?;
+    let (book, report) = opts.open_reporting(l, Access::Read)?;
+    let integrity = &report.integrity;
+    let kept_result = kept.as_ref().map(|k| (k, integrity.check_head(k)));
+    let sound = !report.new_file
+        && integrity.is_sound()
+        && report.torn_tail.is_none()
+        && kept_result.as_ref().is_none_or(|(_, r)| r.is_ok());
+    if json {
+        let j = VerifyJson {
+            schema: "cagehand.log_verify/1",
+            vehicle: &l.profile.vehicle.id,
+            log: book.path().display().to_string(),
+            exists: !report.new_file,
+            records: book.records().len(),
+            integrity: integrity_json(&book, integrity),
+            kept_head: kept_result.as_ref().map(|(k, r)| KeptHeadJson {
+                head: k.to_string(),
+                matches: r.is_ok(),
+                detail: match r {
+                    Ok(s) | Err(s) => s.clone(),
+                },
+            }),
+        };
+        writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+    } else {
+        write_title(out, l, &book)?;
+        if report.new_file {
+            writeln!(out, "NOT VERIFIED: there is no cage log there")?;
+        } else if let Some(h) = integrity.headline() {
+            writeln!(out, "PROBLEMS: {h}")?;
+            write_integrity(out, integrity)?;
+        } else {
+            writeln!(
+                out,
+                "chain: every record follows the one before it, none repeats, none is missing"
+            )?;
+        }
+        for n in &integrity.notes {
+            writeln!(out, "note: {}", terminal(n))?;
+        }
+        if integrity.unchained > 0 {
+            writeln!(
+                out,
+                "note: the first {} record(s) were written by format 1, before records were chained: a change to them shows only against a chain head kept from before the change",
+                integrity.unchained
+            )?;
+        }
+        if let Some((k, r)) = &kept_result {
+            match r {
+                Ok(s) => writeln!(out, "kept head {k}: matches; {s}")?,
+                Err(s) => writeln!(out, "kept head {k}: DOES NOT MATCH: {s}")?,
+            }
+        }
+    }
+    Ok(if sound {
+        ExitCode::SUCCESS
+    } else {
+        ExitCode::from(1)
+    })
 }
 
 fn write_file(p: &Path, bytes: &[u8]) -> anyhow::Result<()> {

@@ -1,13 +1,13 @@
 //! `cagehand cage margin`: the remaining margin of the cage as the log says
 //! it is now: per face, the impact speed at which the first member reaches
-//! its capacity (see `crate::margin`). Its JSON is a contract
+//! its capacity (see `cagehand::margin`). Its JSON is a contract
 //! (`cagehand.margin/1`, docs/json.md).
 
 use super::log_cmd::{LogOpts, trust_note};
 use super::{Loaded, ProfileArg, bad_input};
-use crate::logbook::Access;
-use crate::margin::{CageCondition, Limit, MarginTable, StrikeMargin, Strikes, margin_table};
-use crate::statics::StaticsError;
+use cagehand::logbook::Access;
+use cagehand::margin::{CageCondition, Limit, MarginTable, StrikeMargin, Strikes, margin_table};
+use cagehand::statics::StaticsError;
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -132,7 +132,7 @@ fn write_rows(out: &mut impl Write, what: &str, rows: &[StrikeMargin]) -> anyhow
 /// statics input errors are bad input, a failed solution a runtime failure.
 pub fn compute(
     l: &Loaded,
-    records: &[crate::logbook::Record],
+    records: &[cagehand::logbook::Record],
     surface: Option<&str>,
     strikes: Strikes,
 ) -> anyhow::Result<MarginTable> {
@@ -171,9 +171,9 @@ pub fn run(args: &Args, parent: &ProfileArg) -> anyhow::Result<ExitCode> {
     }
     // A pending detection is a crash the margin does not include yet: say
     // so on every output (stderr for JSON, the table too).
-    let pending = crate::logbook::detection::pending_warning(&crate::logbook::detection::pending(
-        book.records(),
-    ));
+    let pending = cagehand::logbook::detection::pending_warning(
+        &cagehand::logbook::detection::pending(book.records()),
+    );
     if let Some(w) = &pending {
         eprintln!("cagehand: warning: {w} (the margin below does not include it)");
     }
@@ -236,7 +236,7 @@ pub fn run(args: &Args, parent: &ProfileArg) -> anyhow::Result<ExitCode> {
         "Not captured: fatigue beyond Miner's sum, hidden composite damage,"
     )?;
     writeln!(out, "joints and end fittings.")?;
-    for line in crate::caution::CAUTION_LINES {
+    for line in cagehand::caution::CAUTION_LINES {
         writeln!(out, "{line}")?;
     }
     Ok(ExitCode::SUCCESS)

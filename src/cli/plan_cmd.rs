@@ -4,10 +4,10 @@
 //! a phone photo.
 
 use super::{ProfileArg, bad_input};
-use crate::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg, whole_deg};
-use crate::cage::Cage;
-use crate::rest::{fit_face, resting_attitude};
-use crate::righting::{MoveKind, Plan, RightingModel};
+use cagehand::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg, whole_deg};
+use cagehand::cage::Cage;
+use cagehand::rest::{fit_face, resting_attitude};
+use cagehand::righting::{MoveKind, Plan, RightingModel};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -18,7 +18,7 @@ fn write_caution(out: &mut impl Write) -> std::io::Result<()> {
         out,
         "thrust: share of the rotors' best moment needed at the roll's worst angle."
     )?;
-    for line in crate::caution::CAUTION_LINES {
+    for line in cagehand::caution::CAUTION_LINES {
         writeln!(out, "{line}")?;
     }
     Ok(())
@@ -151,16 +151,20 @@ fn wrap(text: &str, width: usize) -> Vec<String> {
 }
 
 fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()> {
-    let fid = |i: usize| cage.faces[i].id.as_str();
+    // Face and node ids may come from a profile: escaped for the terminal.
+    let fid = |i: usize| cagehand::text::terminal(&cage.faces[i].id).into_owned();
     if let Some(n) = &p.note {
-        for line in wrap(&format!("note: {n}"), PHOTO_WIDTH) {
+        for line in wrap(
+            &cagehand::text::terminal(&format!("note: {n}")),
+            PHOTO_WIDTH,
+        ) {
             writeln!(out, "{line}")?;
         }
     }
     if !p.reachable {
         writeln!(out, "{}: NO ROUTE to a take-off face.", fid(p.from))?;
         if let Some(r) = &p.reason {
-            for line in wrap(r, PHOTO_WIDTH - 2) {
+            for line in wrap(&cagehand::text::terminal(r), PHOTO_WIDTH - 2) {
                 writeln!(out, "  {line}")?;
             }
         }
@@ -178,7 +182,7 @@ fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()
         out,
         "{} -> {}: {} step{}, {:.0} deg in all",
         fid(p.from),
-        p.goal.map_or("-", fid),
+        p.goal.map_or_else(|| "-".to_string(), fid),
         p.steps.len(),
         if p.steps.len() == 1 { "" } else { "s" },
         p.total_angle_deg
@@ -188,7 +192,11 @@ fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()
         " #  from -> to    pivot     kind    angle  thrust  expect r/p/y deg"
     )?;
     for (k, s) in p.steps.iter().enumerate() {
-        let pivot: Vec<&str> = s.pivot.iter().map(|&i| cage.nodes[i].id.as_str()).collect();
+        let pivot: Vec<String> = s
+            .pivot
+            .iter()
+            .map(|&i| cagehand::text::terminal(&cage.nodes[i].id).into_owned())
+            .collect();
         let [r, pi, y] = rpy_deg(&s.target);
         writeln!(
             out,
@@ -227,7 +235,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             writeln!(
                 out,
                 "recovery map, {} ({} faces)",
-                l.profile.vehicle.name,
+                cagehand::text::terminal(&l.profile.vehicle.name),
                 cage.faces.len()
             )?;
             for p in &plans {

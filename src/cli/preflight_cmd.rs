@@ -6,11 +6,12 @@
 use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, same_log_args, store_err, trust_note};
 use super::{Loaded, bad_input};
-use crate::feed::Feed;
-use crate::link::transport::Mode;
-use crate::logbook::Access;
-use crate::preflight::{self, Evaluation, ItemKind, LogInput, Outcome, SignError, SignOff};
-use crate::tracker::{WatchState, WatchStateKind};
+use crate::transport::Mode;
+use cagehand::feed::Feed;
+use cagehand::logbook::Access;
+use cagehand::preflight::{self, Evaluation, ItemKind, LogInput, Outcome, SignError, SignOff};
+use cagehand::text::terminal;
+use cagehand::tracker::{WatchState, WatchStateKind};
 use serde::Serialize;
 use std::io::Write;
 use std::path::PathBuf;
@@ -135,7 +136,7 @@ fn listen(args: &Args, l: &Loaded) -> anyhow::Result<Option<(WatchState, bool)>>
     for d in &detections {
         let operator = args.log.operator()?;
         let mut book = args.log.open(l, Access::Write)?;
-        let logged = crate::logbook::detection::record(
+        let logged = cagehand::logbook::detection::record(
             &mut book,
             &operator,
             jiff::Timestamp::now(),
@@ -157,11 +158,18 @@ fn listen(args: &Args, l: &Loaded) -> anyhow::Result<Option<(WatchState, bool)>>
 fn evaluate(
     l: &Loaded,
     live: Option<&(WatchState, bool)>,
-    records: &[crate::logbook::Record],
+    records: &[cagehand::logbook::Record],
     path: &str,
     new_file: bool,
     trouble: Option<&str>,
 ) -> Evaluation {
+    // The margin item's figure, computed only when the profile asks for it;
+    // no answer leaves the item waiting (it blocks), never passing.
+    let margin = l.profile.preflight.min_margin_speed_m_per_s.and_then(|_| {
+        super::margin_cmd::compute(l, records, None, cagehand::margin::Strikes::Faces)
+            .ok()
+            .and_then(|t| t.summary())
+    });
     preflight::evaluate(&preflight::Inputs {
         profile: &l.profile,
         cage: &l.cage,
@@ -173,6 +181,7 @@ fn evaluate(
             trouble,
         },
         signing: live.and_then(|(_, key)| key.then_some(true)),
+        margin: margin.as_ref(),
     })
 }
 
@@ -188,10 +197,10 @@ fn write_items(out: &mut impl Write, e: &Evaluation) -> anyhow::Result<()> {
             i.n,
             i.result.name().to_uppercase(),
             kind,
-            i.text
+            terminal(&i.text)
         )?;
         if i.result != Outcome::Hand {
-            writeln!(out, "             {}", i.detail)?;
+            writeln!(out, "             {}", terminal(&i.detail))?;
         }
     }
     Ok(())
@@ -257,7 +266,12 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 };
                 writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
             } else {
-                writeln!(out, "pre-flight of {vehicle} (cage log {path})")?;
+                writeln!(
+                    out,
+                    "pre-flight of {} (cage log {})",
+                    terminal(&vehicle),
+                    terminal(&path)
+                )?;
                 write_items(&mut out, &e)?;
                 writeln!(out)?;
                 if e.can_sign() {
@@ -269,10 +283,10 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 } else {
                     writeln!(out, "not ready to sign:")?;
                     for b in e.blocking() {
-                        writeln!(out, "  {b}")?;
+                        writeln!(out, "  {}", terminal(&b))?;
                     }
                 }
-                writeln!(out, "Caution: {}", crate::logbook::export::CAUTION)?;
+                writeln!(out, "Caution: {}", cagehand::report::CAUTION)?;
             }
             Ok(ExitCode::SUCCESS)
         }
@@ -344,7 +358,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         "cagehand: pre-flight of {vehicle} NOT signed; nothing was written to {path}:"
                     );
                     for reason in &r.reasons {
-                        eprintln!("  {reason}");
+                        eprintln!("  {}", terminal(reason));
                     }
                     Ok(ExitCode::from(1))
                 }

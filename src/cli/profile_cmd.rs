@@ -1,7 +1,7 @@
 //! `cagehand profile check FILE`: validate a profile and summarise it.
 
 use super::load_profile;
-use crate::cage::MemberKind;
+use cagehand::cage::MemberKind;
 use std::io::Write;
 use std::path::PathBuf;
 use std::process::ExitCode;
@@ -52,11 +52,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     "preflight_items": p.preflight.items.len(),
                 }))?;
             } else {
-                writeln!(out, "{}: ok", p.source)?;
+                let t = cagehand::text::terminal;
+                writeln!(out, "{}: ok", t(&p.source))?;
                 writeln!(
                     out,
                     "  vehicle   {} ({}), {:.3} kg",
-                    p.vehicle.id, p.vehicle.name, p.vehicle.mass_kg
+                    t(&p.vehicle.id),
+                    t(&p.vehicle.name),
+                    p.vehicle.mass_kg
                 )?;
                 writeln!(
                     out,

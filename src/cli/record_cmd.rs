@@ -2,9 +2,9 @@
 //! our recording format (src/link/record.rs), for `--link file:PATH`.
 
 use super::link_args::LinkArgs;
-use crate::link::record::{Header, RecordWriter};
-use crate::link::transport::{LinkEvent, LinkMsg, Mode};
+use crate::transport::{LinkEvent, LinkMsg, Mode};
 use anyhow::Context;
+use cagehand::link::record::{Header, RecordWriter};
 use serde::Serialize;
 use std::io::Write;
 use std::path::PathBuf;
@@ -42,7 +42,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     super::check_duration_s(args.duration_s)?;
     let spec = args.link.spec()?;
     let cage = match spec {
-        crate::link::spec::LinkSpec::Sim { .. } => Some(args.profile.load()?.cage),
+        cagehand::link::spec::LinkSpec::Sim { .. } => Some(args.profile.load()?.cage),
         _ => None,
     };
     // A recording keeps the bytes as they came: nothing is checked, so no

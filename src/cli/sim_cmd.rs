@@ -11,10 +11,10 @@
 
 use super::ProfileArg;
 use super::link_args::ProtoArg;
-use crate::link::Proto;
-use crate::link::spec::LinkSpec;
-use crate::sim::wire::Wire;
-use crate::sim::{SIM_RATE_HZ, Sim, SimCommand};
+use cagehand::link::Proto;
+use cagehand::link::spec::LinkSpec;
+use cagehand::sim::wire::Wire;
+use cagehand::sim::{SIM_RATE_HZ, Sim, SimCommand};
 use serde_json::json;
 use std::io::Write;
 use std::net::{SocketAddr, UdpSocket};

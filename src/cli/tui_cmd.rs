@@ -6,18 +6,20 @@
 use super::Loaded;
 use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, lock_wait};
-use crate::feed::Feed;
-use crate::health::assess;
-use crate::link::transport::{Link, Mode};
-use crate::logbook::store::{Access, Logbook};
-use crate::logbook::{Record, detection};
-use crate::preflight;
-use crate::sim::SimCommand;
-use crate::tracker::{Tracker, WatchState, WatchStateKind};
+use crate::transport::{Link, Mode};
 use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample};
 use crate::tui::theme::{ColourDepth, Theme};
+use cagehand::feed::Feed;
+use cagehand::health::assess;
+use cagehand::logbook::store::{Access, Logbook};
+use cagehand::logbook::{Record, detection};
+use cagehand::preflight;
+use cagehand::sim::SimCommand;
+use cagehand::tracker::{Tracker, WatchState, WatchStateKind};
+use std::path::Path;
 use std::process::ExitCode;
 use std::sync::mpsc::{self, Sender};
+use std::time::{Duration, Instant};
 
 /// Open the screens on a loaded profile, fed by the link `link_args` names.
 pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Result<ExitCode> {
@@ -54,7 +56,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
 
 /// Member health from the vehicle's cage log, or why there is none. A log
 /// that cannot be read does not stop the screens; they say why.
-fn read_health(l: &Loaded, log: &LogOpts) -> (Option<crate::health::HealthReport>, String) {
+fn read_health(l: &Loaded, log: &LogOpts) -> (Option<cagehand::health::HealthReport>, String) {
     let dir = match log.data_dir() {
         Ok(d) => d,
         Err(e) => return (None, format!("{e:#}")),
@@ -65,11 +67,11 @@ fn read_health(l: &Loaded, log: &LogOpts) -> (Option<crate::health::HealthReport
             format!("no records yet in {}", book.path().display()),
         ),
         Ok((book, report)) => {
-            let problems = report.messages(book.path()).len();
-            let note = if problems > 0 {
-                format!(" ({problems} problems: run `cagehand log show`)")
-            } else {
-                String::new()
+            // Integrity problems (skipped, changed or removed records) say
+            // what they affect; the screens show this line.
+            let note = match report.integrity.headline() {
+                Some(h) => format!(" ({h}: run `cagehand log verify`)"),
+                None => String::new(),
             };
             (
                 Some(assess(book.records(), &l.cage, &l.profile.inspection)),
@@ -127,6 +129,9 @@ struct LogView {
     records: Vec<Record>,
     path: String,
     new_file: bool,
+    /// The log's integrity problems in one line (damage may be
+    /// understated): fails the pre-flight as `log health` warns of it.
+    trouble: Option<String>,
     error: Option<String>,
 }
 
@@ -144,12 +149,14 @@ impl LogView {
                 records: book.records().to_vec(),
                 path: book.path().display().to_string(),
                 new_file: report.new_file,
+                trouble: report.integrity.headline(),
                 error: None,
             },
             Err(e) => LogView {
                 records: Vec::new(),
                 path: String::new(),
                 new_file: false,
+                trouble: None,
                 error: Some(e),
             },
         }
@@ -162,7 +169,7 @@ impl LogView {
                 records: &self.records,
                 path: &self.path,
                 new_file: self.new_file,
-                trouble: None,
+                trouble: self.trouble.as_deref(),
             },
         };
         preflight::evaluate(&preflight::Inputs {
@@ -171,13 +178,14 @@ impl LogView {
             live: Some(st),
             log,
             signing: None,
+            margin: None,
         })
     }
 }
 
 /// Write a detection to the log at once; the notice says where it went
 /// (vehicle and file) or why it could not be written.
-fn write_detection(l: &Loaded, log: &LogOpts, d: &crate::logbook::DetectionEvent) -> String {
+fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEvent) -> String {
     let vehicle = &l.profile.vehicle.id;
     let args = super::log_cmd::same_log_args(l, log);
     let written = log.operator().and_then(|operator| {
@@ -205,12 +213,20 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log);
+        // Records another process writes are seen within about a second.
+        let mut follower = cagehand::logbook::follow::Follower::new(Path::new(&book.path));
+        let mut looked = Instant::now();
         while let Ok(msg) = link.rx.recv() {
             let step = feed.push(super::live::feed_input(msg));
             let mut extra = step.note.clone().map(Msg::Notice);
             if let Some(d) = &step.detection {
                 extra = Some(Msg::Notice(write_detection(&l, &log, d)));
                 book = LogView::read(&l, &log);
+            } else if looked.elapsed() >= Duration::from_secs(1) {
+                looked = Instant::now();
+                if follower.changed() {
+                    book = LogView::read(&l, &log);
+                }
             }
             let eval = book.evaluate(&l, &step.state);
             let live = Msg::Live(Box::new(live_view(&step.state, feed.tracker(), Some(eval))));

@@ -8,10 +8,10 @@
 use super::link_args::LinkArgs;
 use super::log_cmd::LogOpts;
 use super::{Loaded, ProfileArg};
-use crate::feed::Feed;
-use crate::link::transport::Mode;
-use crate::logbook::{Access, DetectionEvent, detection};
-use crate::tracker::WatchStateKind;
+use crate::transport::Mode;
+use cagehand::feed::Feed;
+use cagehand::logbook::{Access, DetectionEvent, detection};
+use cagehand::tracker::WatchStateKind;
 use serde::Serialize;
 use std::collections::BTreeSet;
 use std::io::Write;
@@ -109,13 +109,10 @@ fn log_detection(
             } else {
                 format!("already in the log as #{} (a replay)", logged.seq)
             };
+            let args = super::log_cmd::same_log_args(l, opts);
             eprintln!(
-                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}` or `cagehand log dismiss {} --reason TEXT`{}",
-                d.peak_g,
-                d.face,
-                logged.seq,
-                logged.seq,
-                super::log_cmd::same_log_args(l, opts)
+                "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}{args}` or `cagehand log dismiss {} --reason TEXT{args}`",
+                d.peak_g, d.face, logged.seq, logged.seq,
             );
             (Some(logged), Some(path))
         }

@@ -1,17 +1,20 @@
 //! The log file format, pure: bytes in, records out, and records to lines.
 //! No file is touched here, so every rule can be tested on byte strings.
+//! How a single line is framed, hashed and chained is in
+//! [`chain`](super::chain); this module splits the file into its header and
+//! lines, finds a torn tail, and gathers what the chain walk says into
+//! [`Integrity`].
 
+use super::chain::{self, ChainHead, Decoded, Integrity, Issue, IssueKind, Item};
 use super::{FORMAT_VERSION, Record};
-use sha2::{Digest, Sha256};
+
+pub use super::chain::sha256_hex;
 
 /// The first word of the header line.
 pub const MAGIC: &str = "cagehand-logbook";
 
 /// Most decode attempts spent recovering records from one damaged line.
 const MAX_RECOVERY_ATTEMPTS: u32 = 2000;
-
-/// What separates a record's JSON from its checksum.
-const SUM_TAG: &str = " sha256=";
 
 /// Why a file cannot be read as a log at all (the header).
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -28,15 +31,6 @@ pub enum FormatError {
         /// The version in the file.
         found: u32,
     },
-}
-
-/// A record line that does not check, away from the end of the file.
-#[derive(Debug, Clone, PartialEq)]
-pub struct Problem {
-    /// 1-based line number.
-    pub line: usize,
-    /// What is wrong.
-    pub reason: String,
 }
 
 /// A torn or corrupt last line: the bytes from `offset` to the end.
@@ -59,68 +53,68 @@ pub struct Parsed {
     pub format: Option<u32>,
     /// Vehicle id from the header.
     pub vehicle: Option<String>,
-    /// Records that check, in file order, with their 1-based line numbers.
+    /// Records that check, in file order, with their 1-based line numbers
+    /// (an exact repeat of an earlier line is left out: counted once).
     pub records: Vec<(usize, Record)>,
-    /// Corrupt lines in the middle, skipped.
-    pub problems: Vec<Problem>,
-    /// Sequence numbers out of order (a gap or a repeat), as warnings.
-    pub sequence_warnings: Vec<Problem>,
-    /// A torn or corrupt last line, to be set aside.
+    /// A torn last line (a write cut short), to be set aside.
     pub tail: Option<TornTail>,
     /// The line number of a last record that checks but has no newline
     /// after it (e.g. lost in an edit or a merge under version control).
     /// It is kept; the next append writes the missing newline first.
     pub unterminated: Option<usize>,
+    /// The last line ended in CRLF (the file was converted, e.g. by a
+    /// checkout): the next append uses the same line end.
+    pub crlf: bool,
+    /// Everything found about the log's soundness, with the chain head.
+    pub integrity: Integrity,
+    /// The chain value after the last kept line: the next record's `prev`.
+    pub chain_value: String,
 }
 
 impl Parsed {
-    /// The sequence number the next record gets.
-    pub fn next_seq(&self) -> u64 {
-        self.records.iter().map(|(_, r)| r.seq).max().unwrap_or(0) + 1
+    /// The sequence number the next record gets, or `None` when the
+    /// largest number in the log leaves no next one (numbers never wrap).
+    pub fn next_seq(&self) -> Option<u64> {
+        self.records
+            .iter()
+            .map(|(_, r)| r.seq)
+            .max()
+            .unwrap_or(0)
+            .checked_add(1)
     }
 }
 
-/// The header line for a vehicle, with its newline.
+/// The header line of a new log for a vehicle, with its newline.
 pub fn encode_header(vehicle_id: &str) -> String {
     format!("{MAGIC} format={FORMAT_VERSION} vehicle={vehicle_id}\n")
 }
 
-/// Lower-case hex SHA-256 of some bytes.
-pub fn sha256_hex(bytes: &[u8]) -> String {
-    let digest = Sha256::digest(bytes);
-    let mut s = String::with_capacity(64);
-    for b in digest.iter() {
-        s.push_str(&format!("{b:02x}"));
-    }
-    s
-}
-
-/// One record as a line of the file, with its newline. Refuses a record
-/// that could not be read back (non-finite numbers, a bad time).
+/// One record as a format-1 line (unchained), with its newline. Refuses a
+/// record that could not be read back (non-finite numbers, a bad time).
+/// This program writes chained lines ([`encode_log`], the store); this
+/// form is for reading and testing format-1 logs.
 pub fn encode_record(record: &Record) -> Result<String, String> {
-    record.check()?;
-    let json = serde_json::to_string(record).map_err(|e| e.to_string())?;
-    // serde_json escapes control characters, so the JSON holds no newline.
-    Ok(format!("{json}{SUM_TAG}{}\n", sha256_hex(json.as_bytes())))
+    chain::encode_unchained(record)
 }
 
-/// Decode one record line (without its newline).
+/// A whole new log (format 2, chained) holding these records, as the
+/// store would write it.
+pub fn encode_log(vehicle_id: &str, records: &[Record]) -> Result<String, String> {
+    let mut s = encode_header(vehicle_id);
+    let mut value = chain::header_value(s.trim_end());
+    for r in records {
+        let (line, hash) = chain::encode_chained(r, &value)?;
+        s.push_str(&line);
+        value = hash;
+    }
+    Ok(s)
+}
+
+/// Decode one record line (without its newline; a CRLF's `\r` is ignored).
 pub fn decode_record(line: &[u8]) -> Result<Record, String> {
-    let text = std::str::from_utf8(line).map_err(|e| format!("not UTF-8 text ({e})"))?;
-    let (json, sum) = text
-        .rsplit_once(SUM_TAG)
-        .ok_or_else(|| "no `sha256=` checksum at the end of the line".to_string())?;
-    if sum.len() != 64 || !sum.bytes().all(|b| b.is_ascii_hexdigit()) {
-        return Err(format!("checksum {sum:?} is not 64 hex digits"));
-    }
-    let actual = sha256_hex(json.as_bytes());
-    if !actual.eq_ignore_ascii_case(sum) {
-        return Err("checksum does not match the record (changed or damaged)".to_string());
-    }
-    let record: Record =
-        serde_json::from_str(json).map_err(|e| format!("record does not read: {e}"))?;
-    record.check()?;
-    Ok(record)
+    chain::decode_line(line)
+        .map(|d| d.record)
+        .map_err(|e| e.reason)
 }
 
 fn parse_header(line: &str) -> Result<(u32, Option<String>), FormatError> {
@@ -150,8 +144,8 @@ fn parse_header(line: &str) -> Result<(u32, Option<String>), FormatError> {
 /// Whole records inside a damaged line: every span that starts at a `{`
 /// and ends just after a `sha256=` and 64 hex digits, whose checksum holds.
 /// A checksum cannot match by accident, so nothing false is recovered.
-fn recover(line: &[u8]) -> Vec<Record> {
-    let tag = SUM_TAG.as_bytes();
+fn recover(line: &[u8]) -> Vec<Decoded> {
+    let tag = chain::SUM_TAG.as_bytes();
     let ends: Vec<usize> = (0..line.len().saturating_sub(tag.len() + 63))
         .filter(|&i| line[i..].starts_with(tag))
         .map(|i| i + tag.len() + 64)
@@ -170,8 +164,8 @@ fn recover(line: &[u8]) -> Vec<Record> {
             if attempts > MAX_RECOVERY_ATTEMPTS {
                 return found;
             }
-            if let Ok(r) = decode_record(&line[start..end]) {
-                found.push(r);
+            if let Ok(d) = chain::decode_line(&line[start..end]) {
+                found.push(d);
                 from = end;
                 break;
             }
@@ -180,8 +174,33 @@ fn recover(line: &[u8]) -> Vec<Record> {
     found
 }
 
+/// A damaged line, and the whole records inside it, as chain items.
+fn bad_line(items: &mut Vec<Item>, no: usize, line: &[u8], error: chain::LineError) {
+    let found = recover(line);
+    let mut error = error;
+    if !found.is_empty() {
+        error.reason = format!(
+            "{}; {} whole record(s) recovered from it",
+            error.reason,
+            found.len()
+        );
+    }
+    items.push(Item::Bad {
+        line: no,
+        error,
+        raw_hash: sha256_hex(line),
+        recovered: found.len(),
+    });
+    items.extend(
+        found
+            .into_iter()
+            .map(|decoded| Item::Record { line: no, decoded }),
+    );
+}
+
 /// Read a log's bytes. Only a bad header is an error; damaged records are
-/// reported in the result and the rest still load.
+/// reported in [`Parsed::integrity`] and the rest still load. Lines may end
+/// in LF or CRLF, and the last may have no line end.
 pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
     let mut out = Parsed::default();
     if bytes.is_empty() {
@@ -197,27 +216,51 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
                 bytes: bytes.to_vec(),
                 reason: "torn header (the file was cut while being created)".to_string(),
             });
+            out.integrity.issues.push(Issue {
+                line: 1,
+                kind: IssueKind::Torn,
+                detail: "torn header (the file was cut while being created)".into(),
+            });
             return Ok(out);
         }
         return Err(FormatError::NotALogbook {
             found: String::from_utf8_lossy(&bytes[..bytes.len().min(60)]).into_owned(),
         });
     };
-    let header = String::from_utf8_lossy(&bytes[..first_nl]);
-    let (format, vehicle) = parse_header(header.trim_end_matches('\r'))?;
+    let header_bytes = bytes[..first_nl]
+        .strip_suffix(b"\r")
+        .unwrap_or(&bytes[..first_nl]);
+    let header = String::from_utf8_lossy(header_bytes);
+    let (format, vehicle) = parse_header(&header)?;
     out.format = Some(format);
     out.vehicle = vehicle;
+    out.crlf = header_bytes.len() < first_nl;
+    let header_value = chain::header_value(&header);
+
+    let mut items: Vec<Item> = Vec::new();
     // A damaged newline after the header runs the first record into it.
-    let stowaways = recover(&bytes[..first_nl]);
+    let stowaways = recover(header_bytes);
     if !stowaways.is_empty() {
-        out.problems.push(Problem {
+        items.push(Item::Bad {
             line: 1,
-            reason: format!(
-                "the header line runs on; {} whole record(s) recovered from it",
-                stowaways.len()
-            ),
+            error: chain::LineError {
+                reason: format!(
+                    "the header line runs on; {} whole record(s) recovered from it",
+                    stowaways.len()
+                ),
+                verified: false,
+                tag: None,
+                chained: false,
+                seq: None,
+            },
+            raw_hash: String::new(),
+            recovered: stowaways.len(),
         });
-        out.records.extend(stowaways.into_iter().map(|r| (1, r)));
+        items.extend(
+            stowaways
+                .into_iter()
+                .map(|decoded| Item::Record { line: 1, decoded }),
+        );
     }
 
     // Split the rest into lines, remembering where each starts.
@@ -237,31 +280,42 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
         }
         line_no += 1;
     }
+    let is_blank = |l: &[u8]| l.is_empty() || l == b"\r";
     // The last line that is not empty is the candidate tail.
-    let last_nonempty = lines.iter().rposition(|(_, _, l, _)| !l.is_empty());
+    let last_nonempty = lines.iter().rposition(|(_, _, l, _)| !is_blank(l));
     for (idx, (no, offset, line, terminated)) in lines.iter().enumerate() {
-        if line.is_empty() {
+        if is_blank(line) {
             continue;
         }
+        if *terminated {
+            out.crlf = line.ends_with(b"\r");
+        }
         let is_last = Some(idx) == last_nonempty;
-        // An unterminated line can only be the last. It is kept when its
-        // checksum and JSON hold (only its newline was lost); otherwise it
-        // is a write cut short.
-        let decoded = decode_record(line).map_err(|reason| {
-            if *terminated {
-                reason
-            } else {
-                format!("torn record: the line has no end (a write was cut short): {reason}")
-            }
-        });
-        match decoded {
-            Ok(r) => {
+        match chain::decode_line(line) {
+            Ok(decoded) => {
                 if !*terminated {
                     out.unterminated = Some(*no);
                 }
-                out.records.push((*no, r))
+                items.push(Item::Record { line: *no, decoded });
             }
-            Err(reason) if is_last => {
+            // A last line without its end that does not check is a write
+            // cut short (a record is written with its newline in one write).
+            // A whole line that does not check was changed or damaged after
+            // it was written, and one whose checksum holds is as written:
+            // both stay in the file, reported.
+            Err(e) if is_last && !e.verified && !*terminated => {
+                let reason = format!(
+                    "torn record: the line has no end (a write was cut short): {}",
+                    e.reason
+                );
+                out.integrity.issues.push(Issue {
+                    line: *no,
+                    kind: IssueKind::Torn,
+                    detail: format!(
+                        "torn last record: the line has no end (a write was cut short): {}",
+                        e.reason
+                    ),
+                });
                 out.tail = Some(TornTail {
                     line: *no,
                     offset: *offset,
@@ -269,33 +323,70 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
                     reason,
                 });
             }
-            Err(reason) => {
-                // A damaged line may hold whole records, e.g. two lines run
-                // together when the newline between them was damaged.
-                let found = recover(line);
-                let reason = if found.is_empty() {
-                    reason
-                } else {
-                    format!(
-                        "{reason}; {} whole record(s) recovered from it",
-                        found.len()
-                    )
-                };
-                out.problems.push(Problem { line: *no, reason });
-                out.records.extend(found.into_iter().map(|r| (*no, r)));
-            }
+            Err(e) => bad_line(&mut items, *no, line, e),
         }
     }
-    let mut expected = 1;
-    for (no, r) in &out.records {
-        if r.seq != expected {
-            out.sequence_warnings.push(Problem {
-                line: *no,
-                reason: format!("sequence number {} where {expected} was expected", r.seq),
+
+    let walk = chain::walk(format, &header_value, &items);
+    let mut issues: Vec<Issue> = Vec::new();
+    for item in &items {
+        if let Item::Bad { line, error, .. } = item {
+            issues.push(Issue {
+                line: *line,
+                kind: if error.verified {
+                    IssueKind::Unreadable
+                } else {
+                    IssueKind::Corrupt
+                },
+                detail: {
+                    let what = if error.verified {
+                        "unreadable"
+                    } else {
+                        "corrupt"
+                    };
+                    match error.seq {
+                        Some(n) => format!(
+                            "{what} record skipped (it claims number {n}): {}",
+                            error.reason
+                        ),
+                        None => format!("{what} record skipped: {}", error.reason),
+                    }
+                },
             });
         }
-        expected = r.seq.saturating_add(1);
     }
+    issues.extend(walk.issues);
+    issues.extend(chain::sequence_issues(&items, &walk.keep));
+    issues.append(&mut out.integrity.issues);
+    issues.sort_by_key(|i| i.line);
+    out.integrity.issues = issues;
+    out.integrity.unchained = walk.unchained;
+    if let Some(no) = out.unterminated {
+        out.integrity.notes.push(format!(
+            "line {no}: the last record has no line end (edited or merged?); it checks and is kept, and the next write adds the line end"
+        ));
+    }
+    for (idx, item) in items.into_iter().enumerate() {
+        if let Item::Record { line, decoded } = item
+            && walk.keep[idx]
+        {
+            out.records.push((line, decoded.record));
+        }
+    }
+    // The head is the newest record's chain value (the header's when there
+    // is none), the one a kept head is later compared with.
+    out.integrity.head = Some(match walk.links.last() {
+        Some(l) => ChainHead {
+            seq: l.seq,
+            hash: l.value.clone(),
+        },
+        None => ChainHead {
+            seq: 0,
+            hash: header_value.clone(),
+        },
+    });
+    out.integrity.links = walk.links;
+    out.chain_value = walk.value;
     Ok(out)
 }
 
@@ -316,12 +407,29 @@ mod tests {
         }
     }
 
+    /// The chained lines a new log holds for these records.
+    fn lines(records: &[Record]) -> Vec<String> {
+        let mut value = chain::header_value(encode_header("kestrel-demo").trim_end());
+        records
+            .iter()
+            .map(|r| {
+                let (line, hash) = chain::encode_chained(r, &value).unwrap();
+                value = hash;
+                line
+            })
+            .collect()
+    }
+
     fn file(records: &[Record]) -> Vec<u8> {
-        let mut s = encode_header("kestrel-demo");
-        for r in records {
-            s.push_str(&encode_record(r).unwrap());
-        }
-        s.into_bytes()
+        encode_log("kestrel-demo", records).unwrap().into_bytes()
+    }
+
+    fn issues(p: &Parsed, kind: IssueKind) -> Vec<&Issue> {
+        p.integrity
+            .issues
+            .iter()
+            .filter(|i| i.kind == kind)
+            .collect()
     }
 
     #[test]
@@ -340,11 +448,15 @@ mod tests {
             },
         ];
         let p = parse(&file(&recs)).unwrap();
-        assert_eq!(p.format, Some(1));
+        assert_eq!(p.format, Some(FORMAT_VERSION));
         assert_eq!(p.vehicle.as_deref(), Some("kestrel-demo"));
         let got: Vec<Record> = p.records.into_iter().map(|(_, r)| r).collect();
         assert_eq!(got, recs);
-        assert!(p.problems.is_empty() && p.tail.is_none() && p.sequence_warnings.is_empty());
+        assert!(
+            p.integrity.is_sound() && p.tail.is_none(),
+            "{:?}",
+            p.integrity
+        );
     }
 
     #[test]
@@ -387,9 +499,9 @@ mod tests {
         let p = parse(&bytes).unwrap();
         assert_eq!(p.records.len(), 2);
         assert_eq!(p.tail, None);
-        assert!(p.problems.is_empty());
+        assert!(p.integrity.is_sound());
         assert_eq!(p.unterminated, Some(3));
-        assert_eq!(p.next_seq(), 3);
+        assert_eq!(p.next_seq(), Some(3));
         let n = bytes.len();
         bytes[n - 5] ^= 0x01;
         let p = parse(&bytes).unwrap();
@@ -401,13 +513,20 @@ mod tests {
     }
 
     #[test]
-    fn corrupt_last_line_with_newline_is_the_tail() {
+    fn a_complete_last_line_that_does_not_check_is_kept_and_reported() {
+        // Pins: a write is one `write` ending in its newline, so a crash
+        // leaves a line without one. A whole last line that fails its hash
+        // was changed or damaged after it was written: it stays in the file
+        // and is reported every time, never quietly set aside.
         let mut bytes = file(&[note(1, "a"), note(2, "b")]);
         let n = bytes.len();
         bytes[n - 10] ^= 0x01; // flips a checksum digit
         let p = parse(&bytes).unwrap();
         assert_eq!(p.records.len(), 1);
-        assert_eq!(p.tail.as_ref().map(|t| t.line), Some(3));
+        assert_eq!(p.tail, None);
+        let bad = issues(&p, IssueKind::Corrupt);
+        assert_eq!(bad.len(), 1);
+        assert_eq!(bad[0].line, 3);
     }
 
     #[test]
@@ -416,13 +535,15 @@ mod tests {
         let text = String::from_utf8(bytes).unwrap().replace("bravo", "brav0");
         let p = parse(text.as_bytes()).unwrap();
         assert_eq!(p.records.len(), 2);
-        assert_eq!(p.problems.len(), 1);
-        assert_eq!(p.problems[0].line, 3);
-        assert!(p.problems[0].reason.contains("checksum"));
+        let bad = issues(&p, IssueKind::Corrupt);
+        assert_eq!(bad.len(), 1);
+        assert_eq!(bad[0].line, 3);
+        assert!(bad[0].detail.contains("checksum"));
         assert!(p.tail.is_none());
-        // The lost record leaves a gap the reader is told about.
-        assert_eq!(p.sequence_warnings.len(), 1);
-        assert_eq!(p.next_seq(), 4);
+        // The corruption is the one problem: record 2 is present but
+        // damaged, so neither "3 where 2 expected" nor a broken link to it.
+        assert_eq!(p.integrity.issues.len(), 1, "{:?}", p.integrity.issues);
+        assert_eq!(p.next_seq(), Some(4));
     }
 
     #[test]
@@ -468,9 +589,10 @@ mod tests {
         let seqs: Vec<u64> = p.records.iter().map(|(_, r)| r.seq).collect();
         // Both halves of the run-together line check: nothing is lost.
         assert_eq!(seqs, vec![1, 2, 3]);
-        assert_eq!(p.problems.len(), 1);
-        assert_eq!(p.problems[0].line, 2);
-        assert!(p.problems[0].reason.contains("2 whole record(s) recovered"));
+        let bad = issues(&p, IssueKind::Corrupt);
+        assert_eq!(bad.len(), 1);
+        assert_eq!(bad[0].line, 2);
+        assert!(bad[0].detail.contains("2 whole record(s) recovered"));
     }
 
     #[test]
@@ -483,9 +605,9 @@ mod tests {
         use crate::impact::{ImpactInput, ImpactMethod};
         let bytes = include_bytes!("../../tests/fixtures/logbook/format1-impacts.cagelog");
         let p = parse(bytes).unwrap();
-        assert!(p.problems.is_empty() && p.tail.is_none() && p.unterminated.is_none());
+        assert!(p.integrity.is_sound() && p.tail.is_none() && p.unterminated.is_none());
         assert_eq!(p.records.len(), 4);
-        let mut again = encode_header("kestrel-demo");
+        let mut again = "cagehand-logbook format=1 vehicle=kestrel-demo\n".to_string();
         for (_, r) in &p.records {
             again.push_str(&encode_record(r).unwrap());
         }
@@ -548,12 +670,13 @@ mod tests {
             Err(FormatError::NotALogbook { .. })
         ));
         assert!(matches!(
-            parse(b"cagehand-logbook format=2 vehicle=x\n"),
-            Err(FormatError::NewerFormat { found: 2 })
+            parse(b"cagehand-logbook format=3 vehicle=x\n"),
+            Err(FormatError::NewerFormat { found: 3 })
         ));
         let torn = parse(b"cagehand-log").unwrap();
         assert_eq!(torn.tail.map(|t| t.offset), Some(0));
         assert_eq!(parse(b"").unwrap(), Parsed::default());
+        assert!(parse(b"cagehand-logbook format=1 vehicle=x\n").is_ok());
     }
 
     #[test]
@@ -598,8 +721,9 @@ mod tests {
                 // Which record's line held the damaged byte.
                 let mut start = header_len;
                 let mut hit = None;
-                for (i, r) in recs.iter().enumerate() {
-                    let len = encode_record(r).unwrap().len();
+                let chained = lines(recs);
+                for (i, line) in chained.iter().enumerate() {
+                    let len = line.len();
                     if (start..start + len).contains(&pos) {
                         hit = Some(i);
                     }
@@ -610,8 +734,7 @@ mod tests {
                 let got: Vec<&Record> = p.records.iter().map(|(_, r)| r).collect();
                 let tail = p.tail.as_ref().map(|t| t.bytes.clone()).unwrap_or_default();
                 for (i, r) in recs.iter().enumerate() {
-                    let line = encode_record(r).unwrap();
-                    let body = line.trim_end().as_bytes();
+                    let body = chained[i].trim_end().as_bytes();
                     let in_tail = tail.windows(body.len()).any(|w| w == body);
                     if Some(i) != hit {
                         // Kept in the log, or (the last line only) in
@@ -681,7 +804,7 @@ mod tests {
                 complete += 1;
             }
             prop_assert_eq!(p.records.len(), complete);
-            prop_assert!(p.problems.is_empty());
+            prop_assert!(p.integrity.issues.iter().all(|i| i.kind == IssueKind::Torn), "{:?}", p.integrity.issues);
         }
     }
 }

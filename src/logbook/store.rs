@@ -2,7 +2,8 @@
 //! aside, append one record durably. This is the only part of the logbook
 //! that touches files, and only the file the caller names.
 
-use super::format::{self, Problem, TornTail};
+use super::chain::{self, ChainHead, Integrity, Issue, IssueKind};
+use super::format::{self, TornTail};
 use super::{Event, Record, format_time};
 use std::fs::{File, OpenOptions};
 use std::io::{Read, Seek, SeekFrom, Write};
@@ -51,6 +52,17 @@ pub enum StoreError {
     /// The log was opened for reading only.
     #[error("the log was opened for reading only")]
     ReadOnly,
+    /// The largest sequence number in the log has no successor; numbers
+    /// never wrap back to 0.
+    #[error(
+        "{path}: record {last} holds the largest sequence number there is; no record can follow it (numbers never wrap): start a new log for this vehicle and keep this one"
+    )]
+    SequenceExhausted {
+        /// The log file.
+        path: PathBuf,
+        /// The largest sequence number in the log.
+        last: u64,
+    },
 }
 
 /// Reading only (no lock against readers, no repair) or writing.
@@ -80,10 +92,10 @@ pub struct SetAside {
 pub struct OpenReport {
     /// The file did not exist (writing creates it at the first record).
     pub new_file: bool,
-    /// Corrupt records in the middle, skipped.
-    pub problems: Vec<Problem>,
-    /// Sequence gaps or repeats.
-    pub sequence_warnings: Vec<Problem>,
+    /// Every integrity problem found (corrupt, torn, broken chain,
+    /// duplicate, missing records), notes, and the chain head: what the
+    /// screens and reports show wherever a decision is made from the log.
+    pub integrity: Integrity,
     /// A torn tail moved to the side file (writing).
     pub set_aside: Option<SetAside>,
     /// A torn tail left in place (reading).
@@ -96,44 +108,24 @@ pub struct OpenReport {
 }
 
 impl OpenReport {
-    /// Everything worth telling the operator, one sentence each.
+    /// Everything worth telling the operator, one sentence each: every
+    /// integrity problem with what it affects, then the notes. The text
+    /// may hold outside bytes: escape it before printing
+    /// ([`crate::text::terminal`]).
     pub fn messages(&self, path: &Path) -> Vec<String> {
         let p = path.display();
-        let mut out = Vec::new();
-        if let Some(v) = &self.other_vehicle {
-            out.push(format!("{p}: the header names vehicle {v:?}"));
-        }
-        for pr in &self.problems {
-            out.push(format!(
-                "{p}:{}: corrupt record skipped: {}",
-                pr.line, pr.reason
-            ));
-        }
-        for pr in &self.sequence_warnings {
-            out.push(format!("{p}:{}: {}", pr.line, pr.reason));
-        }
-        if let Some(s) = &self.set_aside {
-            out.push(format!(
-                "{p}:{}: torn last record ({} bytes: {}) moved to {}; every record before it is kept",
-                s.line,
-                s.bytes,
-                s.reason,
-                s.side_path.display()
-            ));
-        }
-        if let Some(line) = self.unterminated {
-            out.push(format!(
-                "{p}:{line}: note: the last record has no line end (edited or merged?); it checks and is kept, and the next write adds the line end"
-            ));
-        }
-        if let Some(t) = &self.torn_tail {
-            out.push(format!(
-                "{p}:{}: torn last record ({} bytes: {}) ignored; the next write sets it aside",
-                t.line,
-                t.bytes.len(),
-                t.reason
-            ));
-        }
+        let mut out: Vec<String> = self
+            .integrity
+            .issues
+            .iter()
+            .map(|i| format!("{p}:{}: {} ({})", i.line, i.detail, i.kind.effect()))
+            .collect();
+        out.extend(
+            self.integrity
+                .notes
+                .iter()
+                .map(|n| format!("{p}: note: {n}")),
+        );
         out
     }
 }
@@ -157,10 +149,17 @@ pub struct Logbook {
     access: Access,
     records: Vec<Record>,
     len: u64,
-    next_seq: u64,
-    /// The file ends in a record without its newline: the next append
-    /// writes it first, in the same single write.
-    needs_newline: bool,
+    /// `None` when the largest sequence number has no successor.
+    next_seq: Option<u64>,
+    /// The file ends in a record without its line end: the next append
+    /// writes this first, in the same single write.
+    pending_eol: &'static str,
+    /// The line end of the file (CRLF once a checkout converted it).
+    eol: &'static str,
+    /// The chain value after the last line: the next record's `prev`.
+    chain_value: String,
+    /// The newest record's sequence number and chain value.
+    head: Option<ChainHead>,
 }
 
 fn io(action: &'static str, path: &Path) -> impl FnOnce(std::io::Error) -> StoreError + use<> {
@@ -244,8 +243,11 @@ impl Logbook {
             access,
             records: Vec::new(),
             len: 0,
-            next_seq: 1,
-            needs_newline: false,
+            next_seq: Some(1),
+            pending_eol: "",
+            eol: "\n",
+            chain_value: String::new(),
+            head: None,
         };
         let Some(f) = file.as_mut() else {
             report.new_file = true;
@@ -260,39 +262,96 @@ impl Logbook {
         })?;
         book.next_seq = parsed.next_seq();
         book.len = bytes.len() as u64;
+        let mut integrity = parsed.integrity;
         if let Some(v) = &parsed.vehicle
             && v != vehicle_id
         {
             report.other_vehicle = Some(v.clone());
+            integrity.issues.insert(
+                0,
+                Issue {
+                    line: 1,
+                    kind: IssueKind::OtherVehicle,
+                    detail: format!("the header names vehicle {v:?}, not {vehicle_id:?}"),
+                },
+            );
         }
-        report.problems = parsed.problems;
-        report.sequence_warnings = parsed.sequence_warnings;
         report.unterminated = parsed.unterminated;
-        book.needs_newline = parsed.unterminated.is_some();
+        book.eol = if parsed.crlf { "\r\n" } else { "\n" };
+        if parsed.unterminated.is_some() {
+            book.pending_eol = if bytes.ends_with(b"\r") {
+                "\n"
+            } else {
+                book.eol
+            };
+        }
+        book.chain_value = parsed.chain_value;
+        book.head = integrity.head.clone();
         book.records = parsed.records.into_iter().map(|(_, r)| r).collect();
         if let Some(tail) = parsed.tail {
             match access {
-                Access::Read => report.torn_tail = Some(tail),
+                Access::Read => {
+                    for i in &mut integrity.issues {
+                        if i.kind == IssueKind::Torn && i.line == tail.line {
+                            i.detail.push_str(
+                                "; ignored, and the next write moves it to the side file",
+                            );
+                        }
+                    }
+                    report.torn_tail = Some(tail);
+                }
                 Access::Write => {
-                    report.set_aside = Some(book.set_aside(f, &tail)?);
+                    let s = book.set_aside(f, &tail)?;
+                    for i in &mut integrity.issues {
+                        if i.kind == IssueKind::Torn && i.line == tail.line {
+                            i.detail = format!(
+                                "torn last record moved to {} ({} bytes; every record before it is kept): {}",
+                                s.side_path.display(),
+                                s.bytes,
+                                tail.reason
+                            );
+                        }
+                    }
+                    report.set_aside = Some(s);
                     book.len = tail.offset as u64;
                 }
             }
         }
+        report.integrity = integrity;
         book.file = file;
         Ok((book, report))
     }
 
     /// Copy a torn tail to the side file (durably), then cut it from the log.
+    /// A kill between the two leaves the tail in both; the next open finds
+    /// it already in the side file and only cuts, so it is never copied
+    /// twice.
     fn set_aside(&self, file: &File, tail: &TornTail) -> Result<SetAside, StoreError> {
         let mut side_name = self.path.as_os_str().to_owned();
         side_name.push(".set-aside");
         let side_path = PathBuf::from(side_name);
         let mut side = OpenOptions::new()
+            .read(true)
             .append(true)
             .create(true)
             .open(&side_path)
             .map_err(io("cannot open the side file", &side_path))?;
+        let done = SetAside {
+            side_path: side_path.clone(),
+            line: tail.line,
+            bytes: tail.bytes.len(),
+            reason: tail.reason.clone(),
+        };
+        let mut entry = b" bytes follow\n".to_vec();
+        entry.extend_from_slice(&tail.bytes);
+        entry.push(b'\n');
+        let kept = read_all(&mut side, &side_path)?;
+        if kept.windows(entry.len()).any(|w| w == entry.as_slice()) {
+            file.set_len(tail.offset as u64)
+                .and_then(|()| file.sync_data())
+                .map_err(io("cannot cut the torn record from", &self.path))?;
+            return Ok(done);
+        }
         let now = format_time(jiff::Timestamp::now());
         let mut buf = format!(
             "# set aside {now} from line {} (byte {}) of {}: {}; {} bytes follow\n",
@@ -311,12 +370,7 @@ impl Logbook {
         file.set_len(tail.offset as u64)
             .and_then(|()| file.sync_data())
             .map_err(io("cannot cut the torn record from", &self.path))?;
-        Ok(SetAside {
-            side_path,
-            line: tail.line,
-            bytes: tail.bytes.len(),
-            reason: tail.reason.clone(),
-        })
+        Ok(done)
     }
 
     /// Append one event as the next record, durably: one write of the whole
@@ -334,22 +388,29 @@ impl Logbook {
         let Some(file) = self.file.as_mut() else {
             return Err(StoreError::ReadOnly);
         };
+        let Some(seq) = self.next_seq else {
+            return Err(StoreError::SequenceExhausted {
+                path: self.path.clone(),
+                last: u64::MAX,
+            });
+        };
         let record = Record {
-            seq: self.next_seq,
+            seq,
             time: format_time(time),
             operator: operator.to_string(),
             event,
         };
-        let line = format::encode_record(&record).map_err(StoreError::Record)?;
         let creating = self.len == 0;
-        let mut buf = if creating {
-            format::encode_header(&self.vehicle)
-        } else if self.needs_newline {
-            "\n".to_string()
+        let (mut buf, prev) = if creating {
+            let header = format::encode_header(&self.vehicle);
+            let value = chain::header_value(header.trim_end());
+            (header, value)
         } else {
-            String::new()
+            (self.pending_eol.to_string(), self.chain_value.clone())
         };
-        buf.push_str(&line);
+        let (line, hash) = chain::encode_chained(&record, &prev).map_err(StoreError::Record)?;
+        buf.push_str(line.trim_end_matches('\n'));
+        buf.push_str(if creating { "\n" } else { self.eol });
         let old_len = self.len;
         let written = file
             .write_all(buf.as_bytes())
@@ -368,10 +429,21 @@ impl Logbook {
             }
         }
         self.len += buf.len() as u64;
-        self.needs_newline = false;
-        self.next_seq += 1;
+        self.pending_eol = "";
+        self.next_seq = seq.checked_add(1);
+        self.head = Some(ChainHead {
+            seq,
+            hash: hash.clone(),
+        });
+        self.chain_value = hash;
         self.records.push(record.clone());
         Ok(record)
+    }
+
+    /// The chain head after the newest record (`None`: no log file yet):
+    /// print it with every report, so a record removed later shows.
+    pub fn head(&self) -> Option<&ChainHead> {
+        self.head.as_ref()
     }
 
     /// The records that check, in file order.
@@ -401,6 +473,27 @@ mod tests {
 
     const WAIT: Duration = Duration::from_millis(100);
 
+    /// A new log of vehicle `v` holding two notes: its folder and path.
+    fn two_notes() -> (tempfile::TempDir, PathBuf) {
+        let dir = tempfile::tempdir().unwrap();
+        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let now = jiff::Timestamp::now();
+        b.append("ana", now, note("one")).unwrap();
+        b.append("ana", now, note("two")).unwrap();
+        let path = b.path().to_path_buf();
+        (dir, path)
+    }
+
+    /// Nothing to report: sound, nothing torn or set aside.
+    fn clean(r: &OpenReport) -> bool {
+        r.integrity.is_sound()
+            && r.integrity.notes.is_empty()
+            && r.set_aside.is_none()
+            && r.torn_tail.is_none()
+            && r.unterminated.is_none()
+            && !r.new_file
+    }
+
     #[test]
     fn append_then_reopen_reads_back() {
         let dir = tempfile::tempdir().unwrap();
@@ -412,20 +505,15 @@ mod tests {
         drop(b);
         let (b, r) = Logbook::open(dir.path(), "v1", Access::Read, WAIT).unwrap();
         assert_eq!(b.records().len(), 2);
-        assert_eq!(r, OpenReport::default());
+        assert!(clean(&r), "{r:?}");
         let text = std::fs::read_to_string(dir.path().join("v1.cagelog")).unwrap();
-        assert!(text.starts_with("cagehand-logbook format=1 vehicle=v1\n"));
+        assert!(text.starts_with("cagehand-logbook format=2 vehicle=v1\n"));
     }
 
     #[test]
     fn torn_tail_goes_to_the_side_file_on_write_open() {
-        let dir = tempfile::tempdir().unwrap();
-        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let (dir, path) = two_notes();
         let now = jiff::Timestamp::now();
-        b.append("ana", now, note("one")).unwrap();
-        b.append("ana", now, note("two")).unwrap();
-        drop(b);
-        let path = dir.path().join("v.cagelog");
         let len = std::fs::metadata(&path).unwrap().len();
         let f = OpenOptions::new().write(true).open(&path).unwrap();
         f.set_len(len - 20).unwrap();
@@ -445,7 +533,7 @@ mod tests {
         assert_eq!(b.append("ana", now, note("three")).unwrap().seq, 2);
         drop(b);
         let (b, r) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
-        assert_eq!(r, OpenReport::default());
+        assert!(clean(&r), "{r:?}");
         assert_eq!(b.records().len(), 2);
     }
 
@@ -454,13 +542,8 @@ mod tests {
         // Pins: a last line that lost only its newline (an edit or a merge
         // under version control) is kept on read and on write open, nothing
         // is set aside, and the next append writes "\n" before its record.
-        let dir = tempfile::tempdir().unwrap();
-        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let (dir, path) = two_notes();
         let now = jiff::Timestamp::now();
-        b.append("ana", now, note("one")).unwrap();
-        b.append("ana", now, note("two")).unwrap();
-        drop(b);
-        let path = dir.path().join("v.cagelog");
         let full = std::fs::read(&path).unwrap();
         assert_eq!(full.last(), Some(&b'\n'));
         std::fs::write(&path, &full[..full.len() - 1]).unwrap();
@@ -485,7 +568,7 @@ mod tests {
         let text = std::fs::read(&path).unwrap();
         assert_eq!(&text[..full.len()], &full[..], "the newline was restored");
         let (b, r) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
-        assert_eq!(r, OpenReport::default());
+        assert!(clean(&r), "{r:?}");
         let seqs: Vec<u64> = b.records().iter().map(|r| r.seq).collect();
         assert_eq!(seqs, [1, 2, 3]);
     }
@@ -493,13 +576,7 @@ mod tests {
     #[test]
     fn an_unterminated_last_line_that_fails_its_checksum_is_still_set_aside() {
         // Pins: only a last line whose checksum (or JSON) fails is torn.
-        let dir = tempfile::tempdir().unwrap();
-        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
-        let now = jiff::Timestamp::now();
-        b.append("ana", now, note("one")).unwrap();
-        b.append("ana", now, note("two")).unwrap();
-        drop(b);
-        let path = dir.path().join("v.cagelog");
+        let (dir, path) = two_notes();
         let mut bytes = std::fs::read(&path).unwrap();
         bytes.pop();
         let n = bytes.len();
@@ -518,6 +595,92 @@ mod tests {
         let err = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap_err();
         assert!(matches!(err, StoreError::Locked { .. }), "{err}");
         assert!(err.to_string().contains("in use by another cagehand"));
+    }
+
+    #[test]
+    fn a_format_1_log_is_continued_with_chained_records() {
+        // The fixture was written by format 1 (tests/fixtures/logbook).
+        let dir = tempfile::tempdir().unwrap();
+        let path = dir.path().join("kestrel-demo.cagelog");
+        let old = include_bytes!("../../tests/fixtures/logbook/kestrel-demo.cagelog");
+        std::fs::write(&path, old).unwrap();
+        let (mut b, r) = Logbook::open(dir.path(), "kestrel-demo", Access::Write, WAIT).unwrap();
+        assert!(r.integrity.is_sound(), "{:?}", r.integrity);
+        assert_eq!(r.integrity.unchained, 6);
+        let before = b.head().cloned().unwrap();
+        assert_eq!(before.seq, 6);
+        let rec = b
+            .append("ana", jiff::Timestamp::now(), note("continued"))
+            .unwrap();
+        assert_eq!(rec.seq, 7);
+        drop(b);
+        let bytes = std::fs::read(&path).unwrap();
+        // The old part is untouched, header included; the new line links to
+        // the chain value the format-1 records fold into.
+        assert_eq!(&bytes[..old.len()], &old[..]);
+        let new_line = std::str::from_utf8(&bytes[old.len()..]).unwrap();
+        assert!(new_line.contains(&format!(" prev={} sha256=", before.hash)));
+        let (b, r) = Logbook::open(dir.path(), "kestrel-demo", Access::Read, WAIT).unwrap();
+        assert!(r.integrity.is_sound(), "{:?}", r.integrity);
+        assert_eq!(b.records().len(), 7);
+        assert_eq!(b.head().map(|h| h.seq), Some(7));
+    }
+
+    #[test]
+    fn a_crlf_log_keeps_every_record_and_is_continued_in_crlf() {
+        let (dir, path) = two_notes();
+        let now = jiff::Timestamp::now();
+        let lf = std::fs::read_to_string(&path).unwrap();
+        std::fs::write(&path, lf.replace('\n', "\r\n")).unwrap();
+        let (mut b, r) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        assert!(clean(&r), "{r:?}");
+        assert_eq!(b.records().len(), 2);
+        assert_eq!(b.append("ana", now, note("three")).unwrap().seq, 3);
+        drop(b);
+        let text = std::fs::read_to_string(&path).unwrap();
+        assert!(text.ends_with("\r\n") && !text.replace("\r\n", "").contains('\n'));
+        let (b, r) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
+        assert!(clean(&r), "{r:?}");
+        assert_eq!(b.records().len(), 3);
+    }
+
+    #[test]
+    fn the_largest_sequence_number_has_no_successor() {
+        let dir = tempfile::tempdir().unwrap();
+        let r = Record {
+            seq: u64::MAX,
+            time: "2026-12-01T22:40:00.000Z".into(),
+            operator: "ana".into(),
+            event: note("last"),
+        };
+        let text = format::encode_log("v", &[r]).unwrap();
+        std::fs::write(dir.path().join("v.cagelog"), text).unwrap();
+        let (mut b, _) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let err = b
+            .append("ana", jiff::Timestamp::now(), note("x"))
+            .unwrap_err();
+        assert!(matches!(err, StoreError::SequenceExhausted { .. }), "{err}");
+        assert!(err.to_string().contains("never wrap"));
+        assert_eq!(b.records().len(), 1);
+    }
+
+    #[test]
+    fn a_set_aside_cut_short_is_not_copied_twice() {
+        let (dir, path) = two_notes();
+        let full = std::fs::read(&path).unwrap();
+        let torn = &full[..full.len() - 20];
+        std::fs::write(&path, torn).unwrap();
+        let (b, r) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        let side = r.set_aside.unwrap().side_path;
+        drop(b);
+        // As if killed after the copy and before the cut: the tail is in
+        // both files. The next open only cuts.
+        std::fs::write(&path, torn).unwrap();
+        let (b, r) = Logbook::open(dir.path(), "v", Access::Write, WAIT).unwrap();
+        assert!(r.set_aside.is_some());
+        assert_eq!(b.records().len(), 1);
+        let kept = std::fs::read_to_string(&side).unwrap();
+        assert_eq!(kept.matches("bytes follow").count(), 1, "{kept}");
     }
 
     #[test]

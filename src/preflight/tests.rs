@@ -116,6 +116,7 @@ fn eval(records: &[Record], live: Option<&WatchState>) -> Evaluation {
             trouble: None,
         },
         signing: None,
+        margin: None,
     })
 }
 
@@ -297,6 +298,7 @@ fn signing_when_asked() {
                 trouble: None,
             },
             signing: Some(key),
+            margin: None,
         })
     };
     assert_eq!(
@@ -322,6 +324,7 @@ fn an_unreadable_log_fails_and_cannot_be_overridden() {
         live: None,
         log: LogInput::Unreadable("permission denied"),
         signing: None,
+        margin: None,
     });
     let it = item(&e, Check::CageLog);
     assert_eq!(it.result, Outcome::Fail);
@@ -442,55 +445,44 @@ fn gaps_in_sign_offs_are_said_plainly() {
 }
 
 #[test]
-fn the_margin_item_follows_the_profile_minimum_and_the_log() {
-    // The demo (invented data) takes about 4.8 m/s on its weakest face on
-    // packed soil (the margin tests check that figure against the impact
-    // analysis); a minimum above it fails, below it passes, and a cut
-    // (REPLACE NOW) grounds the cage whatever the minimum.
+fn the_margin_item_when_the_profile_asks() {
     let (mut p, c) = demo();
-    let run = |p: &Profile, records: &[Record]| {
+    p.preflight.min_margin_speed_m_per_s = Some(2.0);
+    let mk = |m: Option<&MarginSummary>| {
         evaluate(&Inputs {
-            profile: p,
+            profile: &p,
             cage: &c,
             live: None,
             log: LogInput::Read {
-                records,
-                path: "/d/v.cagelog",
-                new_file: records.is_empty(),
+                records: &[],
+                path: "x",
+                new_file: true,
                 trouble: None,
             },
             signing: None,
+            margin: m,
         })
     };
-    assert!(
-        run(&p, &[])
-            .items
-            .iter()
-            .all(|i| i.check != Some(Check::Margin)),
-        "no item without a minimum"
-    );
-    p.preflight.min_margin_speed_m_per_s = Some(3.0);
-    let e = run(&p, &[]);
-    let it = item(&e, Check::Margin);
-    assert_eq!(it.result, Outcome::Pass, "{}", it.detail);
-    assert!(
-        it.text.contains("at least 3 m/s on every face"),
-        "{}",
-        it.text
-    );
-    p.preflight.min_margin_speed_m_per_s = Some(6.0);
-    let e = run(&p, &[]);
-    let it = item(&e, Check::Margin);
-    assert_eq!(it.result, Outcome::Fail, "{}", it.detail);
-    assert!(it.blocks());
-    p.preflight.min_margin_speed_m_per_s = Some(0.5);
-    let recs = log(vec![finding("S3", FindingKind::Cut)]);
-    let e = run(&p, &recs);
+    let m = |speed: f64, grounded: &[&str]| MarginSummary {
+        weakest_face: "F7".into(),
+        speed_m_per_s: speed,
+        grounded_by: grounded.iter().map(|s| s.to_string()).collect(),
+    };
+    assert_eq!(item(&mk(None), Check::Margin).result, Outcome::Waiting);
+    let e = mk(Some(&m(1.5, &[])));
     let it = item(&e, Check::Margin);
     assert_eq!(it.result, Outcome::Fail);
-    assert!(
-        !it.can_override && it.detail.contains("S3"),
-        "{}",
-        it.detail
+    assert_eq!(it.text, "The cage takes at least 2.0 m/s on every face");
+    assert!(it.detail.contains("F7 takes only 1.5 m/s"), "{}", it.detail);
+    assert_eq!(
+        item(&mk(Some(&m(2.5, &[]))), Check::Margin).result,
+        Outcome::Pass
     );
+    assert_eq!(
+        item(&mk(Some(&m(0.0, &["R2"]))), Check::Margin).result,
+        Outcome::Fail
+    );
+    // Without the profile key there is no margin item.
+    let (p2, _) = demo();
+    assert!(p2.preflight.min_margin_speed_m_per_s.is_none());
 }

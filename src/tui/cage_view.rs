@@ -1,9 +1,9 @@
 //! The Cage screen: every member with its capacity and, where a cage log
 //! was read, its status, damage and the reasons in words.
 
-use crate::cage::MemberKind;
-use crate::health::Status;
 use crate::tui::model::Model;
+use cagehand::cage::MemberKind;
+use cagehand::health::Status;
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::text::{Line, Span};
@@ -20,7 +20,7 @@ pub fn cage(model: &Model, frame: &mut Frame, area: Rect) {
     .areas(area);
     frame.render_widget(
         Paragraph::new(
-            crate::caution::CAUTION_LINES
+            cagehand::caution::CAUTION_LINES
                 .iter()
                 .map(|l| Line::styled(format!(" {l}"), t.warn))
                 .collect::<Vec<_>>(),
@@ -60,7 +60,7 @@ pub fn cage(model: &Model, frame: &mut Frame, area: Rect) {
                 MemberKind::Rod => "rod",
                 MemberKind::String => "string",
             };
-            let cap = crate::statics::capacity_n(p, m.kind, m.length_m);
+            let cap = cagehand::statics::capacity_n(p, m.kind, m.length_m);
             let h = model
                 .health
                 .as_ref()

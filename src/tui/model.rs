@@ -1,14 +1,14 @@
 //! The screens' model, the messages that change it, and `update`, the one
 //! place it changes. No terminal here: tests drive `update` directly.
 
-use crate::cage::Cage;
-use crate::health::HealthReport;
-use crate::net::Net;
-use crate::profile::Profile;
-use crate::rest::{RestState, RestStatus};
-use crate::righting::stepper::{DEFAULT_MOTION_TIMEOUT_S, Notice, Phase, Stepper};
-use crate::righting::{Plan, RightingModel};
 use crate::tui::theme::Theme;
+use cagehand::cage::Cage;
+use cagehand::health::HealthReport;
+use cagehand::net::Net;
+use cagehand::profile::Profile;
+use cagehand::rest::{RestState, RestStatus};
+use cagehand::righting::stepper::{DEFAULT_MOTION_TIMEOUT_S, Notice, Phase, Stepper};
+use cagehand::righting::{Plan, RightingModel};
 use nalgebra::UnitQuaternion;
 use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
 use std::collections::VecDeque;
@@ -111,7 +111,7 @@ pub struct LiveView {
     pub rest: Option<RestSample>,
     /// The pre-flight checklist evaluated by the core against this state
     /// and the cage log (None until the feed has evaluated it).
-    pub preflight: Option<crate::preflight::Evaluation>,
+    pub preflight: Option<cagehand::preflight::Evaluation>,
 }
 
 /// One attitude with the rest detector's answer.
@@ -484,7 +484,8 @@ fn next(s: Screen, step: usize) -> Screen {
 /// The demo vehicle's model without colour, waiting on `sim` (tests).
 #[cfg(test)]
 pub(crate) fn demo_model() -> Model {
-    let (p, c) = crate::cage::demo_cage();
+    let demo = cagehand::vehicle::demo().expect("the demo profile loads");
+    let (p, c) = (demo.profile, demo.cage);
     Model::new(
         p,
         c,
@@ -548,8 +549,8 @@ mod tests {
 
     /// A live picture resting (or moving) on `face` at `t_s`.
     fn resting_on(m: &Model, face: usize, t_s: f64, resting: bool) -> Msg {
-        let q = crate::rest::resting_attitude(&m.cage, face);
-        let fit = crate::rest::fit_face(&m.cage, &crate::attitude::gravity_body(&q));
+        let q = cagehand::rest::resting_attitude(&m.cage, face);
+        let fit = cagehand::rest::fit_face(&m.cage, &cagehand::attitude::gravity_body(&q));
         let mut live = LiveView::waiting("sim");
         live.state = if resting {
             LiveState::Resting

@@ -4,9 +4,9 @@
 //! planned path as numbered hinges. Layers go from least to most important,
 //! because one braille cell carries one colour.
 
-use crate::cage::{Cage, MemberKind};
-use crate::net::{Net, NetFace};
 use crate::tui::theme::Theme;
+use cagehand::cage::{Cage, MemberKind};
+use cagehand::net::{Net, NetFace};
 use ratatui::layout::Rect;
 use ratatui::style::{Modifier, Style};
 use ratatui::symbols::Marker;

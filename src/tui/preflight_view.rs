@@ -1,8 +1,8 @@
 //! The Preflight screen: draws the checklist as the core evaluated it
 //! (src/preflight.rs); this view decides nothing.
 
-use crate::preflight::Outcome;
 use crate::tui::model::Model;
+use cagehand::preflight::Outcome;
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Rect};
 use ratatui::widgets::{Block, Borders, Row, Table};

@@ -2,12 +2,12 @@
 //! take-off face, on the net as numbered hinges and as a table, stepped by
 //! hand with Enter and verified against live attitude.
 
-use crate::attitude::{rpy_deg, whole_deg};
-use crate::righting::stepper::Phase;
-use crate::righting::{MoveKind, Plan};
 use crate::tui::model::Model;
 use crate::tui::net_view::NetView;
 use crate::tui::view::base_marks;
+use cagehand::attitude::{rpy_deg, whole_deg};
+use cagehand::righting::stepper::Phase;
+use cagehand::righting::{MoveKind, Plan};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::Modifier;
@@ -56,7 +56,7 @@ pub fn righting(model: &Model, frame: &mut Frame, area: Rect) {
     .areas(side_inner);
     frame.render_widget(
         Paragraph::new(
-            crate::caution::CAUTION_LINES
+            cagehand::caution::CAUTION_LINES
                 .iter()
                 .enumerate()
                 .map(|(i, l)| Line::styled(*l, if i == 0 { t.alarm } else { t.warn }))

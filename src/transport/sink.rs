@@ -3,8 +3,8 @@
 
 use super::floor::FloorStore;
 use super::{LinkEvent, LinkMsg};
-use crate::link::clock::{TICK_S, silence_ticks};
-use crate::link::{Counters, Decoder};
+use cagehand::link::clock::{TICK_S, silence_ticks};
+use cagehand::link::{Counters, Decoder};
 use std::sync::mpsc::{SyncSender, TrySendError};
 
 /// The reader's side of the channel, with its decoder.

@@ -3,7 +3,7 @@
 
 use super::LinkEvent;
 use super::sink::Sink;
-use crate::link::spec::AllowEntry;
+use cagehand::link::spec::AllowEntry;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::{Duration, Instant};
 

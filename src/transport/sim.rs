@@ -4,8 +4,8 @@
 
 use super::sink::Sink;
 use super::{LinkEvent, sleep_until};
-use crate::sim::wire::Wire;
-use crate::sim::{SIM_RATE_HZ, Sim, SimCommand};
+use cagehand::sim::wire::Wire;
+use cagehand::sim::{SIM_RATE_HZ, Sim, SimCommand};
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::sync::mpsc::Receiver;
 use std::time::Instant;

@@ -3,7 +3,9 @@
 use super::*;
 
 fn demo_cage() -> Cage {
-    crate::cage::demo_cage().1
+    cagehand::vehicle::demo()
+        .expect("the demo profile loads")
+        .cage
 }
 
 #[test]
@@ -106,7 +108,8 @@ fn sim_at_max_speed_gives_samples_and_takes_commands() {
         ..Default::default()
     };
     let link = open(&LinkSpec::Sim { seed: 2 }, opts, Mode::Decode).expect("sim");
-    assert!(link.command(SimCommand::Fly));
+    let commander = link.commander().expect("the simulator takes commands");
+    assert!(commander.send(SimCommand::Fly).is_ok());
     let mut n = 0;
     let mut note = None;
     while n < 200 || note.is_none() {

@@ -6,9 +6,9 @@
 
 use super::sink::Sink;
 use super::{LinkEvent, sleep_until};
-use crate::link::clock::{MAX_GAP_TICKS_S, silence_ticks};
-use crate::link::record::RecordReader;
-use crate::link::spec::ReplaySpeed;
+use cagehand::link::clock::{MAX_GAP_TICKS_S, silence_ticks};
+use cagehand::link::record::RecordReader;
+use cagehand::link::spec::ReplaySpeed;
 use std::io::Read;
 use std::sync::atomic::{AtomicBool, Ordering};
 use std::time::Instant;

@@ -7,8 +7,8 @@
 //! saved meanwhile is merged in, never lowered.
 
 use super::LinkError;
-use crate::link::mavlink::signing::{ReplayFloor, timestamp_from_unix_s};
-use crate::link::mavlink::{SigningKey, Verifier};
+use cagehand::link::mavlink::signing::{ReplayFloor, timestamp_from_unix_s};
+use cagehand::link::mavlink::{SigningKey, Verifier};
 use std::io::Write;
 use std::path::{Path, PathBuf};
 use std::time::{Duration, Instant, SystemTime, UNIX_EPOCH};

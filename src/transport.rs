@@ -29,15 +29,14 @@ mod sim;
 mod sink;
 mod udp;
 
-use crate::cage::Cage;
-pub use crate::link::clock::TICK_S;
-use crate::link::mavlink::MavConfig;
-use crate::link::record::{RecordError, RecordReader};
-use crate::link::spec::{AllowEntry, LinkSpec, ReplaySpeed};
-use crate::link::{Counters, Decoder, Proto, ProtoError};
-use crate::sample::Sample;
-use crate::sim::wire::Wire;
-use crate::sim::{Sim, SimCommand};
+use cagehand::cage::Cage;
+use cagehand::link::mavlink::MavConfig;
+use cagehand::link::record::{RecordError, RecordReader};
+use cagehand::link::spec::{AllowEntry, LinkSpec, ReplaySpeed};
+use cagehand::link::{Counters, Decoder, Proto, ProtoError};
+use cagehand::sample::Sample;
+use cagehand::sim::wire::Wire;
+use cagehand::sim::{Sim, SimCommand};
 use sink::Sink;
 use std::path::PathBuf;
 use std::sync::Arc;
@@ -264,11 +263,6 @@ pub struct Link {
 }
 
 impl Link {
-    /// Send a command to the in-process simulator; false for other links.
-    pub fn command(&self, cmd: SimCommand) -> bool {
-        self.commands.as_ref().is_some_and(|c| c.send(cmd).is_ok())
-    }
-
     /// A sender for in-process simulator commands that outlives borrowing
     /// the link (the screens keep it while a thread reads `rx`); None for
     /// other links.

@@ -12,6 +12,10 @@
 //!   was when the steady spell began (an anchor, not the previous sample, so
 //!   a slow creep does not count as steady).
 //!
+//! A vehicle steady for the dwell time but farther than the tolerance from
+//! every face is *propped* (on an edge, a rock, a branch); anything not
+//! steady is *moving*.
+//!
 //! Hysteresis (`watch.hysteresis_deg`): the detector keeps its current face
 //! until another face is closer to gravity by more than the hysteresis, so
 //! sensor noise near a tie between two faces does not make the face flicker;
@@ -80,7 +84,11 @@ pub fn fit_face(cage: &Cage, gravity_body: &Vector3<f64>) -> FaceFit {
 pub enum RestState {
     /// Steady for the dwell time, within tolerance of a face.
     Resting,
-    /// Anything else: rolling, tumbling, held in a hand, propped on an edge.
+    /// Steady for the dwell time but farther from every face than the
+    /// tolerance: propped on an edge, a rock or a branch. Not on a face, so
+    /// nothing that needs a face (a plan, a take-off verdict) follows.
+    Propped,
+    /// Not steady: rolling, tumbling, held in a hand.
     Moving,
 }
 
@@ -196,6 +204,8 @@ impl RestDetector {
         RestStatus {
             state: if self.resting {
                 RestState::Resting
+            } else if steady {
+                RestState::Propped
             } else {
                 RestState::Moving
             },
@@ -324,7 +334,7 @@ mod tests {
     }
 
     #[test]
-    fn propped_on_an_edge_is_moving_even_when_still() {
+    fn propped_on_an_edge_is_propped_not_resting() {
         let (p, c) = demo();
         let mut d = RestDetector::new(&p.watch);
         // Halfway between two neighbouring faces: about 20 deg from each,
@@ -333,11 +343,13 @@ mod tests {
         let n = g;
         let q = UnitQuaternion::from_euler_angles(n.y.atan2(n.z), (-n.x).asin(), 0.0);
         let mut s = d.update(&c, 0.0, &q);
+        assert_eq!(s.state, RestState::Moving, "not yet steady for the dwell");
         for k in 1..30 {
             s = d.update(&c, k as f64 * 0.1, &q);
         }
-        assert_eq!(s.state, RestState::Moving);
+        assert_eq!(s.state, RestState::Propped);
         assert!(s.error_deg > p.watch.rest_tolerance_deg);
+        assert!(s.face == 0 || s.face == 1, "the nearest face is named");
     }
 
     #[test]
@@ -421,7 +433,8 @@ mod tests {
 
             /// Held still at any attitude (yaw spinning freely), the detector
             /// rests after the dwell exactly when the nearest face is within
-            /// the tolerance, and always names the nearest face.
+            /// the tolerance, says propped otherwise, and always names the
+            /// nearest face.
             #[test]
             fn still_attitude_rests_iff_within_tolerance(
                 r in -180.0..180.0f64, p in -89.0..89.0f64,
@@ -440,7 +453,7 @@ mod tests {
                 let want = if fit.error_deg <= prof.watch.rest_tolerance_deg {
                     RestState::Resting
                 } else {
-                    RestState::Moving
+                    RestState::Propped
                 };
                 prop_assert_eq!(s.state, want);
             }

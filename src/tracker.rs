@@ -1,25 +1,31 @@
-//! The tracker turns samples into the watch state: resting, moving,
-//! airborne or stale, the face, the error, the attitude, and link health.
+//! The tracker turns samples into the watch state: resting, propped,
+//! moving, airborne or stale, the face, the error, the attitude, and link
+//! health.
 //! Pure: it has no clock of its own; the caller passes the link clock
 //! (`at_s`, seconds, receiver side: arrival time on a live link, the
 //! recorded arrival time on a replay), so a replay gives the same states.
 //!
 //! States, in order of precedence:
 //! - **stale**: no attitude for longer than `watch.stale_after_s` (or none
-//!   yet). Nothing else is shown as current: face, error and angles are
-//!   null.
+//!   yet: the reason then says "no data yet"). Nothing else is shown as
+//!   current: face, error and angles are null.
 //! - **airborne**: the motors are armed and the vehicle is flying. It
 //!   becomes airborne when, while armed, it climbs or descends at
 //!   [`AIRBORNE_VERTICAL_SPEED_M_S`] or more, moves over the ground at
 //!   [`AIRBORNE_GROUND_SPEED_M_S`] or more, or the specific force stays at
 //!   least [`AIRBORNE_FORCE_OFF_G`] away from 1 g for
 //!   [`AIRBORNE_FORCE_HOLD_S`]. It stays airborne until disarmed, or until
-//!   the rest detector says resting and no airborne cue has been seen for
+//!   the rest detector says resting or propped and no airborne cue has been seen for
 //!   [`AIRBORNE_QUIET_S`]. A steady level hover with no vertical speed looks
 //!   like lying still on the bottom face; the next cue brings it back.
-//! - **resting** / **moving**: from the rest detector (src/rest.rs): steady
-//!   for the dwell time within tolerance of a face, or not; while moving the
-//!   face is the nearest one.
+//! - **resting** / **propped** / **moving**: from the rest detector
+//!   (src/rest.rs): steady for the dwell time within tolerance of a face;
+//!   steady but beyond the tolerance of every face; not steady. While
+//!   propped or moving the face is the nearest one and `error_deg` says how
+//!   far off it the vehicle lies.
+//!
+//! The rate counts attitude instants, not messages: ATTITUDE and
+//! ATTITUDE_QUATERNION sent for the same sender time are one sample.
 
 use crate::attitude::rpy_deg;
 use crate::cage::Cage;
@@ -56,6 +62,8 @@ const RATE_WINDOW_S: f64 = 2.0;
 pub enum WatchStateKind {
     /// Lying still on a face.
     Resting,
+    /// Motionless but not flat on any face (on an edge, a rock, a branch).
+    Propped,
     /// On the ground but not settled (rolling, tumbling, carried).
     Moving,
     /// Armed and flying.
@@ -69,7 +77,8 @@ pub enum WatchStateKind {
 pub struct LinkHealth {
     /// The link spec, e.g. `udp:127.0.0.1:14550`.
     pub source: String,
-    /// Attitude samples per second over the last two seconds.
+    /// Attitude samples per second over the last two seconds, counting
+    /// one per attitude instant (not one per message).
     pub rate_hz: f64,
     /// Age of the last attitude sample, ms (null before the first).
     pub age_ms: Option<u64>,
@@ -87,14 +96,23 @@ pub struct LinkHealth {
     pub dropped: u64,
 }
 
+/// Schema name of a watch line.
+pub const WATCH_SCHEMA: &str = "cagehand.watch/1";
+
 /// One watch line (a JSON contract: `watch --headless` prints these).
 #[derive(Debug, Clone, PartialEq, Serialize)]
 pub struct WatchState {
+    /// Always [`WATCH_SCHEMA`].
+    pub schema: &'static str,
     /// Link clock, seconds.
     pub t: f64,
     /// The state.
     pub state: WatchStateKind,
-    /// Face id: the resting face, the nearest face while moving or
+    /// Why the state is what it is, in words, for stale and propped
+    /// ("no data yet", "no attitude for 2.1 s", "still, 20.0 deg off F1");
+    /// null otherwise.
+    pub reason: Option<String>,
+    /// Face id: the resting face, the nearest face while propped, moving or
     /// airborne, null when stale.
     pub face: Option<String>,
     /// Index of that face in `cage.faces`, for screens (not in the JSON).
@@ -120,6 +138,8 @@ pub struct Tracker {
     source: String,
     counters: Counters,
     last: Option<Attitude>,
+    /// Sender time of the last attitude, to count instants, not messages.
+    last_sample_t_s: Option<f64>,
     arrivals: VecDeque<f64>,
     armed: Option<bool>,
     battery_v: Option<f64>,
@@ -146,6 +166,7 @@ impl Tracker {
             source: source.to_string(),
             counters: Counters::default(),
             last: None,
+            last_sample_t_s: None,
             arrivals: VecDeque::new(),
             armed: None,
             battery_v: None,
@@ -230,7 +251,12 @@ impl Tracker {
                 q,
                 status: st,
             });
-            self.arrivals.push_back(at_s);
+            // Two messages for one instant (ATTITUDE and ATTITUDE_QUATERNION
+            // with the same sender time) are one sample for the rate.
+            if self.last_sample_t_s != Some(s.t_s) {
+                self.arrivals.push_back(at_s);
+            }
+            self.last_sample_t_s = Some(s.t_s);
             while self
                 .arrivals
                 .front()
@@ -240,6 +266,10 @@ impl Tracker {
             }
             if st.state == RestState::Resting {
                 self.faces_seen.insert(st.face);
+            }
+            if st.state != RestState::Moving {
+                // Motionless for the dwell, on a face or propped: no
+                // longer flying once the cues have gone quiet.
                 if self.airborne && self.last_cue_s.is_none_or(|c| at_s - c >= AIRBORNE_QUIET_S) {
                     self.airborne = false;
                 }
@@ -288,9 +318,19 @@ impl Tracker {
             malformed: c.malformed,
             dropped: c.dropped,
         };
+        let reason = match self.last {
+            None => Some("no data yet".to_string()),
+            Some(a) if stale => Some(format!(
+                "no attitude for {:.1} s",
+                (self.now_s - a.at_s).max(0.0)
+            )),
+            Some(_) => None,
+        };
         let base = WatchState {
+            schema: WATCH_SCHEMA,
             t: (self.now_s * 1000.0).round() / 1000.0,
             state: WatchStateKind::Stale,
+            reason,
             face: None,
             face_index: None,
             error_deg: None,
@@ -303,18 +343,29 @@ impl Tracker {
             Some(a) if !stale => {
                 let state = if self.airborne {
                     WatchStateKind::Airborne
-                } else if a.status.state == RestState::Resting {
-                    WatchStateKind::Resting
                 } else {
-                    WatchStateKind::Moving
+                    match a.status.state {
+                        RestState::Resting => WatchStateKind::Resting,
+                        RestState::Propped => WatchStateKind::Propped,
+                        RestState::Moving => WatchStateKind::Moving,
+                    }
+                };
+                let face = cage.faces.get(a.status.face);
+                let reason = match (state, face) {
+                    (WatchStateKind::Propped, Some(f)) => Some(format!(
+                        "still, {:.1} deg off {}: not flat on any face",
+                        a.status.error_deg, f.id
+                    )),
+                    _ => None,
                 };
                 let r = rpy_deg(&a.q).map(round2);
                 WatchState {
                     state,
+                    reason,
                     armed: self.armed,
                     battery_v: self.battery_v,
-                    face: cage.faces.get(a.status.face).map(|f| f.id.clone()),
-                    face_index: cage.faces.get(a.status.face).map(|_| a.status.face),
+                    face: face.map(|f| f.id.clone()),
+                    face_index: face.map(|_| a.status.face),
                     error_deg: Some(round2(a.status.error_deg)),
                     rpy_deg: Some(r),
                     ..base
@@ -432,5 +483,60 @@ mod tests {
             tr.update(&c, t, &f(t, 1.4));
         }
         assert_eq!(tr.state(&c).state, WatchStateKind::Airborne);
+    }
+
+    #[test]
+    fn no_data_yet_is_stale_with_that_reason() {
+        let (p, c) = demo();
+        let tr = Tracker::new(&p.watch, "test");
+        let s = tr.state(&c);
+        assert_eq!(s.state, WatchStateKind::Stale);
+        assert_eq!(s.reason.as_deref(), Some("no data yet"));
+        let json = serde_json::to_value(&s).unwrap();
+        assert_eq!(json["state"], "stale");
+        assert_eq!(json["schema"], WATCH_SCHEMA);
+    }
+
+    #[test]
+    fn still_at_20_deg_roll_is_propped_with_the_nearest_face() {
+        let (p, c) = demo();
+        let mut tr = Tracker::new(&p.watch, "test");
+        let q = crate::attitude::quat_from_rpy_deg(20.0, 0.0, 0.0);
+        let fit = crate::rest::fit_face(&c, &crate::attitude::gravity_body(&q));
+        assert!(
+            fit.error_deg > p.watch.rest_tolerance_deg,
+            "20 deg of roll is off every demo face by more than the tolerance"
+        );
+        let mut t = 0.0;
+        while t <= p.watch.dwell_s + 0.1 {
+            tr.update(&c, t, &att(t, q));
+            t += 0.02;
+        }
+        let s = tr.state(&c);
+        assert_eq!(s.state, WatchStateKind::Propped);
+        assert_eq!(s.face_index, Some(fit.face));
+        assert!((s.error_deg.unwrap() - fit.error_deg).abs() < 0.01);
+        assert!(s.reason.as_deref().unwrap().contains("not flat"));
+        assert_eq!(serde_json::to_value(&s).unwrap()["state"], "propped");
+        assert!(
+            tr.faces_seen().is_empty(),
+            "propped is not a face rested on"
+        );
+    }
+
+    #[test]
+    fn two_messages_for_one_instant_count_once_in_the_rate() {
+        let (p, c) = demo();
+        let mut tr = Tracker::new(&p.watch, "test");
+        let q = resting_attitude(&c, 0);
+        // 50 instants a second, each sent twice (ATTITUDE and
+        // ATTITUDE_QUATERNION carry the same time_boot_ms).
+        for i in 0..100 {
+            let t = i as f64 * 0.02;
+            tr.update(&c, t, &att(t, q));
+            tr.update(&c, t + 0.001, &att(t, q));
+        }
+        let r = tr.state(&c).link.rate_hz;
+        assert!((r - 50.0).abs() < 1.5, "{r}");
     }
 }

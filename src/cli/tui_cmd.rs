@@ -7,7 +7,7 @@ use super::Loaded;
 use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, lock_wait};
 use crate::transport::{Link, Mode};
-use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample};
+use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample, count};
 use crate::tui::theme::{ColourDepth, Theme};
 use cagehand::feed::Feed;
 use cagehand::health::assess;
@@ -16,10 +16,13 @@ use cagehand::logbook::{Record, detection};
 use cagehand::preflight;
 use cagehand::sim::SimCommand;
 use cagehand::tracker::{Tracker, WatchState, WatchStateKind};
-use std::path::Path;
 use std::process::ExitCode;
 use std::sync::mpsc::{self, Sender};
 use std::time::{Duration, Instant};
+
+/// How often the feed thread reads the cage log again, to pick up records
+/// other processes wrote.
+const LOG_REREAD: Duration = Duration::from_secs(1);
 
 /// Open the screens on a loaded profile, fed by the link `link_args` names.
 pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Result<ExitCode> {
@@ -42,7 +45,7 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
     let (tx, rx) = mpsc::channel::<Msg>();
     let commander = link.commander();
     spawn_feed(link, loaded, log.clone(), tx.clone());
-    crate::tui::run(model, tx, rx, |effect| match effect {
+    let signal = crate::tui::run(model, tx, rx, |effect| match effect {
         Effect::SimRoll(face) => {
             // Only the in-process simulator takes commands; on a real link the
             // operator flies the roll and the screen verifies it.
@@ -51,7 +54,11 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
             }
         }
     })?;
-    Ok(ExitCode::SUCCESS)
+    // Ended by a signal: the usual 128 + its number, after the restore.
+    Ok(match signal {
+        Some(n) => ExitCode::from(u8::try_from(128 + n).unwrap_or(u8::MAX)),
+        None => ExitCode::SUCCESS,
+    })
 }
 
 /// Member health from the vehicle's cage log, or why there is none. A log
@@ -76,8 +83,8 @@ fn read_health(l: &Loaded, log: &LogOpts) -> (Option<cagehand::health::HealthRep
             (
                 Some(assess(book.records(), &l.cage, &l.profile.inspection)),
                 format!(
-                    "{} records in {}{note}",
-                    book.records().len(),
+                    "{} in {}{note}",
+                    count(book.records().len(), "record"),
                     book.path().display()
                 ),
             )
@@ -90,16 +97,18 @@ fn live_view(
     st: &WatchState,
     tracker: &Tracker,
     preflight: Option<preflight::Evaluation>,
+    pending: Vec<cagehand::logbook::Pending>,
 ) -> LiveView {
     let errors = st.link.crc_errors + st.link.malformed + st.link.rejected;
     LiveView {
         state: match st.state {
             WatchStateKind::Resting => LiveState::Resting,
+            WatchStateKind::Propped => LiveState::Propped,
             WatchStateKind::Moving => LiveState::Moving,
             WatchStateKind::Airborne => LiveState::Airborne,
-            WatchStateKind::Stale if st.link.age_ms.is_none() => LiveState::Waiting,
             WatchStateKind::Stale => LiveState::Stale,
         },
+        reason: st.reason.clone(),
         face: st.face_index,
         error_deg: st.error_deg,
         rpy_deg: st.rpy_deg,
@@ -120,6 +129,7 @@ fn live_view(
                 status,
             }),
         preflight,
+        pending,
     }
 }
 
@@ -133,6 +143,8 @@ struct LogView {
     /// understated): fails the pre-flight as `log health` warns of it.
     trouble: Option<String>,
     error: Option<String>,
+    /// Detections not yet confirmed or dismissed.
+    pending: Vec<cagehand::logbook::Pending>,
 }
 
 impl LogView {
@@ -151,6 +163,7 @@ impl LogView {
                 new_file: report.new_file,
                 trouble: report.integrity.headline(),
                 error: None,
+                pending: detection::pending(book.records()),
             },
             Err(e) => LogView {
                 records: Vec::new(),
@@ -158,8 +171,19 @@ impl LogView {
                 new_file: false,
                 trouble: None,
                 error: Some(e),
+                pending: Vec::new(),
             },
         }
+    }
+
+    /// What tells one reading of the log from another: the record count and
+    /// the newest sequence number (the log is append-only).
+    fn mark(&self) -> (usize, Option<u64>, bool) {
+        (
+            self.records.len(),
+            self.records.last().map(|r| r.seq),
+            self.error.is_some(),
+        )
     }
 
     fn evaluate(&self, l: &Loaded, st: &WatchState) -> preflight::Evaluation {
@@ -213,23 +237,36 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log);
-        // Records another process writes are seen within about a second.
-        let mut follower = cagehand::logbook::follow::Follower::new(Path::new(&book.path));
-        let mut looked = Instant::now();
+        let mut last_read = Instant::now();
         while let Ok(msg) = link.rx.recv() {
             let step = feed.push(super::live::feed_input(msg));
             let mut extra = step.note.clone().map(Msg::Notice);
+            let mut reread = last_read.elapsed() >= LOG_REREAD;
             if let Some(d) = &step.detection {
                 extra = Some(Msg::Notice(write_detection(&l, &log, d)));
-                book = LogView::read(&l, &log);
-            } else if looked.elapsed() >= Duration::from_secs(1) {
-                looked = Instant::now();
-                if follower.changed() {
-                    book = LogView::read(&l, &log);
+                reread = true;
+            }
+            if reread {
+                // Records written by this program or by another one (a
+                // `cagehand log confirm` in a second terminal) show within
+                // about a second; the screens keep their own state.
+                let fresh = LogView::read(&l, &log);
+                last_read = Instant::now();
+                if fresh.mark() != book.mark() {
+                    let (health, source) = read_health(&l, &log);
+                    if tx.send(Msg::Health(health.map(Box::new), source)).is_err() {
+                        return;
+                    }
                 }
+                book = fresh;
             }
             let eval = book.evaluate(&l, &step.state);
-            let live = Msg::Live(Box::new(live_view(&step.state, feed.tracker(), Some(eval))));
+            let live = Msg::Live(Box::new(live_view(
+                &step.state,
+                feed.tracker(),
+                Some(eval),
+                book.pending.clone(),
+            )));
             if tx.send(live).is_err() {
                 return;
             }

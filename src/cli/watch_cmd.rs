@@ -1,9 +1,9 @@
 //! `cagehand watch`: live state of the vehicle. `--headless` prints one
-//! JSON object per line (a contract: scripts and checks parse it) on every
-//! change of state or face and once a second of link time; for every
-//! detected impact a line with a `detection` object, after writing the
-//! detection to the vehicle's cage log; `--summary` adds one object when
-//! the input ends.
+//! JSON object per line (a contract: scripts and checks parse it; see
+//! docs/json.md) on every change of state or face and once a second of
+//! link time; for every detected impact a line with a `detection` object,
+//! after writing the detection to the vehicle's cage log; `--summary` adds
+//! one object when the input ends.
 
 use super::link_args::LinkArgs;
 use super::log_cmd::LogOpts;
@@ -50,6 +50,7 @@ struct Errors {
 
 #[derive(Debug, Serialize)]
 struct Summary {
+    schema: &'static str,
     summary: bool,
     source: String,
     frames_decoded: u64,
@@ -228,6 +229,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         let tracker = feed.tracker();
         let c = tracker.counters();
         let s = Summary {
+            schema: "cagehand.watch-summary/1",
             summary: true,
             source: link.source.clone(),
             frames_decoded: c.frames,

@@ -1,22 +1,30 @@
 //! The screens' model, the messages that change it, and `update`, the one
 //! place it changes. No terminal here: tests drive `update` directly.
+//!
+//! The model is what every screen shares ([`Shared`]: the vehicle, the live
+//! picture, the message line) plus one component per screen holding that
+//! screen's own state (selection, stepping). `update` routes a key through
+//! the global key table, then the current screen's table.
 
+use crate::tui::cage_view::CageScreen;
+use crate::tui::component::Component;
+use crate::tui::keys::{self, GLOBAL_KEYS, GlobalAction};
+use crate::tui::preflight_view::PreflightScreen;
+use crate::tui::righting_view::RightingScreen;
 use crate::tui::theme::Theme;
+use crate::tui::watch_view::WatchScreen;
 use cagehand::cage::Cage;
 use cagehand::health::HealthReport;
 use cagehand::net::Net;
 use cagehand::profile::Profile;
-use cagehand::rest::{RestState, RestStatus};
-use cagehand::righting::stepper::{DEFAULT_MOTION_TIMEOUT_S, Notice, Phase, Stepper};
-use cagehand::righting::{Plan, RightingModel};
+use cagehand::rest::RestStatus;
 use nalgebra::UnitQuaternion;
-use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyEventKind, KeyModifiers};
-use std::collections::VecDeque;
+use ratatui::crossterm::event::{KeyEvent, KeyEventKind};
 
 /// The four screens.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum Screen {
-    /// Live attitude, resting face and link health on the net.
+    /// Live state, resting face and link health on the net.
     Watch,
     /// Roll plan from the resting face to a take-off face.
     Righting,
@@ -44,42 +52,57 @@ impl Screen {
             Screen::Preflight => "Preflight",
         }
     }
+
+    fn index(self) -> usize {
+        Screen::ALL.iter().position(|&x| x == self).unwrap_or(0)
+    }
 }
 
-/// The vehicle's state as the tracker sees it.
+/// The vehicle's state: the same five words as `watch --headless`.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum LiveState {
-    /// No sample yet.
-    Waiting,
-    /// Steady on a face.
+    /// Lying still on a face.
     Resting,
+    /// Motionless but not flat on any face.
+    Propped,
     /// Turning or rolling.
     Moving,
     /// Flying.
     Airborne,
-    /// Data too old to trust.
+    /// No fresh data (or none yet); `LiveView::reason` says which.
     Stale,
 }
 
 impl LiveState {
-    /// The word shown on screen.
+    /// The word shown on screen (the JSON word in capitals).
     pub fn word(self) -> &'static str {
         match self {
-            LiveState::Waiting => "WAITING",
             LiveState::Resting => "RESTING",
+            LiveState::Propped => "PROPPED",
             LiveState::Moving => "MOVING",
             LiveState::Airborne => "AIRBORNE",
             LiveState::Stale => "STALE",
         }
     }
+
+    /// A symbol beside the word, so the state never rests on colour.
+    pub fn symbol(self) -> &'static str {
+        match self {
+            LiveState::Resting => "=",
+            LiveState::Propped => "/",
+            LiveState::Moving => "~",
+            LiveState::Airborne => "^",
+            LiveState::Stale => "?",
+        }
+    }
 }
 
-/// Link health as shown in the status line.
+/// Link health as the screens show it.
 #[derive(Debug, Clone, PartialEq, Default)]
 pub struct LinkView {
     /// Link spec, e.g. `sim` or `udp:127.0.0.1:14550`.
     pub source: String,
-    /// Samples per second over the last window.
+    /// Attitude samples per second over the last window (instants, not messages).
     pub rate_hz: f64,
     /// Age of the last sample.
     pub age_s: Option<f64>,
@@ -94,7 +117,10 @@ pub struct LinkView {
 pub struct LiveView {
     /// State.
     pub state: LiveState,
-    /// Resting face (nearest face while moving); None when stale or waiting.
+    /// Why, in words, for stale and propped ("no data yet").
+    pub reason: Option<String>,
+    /// Resting face, or the nearest face while propped, moving or
+    /// airborne; None when stale.
     pub face: Option<usize>,
     /// Angle between gravity and that face's normal.
     pub error_deg: Option<f64>,
@@ -112,6 +138,9 @@ pub struct LiveView {
     /// The pre-flight checklist evaluated by the core against this state
     /// and the cage log (None until the feed has evaluated it).
     pub preflight: Option<cagehand::preflight::Evaluation>,
+    /// Detections in the cage log not yet confirmed or dismissed: loud on
+    /// every screen until resolved.
+    pub pending: Vec<cagehand::logbook::Pending>,
 }
 
 /// One attitude with the rest detector's answer.
@@ -121,15 +150,16 @@ pub struct RestSample {
     pub t_s: f64,
     /// Attitude, body -> world.
     pub attitude: UnitQuaternion<f64>,
-    /// Resting or moving, and on which face.
+    /// Resting, propped or moving, and on (or near) which face.
     pub status: RestStatus,
 }
 
 impl LiveView {
-    /// Nothing received yet on `source`.
+    /// Nothing received yet on `source`: stale, "no data yet".
     pub fn waiting(source: &str) -> LiveView {
         LiveView {
-            state: LiveState::Waiting,
+            state: LiveState::Stale,
+            reason: Some("no data yet".to_string()),
             face: None,
             error_deg: None,
             rpy_deg: None,
@@ -141,6 +171,16 @@ impl LiveView {
             },
             rest: None,
             preflight: None,
+            pending: Vec::new(),
+        }
+    }
+
+    /// The face the vehicle rests on, only when it is resting: the one face
+    /// the net frames and the take-off verdict is given for.
+    pub fn resting_face(&self) -> Option<usize> {
+        match self.state {
+            LiveState::Resting => self.face,
+            _ => None,
         }
     }
 }
@@ -152,13 +192,18 @@ pub enum Msg {
     Key(KeyEvent),
     /// A new live picture from the tracker (boxed: it is large and frequent).
     Live(Box<LiveView>),
-    /// The terminal was resized.
-    Resize,
+    /// The terminal was resized to (columns, rows).
+    Resize(u16, u16),
     /// The link ended or failed, with the reason.
     LinkEnded(String),
     /// Something the operator should know (an impact was detected, the
     /// link was lost and came back).
     Notice(String),
+    /// A signal asked the program to end (SIGTERM, SIGINT, SIGHUP).
+    Signal(i32),
+    /// The cage log changed (this program or another wrote to it): member
+    /// health anew, and where it came from or why there is none.
+    Health(Option<Box<HealthReport>>, String),
 }
 
 /// Side effects `update` asks the loop to carry out.
@@ -169,26 +214,10 @@ pub enum Effect {
     SimRoll(String),
 }
 
-/// Righting on the screens: the plan from where the vehicle lies, and the
-/// stepper once the operator has started.
+/// What every screen reads, and the few things any screen may change (the
+/// message line, the effects).
 #[derive(Debug, Clone)]
-pub struct RightingState {
-    /// Moves and their feasibility.
-    pub model: RightingModel,
-    /// Plan preview from the resting face (before stepping starts).
-    pub preview: Option<Plan>,
-    /// The stepper, once the operator has commanded the first step.
-    pub stepper: Option<Stepper>,
-    /// Recent stepper notices, newest last.
-    pub log: VecDeque<String>,
-}
-
-/// How many stepper notices the Righting screen keeps.
-const RIGHTING_LOG_LINES: usize = 6;
-
-/// Everything the screens show.
-#[derive(Debug, Clone)]
-pub struct Model {
+pub struct Shared {
     /// The vehicle profile.
     pub profile: Profile,
     /// Its cage.
@@ -197,28 +226,57 @@ pub struct Model {
     pub net: Net,
     /// Take-off face indices.
     pub takeoff: Vec<usize>,
-    /// Current screen.
-    pub screen: Screen,
-    /// Help overlay shown.
-    pub help: bool,
-    /// Set when the user asked to quit.
-    pub quit: bool,
     /// Latest live picture.
     pub live: LiveView,
     /// A one-line message for the user (link ended, key not bound).
     pub notice: Option<String>,
     /// Styles.
     pub theme: Theme,
-    /// Righting (None when the moves could not be built; `notice` says why).
-    pub righting: Option<RightingState>,
     /// Member health from the cage log, if one could be read.
     pub health: Option<HealthReport>,
     /// Where the health came from, or why there is none.
     pub health_source: String,
     /// Effects for the loop to carry out.
     pub outbox: Vec<Effect>,
-    /// First member row shown on the Cage screen.
-    pub cage_scroll: usize,
+    /// Terminal size (columns, rows), for page-sized scrolling.
+    pub size: (u16, u16),
+}
+
+impl Shared {
+    /// A face's id, or `?` for an index past the last face.
+    pub fn face_id(&self, i: usize) -> &str {
+        self.cage.faces.get(i).map_or("?", |f| f.id.as_str())
+    }
+}
+
+/// One component per screen.
+#[derive(Debug, Clone)]
+pub struct Screens {
+    /// Watch.
+    pub watch: WatchScreen,
+    /// Righting.
+    pub righting: RightingScreen,
+    /// Cage.
+    pub cage: CageScreen,
+    /// Preflight.
+    pub preflight: PreflightScreen,
+}
+
+/// Everything the screens show.
+#[derive(Debug, Clone)]
+pub struct Model {
+    /// What all screens share.
+    pub shared: Shared,
+    /// Each screen's own state.
+    pub screens: Screens,
+    /// Current screen.
+    pub screen: Screen,
+    /// Help overlay shown.
+    pub help: bool,
+    /// Set when the user asked to quit or a signal arrived.
+    pub quit: bool,
+    /// The signal that ended the program, if one did (exit 128 + it).
+    pub exit_signal: Option<i32>,
 }
 
 impl Model {
@@ -228,264 +286,158 @@ impl Model {
         let takeoff = cage
             .takeoff_faces(&profile.righting.takeoff_faces)
             .unwrap_or_default();
-        let (righting, notice) = match RightingModel::new(&profile, &cage) {
-            Ok(model) => (
-                Some(RightingState {
-                    model,
-                    preview: None,
-                    stepper: None,
-                    log: VecDeque::new(),
-                }),
-                None,
-            ),
-            Err(e) => (None, Some(format!("righting unavailable: {e}"))),
-        };
+        let (righting, notice) = RightingScreen::new(&profile, &cage);
         Model {
-            profile,
-            cage,
-            net,
-            takeoff,
+            shared: Shared {
+                profile,
+                cage,
+                net,
+                takeoff,
+                live: LiveView::waiting(source),
+                notice,
+                theme,
+                health: None,
+                health_source: "no cage log read".to_string(),
+                outbox: Vec::new(),
+                size: (80, 24),
+            },
+            screens: Screens {
+                watch: WatchScreen::default(),
+                righting,
+                cage: CageScreen::default(),
+                preflight: PreflightScreen::default(),
+            },
             screen: Screen::Watch,
             help: false,
             quit: false,
-            live: LiveView::waiting(source),
-            notice,
-            theme,
-            righting,
-            health: None,
-            health_source: "no cage log read".to_string(),
-            outbox: Vec::new(),
-            cage_scroll: 0,
+            exit_signal: None,
         }
     }
 
     /// Attach member health read from the cage log.
     pub fn with_health(mut self, health: Option<HealthReport>, source: String) -> Model {
-        self.health = health;
-        self.health_source = source;
+        self.shared.health = health;
+        self.shared.health_source = source;
         self
-    }
-
-    /// The plan the Righting screen shows: the stepper's, else the preview.
-    pub fn shown_plan(&self) -> Option<&Plan> {
-        let r = self.righting.as_ref()?;
-        r.stepper.as_ref().map(|s| s.plan()).or(r.preview.as_ref())
     }
 }
 
 /// Apply a message; returns whether anything visible changed.
 pub fn update(model: &mut Model, msg: Msg) -> bool {
     match msg {
-        Msg::Resize => true,
+        Msg::Resize(w, h) => {
+            model.shared.size = (w, h);
+            true
+        }
         Msg::Live(live) => {
-            let changed = model.live != *live;
-            model.live = *live;
-            follow_righting(model) || changed
+            let changed = model.shared.live != *live;
+            model.shared.live = *live;
+            let s = &mut model.screens;
+            let sh = &mut model.shared;
+            // Every screen follows (no short-circuit: each keeps its own state).
+            let followed = [
+                s.watch.follow_live(sh),
+                s.righting.follow_live(sh),
+                s.cage.follow_live(sh),
+                s.preflight.follow_live(sh),
+            ];
+            changed || followed.iter().any(|&f| f)
         }
         Msg::Notice(text) => {
-            model.notice = Some(text);
+            model.shared.notice = Some(text);
             true
         }
         Msg::LinkEnded(why) => {
-            model.notice = Some(format!("link ended: {why}"));
-            model.live.state = LiveState::Stale;
-            model.live.face = None;
+            let live = &mut model.shared.live;
+            model.shared.notice = Some(format!("link ended: {why}"));
+            live.state = LiveState::Stale;
+            live.reason = Some(format!("link ended: {why}"));
+            live.face = None;
+            live.error_deg = None;
+            live.rest = None;
+            true
+        }
+        Msg::Health(report, source) => {
+            model.shared.health = report.map(|b| *b);
+            model.shared.health_source = source;
+            true
+        }
+        Msg::Signal(n) => {
+            model.exit_signal = Some(n);
+            model.quit = true;
             true
         }
         Msg::Key(key) => on_key(model, key),
     }
 }
 
-/// Feed the live rest answer to the stepper, or refresh the preview plan
-/// when the vehicle settles on a new face. Returns whether anything changed.
-fn follow_righting(model: &mut Model) -> bool {
-    let Some(rs) = model.live.rest else {
-        return false;
-    };
-    let Some(r) = model.righting.as_mut() else {
-        return false;
-    };
-    if let Some(stepper) = r.stepper.as_mut() {
-        let Some(n) = stepper.observe(rs.t_s, &rs.attitude, &rs.status) else {
-            return false;
-        };
-        let text = describe(&model.cage, stepper, n);
-        r.log.push_back(text);
-        while r.log.len() > RIGHTING_LOG_LINES {
-            r.log.pop_front();
-        }
-        return true;
-    }
-    if rs.status.state != RestState::Resting {
-        return false;
-    }
-    if r.preview.as_ref().is_some_and(|p| p.from == rs.status.face) {
-        return false;
-    }
-    r.preview = Some(r.model.plan(rs.status.face, &rs.attitude));
-    true
-}
-
-fn face_id(cage: &Cage, i: usize) -> &str {
-    cage.faces.get(i).map_or("?", |f| f.id.as_str())
-}
-
-/// A stepper notice in words for the Righting screen's log.
-fn describe(cage: &Cage, stepper: &Stepper, n: Notice) -> String {
-    match n {
-        Notice::Commanded { step } => format!("step {} commanded; watching for motion", step + 1),
-        Notice::Rolling { step } => format!("step {}: rolling", step + 1),
-        Notice::Arrived { step, next } => format!(
-            "step {} arrived as planned; step {} is next",
-            step + 1,
-            next + 1
-        ),
-        Notice::FellBack { step } => format!("step {}: fell back; command it again", step + 1),
-        Notice::NoMotion { step } => format!("step {}: no motion seen; command it again", step + 1),
-        Notice::Replanned { face } => format!(
-            "settled on {} instead: new plan of {} steps",
-            face_id(cage, face),
-            stepper.plan().steps.len()
-        ),
-        Notice::Done { face } => format!(
-            "on take-off face {}: righting complete",
-            face_id(cage, face)
-        ),
-        Notice::NoRoute { face } => {
-            format!("no route from {}: see the reason", face_id(cage, face))
-        }
-    }
-}
-
-/// Enter on the Righting screen: start stepping, or command the waiting step.
-fn command_step(model: &mut Model) -> bool {
-    let t_s = model.live.rest.map(|r| r.t_s);
-    let Some(r) = model.righting.as_mut() else {
-        return false;
-    };
-    let Some(t_s) = t_s else {
-        model.notice = Some("no live attitude: cannot command a step".to_string());
-        return true;
-    };
-    if r.stepper.is_none() {
-        let Some(plan) = r.preview.clone() else {
-            model.notice = Some("no plan yet: wait until the vehicle rests on a face".to_string());
-            return true;
-        };
-        r.stepper = Some(Stepper::new(
-            r.model.clone(),
-            plan,
-            DEFAULT_MOTION_TIMEOUT_S,
-        ));
-        r.log.clear();
-    }
-    let Some(stepper) = r.stepper.as_mut() else {
-        return false;
-    };
-    let roll_to = stepper
-        .current_step()
-        .and_then(|s| r.model.moves.get(s.move_index))
-        .map(|m| m.roll.to);
-    match stepper.command(t_s) {
-        Some(n) => {
-            let text = describe(&model.cage, stepper, n);
-            r.log.push_back(text);
-            if let Some(to) = roll_to {
-                model
-                    .outbox
-                    .push(Effect::SimRoll(face_id(&model.cage, to).to_string()));
-            }
-        }
-        None => {
-            let why = match stepper.phase() {
-                Phase::Done => "righting is complete",
-                Phase::NoRoute => "there is no route to command",
-                _ => "a step is already under way",
-            };
-            model.notice = Some(why.to_string());
-        }
-    }
-    true
+/// Route a key through a screen's table to the screen.
+fn dispatch<C: Component>(c: &mut C, shared: &mut Shared, key: &KeyEvent) -> Option<bool> {
+    let action = keys::find(c.keys(), key)?;
+    Some(c.act(action, shared))
 }
 
 fn on_key(model: &mut Model, key: KeyEvent) -> bool {
     if key.kind == KeyEventKind::Release {
         return false;
     }
-    if key.modifiers.contains(KeyModifiers::CONTROL) && key.code == KeyCode::Char('c') {
-        model.quit = true;
-        return true;
-    }
+    let global = keys::find(GLOBAL_KEYS, &key);
     if model.help {
-        // Any key closes the help overlay; q still quits.
+        // Any key closes the help overlay; the quit keys still quit.
         model.help = false;
-        if key.code == KeyCode::Char('q') {
+        if global == Some(GlobalAction::Quit) {
             model.quit = true;
         }
         return true;
     }
-    match key.code {
-        KeyCode::Char('q') => model.quit = true,
-        KeyCode::Char('?') | KeyCode::F(1) => model.help = true,
-        KeyCode::Char('1') | KeyCode::Char('w') => model.screen = Screen::Watch,
-        KeyCode::Char('2') | KeyCode::Char('r') => model.screen = Screen::Righting,
-        KeyCode::Char('3') | KeyCode::Char('c') => model.screen = Screen::Cage,
-        KeyCode::Char('4') | KeyCode::Char('p') => model.screen = Screen::Preflight,
-        KeyCode::Tab => model.screen = next(model.screen, 1),
-        KeyCode::BackTab => model.screen = next(model.screen, Screen::ALL.len() - 1),
-        KeyCode::Esc => {
-            let had = model.notice.take().is_some();
-            return had;
-        }
-        KeyCode::Enter if model.screen == Screen::Righting => return command_step(model),
-        KeyCode::Down | KeyCode::Char('j') if model.screen == Screen::Cage => {
-            let last = model.cage.members.len().saturating_sub(1);
-            model.cage_scroll = (model.cage_scroll + 1).min(last);
-            return true;
-        }
-        KeyCode::Up | KeyCode::Char('k') if model.screen == Screen::Cage => {
-            model.cage_scroll = model.cage_scroll.saturating_sub(1);
-            return true;
-        }
-        KeyCode::PageDown if model.screen == Screen::Cage => {
-            let last = model.cage.members.len().saturating_sub(1);
-            model.cage_scroll = (model.cage_scroll + 10).min(last);
-            return true;
-        }
-        KeyCode::PageUp if model.screen == Screen::Cage => {
-            model.cage_scroll = model.cage_scroll.saturating_sub(10);
-            return true;
-        }
-        KeyCode::Char('x') if model.screen == Screen::Righting => {
-            if let Some(r) = model.righting.as_mut() {
-                r.stepper = None;
-                r.preview = None;
-                r.log.clear();
+    if let Some(action) = global {
+        let n = Screen::ALL.len();
+        match action {
+            GlobalAction::Quit => model.quit = true,
+            GlobalAction::Help => model.help = true,
+            GlobalAction::Go(i) => model.screen = Screen::ALL[i.min(n - 1)],
+            GlobalAction::Next => model.screen = Screen::ALL[(model.screen.index() + 1) % n],
+            GlobalAction::Previous => {
+                model.screen = Screen::ALL[(model.screen.index() + n - 1) % n]
             }
-            model.notice = Some(
-                "stepping abandoned; the plan restarts from where the vehicle rests".to_string(),
-            );
-            return true;
+            GlobalAction::ClearNotice => return model.shared.notice.take().is_some(),
         }
-        _ => {
-            model.notice = Some("key not bound here: press ? for the keys".to_string());
-            return true;
+        model.shared.notice = None;
+        return true;
+    }
+    let s = &mut model.screens;
+    let sh = &mut model.shared;
+    let done = match model.screen {
+        Screen::Watch => dispatch(&mut s.watch, sh, &key),
+        Screen::Righting => dispatch(&mut s.righting, sh, &key),
+        Screen::Cage => dispatch(&mut s.cage, sh, &key),
+        Screen::Preflight => dispatch(&mut s.preflight, sh, &key),
+    };
+    match done {
+        Some(changed) => changed,
+        None => {
+            model.shared.notice = Some("key not bound here: press ? for the keys".to_string());
+            true
         }
     }
-    model.notice = None;
-    true
 }
 
-fn next(s: Screen, step: usize) -> Screen {
-    let i = Screen::ALL.iter().position(|&x| x == s).unwrap_or(0);
-    Screen::ALL[(i + step) % Screen::ALL.len()]
+/// "1 step", "2 steps": a count with its noun, plural right.
+pub fn count(n: usize, noun: &str) -> String {
+    if n == 1 {
+        format!("1 {noun}")
+    } else {
+        format!("{n} {noun}s")
+    }
 }
 
 /// The demo vehicle's model without colour, waiting on `sim` (tests).
 #[cfg(test)]
 pub(crate) fn demo_model() -> Model {
-    let demo = cagehand::vehicle::demo().expect("the demo profile loads");
-    let (p, c) = (demo.profile, demo.cage);
+    let (p, c) = {
+        let d = cagehand::vehicle::demo().expect("the demo profile loads");
+        (d.profile, d.cage)
+    };
     Model::new(
         p,
         c,
@@ -494,9 +446,104 @@ pub(crate) fn demo_model() -> Model {
     )
 }
 
+/// A live picture of the demo vehicle in `state` on (or near) `face` at
+/// `t_s`, as the tracker would send it (tests).
+#[cfg(test)]
+pub(crate) fn live_on(m: &Model, face: usize, t_s: f64, state: LiveState) -> LiveView {
+    use cagehand::rest::RestState;
+    let q = cagehand::rest::resting_attitude(&m.shared.cage, face);
+    let fit = cagehand::rest::fit_face(&m.shared.cage, &cagehand::attitude::gravity_body(&q));
+    let mut live = LiveView::waiting("sim");
+    live.state = state;
+    live.reason = None;
+    live.face = Some(face);
+    live.error_deg = Some(fit.error_deg);
+    live.rpy_deg = Some(cagehand::attitude::rpy_deg(&q));
+    live.link.rate_hz = 50.0;
+    live.link.age_s = Some(0.0);
+    live.rest = Some(RestSample {
+        t_s,
+        attitude: q,
+        status: RestStatus {
+            state: match state {
+                LiveState::Resting => RestState::Resting,
+                LiveState::Propped => RestState::Propped,
+                _ => RestState::Moving,
+            },
+            face,
+            error_deg: fit.error_deg,
+            fit,
+        },
+    });
+    live
+}
+
+/// The tracker's state after `samples` (time, sample), then `until_s` of
+/// link time: what the feed would evaluate the checklist against.
+#[cfg(test)]
+pub(crate) fn tracked(
+    m: &Model,
+    samples: &[(f64, cagehand::sample::Sample)],
+    until_s: f64,
+) -> cagehand::tracker::WatchState {
+    let mut tr = cagehand::tracker::Tracker::new(&m.shared.profile.watch, "sim");
+    for (t, s) in samples {
+        tr.update(&m.shared.cage, *t, s);
+    }
+    tr.tick(until_s);
+    tr.state(&m.shared.cage)
+}
+/// Samples held at attitude `q` for 1.5 s at 50 Hz.
+#[cfg(test)]
+pub(crate) fn held(
+    q: UnitQuaternion<f64>,
+    battery_v: Option<f64>,
+    armed: Option<bool>,
+) -> Vec<(f64, cagehand::sample::Sample)> {
+    (0..75)
+        .map(|k| {
+            let t = f64::from(k) * 0.02;
+            (
+                t,
+                cagehand::sample::Sample {
+                    t_s: t,
+                    attitude: Some(q),
+                    battery_v,
+                    armed,
+                    ..cagehand::sample::Sample::default()
+                },
+            )
+        })
+        .collect()
+}
+/// Attach the core's evaluation of the checklist against `st` and an empty
+/// cage log, as the feed does.
+#[cfg(test)]
+pub(crate) fn with_preflight(mut m: Model, st: &cagehand::tracker::WatchState) -> Model {
+    let eval = cagehand::preflight::evaluate(&cagehand::preflight::Inputs {
+        profile: &m.shared.profile,
+        cage: &m.shared.cage,
+        live: Some(st),
+        log: cagehand::preflight::LogInput::Read {
+            records: &[],
+            path: "(invented demo log)",
+            new_file: true,
+            trouble: None,
+        },
+        signing: None,
+        margin: None,
+    });
+    let mut live = m.shared.live.clone();
+    live.preflight = Some(eval);
+    update(&mut m, Msg::Live(Box::new(live)));
+    m
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
+    use cagehand::righting::stepper::Phase;
+    use ratatui::crossterm::event::{KeyCode, KeyModifiers};
 
     fn model() -> Model {
         demo_model()
@@ -522,19 +569,45 @@ mod tests {
         assert!(!m.help && !m.quit, "any key closes help");
         update(&mut m, key(KeyCode::Char('3')));
         update(&mut m, key(KeyCode::Down));
-        update(&mut m, key(KeyCode::Down));
+        update(&mut m, key(KeyCode::Char('j')));
         update(&mut m, key(KeyCode::Up));
-        assert_eq!(m.cage_scroll, 1, "arrows scroll the member table");
-        update(&mut m, key(KeyCode::PageDown));
-        update(&mut m, key(KeyCode::PageDown));
-        update(&mut m, key(KeyCode::PageDown));
         assert_eq!(
-            m.cage_scroll,
-            m.cage.members.len() - 1,
+            m.screens.cage.selected, 1,
+            "arrows and j/k move the selection"
+        );
+        for _ in 0..10 {
+            update(&mut m, key(KeyCode::PageDown));
+        }
+        assert_eq!(
+            m.screens.cage.selected,
+            m.shared.cage.members.len() - 1,
             "scrolling stops at the last member"
         );
         update(&mut m, key(KeyCode::Char('q')));
         assert!(m.quit);
+    }
+
+    #[test]
+    fn ctrl_c_quits_and_a_signal_records_its_number() {
+        let mut m = model();
+        update(
+            &mut m,
+            Msg::Key(KeyEvent::new(KeyCode::Char('c'), KeyModifiers::CONTROL)),
+        );
+        assert!(m.quit && m.exit_signal.is_none());
+        let mut m = model();
+        update(&mut m, Msg::Signal(15));
+        assert!(m.quit);
+        assert_eq!(m.exit_signal, Some(15));
+    }
+
+    #[test]
+    fn an_unbound_key_says_so() {
+        let mut m = model();
+        update(&mut m, key(KeyCode::Char('z')));
+        assert!(m.shared.notice.as_deref().unwrap().contains("press ?"));
+        update(&mut m, key(KeyCode::Esc));
+        assert_eq!(m.shared.notice, None);
     }
 
     #[test]
@@ -547,32 +620,34 @@ mod tests {
         assert!(update(&mut m, Msg::Live(Box::new(moved))));
     }
 
-    /// A live picture resting (or moving) on `face` at `t_s`.
+    #[test]
+    fn before_any_data_the_state_is_stale_with_the_reason() {
+        let m = model();
+        assert_eq!(m.shared.live.state, LiveState::Stale);
+        assert_eq!(m.shared.live.reason.as_deref(), Some("no data yet"));
+    }
+
+    #[test]
+    fn only_a_resting_vehicle_has_a_resting_face() {
+        let m = model();
+        for (state, want) in [
+            (LiveState::Resting, Some(4)),
+            (LiveState::Propped, None),
+            (LiveState::Moving, None),
+            (LiveState::Airborne, None),
+        ] {
+            let live = live_on(&m, 4, 1.0, state);
+            assert_eq!(live.resting_face(), want, "{state:?}");
+        }
+    }
+
     fn resting_on(m: &Model, face: usize, t_s: f64, resting: bool) -> Msg {
-        let q = cagehand::rest::resting_attitude(&m.cage, face);
-        let fit = cagehand::rest::fit_face(&m.cage, &cagehand::attitude::gravity_body(&q));
-        let mut live = LiveView::waiting("sim");
-        live.state = if resting {
+        let state = if resting {
             LiveState::Resting
         } else {
             LiveState::Moving
         };
-        live.face = Some(face);
-        live.rest = Some(RestSample {
-            t_s,
-            attitude: q,
-            status: RestStatus {
-                state: if resting {
-                    RestState::Resting
-                } else {
-                    RestState::Moving
-                },
-                face,
-                error_deg: fit.error_deg,
-                fit,
-            },
-        });
-        Msg::Live(Box::new(live))
+        Msg::Live(Box::new(live_on(m, face, t_s, state)))
     }
 
     #[test]
@@ -583,25 +658,30 @@ mod tests {
         let start = 8;
         let msg = resting_on(&m, start, 1.0, true);
         update(&mut m, msg);
-        let plan = m.shown_plan().expect("a preview plan").clone();
+        let plan = m
+            .screens
+            .righting
+            .shown_plan()
+            .expect("a preview plan")
+            .clone();
         assert!(plan.reachable && !plan.steps.is_empty());
         // Enter commands step 1 and asks the simulator to roll.
         update(&mut m, key(KeyCode::Enter));
-        assert_eq!(m.outbox.len(), 1, "one roll command for the sim");
+        assert_eq!(m.shared.outbox.len(), 1, "one roll command for the sim");
         let first = plan.steps[0].clone();
-        let expected_roll = m.righting.as_ref().unwrap().model.moves[first.move_index]
+        let expected_roll = m.screens.righting.moves().unwrap().moves[first.move_index]
             .roll
             .to;
         assert_eq!(
-            m.outbox[0],
-            Effect::SimRoll(m.cage.faces[expected_roll].id.clone())
+            m.shared.outbox[0],
+            Effect::SimRoll(m.shared.cage.faces[expected_roll].id.clone())
         );
         // Motion, then arrival on the step's face: the next step waits.
         let moving = resting_on(&m, start, 1.5, false);
         update(&mut m, moving);
         let arrived = resting_on(&m, first.to, 3.0, true);
         update(&mut m, arrived);
-        let r = m.righting.as_ref().unwrap();
+        let r = &m.screens.righting;
         let phase = r.stepper.as_ref().unwrap().phase();
         if plan.steps.len() > 1 {
             assert_eq!(phase, Phase::Waiting { step: 1 });
@@ -615,19 +695,38 @@ mod tests {
         );
         // x abandons stepping.
         update(&mut m, key(KeyCode::Char('x')));
-        assert!(m.righting.as_ref().unwrap().stepper.is_none());
+        assert!(m.screens.righting.stepper.is_none());
     }
 
     #[test]
     fn link_end_makes_the_picture_stale() {
         let mut m = model();
-        let mut live = LiveView::waiting("sim");
-        live.state = LiveState::Resting;
-        live.face = Some(3);
+        let live = live_on(&m, 3, 1.0, LiveState::Resting);
         update(&mut m, Msg::Live(Box::new(live)));
         update(&mut m, Msg::LinkEnded("end of file".into()));
-        assert_eq!(m.live.state, LiveState::Stale);
-        assert_eq!(m.live.face, None);
-        assert!(m.notice.as_deref().unwrap().contains("end of file"));
+        assert_eq!(m.shared.live.state, LiveState::Stale);
+        assert_eq!(m.shared.live.face, None);
+        assert!(m.shared.notice.as_deref().unwrap().contains("end of file"));
+    }
+
+    #[test]
+    fn a_changed_cage_log_replaces_the_health_and_keeps_stepping_state() {
+        let mut m = model();
+        m.screens.cage.selected = 5;
+        let report = cagehand::health::assess(&[], &m.shared.cage, &m.shared.profile.inspection);
+        update(
+            &mut m,
+            Msg::Health(Some(Box::new(report)), "2 records in the test log".into()),
+        );
+        assert!(m.shared.health.is_some());
+        assert_eq!(m.shared.health_source, "2 records in the test log");
+        assert_eq!(m.screens.cage.selected, 5, "the screen's own state stays");
+    }
+
+    #[test]
+    fn counts_have_their_plurals_right() {
+        assert_eq!(count(1, "step"), "1 step");
+        assert_eq!(count(0, "gap"), "0 gaps");
+        assert_eq!(count(2, "record"), "2 records");
     }
 }

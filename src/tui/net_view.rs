@@ -4,6 +4,7 @@
 //! planned path as numbered hinges. Layers go from least to most important,
 //! because one braille cell carries one colour.
 
+use crate::tui::model::{LiveState, Shared};
 use crate::tui::theme::Theme;
 use cagehand::cage::{Cage, MemberKind};
 use cagehand::net::{Net, NetFace};
@@ -17,12 +18,32 @@ use ratatui::widgets::{Block, Widget};
 /// What to mark on the net.
 #[derive(Debug, Clone, Default)]
 pub struct NetMarks {
-    /// Resting (or nearest) face.
+    /// The face the vehicle rests on (only while resting): `[F5]`.
     pub resting: Option<usize>,
+    /// The nearest face while propped or moving (not resting): `(F5)`.
+    pub nearest: Option<usize>,
     /// Take-off faces.
     pub takeoff: Vec<usize>,
     /// Planned path as the sequence of faces, start first.
     pub path: Vec<usize>,
+}
+
+impl NetMarks {
+    /// The marks every net shows from the live picture: the resting face
+    /// framed only while resting, the nearest face in parentheses while
+    /// propped or moving, nothing while airborne or stale; take-off faces.
+    pub fn live(shared: &Shared) -> NetMarks {
+        let live = &shared.live;
+        NetMarks {
+            resting: live.resting_face(),
+            nearest: match live.state {
+                LiveState::Propped | LiveState::Moving => live.face,
+                _ => None,
+            },
+            takeoff: shared.takeoff.clone(),
+            path: Vec::new(),
+        }
+    }
 }
 
 /// The net widget.
@@ -167,17 +188,22 @@ impl Widget for NetView<'_> {
                     let c = Net::centroid(nf);
                     let id = &cage.faces[nf.face].id;
                     let resting = marks.resting == Some(nf.face);
+                    let nearest = marks.nearest == Some(nf.face);
                     let takeoff = marks.takeoff.contains(&nf.face);
-                    let text = match (resting, takeoff) {
-                        (true, true) => format!("[{id}^]"),
-                        (true, false) => format!("[{id}]"),
-                        (false, true) => format!("{id}^"),
-                        (false, false) => id.clone(),
+                    let caret = if takeoff { "^" } else { "" };
+                    let text = if resting {
+                        format!("[{id}{caret}]")
+                    } else if nearest {
+                        format!("({id}{caret})")
+                    } else {
+                        format!("{id}{caret}")
                     };
                     let style = if resting {
                         Style::default()
                             .fg(theme.rest_colour)
                             .add_modifier(Modifier::BOLD | Modifier::REVERSED)
+                    } else if nearest {
+                        theme.warn.add_modifier(Modifier::UNDERLINED)
                     } else if takeoff {
                         theme.good
                     } else {

@@ -1,60 +1,214 @@
 //! The Preflight screen: draws the checklist as the core evaluated it
-//! (src/preflight.rs); this view decides nothing.
+//! (src/preflight.rs); this view decides nothing. The result column is the
+//! last to go when space is short, and the selected item is shown whole
+//! below the table.
 
-use crate::tui::model::Model;
-use cagehand::preflight::Outcome;
+use crate::tui::component::Component;
+use crate::tui::keys::{Binding, Key, Move};
+use crate::tui::model::Shared;
+use crate::tui::table::{self, Column, Window};
+use cagehand::preflight::{ItemEval, Outcome};
 use ratatui::Frame;
-use ratatui::layout::{Constraint, Rect};
-use ratatui::widgets::{Block, Borders, Row, Table};
+use ratatui::layout::{Constraint, Layout, Rect};
+use ratatui::style::{Modifier, Style};
+use ratatui::text::{Line, Span};
+use ratatui::widgets::{Block, Borders, Paragraph, Row, Wrap};
 
-/// Draw the Preflight screen.
-pub fn preflight(model: &Model, frame: &mut Frame, area: Rect) {
-    let t = &model.theme;
-    let rows: Vec<Row> = match &model.live.preflight {
-        None => vec![
-            Row::new(vec![
-                String::new(),
-                "WAIT".to_string(),
-                "evaluating the checklist".to_string(),
-                String::new(),
-            ])
-            .style(t.warn),
-        ],
-        Some(eval) => eval
-            .items
-            .iter()
-            .map(|item| {
-                let style = match item.result {
-                    Outcome::Pass => t.good,
-                    Outcome::Fail => t.alarm,
-                    Outcome::Waiting | Outcome::Hand => t.warn,
-                };
-                Row::new(vec![
+/// The Preflight screen's own state: the selected item and the first row shown.
+#[derive(Debug, Clone, Default, PartialEq, Eq)]
+pub struct PreflightScreen {
+    /// Selected item.
+    pub selected: usize,
+    /// First item row shown.
+    pub offset: usize,
+}
+
+/// What the Preflight screen's keys do.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum PreflightAction {
+    /// Move the selection.
+    Select(Move),
+}
+
+const KEYS: &[Binding<PreflightAction>] = &[
+    Binding {
+        keys: &[Key::Down, Key::Char('j')],
+        action: PreflightAction::Select(Move::Down),
+        help: "next item (shown whole below the table)",
+    },
+    Binding {
+        keys: &[Key::Up, Key::Char('k')],
+        action: PreflightAction::Select(Move::Up),
+        help: "previous item",
+    },
+];
+
+/// Rows around the table: its border and header, and the detail pane.
+const CHROME_ROWS: u16 = 3 + 4;
+
+fn mark_style(shared: &Shared, result: Outcome) -> Style {
+    let t = &shared.theme;
+    match result {
+        Outcome::Pass => t.good,
+        Outcome::Fail => t.alarm,
+        Outcome::Waiting | Outcome::Hand => t.warn,
+    }
+}
+
+/// The result in capitals, as the table shows it.
+fn mark(result: Outcome) -> String {
+    result.name().to_uppercase()
+}
+
+impl PreflightScreen {
+    /// The evaluated items (none until the feed has evaluated the list).
+    fn items(shared: &Shared) -> &[ItemEval] {
+        shared
+            .live
+            .preflight
+            .as_ref()
+            .map_or(&[], |e| e.items.as_slice())
+    }
+}
+
+impl Component for PreflightScreen {
+    type Action = PreflightAction;
+
+    fn keys(&self) -> &'static [Binding<PreflightAction>] {
+        KEYS
+    }
+
+    fn min_size(&self) -> (u16, u16) {
+        (50, CHROME_ROWS + 3)
+    }
+
+    fn act(&mut self, action: PreflightAction, shared: &mut Shared) -> bool {
+        let PreflightAction::Select(m) = action;
+        let len = Self::items(shared).len();
+        let page = usize::from(shared.size.1.saturating_sub(3 + CHROME_ROWS)).max(1);
+        self.selected = m.apply(self.selected, len, page);
+        self.offset = Window::new(self.selected, self.offset, page, len).offset;
+        true
+    }
+
+    fn draw(&self, shared: &Shared, frame: &mut Frame, area: Rect) {
+        let t = &shared.theme;
+        let items = Self::items(shared);
+        let n = items.len();
+        // The table as tall as its items (no empty rows), the rest for the
+        // selected item whole.
+        let table_h = (n as u16 + 3).min(area.height.saturating_sub(4)).max(4);
+        let [table_area, detail] =
+            Layout::vertical([Constraint::Length(table_h), Constraint::Min(4)]).areas(area);
+        let visible = usize::from(table_area.height.saturating_sub(3)).max(1);
+        let win = Window::new(self.selected, self.offset, visible, n);
+        let columns = [
+            Column {
+                header: "#",
+                width: 2,
+                rank: 1,
+                flex: false,
+            },
+            Column {
+                header: "result",
+                width: 7,
+                rank: 0,
+                flex: false,
+            },
+            Column {
+                header: "item",
+                width: 20,
+                rank: 0,
+                flex: true,
+            },
+            Column {
+                header: "detail",
+                width: 18,
+                rank: 2,
+                flex: true,
+            },
+        ];
+        let (kept, widths) = table::fit(&columns, table_area.width.saturating_sub(2));
+        let rows: Vec<Row> = (win.offset..win.offset + win.shown)
+            .filter_map(|i| {
+                let item = items.get(i)?;
+                let style = mark_style(shared, item.result);
+                let cells = vec![
                     item.n.to_string(),
-                    item.result.name().to_uppercase(),
+                    mark(item.result),
                     item.text.clone(),
                     item.detail.clone(),
-                ])
-                .style(style)
+                ];
+                Some(table::selectable(
+                    Row::new(table::pick(&cells, &kept)),
+                    style,
+                    i == self.selected,
+                ))
             })
-            .collect(),
-    };
-    frame.render_widget(
-        Table::new(
-            rows,
-            [
-                Constraint::Length(3),
-                Constraint::Length(7),
-                Constraint::Min(30),
-                Constraint::Min(20),
-            ],
-        )
-        .header(Row::new(vec!["#", "", "item", "detail"]).style(t.accent))
-        .block(
-            Block::default()
-                .borders(Borders::ALL)
-                .title(" Preflight checklist "),
-        ),
-        area,
-    );
+            .collect();
+        frame.render_widget(
+            table::build(
+                rows,
+                &columns,
+                &kept,
+                widths,
+                t.accent,
+                Borders::ALL,
+                format!(" Preflight checklist: {} ", win.title("item")),
+            ),
+            table_area,
+        );
+        let detail_text = match items.get(self.selected) {
+            Some(item) => Line::from(vec![
+                Span::styled(
+                    format!("{} {}: ", item.n, mark(item.result)),
+                    mark_style(shared, item.result),
+                ),
+                Span::styled(
+                    format!("{}. ", item.text),
+                    t.text.add_modifier(Modifier::BOLD),
+                ),
+                Span::styled(item.detail.clone(), t.text),
+            ]),
+            None => Line::styled("evaluating the checklist: waiting for the feed", t.warn),
+        };
+        frame.render_widget(
+            Paragraph::new(detail_text).wrap(Wrap { trim: true }).block(
+                Block::default()
+                    .borders(Borders::TOP)
+                    .title(" Selected item "),
+            ),
+            detail,
+        );
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use crate::tui::model::{Msg, demo_model, tracked, update, with_preflight};
+    use crate::tui::view::render_text;
+    use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
+
+    #[test]
+    fn the_result_column_stays_when_narrow() {
+        let m = demo_model();
+        let st = tracked(&m, &[], 0.0);
+        let mut m = with_preflight(m, &st);
+        update(
+            &mut m,
+            Msg::Key(KeyEvent::new(KeyCode::Char('4'), KeyModifiers::NONE)),
+        );
+        let s = render_text(&m, 50, 14);
+        assert!(s.contains("result"), "{s}");
+        assert!(s.contains("WAITING") && s.contains("HAND"), "{s}");
+        assert!(s.contains("Selected item"), "{s}");
+    }
+
+    #[test]
+    fn before_the_feed_evaluates_it_says_so() {
+        let mut m = demo_model();
+        m.screen = crate::tui::model::Screen::Preflight;
+        let s = render_text(&m, 80, 24);
+        assert!(s.contains("evaluating the checklist"), "{s}");
+    }
 }

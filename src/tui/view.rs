@@ -1,7 +1,10 @@
-//! `view(&Model, &mut Frame)`: the screens as pure functions of the model.
+//! `view(&Model, &mut Frame)`: the frame around the screens (tabs, the
+//! vehicle line, the message line, the help overlay, the too-small notice)
+//! as a pure function of the model. Each screen draws its own body.
 
-use crate::tui::model::{LiveState, Model, Screen};
-use crate::tui::net_view::{NetMarks, NetView};
+use crate::tui::component::Component;
+use crate::tui::keys::{self, GLOBAL_KEYS};
+use crate::tui::model::{LiveState, Model, Screen, Shared};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::{Modifier, Style};
@@ -10,241 +13,223 @@ use ratatui::widgets::{Block, Borders, Clear, Paragraph, Wrap};
 
 /// Draw the whole screen.
 pub fn view(model: &Model, frame: &mut Frame) {
-    let [tabs, body, status] = Layout::vertical([
-        Constraint::Length(1),
-        Constraint::Min(3),
-        Constraint::Length(1),
-    ])
-    .areas(frame.area());
-    frame.render_widget(tab_line(model), tabs);
-    match model.screen {
-        Screen::Watch => watch(model, frame, body),
-        Screen::Righting => super::righting_view::righting(model, frame, body),
-        Screen::Cage => super::cage_view::cage(model, frame, body),
-        Screen::Preflight => super::preflight_view::preflight(model, frame, body),
+    let area = frame.area();
+    let (need_w, need_h) = min_size(model);
+    if area.width < need_w || area.height < need_h {
+        too_small(model, frame, (need_w, need_h));
+        return;
     }
-    frame.render_widget(status_line(model), status);
+    let notice_rows = u16::from(model.shared.notice.is_some());
+    let pending_rows = u16::from(!model.shared.live.pending.is_empty());
+    let [tabs, vehicle, pending, body, notice] = Layout::vertical([
+        Constraint::Length(1),
+        Constraint::Length(1),
+        Constraint::Length(pending_rows),
+        Constraint::Min(3),
+        Constraint::Length(notice_rows),
+    ])
+    .areas(area);
+    frame.render_widget(tab_line(model), tabs);
+    frame.render_widget(vehicle_line(&model.shared), vehicle);
+    if let Some(line) = pending_line(&model.shared) {
+        frame.render_widget(Paragraph::new(line), pending);
+    }
+    let (s, sh) = (&model.screens, &model.shared);
+    match model.screen {
+        Screen::Watch => s.watch.draw(sh, frame, body),
+        Screen::Righting => s.righting.draw(sh, frame, body),
+        Screen::Cage => s.cage.draw(sh, frame, body),
+        Screen::Preflight => s.preflight.draw(sh, frame, body),
+    }
+    if let Some(n) = &model.shared.notice {
+        frame.render_widget(
+            Paragraph::new(Line::from(vec![
+                Span::styled("! ", model.shared.theme.warn),
+                Span::styled(n.clone(), model.shared.theme.warn),
+                Span::styled("  (Esc clears)", model.shared.theme.dim),
+            ])),
+            notice,
+        );
+    }
     if model.help {
         help(model, frame);
     }
 }
 
+/// Smallest terminal the current screen (with its frame) can be drawn in.
+pub fn min_size(model: &Model) -> (u16, u16) {
+    let s = &model.screens;
+    let (w, h) = match model.screen {
+        Screen::Watch => s.watch.min_size(),
+        Screen::Righting => s.righting.min_size(),
+        Screen::Cage => s.cage.min_size(),
+        Screen::Preflight => s.preflight.min_size(),
+    };
+    // Tab line, vehicle line, pending-detection line and a message line
+    // around the body.
+    (w, h + 4)
+}
+
+fn too_small(model: &Model, frame: &mut Frame, (w, h): (u16, u16)) {
+    let area = frame.area();
+    let t = &model.shared.theme;
+    let text = format!(
+        "{} needs {w}x{h}, the terminal is {}x{}: enlarge it (Tab: next screen, q: quit)",
+        model.screen.title(),
+        area.width,
+        area.height
+    );
+    frame.render_widget(
+        Paragraph::new(Line::styled(text, t.warn)).wrap(Wrap { trim: true }),
+        area,
+    );
+}
+
 fn tab_line(model: &Model) -> Paragraph<'static> {
-    let t = &model.theme;
-    let mut spans = vec![Span::styled(" cagehand ", t.accent), Span::raw(" ")];
+    let t = &model.shared.theme;
+    let mut spans = vec![Span::styled("cagehand ", t.accent)];
     for (i, s) in Screen::ALL.iter().enumerate() {
-        let label = format!(" {} {} ", i + 1, s.title());
         if *s == model.screen {
             spans.push(Span::styled(
-                label,
+                format!("[{} {}]", i + 1, s.title()),
                 t.accent.add_modifier(Modifier::REVERSED),
             ));
         } else {
-            spans.push(Span::styled(label, t.dim));
+            spans.push(Span::styled(format!(" {} {} ", i + 1, s.title()), t.dim));
         }
     }
-    spans.push(Span::styled("   ? keys  q quit", t.dim));
+    spans.push(Span::styled("  ? keys", t.dim));
     Paragraph::new(Line::from(spans))
 }
 
-/// Style and word for the live state.
-pub fn state_span(model: &Model) -> Span<'static> {
-    let t = &model.theme;
-    let s = model.live.state;
-    let style = match s {
+/// Style of a live state.
+pub fn state_style(shared: &Shared) -> Style {
+    let t = &shared.theme;
+    match shared.live.state {
         LiveState::Resting => t.good,
-        LiveState::Moving | LiveState::Airborne | LiveState::Waiting => t.warn,
+        LiveState::Propped | LiveState::Moving | LiveState::Airborne => t.warn,
         LiveState::Stale => t.alarm,
-    };
-    Span::styled(format!(" {} ", s.word()), style)
+    }
 }
 
-fn status_line(model: &Model) -> Paragraph<'static> {
-    let t = &model.theme;
-    let l = &model.live.link;
-    let age = match l.age_s {
-        Some(a) => format!("{:.1} s", a),
-        None => "-".to_string(),
-    };
-    let battery = match model.live.battery_v {
-        Some(v) if v < model.profile.preflight.min_battery_v => {
-            Span::styled(format!(" {v:.2} V LOW "), t.alarm)
+/// The state in a word with its symbol and, for a face, the face: what the
+/// vehicle line and the Watch screen lead with. `long` adds how far off the
+/// nearest face a propped or moving vehicle lies.
+pub fn state_words(shared: &Shared, long: bool) -> String {
+    let live = &shared.live;
+    let s = live.state;
+    let face = live.face.map(|f| shared.face_id(f).to_string());
+    match (s, face) {
+        (LiveState::Resting, Some(f)) => format!("{} {} on {f}", s.symbol(), s.word()),
+        (LiveState::Propped, Some(f)) | (LiveState::Moving, Some(f)) => format!(
+            "{} {} near {f}{}",
+            s.symbol(),
+            s.word(),
+            match live.error_deg {
+                Some(e) if long => format!(" ({e:.0} deg off)"),
+                _ => String::new(),
+            }
+        ),
+        _ => format!("{} {}", s.symbol(), s.word()),
+    }
+}
+
+/// One line under the tabs: vehicle, state, link, battery, in that order of
+/// importance; it fits in 80 columns.
+fn vehicle_line(shared: &Shared) -> Paragraph<'static> {
+    let t = &shared.theme;
+    let l = &shared.live.link;
+    let age = l.age_s.map_or("-".to_string(), |a| format!("{a:.1}s"));
+    let battery = match shared.live.battery_v {
+        Some(v) if v < shared.profile.preflight.min_battery_v => {
+            Span::styled(format!("{v:.2}V LOW"), t.alarm)
         }
-        Some(v) => Span::styled(format!(" {v:.2} V "), t.text),
-        None => Span::styled(" battery - ", t.dim),
+        Some(v) => Span::styled(format!("{v:.2}V"), t.text),
+        None => Span::styled("batt -", t.dim),
     };
-    let mut spans = vec![
-        Span::styled(format!(" {} ", model.profile.vehicle.id), t.accent),
+    Paragraph::new(Line::from(vec![
+        Span::styled(format!("{} ", shared.profile.vehicle.id), t.accent),
+        Span::styled(state_words(shared, false), state_style(shared)),
         Span::styled(
             format!(
-                "| {} {:.0} Hz age {} frames {} errors {} | ",
-                l.source, l.rate_hz, age, l.frames, l.errors
+                "  link {} {:.0}Hz age {age} err {}  ",
+                l.source, l.rate_hz, l.errors
             ),
             t.dim,
         ),
-        state_span(model),
-        Span::raw(" "),
         battery,
-    ];
-    if let Some(n) = &model.notice {
-        spans.push(Span::styled(format!("  {n}"), t.warn));
-    }
-    Paragraph::new(Line::from(spans))
+    ]))
 }
 
-/// The marks every net shows: resting face and take-off faces.
-pub fn base_marks(model: &Model) -> NetMarks {
-    NetMarks {
-        resting: model.live.face,
-        takeoff: model.takeoff.clone(),
-        path: Vec::new(),
-    }
-}
-
-fn watch(model: &Model, frame: &mut Frame, area: Rect) {
-    let [net_area, side] =
-        Layout::horizontal([Constraint::Min(30), Constraint::Length(34)]).areas(area);
-    let marks = base_marks(model);
-    frame.render_widget(
-        NetView {
-            cage: &model.cage,
-            net: &model.net,
-            marks: &marks,
-            theme: &model.theme,
-            block: Block::default()
-                .borders(Borders::ALL)
-                .title(Line::from(" Net of the cage (seen from outside) ")),
-        },
-        net_area,
-    );
-    frame.render_widget(watch_panel(model), side);
-}
-
-fn watch_panel(model: &Model) -> Paragraph<'static> {
-    let t = &model.theme;
-    let live = &model.live;
-    let face = live.face.map(|f| &model.cage.faces[f]);
-    let row = |k: &str, v: String, style: Style| {
-        Line::from(vec![
-            Span::styled(format!("{k:<11}"), t.dim),
-            Span::styled(v, style),
-        ])
+/// Detections not yet confirmed or dismissed, in one line that fits 80
+/// columns: what, and what to do. None when there are none.
+pub fn pending_line(shared: &Shared) -> Option<Line<'static>> {
+    let t = &shared.theme;
+    let p = &shared.live.pending;
+    let text = match p.as_slice() {
+        [] => return None,
+        [one] => format!(
+            "IMPACT #{} PENDING: {:.1} g on {}; confirm or dismiss it before flying",
+            one.seq, one.peak_g, one.face
+        ),
+        many => format!(
+            "{} IMPACTS PENDING ({}): confirm or dismiss each before flying",
+            many.len(),
+            many.iter()
+                .map(|d| format!("#{}", d.seq))
+                .collect::<Vec<_>>()
+                .join(" ")
+        ),
     };
-    let mut lines = vec![
-        Line::from(vec![Span::styled("State      ", t.dim), state_span(model)]),
-        row(
-            "Face",
-            match (face, live.state) {
-                (Some(f), LiveState::Resting) => f.id.clone(),
-                (Some(f), _) => format!("near {}", f.id),
-                (None, _) => "-".into(),
-            },
-            t.text.add_modifier(Modifier::BOLD),
-        ),
-        row(
-            "Off normal",
-            live.error_deg.map_or("-".into(), |e| format!("{e:.1} deg")),
-            t.text,
-        ),
-    ];
-    if let Some(f) = face {
-        let takeoff = live.face.is_some_and(|i| model.takeoff.contains(&i));
-        lines.push(row(
-            "Take-off",
-            if takeoff {
-                "yes: this face is a take-off face".into()
-            } else {
-                "no: see Righting (2)".into()
-            },
-            if takeoff { t.good } else { t.warn },
-        ));
-        lines.push(row(
-            "Face edges",
-            format!(
-                "{} strings, {} gaps",
-                f.string_edges,
-                f.nodes.len() - f.string_edges
-            ),
-            t.text,
-        ));
-    }
-    lines.push(Line::raw(""));
-    match live.rpy_deg {
-        Some([r, p, y]) => {
-            lines.push(row("Roll", format!("{r:>7.1} deg"), t.text));
-            lines.push(row("Pitch", format!("{p:>7.1} deg"), t.text));
-            lines.push(row("Yaw", format!("{y:>7.1} deg"), t.text));
-        }
-        None => lines.push(row("Attitude", "no data".into(), t.warn)),
-    }
-    lines.push(row(
-        "Armed",
-        match live.armed {
-            Some(true) => "ARMED".into(),
-            Some(false) => "disarmed".into(),
-            None => "-".into(),
-        },
-        if live.armed == Some(true) {
-            t.alarm
-        } else {
-            t.text
-        },
-    ));
-    lines.push(Line::raw(""));
-    lines.push(Line::styled("Legend", t.dim));
-    lines.push(Line::from(vec![
-        Span::styled(
-            "[F5]",
-            t.text.add_modifier(Modifier::BOLD | Modifier::REVERSED),
-        ),
-        Span::styled(" resting face   ", t.dim),
-        Span::styled("F1^", t.good),
-        Span::styled(" take-off", t.dim),
-    ]));
-    lines.push(Line::styled("solid string   dashed rod gap", t.dim));
-    Paragraph::new(lines)
-        .block(Block::default().borders(Borders::ALL).title(" Vehicle "))
-        .wrap(Wrap { trim: true })
+    Some(Line::from(vec![
+        Span::styled("!! ", t.alarm),
+        Span::styled(text, t.alarm),
+    ]))
+}
+
+/// The help's sections: the keys of every screen, then the current screen's.
+pub fn help_sections(model: &Model) -> Vec<(String, Vec<(String, &'static str)>)> {
+    let s = &model.screens;
+    let screen_rows = match model.screen {
+        Screen::Watch => keys::help_rows(s.watch.keys()),
+        Screen::Righting => keys::help_rows(s.righting.keys()),
+        Screen::Cage => keys::help_rows(s.cage.keys()),
+        Screen::Preflight => keys::help_rows(s.preflight.keys()),
+    };
+    vec![
+        ("Every screen".to_string(), keys::help_rows(GLOBAL_KEYS)),
+        (format!("{} screen", model.screen.title()), screen_rows),
+    ]
 }
 
 fn help(model: &Model, frame: &mut Frame) {
-    let t = &model.theme;
+    let t = &model.shared.theme;
     let area = frame.area();
-    let w = 56.min(area.width);
-    let h = 20.min(area.height);
+    let mut lines: Vec<Line> = Vec::new();
+    for (title, rows) in help_sections(model) {
+        lines.push(Line::styled(title, t.accent));
+        if rows.is_empty() {
+            lines.push(Line::styled("  no keys of its own", t.dim));
+        }
+        for (k, v) in rows {
+            lines.push(Line::from(vec![
+                Span::styled(format!("  {k:<16}"), t.text.add_modifier(Modifier::BOLD)),
+                Span::raw(v),
+            ]));
+        }
+    }
+    lines.push(Line::styled(
+        "Estimates are not guarantees: inspect the cage, keep clear of propellers.",
+        t.warn,
+    ));
+    let w = 76.min(area.width);
+    let h = (lines.len() as u16 + 2).min(area.height);
     let popup = Rect::new(
         area.x + (area.width - w) / 2,
         area.y + (area.height - h) / 2,
         w,
         h,
     );
-    let keys = [
-        ("1 / w", "Watch: live attitude and resting face"),
-        ("2 / r", "Righting: roll plan to a take-off face"),
-        ("3 / c", "Cage: members and their health"),
-        ("4 / p", "Preflight: checklist"),
-        ("Enter", "Righting: command the next step of the plan"),
-        ("x", "Righting: abandon stepping and replan"),
-        ("Up/Down", "Cage: scroll the members (PgUp/PgDn by 10)"),
-        ("Tab", "next screen (Shift-Tab: previous)"),
-        ("Esc", "clear the message line"),
-        ("?", "this help; any key closes it"),
-        ("q", "quit (Ctrl-C too)"),
-    ];
-    let mut lines: Vec<Line> = keys
-        .iter()
-        .map(|(k, v)| {
-            Line::from(vec![
-                Span::styled(format!(" {k:<8}"), t.accent),
-                Span::raw(*v),
-            ])
-        })
-        .collect();
-    lines.push(Line::raw(""));
-    lines.push(Line::styled(
-        " Estimates are not guarantees: inspect the cage, keep clear of propellers.",
-        t.warn,
-    ));
     frame.render_widget(Clear, popup);
     frame.render_widget(
         Paragraph::new(lines)
@@ -254,83 +239,153 @@ fn help(model: &Model, frame: &mut Frame) {
     );
 }
 
+/// Render a model into text at a size (tests and snapshots).
+#[cfg(test)]
+pub(crate) fn render_text(m: &Model, w: u16, h: u16) -> String {
+    use ratatui::Terminal;
+    use ratatui::backend::TestBackend;
+    let mut term = Terminal::new(TestBackend::new(w, h)).expect("test backend");
+    term.draw(|f| view(m, f)).expect("draw");
+    let buf = term.backend().buffer();
+    let mut s = String::new();
+    for y in 0..buf.area.height {
+        let mut line = String::new();
+        for x in 0..buf.area.width {
+            line.push_str(buf[(x, y)].symbol());
+        }
+        s.push_str(line.trim_end());
+        s.push('\n');
+    }
+    s
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
-    use crate::tui::model::{LiveView, Msg, update};
-    use ratatui::Terminal;
-    use ratatui::backend::TestBackend;
+    use crate::tui::model::{Msg, demo_model, update};
     use ratatui::crossterm::event::{KeyCode, KeyEvent, KeyModifiers};
 
-    fn model() -> Model {
-        crate::tui::model::demo_model()
+    fn key(c: KeyCode) -> Msg {
+        Msg::Key(KeyEvent::new(c, KeyModifiers::NONE))
     }
 
-    fn text(m: &Model) -> String {
-        let mut term = Terminal::new(TestBackend::new(110, 32)).unwrap();
-        term.draw(|f| view(m, f)).unwrap();
-        let buf = term.backend().buffer();
-        let mut s = String::new();
-        for y in 0..buf.area.height {
-            for x in 0..buf.area.width {
-                s.push_str(buf[(x, y)].symbol());
+    #[test]
+    fn every_key_in_every_table_is_in_the_help() {
+        let mut m = demo_model();
+        for (i, screen) in Screen::ALL.iter().enumerate() {
+            m.screen = *screen;
+            m.help = true;
+            let text = render_text(&m, 80, 24);
+            let s = &m.screens;
+            let mut names: Vec<String> = Vec::new();
+            let mut add = |rows: Vec<(String, &'static str)>| {
+                for (k, help) in rows {
+                    names.extend(k.split(" / ").map(str::to_string));
+                    assert!(text.contains(help), "screen {i}: {help:?} not in\n{text}");
+                }
+            };
+            add(keys::help_rows(GLOBAL_KEYS));
+            add(match screen {
+                Screen::Watch => keys::help_rows(s.watch.keys()),
+                Screen::Righting => keys::help_rows(s.righting.keys()),
+                Screen::Cage => keys::help_rows(s.cage.keys()),
+                Screen::Preflight => keys::help_rows(s.preflight.keys()),
+            });
+            for n in names {
+                assert!(
+                    text.contains(&n),
+                    "{}: key {n} not in the help\n{text}",
+                    screen.title()
+                );
             }
-            s.push('\n');
         }
-        s
     }
 
     #[test]
-    fn watch_shows_resting_face_on_the_net_and_in_words() {
-        let mut m = model();
-        let mut live = LiveView::waiting("sim");
-        live.state = LiveState::Resting;
-        live.face = Some(4);
-        live.error_deg = Some(1.5);
-        live.rpy_deg = Some([10.0, -20.0, 30.0]);
-        live.battery_v = Some(7.9);
-        update(&mut m, Msg::Live(Box::new(live)));
-        let s = text(&m);
-        assert!(s.contains("[F5]"), "resting face framed on the net:\n{s}");
-        assert!(s.contains("F1^"), "take-off face marked:\n{s}");
-        assert!(s.contains("RESTING"));
-        assert!(s.contains("1.5 deg"));
-        assert!(s.contains("7.90 V"));
-        assert!(s.contains("no: see Righting"), "F5 is not a take-off face");
-    }
-
-    #[test]
-    fn stale_is_shown_in_words_not_only_colour() {
-        let mut m = model();
-        update(&mut m, Msg::LinkEnded("device gone".into()));
-        let s = text(&m);
-        assert!(s.contains("STALE"));
-        assert!(s.contains("link ended: device gone"));
-    }
-
-    #[test]
-    fn every_screen_and_the_help_draw_with_their_cautions() {
-        let mut m = model();
-        for (k, want) in [
-            ('2', "aviation rules"),
-            ('3', "not guarantees"),
-            ('4', "Preflight checklist"),
-        ] {
-            update(
-                &mut m,
-                Msg::Key(KeyEvent::new(KeyCode::Char(k), KeyModifiers::NONE)),
-            );
-            let s = text(&m);
-            assert!(s.contains(want), "screen {k}:\n{s}");
+    fn every_bound_key_is_dispatched_not_refused() {
+        // Each key in each table reaches its action: none says "not bound".
+        let m0 = demo_model();
+        for screen in Screen::ALL {
+            let s = &m0.screens;
+            let table: Vec<crate::tui::keys::Key> = match screen {
+                Screen::Watch => s
+                    .watch
+                    .keys()
+                    .iter()
+                    .flat_map(|b| b.keys.iter().copied())
+                    .collect(),
+                Screen::Righting => s
+                    .righting
+                    .keys()
+                    .iter()
+                    .flat_map(|b| b.keys.iter().copied())
+                    .collect(),
+                Screen::Cage => s
+                    .cage
+                    .keys()
+                    .iter()
+                    .flat_map(|b| b.keys.iter().copied())
+                    .collect(),
+                Screen::Preflight => s
+                    .preflight
+                    .keys()
+                    .iter()
+                    .flat_map(|b| b.keys.iter().copied())
+                    .collect(),
+            };
+            for k in table {
+                let mut m = demo_model();
+                m.screen = screen;
+                let ev = match k {
+                    crate::tui::keys::Key::Char(c) => {
+                        KeyEvent::new(KeyCode::Char(c), KeyModifiers::NONE)
+                    }
+                    crate::tui::keys::Key::Enter => {
+                        KeyEvent::new(KeyCode::Enter, KeyModifiers::NONE)
+                    }
+                    crate::tui::keys::Key::Up => KeyEvent::new(KeyCode::Up, KeyModifiers::NONE),
+                    crate::tui::keys::Key::Down => KeyEvent::new(KeyCode::Down, KeyModifiers::NONE),
+                    crate::tui::keys::Key::PageUp => {
+                        KeyEvent::new(KeyCode::PageUp, KeyModifiers::NONE)
+                    }
+                    crate::tui::keys::Key::PageDown => {
+                        KeyEvent::new(KeyCode::PageDown, KeyModifiers::NONE)
+                    }
+                    crate::tui::keys::Key::Home => KeyEvent::new(KeyCode::Home, KeyModifiers::NONE),
+                    crate::tui::keys::Key::End => KeyEvent::new(KeyCode::End, KeyModifiers::NONE),
+                    other => panic!("add {other:?} to this test"),
+                };
+                update(&mut m, Msg::Key(ev));
+                assert!(
+                    !m.shared
+                        .notice
+                        .as_deref()
+                        .unwrap_or("")
+                        .contains("not bound"),
+                    "{} key {k:?}",
+                    screen.title()
+                );
+            }
         }
-        update(
-            &mut m,
-            Msg::Key(KeyEvent::new(KeyCode::Char('?'), KeyModifiers::NONE)),
-        );
-        let help = text(&m);
-        assert!(
-            help.contains(" Keys ") && help.contains("command the next step"),
-            "{help}"
-        );
+    }
+
+    #[test]
+    fn a_terminal_too_small_gets_one_message_with_the_size_needed() {
+        let mut m = demo_model();
+        update(&mut m, key(KeyCode::Char('3')));
+        let text = render_text(&m, 30, 8);
+        assert!(text.contains("Cage needs"), "{text}");
+        assert!(text.contains("30x8"), "{text}");
+        assert!(!text.contains("member"), "no mangled table:\n{text}");
+    }
+
+    #[test]
+    fn every_screen_fits_80x24() {
+        let mut m = demo_model();
+        for s in Screen::ALL {
+            m.screen = s;
+            let (w, h) = min_size(&m);
+            assert!(w <= 80 && h <= 24, "{} needs {w}x{h}", s.title());
+        }
     }
 }

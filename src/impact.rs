@@ -469,7 +469,7 @@ mod tests {
     #[test]
     fn half_sine_peak_is_pi_over_two_of_the_impulse_mean() {
         // Goldsmith, Impact, 1960; Stronge, Impact Mechanics, 2000
-        // (REFERENCES.md): F_avg = m (1 + e) v / dt, peak pi/2 F_avg.
+        // (docs/references.md): F_avg = m (1 + e) v / dt, peak pi/2 F_avg.
         // m 0.5 kg, e 0.2, v 4 m/s, dt 10 ms: F_avg = 240 N, peak 376.99 N.
         assert_relative_eq!(
             half_sine_peak_n(0.5, 4.0, 0.2, 0.01),
@@ -485,7 +485,7 @@ mod tests {
 
     #[test]
     fn energy_balance_of_two_linear_springs_in_series() {
-        // Goldsmith, Impact, 1960 (REFERENCES.md): a mass m at speed v on a
+        // Goldsmith, Impact, 1960 (docs/references.md): a mass m at speed v on a
         // linear spring k peaks at F = v sqrt(m k). Cage spring 3e4 N/m in
         // series with a surface of 1.5e5 N/m: k = 2.5e4 N/m; m 0.78 kg,
         // v 3 m/s -> F = 3 sqrt(0.78 * 2.5e4) = 418.93 N.
@@ -514,7 +514,7 @@ mod tests {
 
     #[test]
     fn a_face_impact_needs_the_nonlinear_solution() {
-        // DESIGN.md ("Why the linear answer is not enough"): the mechanism
+        // docs/design.md ("Why the linear answer is not enough"): the mechanism
         // leaves part of a face load unbalanced by the linear force method,
         // while the nonlinear equilibrium balances it. The design expects a
         // few hundred newtons on a face to slacken some strings and move
@@ -547,7 +547,7 @@ mod tests {
 
     #[test]
     fn slow_impact_matches_the_linear_spring_formula() {
-        // Goldsmith 1960 (REFERENCES.md): in the linear range the peak is
+        // Goldsmith 1960 (docs/references.md): in the linear range the peak is
         // F = v sqrt(m k), k the cage's face stiffness in series with the
         // surface's. The cage's stiffness is taken from a small static load.
         let (p, c) = demo();

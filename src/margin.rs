@@ -120,7 +120,7 @@ fn interval_work_j(a: &PathPoint, b: &PathPoint) -> f64 {
 /// contact force (it is only ever asked for forces above the state's);
 /// `first_step_n` is the first force step. The steps follow the linear
 /// extrapolation of every member's utilisation towards 1, at least
-/// [`MIN_INTERVALS`] of them over the path; the interval that crosses 1 is
+/// `MIN_INTERVALS` of them over the path; the interval that crosses 1 is
 /// refined by regula falsi (Illinois variant) from the state below it.
 pub fn walk_to_first_failure<S>(
     start: (S, PathPoint),

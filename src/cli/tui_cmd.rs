@@ -145,6 +145,10 @@ struct LogView {
     error: Option<String>,
     /// Detections not yet confirmed or dismissed.
     pending: Vec<cagehand::logbook::Pending>,
+    /// The remaining margin for the pre-flight's margin item, when the
+    /// profile asks for one (worked out on the feed thread when the log
+    /// changes, never on the screens' thread).
+    margin: Option<preflight::MarginSummary>,
 }
 
 impl LogView {
@@ -164,6 +168,7 @@ impl LogView {
                 trouble: report.integrity.headline(),
                 error: None,
                 pending: detection::pending(book.records()),
+                margin: None,
             },
             Err(e) => LogView {
                 records: Vec::new(),
@@ -172,6 +177,7 @@ impl LogView {
                 trouble: None,
                 error: Some(e),
                 pending: Vec::new(),
+                margin: None,
             },
         }
     }
@@ -202,8 +208,24 @@ impl LogView {
             live: Some(st),
             log,
             signing: None,
-            margin: None,
+            margin: self.margin.as_ref(),
         })
+    }
+
+    /// Work the margin out for this reading of the log, when the profile
+    /// sets `min_margin_speed_m_per_s`; no answer leaves the item waiting.
+    fn with_margin(mut self, l: &Loaded) -> LogView {
+        if l.profile.preflight.min_margin_speed_m_per_s.is_some() && self.error.is_none() {
+            self.margin = super::margin_cmd::compute(
+                l,
+                &self.records,
+                None,
+                cagehand::margin::Strikes::Faces,
+            )
+            .ok()
+            .and_then(|t| t.summary());
+        }
+        self
     }
 }
 
@@ -236,7 +258,7 @@ fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEv
 fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
-        let mut book = LogView::read(&l, &log);
+        let mut book = LogView::read(&l, &log).with_margin(&l);
         let mut last_read = Instant::now();
         while let Ok(msg) = link.rx.recv() {
             let step = feed.push(super::live::feed_input(msg));
@@ -250,9 +272,12 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
                 // Records written by this program or by another one (a
                 // `cagehand log confirm` in a second terminal) show within
                 // about a second; the screens keep their own state.
-                let fresh = LogView::read(&l, &log);
+                let mut fresh = LogView::read(&l, &log);
                 last_read = Instant::now();
-                if fresh.mark() != book.mark() {
+                if fresh.mark() == book.mark() {
+                    fresh.margin = book.margin.take();
+                } else {
+                    fresh = fresh.with_margin(&l);
                     let (health, source) = read_health(&l, &log);
                     if tx.send(Msg::Health(health.map(Box::new), source)).is_err() {
                         return;

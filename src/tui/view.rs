@@ -51,6 +51,9 @@ pub fn view(model: &Model, frame: &mut Frame) {
             notice,
         );
     }
+    if let Some(form) = &model.shared.form {
+        form.draw(&model.shared, frame, body);
+    }
     if model.help {
         help(model, frame);
     }
@@ -218,10 +221,6 @@ fn help(model: &Model, frame: &mut Frame) {
             ]));
         }
     }
-    lines.push(Line::styled(
-        "Estimates are not guarantees: inspect the cage, keep clear of propellers.",
-        t.warn,
-    ));
     let w = 76.min(area.width);
     let h = (lines.len() as u16 + 2).min(area.height);
     let popup = Rect::new(
@@ -234,7 +233,15 @@ fn help(model: &Model, frame: &mut Frame) {
     frame.render_widget(
         Paragraph::new(lines)
             .wrap(Wrap { trim: false })
-            .block(Block::default().borders(Borders::ALL).title(" Keys ")),
+            .block(
+                Block::default()
+                    .borders(Borders::ALL)
+                    .title(" Keys ")
+                    .title_bottom(Line::styled(
+                        " Estimates are not guarantees: inspect the cage, keep clear of propellers. ",
+                        t.warn,
+                    )),
+            ),
         popup,
     );
 }

@@ -300,8 +300,22 @@ impl Component for PreflightScreen {
             ]),
             None => Line::styled("evaluating the checklist: waiting for the feed", t.warn),
         };
+        let verdict = match shared.live.preflight.as_ref() {
+            None => Line::raw(""),
+            Some(eval) => match cagehand::preflight::sign(eval, &self.signoff) {
+                Ok(_) => Line::styled("READY to sign: s signs and writes the record", t.good),
+                Err(r) => Line::styled(
+                    format!(
+                        "BLOCKED ({}): {}",
+                        r.reasons.len(),
+                        r.reasons.first().cloned().unwrap_or_default()
+                    ),
+                    t.alarm,
+                ),
+            },
+        };
         frame.render_widget(
-            Paragraph::new(detail_text).wrap(Wrap { trim: true }).block(
+            Paragraph::new(vec![verdict, detail_text]).wrap(Wrap { trim: true }).block(
                 Block::default()
                     .borders(Borders::TOP)
                     .title(" Selected item "),

@@ -847,6 +847,109 @@ mod tests {
         assert_eq!(m.screens.cage.selected, 5, "the screen's own state stays");
     }
 
+    fn type_text(m: &mut Model, text: &str) {
+        for c in text.chars() {
+            update(m, key(KeyCode::Char(c)));
+        }
+    }
+
+    /// The demo with detection #4 pending in its read log.
+    fn with_pending_detection() -> Model {
+        use cagehand::logbook::{DetectionEvent, Event, Record};
+        let mut m = model();
+        let d = Record {
+            seq: 4,
+            time: "2026-12-02T05:40:00Z".into(),
+            operator: "ana".into(),
+            event: Event::Detection(DetectionEvent {
+                link_time_s: 3.0,
+                peak_g: 7.5,
+                direction_body: [0.0, 0.0, -1.0],
+                face: "F2".into(),
+                face_alignment: 1.0,
+                speed_m_per_s: None,
+                normal_speed_m_per_s: None,
+                source: "sim".into(),
+            }),
+        };
+        update(&mut m, Msg::Records(vec![d]));
+        m.shared.operator = Some("ana".into());
+        update(&mut m, key(KeyCode::Char('3')));
+        m
+    }
+
+    #[test]
+    fn esc_in_a_form_writes_nothing_and_keys_type_into_it() {
+        let mut m = with_pending_detection();
+        assert_eq!(m.shared.live.pending.len(), 1);
+        update(&mut m, key(KeyCode::Char('x')));
+        assert!(m.shared.form.is_some(), "x opens the dismissal form");
+        // q and the screen keys are typed, not obeyed, while a form is open.
+        type_text(&mut m, "q2 hand launch");
+        assert!(!m.quit && m.screen == Screen::Cage);
+        update(&mut m, key(KeyCode::Esc));
+        assert!(m.shared.form.is_none());
+        assert!(m.shared.outbox.is_empty(), "Esc writes nothing");
+    }
+
+    #[test]
+    fn a_confirmation_is_pre_filled_and_enter_asks_for_the_write() {
+        let mut m = with_pending_detection();
+        update(&mut m, key(KeyCode::Char('y')));
+        let f = m.shared.form.clone().expect("the confirm form");
+        assert_eq!(f.value("face or node"), "F2", "face from the detection");
+        assert_eq!(f.value("peak g"), "7.5", "no speed known: the peak");
+        update(&mut m, key(KeyCode::Enter));
+        match m.shared.outbox.as_slice() {
+            [Effect::Log { operator, work, .. }] => {
+                assert_eq!(operator, "ana");
+                assert_eq!(
+                    *work,
+                    Work::Confirm {
+                        seq: 4,
+                        strike: cagehand::logbook::StrikeRef::Face("F2".into()),
+                        input: cagehand::impact::ImpactInput::PeakAccel { g: 7.5 },
+                        note: None,
+                    }
+                );
+            }
+            other => panic!("one log write expected, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn a_bad_form_stays_open_with_what_was_typed() {
+        let mut m = with_pending_detection();
+        update(&mut m, key(KeyCode::Char('R')));
+        update(&mut m, key(KeyCode::Tab));
+        type_text(&mut m, "bent");
+        update(&mut m, key(KeyCode::Enter));
+        assert!(m.shared.outbox.is_empty(), "no part: nothing written");
+        let f = m.shared.form.as_ref().expect("the form stays open");
+        assert_eq!(f.value("note"), "bent");
+        assert!(m.shared.notice.as_deref().unwrap().contains("part or lot"));
+    }
+
+    #[test]
+    fn a_written_record_clears_the_pending_detection_at_once() {
+        use cagehand::logbook::{DismissalEvent, Event, Record};
+        let mut m = with_pending_detection();
+        let mut records = m.shared.records.clone();
+        records.push(Record {
+            seq: 5,
+            time: "2026-12-02T05:41:00Z".into(),
+            operator: "ana".into(),
+            event: Event::Dismissal(DismissalEvent {
+                detection: 4,
+                reason: "hand launch".into(),
+            }),
+        });
+        update(&mut m, Msg::Records(records));
+        update(&mut m, Msg::Written("#5 dismissal written".into()));
+        assert!(m.shared.live.pending.is_empty());
+        assert!(m.shared.notice.as_deref().unwrap().contains("#5"));
+    }
+
     #[test]
     fn counts_have_their_plurals_right() {
         assert_eq!(count(1, "step"), "1 step");

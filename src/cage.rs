@@ -72,6 +72,18 @@ pub struct Node {
     pub pos_cage: Vector3<f64>,
     /// Position, body frame (after the mount rotation).
     pub pos_body: Vector3<f64>,
+    /// Physical tag from the profile (explicit cages), shown beside the id.
+    pub tag: Option<String>,
+}
+
+impl Node {
+    /// The id with its tag, e.g. `N3 (red band)`, or the id alone.
+    pub fn label(&self) -> String {
+        match &self.tag {
+            Some(t) => format!("{} ({t})", self.id),
+            None => self.id.clone(),
+        }
+    }
 }
 
 /// A rod or string.
@@ -276,6 +288,13 @@ impl Cage {
                 id: id.clone(),
                 pos_cage: *p,
                 pos_body: mount * p,
+                tag: match &profile.cage {
+                    crate::profile::CageShape::Explicit { nodes, .. } => nodes
+                        .iter()
+                        .find(|n| &n.id == id)
+                        .and_then(|n| n.tag.clone()),
+                    _ => None,
+                },
             })
             .collect();
         let com_body = mount * Vector3::from(profile.vehicle.com_m);
@@ -289,10 +308,14 @@ impl Cage {
             .iter()
             .flat_map(|p| p.iter().map(|x| x.abs()))
             .fold(0.0_f64, f64::max);
-        let member_on = |a: usize, b: usize| {
-            let e = [a.min(b), a.max(b)];
-            members.iter().position(|m| m.nodes == e)
-        };
+        // The first member on each node pair, found by hashing rather than
+        // a scan of every member for every face edge.
+        let mut by_nodes: std::collections::HashMap<[usize; 2], usize> =
+            std::collections::HashMap::with_capacity(members.len());
+        for (j, m) in members.iter().enumerate() {
+            by_nodes.entry(m.nodes).or_insert(j);
+        }
+        let member_on = |a: usize, b: usize| by_nodes.get(&[a.min(b), a.max(b)]).copied();
         let mut faces: Vec<Face> = hull
             .faces
             .iter()

@@ -6,8 +6,11 @@
 //! polygons (a cube has 6 faces, not 12 triangles) and vertex order that is a
 //! pure function of the input, so face ids stay stable. The method is the
 //! textbook incremental hull (add a point, delete the faces it sees, close
-//! the horizon with new triangles), O(n^2) for n points, which is ample for
-//! cages of a few hundred nodes.
+//! the horizon with new triangles). The directed-edge map that finds the
+//! horizon is kept up to date as triangles come and go rather than rebuilt
+//! for every point, so each point costs one pass of dot products over the
+//! live triangles plus work in proportion to the triangles it changes: a
+//! few milliseconds for the 2562 nodes of a large geodesic cage.
 
 use nalgebra::Vector3;
 use std::collections::HashMap;
@@ -110,43 +113,87 @@ impl Hull {
             ]
         };
 
+        // Triangles live in creation order with a flag (so the survivors
+        // keep their order and new ones go at the end, as a rebuilt list
+        // would have them); the owner of every directed edge is kept up to
+        // date as triangles are added and removed.
+        let mut alive = vec![true; tris.len()];
+        let mut live = tris.len();
+        let mut owner: HashMap<(usize, usize), usize> = HashMap::new();
+        for (ti, t) in tris.iter().enumerate() {
+            for e in 0..3 {
+                owner.insert((t.v[e], t.v[(e + 1) % 3]), ti);
+            }
+        }
+        let mut visible: Vec<usize> = Vec::new();
+        let mut is_visible: Vec<bool> = vec![false; tris.len()];
+        let mut horizon: Vec<(usize, usize)> = Vec::new();
         for (k, q) in p.iter().enumerate() {
             if [i0, i1, i2, i3].contains(&k) {
                 continue;
             }
-            let visible: Vec<bool> = tris.iter().map(|t| t.n.dot(q) - t.d > eps).collect();
-            if !visible.iter().any(|&x| x) {
+            visible.clear();
+            visible.extend(
+                (0..tris.len()).filter(|&ti| alive[ti] && tris[ti].n.dot(q) - tris[ti].d > eps),
+            );
+            if visible.is_empty() {
                 continue;
             }
-            let mut owner: HashMap<(usize, usize), usize> = HashMap::new();
-            for (ti, t) in tris.iter().enumerate() {
-                for e in 0..3 {
-                    owner.insert((t.v[e], t.v[(e + 1) % 3]), ti);
-                }
+            for &ti in &visible {
+                is_visible[ti] = true;
             }
-            let mut horizon = Vec::new();
-            for (ti, t) in tris.iter().enumerate() {
-                if !visible[ti] {
-                    continue;
-                }
+            horizon.clear();
+            for &ti in &visible {
+                let t = tris[ti];
                 for e in 0..3 {
                     let (a, b) = (t.v[e], t.v[(e + 1) % 3]);
-                    if owner.get(&(b, a)).is_some_and(|&o| !visible[o]) {
+                    if owner.get(&(b, a)).is_some_and(|&o| !is_visible[o]) {
                         horizon.push((a, b));
                     }
                 }
             }
-            let mut kept: Vec<Tri> = tris
-                .iter()
-                .zip(&visible)
-                .filter(|(_, v)| !**v)
-                .map(|(t, _)| *t)
-                .collect();
-            for (a, b) in horizon {
-                kept.push(tri(&p, a, b, k));
+            for &ti in &visible {
+                alive[ti] = false;
+                is_visible[ti] = false;
+                let t = tris[ti];
+                for e in 0..3 {
+                    let key = (t.v[e], t.v[(e + 1) % 3]);
+                    if owner.get(&key) == Some(&ti) {
+                        owner.remove(&key);
+                    }
+                }
             }
-            tris = kept;
+            live -= visible.len();
+            for &(a, b) in &horizon {
+                let ti = tris.len();
+                tris.push(tri(&p, a, b, k));
+                alive.push(true);
+                is_visible.push(false);
+                for (x, y) in [(a, b), (b, k), (k, a)] {
+                    owner.insert((x, y), ti);
+                }
+            }
+            live += horizon.len();
+            // Drop the dead once they outnumber the living, keeping order.
+            if tris.len() > 2 * live + 64 {
+                let mut keep = alive.iter();
+                tris.retain(|_| *keep.next().unwrap_or(&false));
+                alive = vec![true; tris.len()];
+                is_visible = vec![false; tris.len()];
+                owner.clear();
+                for (ti, t) in tris.iter().enumerate() {
+                    for e in 0..3 {
+                        owner.insert((t.v[e], t.v[(e + 1) % 3]), ti);
+                    }
+                }
+            }
         }
+        let tris: Vec<Tri> = tris
+            .iter()
+            .zip(&alive)
+            .filter(|(_, a)| **a)
+            .map(|(t, _)| *t)
+            .collect();
         Ok(Hull {
             faces: merge_coplanar(&p, &tris, eps),
             tolerance: eps,
@@ -220,11 +267,15 @@ fn merge_coplanar(p: &[Vector3<f64>], tris: &[Tri], eps: f64) -> Vec<HullFace> {
         }
     }
     let mut groups: Vec<(usize, Vec<usize>)> = Vec::new();
+    let mut group_of: HashMap<usize, usize> = HashMap::new();
     for ti in 0..tris.len() {
         let r = find(&mut parent, ti);
-        match groups.iter_mut().find(|(root, _)| *root == r) {
-            Some((_, g)) => g.push(ti),
-            None => groups.push((r, vec![ti])),
+        match group_of.get(&r) {
+            Some(&gi) => groups[gi].1.push(ti),
+            None => {
+                group_of.insert(r, groups.len());
+                groups.push((r, vec![ti]));
+            }
         }
     }
     let mut faces = Vec::new();

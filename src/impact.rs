@@ -15,7 +15,8 @@
 use crate::cage::Cage;
 use crate::profile::Profile;
 use crate::statics::{
-    Equilibrium, NonlinearModel, StaticsError, Structure, centroid_weighted, self_stress,
+    Equilibrium, NonlinearModel, SelfStress, StaticsError, Structure, centroid_weighted,
+    self_stress,
 };
 use nalgebra::{Matrix3, Vector3};
 use serde::{Deserialize, Serialize};
@@ -278,6 +279,31 @@ pub fn energy_balance_force_n(
     Ok(upper_n)
 }
 
+/// What the statics of a cage needs that depends only on its geometry and
+/// sections: the structure and its self-stress analysis (rank, states,
+/// prestress). Worked out once per cage and shared by every impact on it
+/// and by the report that explains a failure.
+#[derive(Debug, Clone, PartialEq)]
+pub struct CageStatics {
+    /// Nodes and members as statics sees them.
+    pub structure: Structure,
+    /// Rank, self-stress states and the prestress.
+    pub self_stress: SelfStress,
+}
+
+impl CageStatics {
+    /// The structure and self-stress of a cage with the profile's sections
+    /// and pretension.
+    pub fn new(cage: &Cage, profile: &Profile) -> Result<CageStatics, StaticsError> {
+        let structure = Structure::from_cage(cage, profile);
+        let self_stress = self_stress(&structure, profile.string.pretension_n)?;
+        Ok(CageStatics {
+            structure,
+            self_stress,
+        })
+    }
+}
+
 /// Analyse an impact: the peak force by the method the input allows, and
 /// the member forces from the nonlinear equilibrium at that peak.
 pub fn analyse_impact(
@@ -286,10 +312,26 @@ pub fn analyse_impact(
     strike: Strike,
     input: &ImpactInput,
 ) -> Result<ImpactAnalysis, StaticsError> {
+    ContactLoad::new(cage, strike)?;
+    let statics = CageStatics::new(cage, profile)?;
+    analyse_impact_on(cage, profile, &statics, strike, input, &mut |_, _| {})
+}
+
+/// [`analyse_impact`] on statics already worked out for this cage;
+/// `progress(done, total)` is called after each load step of the walk
+/// along the load path (speed estimates only), so a caller can show
+/// progress on a large cage.
+pub fn analyse_impact_on(
+    cage: &Cage,
+    profile: &Profile,
+    statics: &CageStatics,
+    strike: Strike,
+    input: &ImpactInput,
+    progress: &mut dyn FnMut(usize, usize),
+) -> Result<ImpactAnalysis, StaticsError> {
     let load = ContactLoad::new(cage, strike)?;
-    let structure = Structure::from_cage(cage, profile);
-    let ss = self_stress(&structure, profile.string.pretension_n)?;
-    let model = NonlinearModel::new(&structure, &ss.prestress_n);
+    let structure = &statics.structure;
+    let model = NonlinearModel::new(structure, &statics.self_stress.prestress_n);
     let load_fn = |pos: &[Vector3<f64>], f: f64, out: &mut [Vector3<f64>]| load.forces(pos, f, out);
     let unloaded = model.unloaded();
     let mass = cage.mass_kg;
@@ -355,6 +397,7 @@ pub fn analyse_impact(
                     let st = model.solve(&last, &load_fn, fk)?;
                     let d = load.displacement_m(&model.deformation(&st.pos_m));
                     states.push(st.clone());
+                    progress(states.len(), PATH_STEPS);
                     last = st;
                     Ok(d)
                 })?;

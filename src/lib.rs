@@ -12,6 +12,7 @@ pub mod attitude;
 pub mod cage;
 pub mod caution;
 pub mod feed;
+pub mod geodesic;
 pub mod health;
 pub mod hull;
 pub mod impact;

@@ -50,26 +50,36 @@ pub struct FaceFit {
 
 /// Best face for a body-frame gravity direction: the face whose outward
 /// normal is closest to `gravity_body`.
+///
+/// Runs for every live sample, so faces are compared by the dot product of
+/// their unit normal with gravity (the angle falls as the dot product
+/// rises, and |g| is the same for every face); the angle itself is worked
+/// out only for the best face and the runner-up.
 pub fn fit_face(cage: &Cage, gravity_body: &Vector3<f64>) -> FaceFit {
     let mut best: Option<(usize, f64)> = None;
     let mut second: Option<(usize, f64)> = None;
     for (i, f) in cage.faces.iter().enumerate() {
-        let e = angle_between_deg(&f.normal_body, gravity_body);
-        // A non-finite gravity gives NaN errors; treat them as the worst fit.
-        let e = if e.is_finite() { e } else { 180.0 };
+        let d = f.normal_body.dot(gravity_body);
+        // A non-finite gravity gives NaN; treat it as the worst fit.
+        let d = if d.is_finite() { d } else { f64::NEG_INFINITY };
         match best {
-            Some((_, be)) if e >= be => {
-                if second.is_none_or(|(_, se)| e < se) {
-                    second = Some((i, e));
+            Some((_, bd)) if d <= bd => {
+                if second.is_none_or(|(_, sd)| d > sd) {
+                    second = Some((i, d));
                 }
             }
             _ => {
                 second = best;
-                best = Some((i, e));
+                best = Some((i, d));
             }
         }
     }
-    let (face, error_deg) = best.unwrap_or((0, 180.0));
+    let error = |i: usize| {
+        let e = angle_between_deg(&cage.faces[i].normal_body, gravity_body);
+        if e.is_finite() { e } else { 180.0 }
+    };
+    let (face, error_deg) = best.map_or((0, 180.0), |(i, _)| (i, error(i)));
+    let second = second.map(|(i, _)| (i, error(i)));
     FaceFit {
         face,
         error_deg,
@@ -253,6 +263,31 @@ mod tests {
             assert_eq!(fit.face, i);
             assert!(fit.error_deg < 1e-9);
             assert!(fit.margin_deg > 30.0, "neighbours are 39 deg or more away");
+        }
+    }
+
+    #[test]
+    fn dot_product_fit_agrees_with_the_smallest_angle() {
+        // The face of least angle to gravity (DESIGN.md's definition) found
+        // by comparing angles must be the one found by dot products, with
+        // the same errors, over directions all round the sphere.
+        let (_, c) = demo();
+        for i in 0..40 {
+            for j in 0..80 {
+                let (th, ph) = (i as f64 * 0.0785 + 0.01, j as f64 * 0.0785);
+                let g = Vector3::new(th.sin() * ph.cos(), th.sin() * ph.sin(), th.cos()) * 9.8;
+                let mut errs: Vec<(f64, usize)> = c
+                    .faces
+                    .iter()
+                    .enumerate()
+                    .map(|(k, f)| (angle_between_deg(&f.normal_body, &g), k))
+                    .collect();
+                errs.sort_by(|a, b| a.0.total_cmp(&b.0));
+                let fit = fit_face(&c, &g);
+                assert_eq!(fit.face, errs[0].1);
+                assert!((fit.error_deg - errs[0].0).abs() < 1e-9);
+                assert!((fit.margin_deg - (errs[1].0 - errs[0].0)).abs() < 1e-9);
+            }
         }
     }
 

@@ -3,11 +3,16 @@
 //!
 //! - [`moves`]: edge rolls and vertex pivots, and where a roll onto a face
 //!   the vehicle cannot rest on settles.
-//! - [`feasibility`]: the quasi-static moment check (DESIGN.md).
+//! - [`contact`]: the conditions the thrusts must meet at one angle of a
+//!   roll (lift-off, friction, the reaction on the pivot).
+//! - [`describe`]: a move in the vehicle's own terms (which side tips).
+//! - [`feasibility`]: the quasi-static moment check and the rotor commands.
 //! - [`plan`]: the graph of resting faces and feasible moves, the recovery
 //!   map (multi-goal Dijkstra) and single plans (A*).
 //! - [`stepper`]: the state machine that walks the operator through a plan.
 
+pub mod contact;
+pub mod describe;
 pub mod feasibility;
 pub mod moves;
 pub mod plan;
@@ -18,7 +23,7 @@ mod checks;
 
 use crate::cage::{Cage, CageError};
 use crate::profile::Profile;
-pub use feasibility::{Feasibility, Limits};
+pub use feasibility::{Feasibility, Limits, RotorCommands, ScheduleEntry};
 pub use moves::{MoveKind, Roll};
 pub use plan::{Plan, Step};
 

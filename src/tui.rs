@@ -24,6 +24,7 @@ pub mod righting_view;
 mod screen_snaps;
 pub mod table;
 pub mod theme;
+pub mod vehicle_view;
 pub mod view;
 pub mod watch_view;
 

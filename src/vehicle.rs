@@ -13,8 +13,8 @@
 
 use crate::cage::{Cage, CageError};
 use crate::profile::{
-    DEMO_PROFILE_NAME, DEMO_PROFILE_TOML, Profile, ProfileError, TakeoffFaces, cage_key,
-    pretension_path, takeoff_face_path, vehicle_key,
+    CageShape, DEMO_PROFILE_NAME, DEMO_PROFILE_TOML, Profile, ProfileError, TakeoffFaces, cage_key,
+    member_path, pretension_path, takeoff_face_path, vehicle_key,
 };
 use crate::statics::{StaticsError, Structure, self_stress};
 
@@ -47,7 +47,12 @@ pub enum LoadError {
 pub type CageCheck = fn(&Profile, &Cage) -> Result<(), LoadError>;
 
 /// The checks that need the built cage, in the order they run.
-pub const CAGE_CHECKS: &[CageCheck] = &[takeoff_faces_exist, prestress_within_capacity];
+pub const CAGE_CHECKS: &[CageCheck] = &[
+    takeoff_faces_exist,
+    takeoff_faces_hold_the_vehicle,
+    rods_do_not_cross,
+    prestress_within_capacity,
+];
 
 /// Load a vehicle from a profile file's bytes; `file` names it in messages.
 pub fn load(bytes: &[u8], file: &str) -> Result<Loaded, LoadError> {
@@ -111,6 +116,127 @@ fn takeoff_faces_exist(p: &Profile, c: &Cage) -> Result<(), LoadError> {
                     format!("{id}, which is not a face of this cage"),
                 )
                 .into());
+        }
+    }
+    Ok(())
+}
+
+/// Every listed take-off face is one the vehicle can rest on (its centre
+/// of mass projects inside the face): a plan can never end on any other,
+/// so the profile is refused at that face rather than every plan failing.
+fn takeoff_faces_hold_the_vehicle(p: &Profile, c: &Cage) -> Result<(), LoadError> {
+    let TakeoffFaces::List(ids) = &p.righting.takeoff_faces else {
+        return Ok(());
+    };
+    for (i, id) in ids.iter().enumerate() {
+        let Some(f) = c.face_index(id).and_then(|k| c.faces.get(k)) else {
+            continue;
+        };
+        if !f.stable {
+            let resting: Vec<&str> = c
+                .faces
+                .iter()
+                .filter(|f| f.stable)
+                .map(|f| f.id.as_str())
+                .collect();
+            return Err(p
+                .invalid(
+                    &takeoff_face_path(i),
+                    format!(
+                        "a face the vehicle can rest on (its centre of mass over the face): {}",
+                        resting.join(", ")
+                    ),
+                    format!("{id}, over which the centre of mass does not lie, so the vehicle tips off it"),
+                )
+                .into());
+        }
+    }
+    Ok(())
+}
+
+/// Shortest distance between the segments a0-a1 and b0-b1 (clamped
+/// closest points; Ericson, Real-Time Collision Detection, 2005, 5.1.9).
+fn segment_distance_m(a0: [f64; 3], a1: [f64; 3], b0: [f64; 3], b1: [f64; 3]) -> f64 {
+    use nalgebra::Vector3;
+    let (p1, q1, p2, q2) = (
+        Vector3::from(a0),
+        Vector3::from(a1),
+        Vector3::from(b0),
+        Vector3::from(b1),
+    );
+    let (d1, d2, r) = (q1 - p1, q2 - p2, p1 - p2);
+    let (a, e, f) = (d1.dot(&d1), d2.dot(&d2), d2.dot(&r));
+    let c = d1.dot(&r);
+    let b = d1.dot(&d2);
+    let denom = a * e - b * b;
+    let mut s = if denom > 1e-18 * (a * e).max(1e-300) {
+        ((b * f - c * e) / denom).clamp(0.0, 1.0)
+    } else {
+        0.0
+    };
+    let mut t = if e > 0.0 { (b * s + f) / e } else { 0.0 };
+    if t < 0.0 {
+        t = 0.0;
+        s = if a > 0.0 {
+            (-c / a).clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
+    } else if t > 1.0 {
+        t = 1.0;
+        s = if a > 0.0 {
+            ((b - c) / a).clamp(0.0, 1.0)
+        } else {
+            0.0
+        };
+    }
+    ((p1 + d1 * s) - (p2 + d2 * t)).norm()
+}
+
+/// No two rods of an explicit cage pass through each other: rods that
+/// share no node must stay at least one rod diameter apart (centre lines
+/// closer than that mean the tubes intersect).
+fn rods_do_not_cross(p: &Profile, _c: &Cage) -> Result<(), LoadError> {
+    let CageShape::Explicit { nodes, rods, .. } = &p.cage else {
+        return Ok(());
+    };
+    let clearance_m = p.rod.outer_diameter_mm * 1e-3;
+    let pos = |i: usize| nodes.get(i).map(|n| n.pos_m);
+    for (i, a) in rods.iter().enumerate() {
+        for (j, b) in rods.iter().enumerate().skip(i + 1) {
+            if a.nodes.iter().any(|n| b.nodes.contains(n)) {
+                continue;
+            }
+            let (Some(a0), Some(a1), Some(b0), Some(b1)) = (
+                pos(a.nodes[0]),
+                pos(a.nodes[1]),
+                pos(b.nodes[0]),
+                pos(b.nodes[1]),
+            ) else {
+                continue;
+            };
+            let d = segment_distance_m(a0, a1, b0, b1);
+            if d < clearance_m {
+                let name = |k: usize| nodes.get(k).map_or("?", |n| n.id.as_str());
+                return Err(p
+                    .invalid(
+                        &member_path(true, j),
+                        format!(
+                            "rods that do not pass through each other (centre lines at least the rod diameter, {:.1} mm, apart)",
+                            p.rod.outer_diameter_mm
+                        ),
+                        format!(
+                            "rod {}-{} crossing rod {} ({}-{}) at {:.1} mm",
+                            name(b.nodes[0]),
+                            name(b.nodes[1]),
+                            i + 1,
+                            name(a.nodes[0]),
+                            name(a.nodes[1]),
+                            d * 1e3
+                        ),
+                    )
+                    .into());
+            }
         }
     }
     Ok(())

@@ -25,8 +25,12 @@ fn ok(o: &Output) -> String {
     String::from_utf8(o.stdout.clone()).unwrap()
 }
 
+/// The members of `log health --json` (cagehand.health/1, docs/json.md).
 fn health(data: &Path) -> Vec<serde_json::Value> {
-    serde_json::from_str(&ok(&cmd(data, &["log", "health", "--json"]))).unwrap()
+    let h: serde_json::Value =
+        serde_json::from_str(&ok(&cmd(data, &["log", "health", "--json"]))).unwrap();
+    assert_eq!(h["schema"], "cagehand.health/1");
+    h["members"].as_array().unwrap().clone()
 }
 
 fn member<'a>(h: &'a [serde_json::Value], id: &str) -> &'a serde_json::Value {
@@ -360,9 +364,7 @@ fn a_crash_beyond_the_model_is_still_recorded_and_condemns_the_cage() {
         ],
     ));
     assert!(out.contains("RECORDED as #1 beyond the model"), "{out}");
-    let h: serde_json::Value =
-        serde_json::from_str(&ok(&cmd(d, &["log", "health", "--json"]))).unwrap();
-    let members = h.as_array().unwrap();
+    let members = health(d);
     assert_eq!(members.len(), 30);
     for m in members {
         assert_eq!(m["status"], "replace_now", "{m}");
@@ -375,13 +377,40 @@ fn a_crash_beyond_the_model_is_still_recorded_and_condemns_the_cage() {
     }
     // A replacement still resets one member.
     ok(&cmd(d, &["log", "replace", "S3"]));
-    let h: serde_json::Value =
-        serde_json::from_str(&ok(&cmd(d, &["log", "health", "--json"]))).unwrap();
-    let s3 = h
-        .as_array()
-        .unwrap()
-        .iter()
-        .find(|m| m["id"] == "S3")
-        .unwrap();
+    let members = health(d);
+    let s3 = member(&members, "S3");
     assert_eq!(s3["status"], "ok");
+}
+
+#[test]
+fn operator_is_offered_only_where_a_record_is_written() {
+    // Issue 14: an option only where it means something. Reading actions
+    // refuse --operator as bad usage (exit 2); writing ones offer it.
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    let data = d.display().to_string();
+    for read in [
+        &["log", "show"][..],
+        &["log", "health"],
+        &["log", "export", "--format", "csv"],
+    ] {
+        let mut args = read.to_vec();
+        args.extend(["--operator", "bo"]);
+        let o = cmd(d, &args);
+        assert_eq!(o.status.code(), Some(2), "{args:?}");
+        let mut help = read[..2].to_vec();
+        help.push("--help");
+        assert!(!ok(&cmd(d, &help)).contains("--operator"), "{help:?}");
+        // --data still works where a log is read.
+        let mut args = read.to_vec();
+        args.extend(["--data", &data]);
+        ok(&cmd(d, &args));
+    }
+    for write in ["finding", "replace", "note"] {
+        assert!(
+            ok(&cmd(d, &["log", write, "--help"])).contains("--operator"),
+            "{write}"
+        );
+    }
+    assert!(ok(&cmd(d, &["impact", "--help"])).contains("--operator"));
 }

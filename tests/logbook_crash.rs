@@ -17,8 +17,8 @@ fn cagehand(data: &Path, args: &[&str]) -> Command {
         .args(args)
         .arg("--data")
         .arg(data)
-        .arg("--operator")
-        .arg("crash-test")
+        // By the environment: `--operator` is only on the actions that write.
+        .env("CAGEHAND_OPERATOR", "crash-test")
         .env_remove("CAGEHAND_DATA");
     c
 }
@@ -302,7 +302,7 @@ fn disk_full_in_the_middle_of_a_record_leaves_no_partial_record() {
     }
     let dir = tempfile::tempdir().unwrap();
     let script = format!(
-        "trap '' XFSZ; ulimit -f 2; exec '{BIN}' log --data '{}' --operator t note filler --repeat 100",
+        "trap '' XFSZ; ulimit -f 2; exec '{BIN}' log --data '{}' note filler --operator t --repeat 100",
         dir.path().display()
     );
     let o = Command::new("/bin/bash")

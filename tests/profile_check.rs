@@ -145,6 +145,20 @@ const BAD: &[(&str, &str, &str, &str)] = &[
         "rotor[2].max_thrust_n",
         "no larger than 100000 N (a plausible physical value), found 1e30 N",
     ),
+    // A take-off face the vehicle cannot rest on, refused at its entry.
+    (
+        "takeoff-face-cannot-hold.toml",
+        ":95:24:",
+        "righting.takeoff_faces[2]",
+        "F8, over which the centre of mass does not lie",
+    ),
+    // Rods whose centre lines pass closer than a rod diameter.
+    (
+        "rods-cross.toml",
+        ":37:9:",
+        "cage.rod[2].nodes",
+        "rod N2-N5 crossing rod 1 (N1-N4)",
+    ),
     (
         "duplicate-takeoff-face.toml",
         ":95:30:",

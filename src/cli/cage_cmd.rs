@@ -2,6 +2,7 @@
 //! report or as JSON (a contract: scripts parse it).
 
 use super::ProfileArg;
+use super::rotor_out::{RotorJson, ScheduleJson, rotors_json, schedule_json};
 use cagehand::cage::{Cage, MemberKind};
 use cagehand::profile::Profile;
 use cagehand::righting::{MoveKind, RightingModel};
@@ -30,7 +31,12 @@ struct VehicleJson<'a> {
 #[derive(Debug, Serialize)]
 struct NodeJson<'a> {
     id: &'a str,
+    /// Cage frame (the profile's node coordinates).
     pos_m: [f64; 3],
+    /// Body frame (FRD), the frame of the face normals and the rotors.
+    pos_body_m: [f64; 3],
+    /// Physical tag from the profile, if any.
+    tag: Option<&'a str>,
 }
 
 #[derive(Debug, Serialize)]
@@ -77,11 +83,18 @@ struct MoveJson<'a> {
     /// give no helping moment at all.
     thrust_fraction: Option<f64>,
     settles_on: &'a str,
+    /// Rotor commands at the start of the roll, feasible moves only.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    rotors: Option<Vec<RotorJson>>,
+    /// Settings by roll angle, where one setting cannot hold the roll.
+    #[serde(skip_serializing_if = "Option::is_none")]
+    rotor_schedule: Option<Vec<ScheduleJson>>,
 }
 
 /// The cage report: what `cage --json` prints.
 #[derive(Debug, Serialize)]
 struct Report<'a> {
+    schema: &'static str,
     vehicle: VehicleJson<'a>,
     nodes: Vec<NodeJson<'a>>,
     members: Vec<MemberJson<'a>>,
@@ -98,7 +111,15 @@ fn report<'a>(
 ) -> Report<'a> {
     let nid = |i: usize| c.nodes[i].id.as_str();
     let fid = |i: usize| c.faces[i].id.as_str();
+    let rotors = &model.limits.rotors;
+    fn commands(m: &cagehand::righting::Move) -> Option<&cagehand::righting::RotorCommands> {
+        m.feasibility
+            .commands
+            .as_ref()
+            .filter(|_| m.feasibility.feasible)
+    }
     Report {
+        schema: "cagehand.cage/1",
         vehicle: VehicleJson {
             id: &p.vehicle.id,
             name: &p.vehicle.name,
@@ -110,6 +131,8 @@ fn report<'a>(
             .map(|n| NodeJson {
                 id: &n.id,
                 pos_m: n.pos_cage.into(),
+                pos_body_m: n.pos_body.into(),
+                tag: n.tag.as_deref(),
             })
             .collect(),
         members: c
@@ -158,6 +181,8 @@ fn report<'a>(
                 feasible: m.feasibility.feasible,
                 thrust_fraction: m.feasibility.thrust_fraction,
                 settles_on: fid(m.settles_on),
+                rotors: commands(m).map(|c| rotors_json(rotors, &c.thrust_n)),
+                rotor_schedule: commands(m).and_then(|c| schedule_json(rotors, c)),
             })
             .collect(),
     }
@@ -166,6 +191,7 @@ fn report<'a>(
 /// Run the cage command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = args.profile.load()?;
+    super::progress::Large::new(&l.cage).stage("self-stress of the cage");
     let ss = self_stress(
         &Structure::from_cage(&l.cage, &l.profile),
         l.profile.string.pretension_n,

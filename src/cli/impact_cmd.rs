@@ -6,9 +6,11 @@ use super::log_cmd::{self, LogOpts};
 use super::{Loaded, ProfileArg, bad_input};
 use cagehand::cage::MemberKind;
 use cagehand::health::StatusChange;
-use cagehand::impact::{ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact};
+use cagehand::impact::{
+    CageStatics, ImpactAnalysis, ImpactInput, ImpactMethod, Strike, analyse_impact_on,
+};
 use cagehand::logbook::{Access, ImpactEvent, ImpactSource, StrikeRef};
-use cagehand::statics::{StaticsError, Structure, self_stress};
+use cagehand::statics::StaticsError;
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -139,10 +141,12 @@ pub fn resolve(args: &Args, l: &Loaded) -> anyhow::Result<Resolved> {
     })
 }
 
-/// Run the analysis; input errors become bad input, a failed solution a
-/// runtime failure.
-pub fn analyse(l: &Loaded, r: &Resolved) -> anyhow::Result<ImpactAnalysis> {
-    analyse_impact(&l.cage, &l.profile, r.strike, &r.input).map_err(|e| match e {
+/// Run the analysis on the cage's statics (worked out once by the caller);
+/// input errors become bad input, a failed solution a runtime failure.
+pub fn analyse(l: &Loaded, statics: &CageStatics, r: &Resolved) -> anyhow::Result<ImpactAnalysis> {
+    let large = super::progress::Large::new(&l.cage);
+    let mut progress = |done: usize, total: usize| large.step("load path", done, total);
+    analyse_impact_on(&l.cage, &l.profile, statics, r.strike, &r.input, &mut progress).map_err(|e| match e {
         StaticsError::NoEquilibrium { load, reached, .. } => anyhow::Error::new(e.clone()).context(
             format!(
                 "impact analysis failed: the cage held up to a contact force of {reached:.0} N but not {load:.0} N; it may have collapsed: inspect it physically before anything else"
@@ -156,14 +160,12 @@ pub fn analyse(l: &Loaded, r: &Resolved) -> anyhow::Result<ImpactAnalysis> {
         other => {
             // Say plainly when the cage carries no prestress: that is the
             // usual reason a tensegrity finds no equilibrium.
-            let why = self_stress(
-                &Structure::from_cage(&l.cage, &l.profile),
-                l.profile.string.pretension_n,
-            )
-            .ok()
-            .filter(|ss| !ss.prestress_ok)
-            .map(|ss| format!(" ({})", ss.message))
-            .unwrap_or_default();
+            let ss = &statics.self_stress;
+            let why = if ss.prestress_ok {
+                String::new()
+            } else {
+                format!(" ({})", ss.message)
+            };
             anyhow::Error::new(other).context(format!("impact analysis failed{why}"))
         }
     })
@@ -178,10 +180,17 @@ struct MemberJson<'a> {
     utilisation: f64,
 }
 
+/// The schema of `impact --json` (and of `log confirm --json`, which adds
+/// to it): docs/json.md.
+pub const IMPACT_SCHEMA: &str = "cagehand.impact/1";
+
 #[derive(Debug, Serialize)]
 struct Report<'a> {
+    schema: &'static str,
     vehicle: &'a str,
     strike: &'a str,
+    /// False: the cage found an equilibrium and the figures below hold.
+    beyond_model: bool,
     force_n: f64,
     method: ImpactMethod,
     input: &'a ImpactInput,
@@ -194,11 +203,9 @@ struct Report<'a> {
     recorded: bool,
     /// Sequence number of the log record, when recorded.
     record_seq: Option<u64>,
-    /// The detection this impact confirms (`log confirm`).
-    #[serde(skip_serializing_if = "Option::is_none")]
+    /// The detection this impact confirms (`log confirm`), else null.
     detection: Option<u64>,
-    /// The cage log written to, when recorded.
-    #[serde(skip_serializing_if = "Option::is_none")]
+    /// The cage log written to; null for a dry run.
     log: Option<String>,
     /// Members whose status the impact changed, when recorded.
     status_changes: Vec<StatusChange>,
@@ -251,6 +258,7 @@ fn record_beyond_model(
     let mut out = std::io::stdout().lock();
     if args.json {
         let j = serde_json::json!({
+            "schema": IMPACT_SCHEMA,
             "vehicle": l.profile.vehicle.id,
             "strike": resolved.strike_id,
             "beyond_model": true,
@@ -305,7 +313,12 @@ pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Re
     if let (Some(seq), Some(book)) = (detection, book.as_ref()) {
         log_cmd::check_pending(book, seq)?;
     }
-    let a = match (analyse(l, &resolved), book.as_mut()) {
+    let large = super::progress::Large::new(&l.cage);
+    large.stage("self-stress of the cage");
+    let statics = CageStatics::new(&l.cage, &l.profile)
+        .map_err(|e| anyhow::Error::new(e).context("impact analysis failed"))?;
+    large.stage("impact");
+    let a = match (analyse(l, &statics, &resolved), book.as_mut()) {
         (Ok(a), _) => a,
         (Err(e), Some(book)) => {
             // The worst crash is the one that most needs logging: record it
@@ -320,10 +333,7 @@ pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Re
         }
         (Err(e), None) => return Err(e),
     };
-    let ss = self_stress(
-        &Structure::from_cage(&l.cage, &l.profile),
-        l.profile.string.pretension_n,
-    )?;
+    let ss = &statics.self_stress;
     // Record last, once everything the report needs has been computed.
     let (record_seq, status_changes) = match book.as_mut() {
         Some(book) => {
@@ -351,8 +361,10 @@ pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Re
     };
     let cage = &l.cage;
     let report = Report {
+        schema: IMPACT_SCHEMA,
         vehicle: &l.profile.vehicle.id,
         strike: &resolved.strike_id,
+        beyond_model: false,
         force_n: a.force_n,
         method: a.method,
         input: &resolved.input,

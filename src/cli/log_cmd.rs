@@ -47,7 +47,38 @@ pub fn lock_wait_from_env() -> anyhow::Result<Duration> {
         })
 }
 
-/// Where the logs live and who is writing: shared by `log` and `impact`.
+/// Where the logs live, for the `log` actions: `--data` on every action,
+/// `--operator` ([`OperatorArg`]) only on those that write a record.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct DataArg {
+    /// Folder holding the cage logs (else $CAGEHAND_DATA, else the
+    /// platform's data folder, e.g. ~/.local/share/cagehand).
+    #[arg(long, value_name = "DIR", global = true)]
+    pub data: Option<PathBuf>,
+}
+
+/// Who writes the record: offered only where a record is written.
+#[derive(Debug, Clone, Default, clap::Args)]
+pub struct OperatorArg {
+    /// Who records the event (else $CAGEHAND_OPERATOR, else the account
+    /// name the operating system gives for the current user).
+    #[arg(long, value_name = "NAME")]
+    pub operator: Option<String>,
+}
+
+impl DataArg {
+    /// The log options of an action: this folder, and the operator when
+    /// the action writes (None: reading needs nobody's name).
+    pub fn with(&self, who: Option<&OperatorArg>) -> LogOpts {
+        LogOpts {
+            data: self.data.clone(),
+            operator: who.and_then(|w| w.operator.clone()),
+        }
+    }
+}
+
+/// Where the logs live and who is writing: for the commands that write a
+/// record (`impact`, `watch`, `preflight`); `log` builds it per action.
 #[derive(Debug, Clone, Default, clap::Args)]
 pub struct LogOpts {
     /// Folder holding the cage logs (else $CAGEHAND_DATA, else the
@@ -251,6 +282,8 @@ enum Action {
         /// Free text.
         #[arg(long)]
         note: Option<String>,
+        #[command(flatten)]
+        who: OperatorArg,
     },
     /// Record a member replacement.
     Replace {
@@ -262,6 +295,8 @@ enum Action {
         /// Free text.
         #[arg(long)]
         note: Option<String>,
+        #[command(flatten)]
+        who: OperatorArg,
     },
     /// Record a note.
     Note {
@@ -271,6 +306,8 @@ enum Action {
         /// crash safety).
         #[arg(long, hide = true, default_value_t = 1)]
         repeat: u32,
+        #[command(flatten)]
+        who: OperatorArg,
     },
     /// List detected impacts neither confirmed nor dismissed.
     Pending {
@@ -306,6 +343,8 @@ enum Action {
         /// Print JSON (as `cagehand impact --json`, with `detection`).
         #[arg(long)]
         json: bool,
+        #[command(flatten)]
+        who: OperatorArg,
     },
     /// Dismiss a detected impact that was not a crash, with the reason.
     Dismiss {
@@ -314,6 +353,8 @@ enum Action {
         /// Why it was not a crash ("hand launch", "dropped on the bench").
         #[arg(long, value_name = "TEXT")]
         reason: String,
+        #[command(flatten)]
+        who: OperatorArg,
     },
     /// Check the log's hash chain, and optionally that it still holds a
     /// chain head kept from an earlier report; exit 1 on any problem.
@@ -345,9 +386,27 @@ pub struct Args {
     #[arg(long, value_name = "FILE", global = true)]
     profile: Option<std::path::PathBuf>,
     #[command(flatten)]
-    opts: LogOpts,
+    data: DataArg,
     #[command(subcommand)]
     action: Action,
+}
+
+impl Action {
+    /// The operator option of an action that writes a record.
+    fn who(&self) -> Option<&OperatorArg> {
+        match self {
+            Action::Finding { who, .. }
+            | Action::Replace { who, .. }
+            | Action::Note { who, .. }
+            | Action::Confirm { who, .. }
+            | Action::Dismiss { who, .. } => Some(who),
+            Action::Show { .. }
+            | Action::Health { .. }
+            | Action::Pending { .. }
+            | Action::Verify { .. }
+            | Action::Export { .. } => None,
+        }
+    }
 }
 
 /// A member id of this cage, or bad input listing the valid ones.
@@ -431,6 +490,7 @@ pub fn record_impact(
     record(l, opts, book, Event::Impact(event))
 }
 
+/// `log show --json` (docs/json.md).
 #[derive(Serialize)]
 struct ShowJson<'a> {
     schema: &'static str,
@@ -496,6 +556,27 @@ struct KeptHeadJson {
     detail: String,
 }
 
+/// `log health --json` (docs/json.md).
+#[derive(Serialize)]
+struct HealthJson<'a> {
+    schema: &'static str,
+    vehicle: &'a str,
+    log: String,
+    /// False when there is no log file: every member then reads ok
+    /// because nothing is recorded, not because the cage is sound.
+    log_found: bool,
+    records: usize,
+    /// What a reader must know about the log (no log, records skipped).
+    log_warning: Option<String>,
+    /// Detected impacts neither confirmed nor dismissed: the health below
+    /// does not count them yet.
+    pending_warning: Option<String>,
+    worst: cagehand::health::Status,
+    members: &'a [cagehand::health::MemberHealth],
+    /// Log entries naming members this cage does not have.
+    warnings: &'a [String],
+}
+
 fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<()> {
     writeln!(
         out,
@@ -523,7 +604,7 @@ fn write_health_table(out: &mut impl Write, h: &HealthReport) -> anyhow::Result<
 /// Run `cagehand log`.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let l = super::load_profile(args.profile.as_deref())?;
-    let opts = &args.opts;
+    let opts = &args.data.with(args.action.who());
     let mut out = std::io::stdout().lock();
     match &args.action {
         Action::Show { json } => {
@@ -573,7 +654,19 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 eprintln!("cagehand: warning: PENDING: {p}");
             }
             if *json {
-                writeln!(out, "{}", serde_json::to_string_pretty(&h.members)?)?;
+                let j = HealthJson {
+                    schema: "cagehand.health/1",
+                    vehicle: &l.profile.vehicle.id,
+                    log: book.path().display().to_string(),
+                    log_found: !report.new_file,
+                    records: book.records().len(),
+                    log_warning: note.clone(),
+                    pending_warning: pending.clone(),
+                    worst: h.worst(),
+                    members: &h.members,
+                    warnings: &h.warnings,
+                };
+                writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
             } else {
                 let vid = terminal(&l.profile.vehicle.id);
                 if report.new_file {
@@ -614,7 +707,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 writeln!(out, "Caution: {}", export::CAUTION)?;
             }
         }
-        Action::Finding { member, kind, note } => {
+        Action::Finding {
+            member, kind, note, ..
+        } => {
             let member = member_id(&l, member)?;
             let kind = finding_kind(kind)?;
             let mut book = opts.open(&l, Access::Write)?;
@@ -634,7 +729,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             )?;
             write_changes(&mut out, &ch)?;
         }
-        Action::Replace { member, part, note } => {
+        Action::Replace {
+            member, part, note, ..
+        } => {
             let member = member_id(&l, member)?;
             let mut book = opts.open(&l, Access::Write)?;
             let ev = Event::Replacement(ReplacementEvent {
@@ -653,7 +750,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             )?;
             write_changes(&mut out, &ch)?;
         }
-        Action::Note { text, repeat } => {
+        Action::Note { text, repeat, .. } => {
             if text.trim().is_empty() {
                 return Err(bad_input("the note is empty"));
             }
@@ -729,6 +826,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             surface,
             note,
             json,
+            ..
         } => {
             // Pre-fill from the detection (read now; checked again under the
             // write lock before anything is recorded).
@@ -765,7 +863,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             drop(out);
             return super::impact_cmd::run_loaded(&impact_args, &l, Some(*seq));
         }
-        Action::Dismiss { seq, reason } => {
+        Action::Dismiss { seq, reason, .. } => {
             if reason.trim().is_empty() {
                 return Err(bad_input(
                     "--reason is empty: say why it was not a crash (e.g. \"hand launch\")",

@@ -3,11 +3,15 @@
 //! contract; the readable form is a short table an operator can read off
 //! a phone photo.
 
+use super::rotor_out::{
+    RotorJson, ScheduleJson, rotors_json, schedule_json, setting_text, thinned,
+};
 use super::{ProfileArg, bad_input};
 use cagehand::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg, whole_deg};
 use cagehand::cage::Cage;
 use cagehand::rest::{fit_face, resting_attitude};
-use cagehand::righting::{MoveKind, Plan, RightingModel};
+use cagehand::righting::describe::step_words;
+use cagehand::righting::{MoveKind, Plan, RightingModel, Step};
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -42,7 +46,27 @@ pub struct Args {
     /// Print JSON instead of the readable table.
     #[arg(long)]
     json: bool,
+    /// Readable form: `text` (a table) or `md` (a recovery sheet in
+    /// Markdown, every line within 80 columns).
+    #[arg(long, value_enum, default_value_t = Format::Text)]
+    format: Format,
 }
+
+/// Readable output forms.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+enum Format {
+    /// A compact table.
+    Text,
+    /// A Markdown recovery sheet to print or keep on a phone.
+    Md,
+}
+
+/// Schema name of `plan --json` (both forms).
+const SCHEMA: &str = "cagehand.plan/1";
+
+/// Schedule entries the readable forms print: about one every this many
+/// degrees (the JSON carries every entry).
+const SHEET_EVERY_DEG: f64 = 10.0;
 
 #[derive(Debug, Serialize)]
 struct StepJson<'a> {
@@ -50,14 +74,22 @@ struct StepJson<'a> {
     to: &'a str,
     kind: MoveKind,
     pivot: Vec<&'a str>,
+    pivot_tags: Vec<Option<&'a str>>,
     angle_deg: f64,
     thrust_fraction: f64,
+    start_rpy_deg: [f64; 3],
     target_rpy_deg: [f64; 3],
+    tips: String,
+    rotors: Vec<RotorJson>,
+    #[serde(skip_serializing_if = "Option::is_none")]
+    rotor_schedule: Option<Vec<ScheduleJson>>,
 }
 
 /// One plan as `plan --json` prints it.
 #[derive(Debug, Serialize)]
 struct PlanJson<'a> {
+    #[serde(skip_serializing_if = "Option::is_none")]
+    schema: Option<&'static str>,
     from: &'a str,
     goal: Option<&'a str>,
     reachable: bool,
@@ -69,9 +101,19 @@ struct PlanJson<'a> {
     steps: Vec<StepJson<'a>>,
 }
 
-fn plan_json<'a>(cage: &'a Cage, p: &'a Plan) -> PlanJson<'a> {
+/// The recovery map as `plan --all --json` prints it.
+#[derive(Debug, Serialize)]
+struct MapJson<'a> {
+    schema: &'static str,
+    faces: Vec<PlanJson<'a>>,
+}
+
+fn plan_json<'a>(model: &'a RightingModel, p: &'a Plan) -> PlanJson<'a> {
+    let cage = &model.cage;
+    let rotors = &model.limits.rotors;
     let fid = |i: usize| cage.faces[i].id.as_str();
     PlanJson {
+        schema: None,
         from: fid(p.from),
         goal: p.goal.map(fid),
         reachable: p.reachable,
@@ -86,12 +128,31 @@ fn plan_json<'a>(cage: &'a Cage, p: &'a Plan) -> PlanJson<'a> {
                 to: fid(s.to),
                 kind: s.kind,
                 pivot: s.pivot.iter().map(|&i| cage.nodes[i].id.as_str()).collect(),
+                pivot_tags: s
+                    .pivot
+                    .iter()
+                    .map(|&i| cage.nodes[i].tag.as_deref())
+                    .collect(),
                 angle_deg: s.angle_deg,
                 thrust_fraction: s.thrust_fraction,
+                start_rpy_deg: rpy_deg(&s.start),
                 target_rpy_deg: rpy_deg(&s.target),
+                tips: tips(model, s),
+                rotors: rotors_json(rotors, &s.commands.thrust_n),
+                rotor_schedule: schedule_json(rotors, &s.commands),
             })
             .collect(),
     }
+}
+
+/// Which way the step tips the vehicle, in its own terms.
+fn tips(model: &RightingModel, s: &Step) -> String {
+    step_words(
+        &model.cage,
+        &model.moves[s.move_index].roll,
+        &s.start,
+        &s.target,
+    )
 }
 
 /// Parse a face id such as `F7` (case-insensitive).
@@ -130,19 +191,41 @@ fn pct(f: f64) -> String {
 /// Widest line of the readable output, so a phone photo of it stays legible.
 const PHOTO_WIDTH: usize = 78;
 
-/// Greedy word wrap at `width` characters (a word longer than that gets a
-/// line of its own).
+/// Greedy wrap at `width` characters. Items separated by two spaces (a
+/// rotor's command) stay whole on one line where they fit; otherwise the
+/// text breaks between words (a word longer than the width gets a line of
+/// its own).
 fn wrap(text: &str, width: usize) -> Vec<String> {
     let mut lines = Vec::new();
     let mut line = String::new();
-    for word in text.split_whitespace() {
-        if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+    for item in text.split("  ").map(str::trim).filter(|i| !i.is_empty()) {
+        let sep = if item.contains(' ') && text.contains("  ") {
+            "  "
+        } else {
+            " "
+        };
+        let fits = line.chars().count() + sep.len() + item.chars().count() <= width;
+        if item.chars().count() <= width && (line.is_empty() || fits) {
+            if !line.is_empty() {
+                line.push_str(sep);
+            }
+            line.push_str(item);
+            continue;
+        }
+        if item.chars().count() <= width {
             lines.push(std::mem::take(&mut line));
+            line.push_str(item);
+            continue;
         }
-        if !line.is_empty() {
-            line.push(' ');
+        for word in item.split_whitespace() {
+            if !line.is_empty() && line.chars().count() + 1 + word.chars().count() > width {
+                lines.push(std::mem::take(&mut line));
+            }
+            if !line.is_empty() {
+                line.push(' ');
+            }
+            line.push_str(word);
         }
-        line.push_str(word);
     }
     if !line.is_empty() {
         lines.push(line);
@@ -150,21 +233,65 @@ fn wrap(text: &str, width: usize) -> Vec<String> {
     lines
 }
 
-fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()> {
-    // Face and node ids may come from a profile: escaped for the terminal.
-    let fid = |i: usize| cagehand::text::terminal(&cage.faces[i].id).into_owned();
+/// "F9 -> F1: 2 steps, 92 deg": a route in one line, `joint` between the
+/// faces.
+fn route_line(cage: &Cage, p: &Plan, joint: &str) -> String {
+    let fid = |i: usize| cage.faces[i].id.as_str();
+    let n = p.steps.len();
+    format!(
+        "{} {joint} {}: {n} step{}, {:.0} deg",
+        fid(p.from),
+        p.goal.map_or("-", fid),
+        if n == 1 { "" } else { "s" },
+        p.total_angle_deg
+    )
+}
+
+/// Write `text` wrapped to the photo width, the first line after
+/// `first`, the rest after `rest` (both counted in the width).
+fn write_wrapped(out: &mut impl Write, first: &str, rest: &str, text: &str) -> std::io::Result<()> {
+    // Tags and names may come from a profile: escaped for the terminal.
+    let text = cagehand::text::terminal(text);
+    let width = PHOTO_WIDTH - first.chars().count().max(rest.chars().count());
+    for (k, line) in wrap(&text, width).iter().enumerate() {
+        writeln!(out, "{}{line}", if k == 0 { first } else { rest })?;
+    }
+    Ok(())
+}
+
+/// The rotor commands of a step, one setting or a thinned schedule, as
+/// lines of text (each a label and a setting).
+fn command_lines(model: &RightingModel, s: &Step) -> Vec<(String, String)> {
+    let rotors = &model.limits.rotors;
+    if s.commands.schedule.is_empty() {
+        return vec![("rotors:".into(), setting_text(rotors, &s.commands.thrust_n))];
+    }
+    let shown = thinned(&s.commands, SHEET_EVERY_DEG);
+    let mut out = vec![(
+        "rotors:".into(),
+        format!(
+            "change during the roll ({} settings in --json; about every {SHEET_EVERY_DEG:.0} deg here)",
+            s.commands.schedule.len()
+        ),
+    )];
+    for (from, t) in shown {
+        out.push((format!("from {from:.0} deg:"), setting_text(rotors, t)));
+    }
+    out
+}
+
+fn write_plan(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io::Result<()> {
+    let cage = &model.cage;
+    let fid = |i: usize| cage.faces[i].id.as_str();
     if let Some(n) = &p.note {
-        for line in wrap(
-            &cagehand::text::terminal(&format!("note: {n}")),
-            PHOTO_WIDTH,
-        ) {
+        for line in wrap(&format!("note: {n}"), PHOTO_WIDTH) {
             writeln!(out, "{line}")?;
         }
     }
     if !p.reachable {
         writeln!(out, "{}: NO ROUTE to a take-off face.", fid(p.from))?;
         if let Some(r) = &p.reason {
-            for line in wrap(&cagehand::text::terminal(r), PHOTO_WIDTH - 2) {
+            for line in wrap(r, PHOTO_WIDTH - 2) {
                 writeln!(out, "  {line}")?;
             }
         }
@@ -178,25 +305,13 @@ fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()
         )?;
         return Ok(());
     }
-    writeln!(
-        out,
-        "{} -> {}: {} step{}, {:.0} deg in all",
-        fid(p.from),
-        p.goal.map_or_else(|| "-".to_string(), fid),
-        p.steps.len(),
-        if p.steps.len() == 1 { "" } else { "s" },
-        p.total_angle_deg
-    )?;
+    writeln!(out, "{} in all", route_line(cage, p, "->"))?;
     writeln!(
         out,
         " #  from -> to    pivot     kind    angle  thrust  expect r/p/y deg"
     )?;
     for (k, s) in p.steps.iter().enumerate() {
-        let pivot: Vec<String> = s
-            .pivot
-            .iter()
-            .map(|&i| cagehand::text::terminal(&cage.nodes[i].id).into_owned())
-            .collect();
+        let pivot: Vec<&str> = s.pivot.iter().map(|&i| cage.nodes[i].id.as_str()).collect();
         let [r, pi, y] = rpy_deg(&s.target);
         writeln!(
             out,
@@ -215,7 +330,128 @@ fn write_plan(out: &mut impl Write, cage: &Cage, p: &Plan) -> std::io::Result<()
             whole_deg(pi),
             whole_deg(y)
         )?;
+        write_wrapped(out, "      ", "      ", &tips(model, s))?;
+        if s.pivot.iter().any(|&i| cage.nodes[i].tag.is_some()) {
+            let labels: Vec<String> = s.pivot.iter().map(|&i| cage.nodes[i].label()).collect();
+            write_wrapped(out, "      pivot: ", "        ", &labels.join(" - "))?;
+        }
+        for (label, text) in command_lines(model, s) {
+            write_wrapped(out, &format!("      {label} "), "        ", &text)?;
+        }
     }
+    Ok(())
+}
+
+/// Markdown list item `- text`, wrapped with a two-space hang.
+fn md_item(out: &mut impl Write, indent: &str, text: &str) -> std::io::Result<()> {
+    write_wrapped(out, &format!("{indent}- "), &format!("{indent}  "), text)
+}
+
+/// The recovery sheet of one plan (Markdown, within 80 columns).
+fn write_sheet(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io::Result<()> {
+    let cage = &model.cage;
+    let fid = |i: usize| cage.faces[i].id.as_str();
+    let rpy = |q| {
+        let [r, pi, y] = rpy_deg(q);
+        format!(
+            "{:.0} / {:.0} / {:.0}",
+            whole_deg(r),
+            whole_deg(pi),
+            whole_deg(y)
+        )
+    };
+    if !p.reachable {
+        writeln!(out, "## {}: no route", fid(p.from))?;
+        writeln!(out)?;
+        if let Some(n) = &p.note {
+            md_item(out, "", &format!("Note: {n}"))?;
+        }
+        if let Some(r) = &p.reason {
+            md_item(out, "", r)?;
+        }
+        writeln!(out)?;
+        return Ok(());
+    }
+    if p.steps.is_empty() {
+        writeln!(out, "## {}: take-off face", fid(p.from))?;
+        writeln!(out)?;
+        md_item(out, "", "Already on a take-off face: nothing to roll.")?;
+        writeln!(out)?;
+        return Ok(());
+    }
+    writeln!(out, "## {}", route_line(cage, p, "to"))?;
+    writeln!(out)?;
+    if let Some(n) = &p.note {
+        md_item(out, "", &format!("Note: {n}"))?;
+        writeln!(out)?;
+    }
+    for (k, s) in p.steps.iter().enumerate() {
+        let pivot: Vec<String> = s.pivot.iter().map(|&i| cage.nodes[i].label()).collect();
+        let what = match s.kind {
+            MoveKind::Edge => format!("edge roll across {}", pivot.join("-")),
+            MoveKind::Vertex => format!("pivot about node {}", pivot.join("-")),
+        };
+        writeln!(out, "### Step {}: {} to {}", k + 1, fid(s.from), fid(s.to))?;
+        writeln!(out)?;
+        md_item(out, "", &format!("Move: {what}, {:.0} deg.", s.angle_deg))?;
+        md_item(
+            out,
+            "",
+            &format!(
+                "Start: on {}, roll / pitch / yaw {} deg.",
+                fid(s.from),
+                rpy(&s.start)
+            ),
+        )?;
+        md_item(out, "", &format!("Where: {}.", tips(model, s)))?;
+        for (label, text) in command_lines(model, s) {
+            let label = if label == "rotors:" {
+                "Rotors:".to_string()
+            } else {
+                label
+            };
+            md_item(out, "", &format!("{label} {text}"))?;
+        }
+        md_item(
+            out,
+            "",
+            &format!(
+                "Needs {} of the rotors' best moment at the worst angle.",
+                pct(s.thrust_fraction)
+            ),
+        )?;
+        md_item(
+            out,
+            "",
+            &format!(
+                "Expect: on {}, roll / pitch / yaw {} deg.",
+                fid(s.to),
+                rpy(&s.target)
+            ),
+        )?;
+        writeln!(out)?;
+    }
+    Ok(())
+}
+
+/// The sheet's header: what the numbers mean.
+fn write_sheet_header(
+    out: &mut impl Write,
+    model: &RightingModel,
+    name: &str,
+) -> std::io::Result<()> {
+    writeln!(out, "# Recovery sheet: {}", cagehand::text::markdown(name))?;
+    writeln!(out)?;
+    write_wrapped(
+        out,
+        "",
+        "",
+        &format!(
+            "Rotors are numbered #1..#{} in profile order. Thrust in newtons: fwd spins the usual way, REV reversed; the percentage is of that rotor's limit in that direction. Attitudes are roll / pitch / yaw in degrees, yaw 0 at the start when planned from a face id.",
+            model.limits.rotors.len()
+        ),
+    )?;
+    writeln!(out)?;
     Ok(())
 }
 
@@ -229,8 +465,17 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     if args.all {
         let plans = model.recovery_map();
         if args.json {
-            let js: Vec<PlanJson> = plans.iter().map(|p| plan_json(cage, p)).collect();
+            let js = MapJson {
+                schema: SCHEMA,
+                faces: plans.iter().map(|p| plan_json(&model, p)).collect(),
+            };
             writeln!(out, "{}", serde_json::to_string_pretty(&js)?)?;
+        } else if args.format == Format::Md {
+            write_sheet_header(&mut out, &model, &l.profile.vehicle.name)?;
+            for p in &plans {
+                write_sheet(&mut out, &model, p)?;
+            }
+            write_caution(&mut out)?;
         } else {
             writeln!(
                 out,
@@ -239,7 +484,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 cage.faces.len()
             )?;
             for p in &plans {
-                write_plan(&mut out, cage, p)?;
+                write_plan(&mut out, &model, p)?;
                 writeln!(out)?;
             }
             write_caution(&mut out)?;
@@ -277,13 +522,15 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         });
     }
     if args.json {
-        writeln!(
-            out,
-            "{}",
-            serde_json::to_string_pretty(&plan_json(cage, &plan))?
-        )?;
+        let mut js = plan_json(&model, &plan);
+        js.schema = Some(SCHEMA);
+        writeln!(out, "{}", serde_json::to_string_pretty(&js)?)?;
+    } else if args.format == Format::Md {
+        write_sheet_header(&mut out, &model, &l.profile.vehicle.name)?;
+        write_sheet(&mut out, &model, &plan)?;
+        write_caution(&mut out)?;
     } else {
-        write_plan(&mut out, cage, &plan)?;
+        write_plan(&mut out, &model, &plan)?;
         writeln!(out)?;
         if args.from.is_some() {
             writeln!(

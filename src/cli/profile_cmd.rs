@@ -40,6 +40,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let stable = c.faces.iter().filter(|f| f.stable).count();
             if *json {
                 super::print_json(&serde_json::json!({
+                    "schema": "cagehand.profile-check/1",
                     "ok": true,
                     "file": p.source,
                     "vehicle": {"id": p.vehicle.id, "name": p.vehicle.name, "mass_kg": p.vehicle.mass_kg},

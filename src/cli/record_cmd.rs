@@ -27,8 +27,12 @@ pub struct Args {
     duration_s: Option<f64>,
 }
 
+/// The schema of every line `record` prints (docs/json.md).
+const RECORD_SCHEMA: &str = "cagehand.record/1";
+
 #[derive(Debug, Serialize)]
 struct Report {
+    schema: &'static str,
     event: &'static str,
     out: String,
     link: String,
@@ -66,7 +70,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     writeln!(
         out,
         "{}",
-        serde_json::json!({"event": "started", "out": args.out.display().to_string(), "link": link.source})
+        serde_json::json!({"schema": RECORD_SCHEMA, "event": "started", "out": args.out.display().to_string(), "link": link.source})
     )?;
     out.flush()?;
     let (mut chunks, mut bytes, mut t) = (0u64, 0u64, 0.0f64);
@@ -106,6 +110,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
     }
     let r = Report {
+        schema: RECORD_SCHEMA,
         event: "done",
         out: args.out.display().to_string(),
         link: link.source.clone(),

@@ -74,8 +74,13 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         .map_err(|e| anyhow::anyhow!("cannot bind {}: {e}", args.bind))?;
     sock.set_nonblocking(true)?;
     let mut out = std::io::stdout().lock();
-    let mut emit =
-        |v: serde_json::Value| -> bool { writeln!(out, "{v}").and_then(|_| out.flush()).is_ok() };
+    // Every line carries the schema (docs/json.md).
+    let mut emit = |mut v: serde_json::Value| -> bool {
+        if let serde_json::Value::Object(fields) = &mut v {
+            fields.insert("schema".into(), json!("cagehand.sim/1"));
+        }
+        writeln!(out, "{v}").and_then(|_| out.flush()).is_ok()
+    };
     emit(
         json!({"event": "started", "command_addr": sock.local_addr()?.to_string(), "to": to.to_string(), "seed": args.seed, "proto": Proto::from(args.proto)}),
     );

@@ -82,8 +82,11 @@ struct DetectionLine<'a> {
     log: Option<String>,
 }
 
+/// A detection line: its own schema beside the state lines'
+/// (`cagehand.watch/1`) and the summary's (docs/json.md).
 #[derive(Debug, Serialize)]
 struct DetectionJson<'a> {
+    schema: &'static str,
     detection: DetectionLine<'a>,
 }
 
@@ -140,6 +143,7 @@ fn write_detection(
 ) -> anyhow::Result<bool> {
     let (logged, log) = log_detection(loaded, opts, d);
     let line = DetectionJson {
+        schema: "cagehand.watch-detection/1",
         detection: DetectionLine {
             schema: "cagehand.detection/1",
             link_time_s: d.link_time_s,

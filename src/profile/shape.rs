@@ -37,6 +37,9 @@ pub struct NodeSpec {
     pub id: String,
     /// Position, cage frame.
     pub pos_m: [f64; 3],
+    /// Optional physical tag (a colour band, a letter on a tube end),
+    /// shown beside the id so a crew can find the node.
+    pub tag: Option<String>,
 }
 
 /// One member of an explicit cage, by node index into the node list.
@@ -180,7 +183,7 @@ const KEYS: &[&str] = &[
     "string_section",
     "payload_nodes",
 ];
-const NODE_KEYS: &[&str] = &["id", "pos_m"];
+const NODE_KEYS: &[&str] = &["id", "pos_m", "tag"];
 const MEMBER_KEYS: &[&str] = &["nodes", "tag"];
 const ROD_KEYS: &[&str] = &[
     "outer_diameter_mm",
@@ -408,7 +411,8 @@ fn cage_shape(t: &Table) -> Result<CageShape, ProfileError> {
             ));
         }
         index.insert(id.clone(), nodes.len());
-        nodes.push(NodeSpec { id, pos_m });
+        let tag = n.text("tag")?.map(|s| s.into_inner());
+        nodes.push(NodeSpec { id, pos_m, tag });
     }
     if nodes.len() < 4 {
         return Err(t.doc().invalid(

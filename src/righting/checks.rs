@@ -204,6 +204,89 @@ fn cube_with_one_rotor_needs_m_g_d_over_the_lever_arm() {
     assert!(find(&hi));
 }
 
+/// A vertex pivot worked on paper (hand-worked, common practice, no
+/// published source). Octahedron with nodes at +-r on the axes, r = 0.15 m,
+/// no mount (body frame = cage frame), m = 1 kg, W = m g0 = 9.80665 N,
+/// centre of mass c = (0, 0, 0.03) m. Resting on the face with normal
+/// n = (1, 1, 1)/sqrt 3 (so g = n at the start), pivot about the node
+/// P = (r, 0, 0) to the face with normal (1, -1, -1)/sqrt 3; the two faces
+/// share only P.
+///
+/// - Pivot axis u = n_to x n_from / |..| = (0, -1, 1)/sqrt 2; sideways axis
+///   v = u x g = (-2, 1, 1)/sqrt 6.
+/// - Gravity's resisting moment at the start: c - P = (-0.15, 0, 0.03),
+///   (c - P) x g = (-0.03, 0.18, -0.15)/sqrt 3, u . that = -0.33/sqrt 6, so
+///   needed = 0.33 W / sqrt 6 = 1.321155 N m.
+/// - Gravity's sideways moment: W v . ((c - P) x g) = W u . (c - P)
+///   = W 0.03 / sqrt 2 = 0.208031 N m (constant through the pivot).
+/// - One rotor at r1 = (-0.05, -0.02, 0.04), thrusting along
+///   t = -(1, 1, 1)/sqrt 3 (straight up off the start face, so no sliding
+///   force at the start). With a = r1 - P = (-0.2, -0.02, 0.04):
+///   roll arm c1 = u . (a x t) = -(2 a_x - a_y - a_z)/sqrt 6 = 0.42/sqrt 6,
+///   sideways arm d1 = v . (a x t) = (a_y - a_z)/sqrt 2 = -0.06/sqrt 2.
+/// - Sideways balance d1 T + W 0.03/sqrt 2 = 0 fixes T = W 0.03/0.06 = W/2
+///   = 4.903325 N (below the lift-off limit T <= W), so the rotor gives
+///   exactly c1 T = 0.21 W/sqrt 6 = 0.840735 N m, and the fraction needed
+///   is 0.33/0.21 = 11/7: the pivot cannot be made.
+/// - Without the sideways balance (the old model) the rotor could run up
+///   to the lift-off limit T = W, giving c1 W and a fraction 11/14 = 0.786,
+///   which a 1.2 margin would have passed.
+#[test]
+fn octahedron_vertex_pivot_needs_the_sideways_balance() {
+    use super::contact::{Condition, rows_at};
+    use super::feasibility::{best_moment, tolerance};
+    let s3 = 3f64.sqrt();
+    let extra = format!(
+        "[[rotor]]\nposition_m = [-0.05, -0.02, 0.04]\naxis = [{a}, {a}, {a}]\nmax_thrust_n = 20.0\nreverse_thrust_n = 0.0\n\n[righting]\ntakeoff_faces = [\"F1\"]\nvertex_pivots = true\ntorque_margin = 1.2\nfriction_coefficient = 0.6\n",
+        a = -1.0 / s3
+    );
+    let (_, c, m) = build(&explicit_toml(
+        &octahedron(0.15),
+        [0.0, 0.0, 0.03],
+        1.0,
+        &extra,
+    ));
+    let from = face_with_normal(&c, [1.0 / s3, 1.0 / s3, 1.0 / s3]);
+    let to = face_with_normal(&c, [1.0 / s3, -1.0 / s3, -1.0 / s3]);
+    let mv = m
+        .moves
+        .iter()
+        .find(|x| x.roll.from == from && x.roll.to == to)
+        .expect("the vertex pivot is a candidate");
+    assert_eq!(mv.roll.kind, MoveKind::Vertex);
+    let w = STANDARD_GRAVITY_M_S2;
+    let rows = rows_at(&c, &mv.roll, &m.limits.rotors, 0.6, 0.0);
+    // needed = 0.33 W / sqrt 6 (hand-worked above)
+    assert_relative_eq!(rows.needed_nm, 0.33 * w / 6f64.sqrt(), epsilon = 1e-9);
+    assert_relative_eq!(rows.arms_m[0], 0.42 / 6f64.sqrt(), epsilon = 1e-12);
+    let side = rows
+        .rows
+        .iter()
+        .find(|r| r.condition == Condition::Sideways)
+        .expect("a vertex pivot carries the sideways balance");
+    assert!(side.equality);
+    // d1 = -0.06 / sqrt 2 and gravity's side W 0.03 / sqrt 2 = 0.208031 N m
+    assert_relative_eq!(side.coeffs[0], -0.06 / 2f64.sqrt(), epsilon = 1e-12);
+    assert_relative_eq!(-side.rhs, w * 0.03 / 2f64.sqrt(), epsilon = 1e-9);
+    assert_relative_eq!(-side.rhs, 0.208031, epsilon = 1e-6);
+    let tol = tolerance(&c);
+    let (avail, t) = best_moment(&rows, &m.limits.rotors, tol).expect("balanced at the start");
+    // T = W/2 and c1 T = 0.21 W / sqrt 6
+    assert_relative_eq!(t[0], w / 2.0, epsilon = 1e-7);
+    assert_relative_eq!(avail, 0.21 * w / 6f64.sqrt(), epsilon = 1e-7);
+    assert_relative_eq!(rows.needed_nm / avail, 11.0 / 7.0, epsilon = 1e-7);
+    // The whole pivot can only be worse than its start.
+    let f = &mv.feasibility;
+    assert!(!f.feasible);
+    assert!(f.thrust_fraction.is_none_or(|x| x >= 11.0 / 7.0 - 1e-7));
+    assert!(f.commands.is_none());
+    // Dropping the sideways balance gives the old, optimistic answer 11/14.
+    let mut relaxed = rows.clone();
+    relaxed.rows.retain(|r| r.condition != Condition::Sideways);
+    let (old, _) = best_moment(&relaxed, &m.limits.rotors, tol).unwrap();
+    assert_relative_eq!(rows.needed_nm / old, 11.0 / 14.0, epsilon = 1e-7);
+}
+
 #[test]
 fn no_rotors_no_feasible_moves() {
     // A profile with no [[rotor]] table at all.
@@ -359,32 +442,43 @@ fn step_targets_rest_on_the_step_faces() {
 
 #[test]
 fn general_lp_agrees_with_the_exact_shared_axis_solution() {
-    // Tilting one rotor by a hair forces the LP path; its answer must be
-    // close to the exact greedy one (the friction polygon is inscribed, so
-    // it may only be a little lower).
+    // Tilting one rotor by a hair replaces the two exact friction
+    // half-planes by the inscribed polygon; the LP's answer must be close
+    // to the exact one (the polygon is inscribed, so it may only be a
+    // little lower).
+    use super::contact::rows_at;
+    use super::feasibility::{best_moment, tolerance};
     let p = Profile::demo().unwrap();
     let c = Cage::from_profile(&p).unwrap();
     let exact = RightingModel::new(&p, &c).unwrap();
-    let mut limits = exact.limits.clone();
-    limits.rotors[0].axis = {
+    let mut tilted = exact.limits.rotors.clone();
+    tilted[0].axis = {
         let a = nalgebra::Vector3::new(1e-6, 0.0, -1.0).normalize();
         [a.x, a.y, a.z]
     };
-    let lp = RightingModel::with_limits(c, limits, exact.takeoff.clone(), true, 1.5);
-    for (a, b) in exact.moves.iter().zip(&lp.moves) {
-        assert_eq!(a.roll, b.roll);
-        let (fa, fb) = (a.feasibility.available_nm, b.feasibility.available_nm);
-        let g = super::feasibility::gravity_at(&exact.cage, &a.roll, 0.0);
-        let arms = super::feasibility::moment_arms_m(&a.roll, &exact.limits.rotors);
-        let ea = super::feasibility::best_moment_nm(&exact.cage, &exact.limits, &arms, &g);
-        let eb = super::feasibility::best_moment_nm(&lp.cage, &lp.limits, &arms, &g);
-        assert!(
-            eb <= ea + 1e-6,
-            "inner approximation never exceeds the exact value"
-        );
-        assert!(eb >= ea * 0.97 - 1e-6, "{eb} vs {ea}");
-        let _ = (fa, fb);
+    let mu = exact.limits.friction_coefficient;
+    let tol = tolerance(&c);
+    let mut compared = 0;
+    for mv in &exact.moves {
+        for b_deg in [0.0, 10.0, 20.0] {
+            let b = f64::to_radians(b_deg);
+            let a = best_moment(
+                &rows_at(&c, &mv.roll, &exact.limits.rotors, mu, b),
+                &exact.limits.rotors,
+                tol,
+            );
+            let t = best_moment(&rows_at(&c, &mv.roll, &tilted, mu, b), &tilted, tol);
+            if let (Some((ea, _)), Some((eb, _))) = (a, t) {
+                compared += 1;
+                assert!(
+                    eb <= ea + 1e-5,
+                    "inner approximation never exceeds the exact value: {eb} > {ea}"
+                );
+                assert!(eb >= ea - 0.03 * ea.abs() - 1e-5, "{eb} vs {ea}");
+            }
+        }
     }
+    assert!(compared > 100, "{compared}");
 }
 
 mod props {
@@ -462,6 +556,76 @@ mod props {
                     }
                 }
             }
+        }
+
+        /// The rotor commands of every feasible move meet every contact
+        /// condition and give at least the needed moment at every checked
+        /// angle. Checked from the forces and moment vectors directly, not
+        /// from the LP's rows: the ground's force is what weight and
+        /// thrust leave over; it must push (N >= 0) inside the friction
+        /// cone; on a node it takes no moment, on an edge its two node
+        /// forces must both push (statics of a rigid body, any mechanics
+        /// text).
+        #[test]
+        fn rotor_commands_hold_at_every_checked_angle(
+            dx in -0.03..0.03f64, dy in -0.03..0.03f64, dz in -0.03..0.03f64,
+            scale in 0.8..3.0f64, rev in 0.0..1.0f64,
+        ) {
+            use nalgebra::Vector3;
+            let m = demo_variant(dx, dy, dz, scale, rev, true);
+            let w = m.cage.mass_kg * STANDARD_GRAVITY_M_S2;
+            let mu = m.limits.friction_coefficient;
+            let tol = 1e-6 * (1.0 + w);
+            let mut checked = 0;
+            for mv in m.moves.iter().filter(|x| x.feasibility.feasible) {
+                let cmd = mv.feasibility.commands.as_ref().expect("feasible moves carry commands");
+                prop_assert_eq!(cmd.thrust_n.len(), m.limits.rotors.len());
+                if let Some(first) = cmd.schedule.first() {
+                    prop_assert_eq!(first.from_deg, 0.0);
+                    prop_assert_eq!(&first.thrust_n, &cmd.thrust_n);
+                }
+                for b_deg in super::super::feasibility::checked_angles_deg(&m.cage, &mv.roll) {
+                    let t = cmd.at(b_deg);
+                    let g = super::super::feasibility::gravity_at(&m.cage, &mv.roll, b_deg.to_radians());
+                    let mut force = g * w;
+                    let moment = |q: &Vector3<f64>| {
+                        let mut sum = (m.cage.com_body - q).cross(&(g * w));
+                        for (r, x) in m.limits.rotors.iter().zip(t) {
+                            sum += (Vector3::from(r.position_m) - q).cross(&(Vector3::from(r.axis) * *x));
+                        }
+                        sum
+                    };
+                    for (r, x) in m.limits.rotors.iter().zip(t) {
+                        prop_assert!(*x <= r.max_thrust_n + tol && *x >= -r.reverse_thrust_n - tol);
+                        force += Vector3::from(r.axis) * *x;
+                    }
+                    let normal = force.dot(&g);
+                    prop_assert!(normal >= -tol, "lifts off: {}", normal);
+                    let tangential = (force - g * normal).norm();
+                    prop_assert!(tangential <= mu * normal + tol, "slides: {} > {}", tangential, mu * normal);
+                    let u = mv.roll.axis_body;
+                    let p = mv.roll.point_body;
+                    let needed = super::super::feasibility::resisting_moment_nm(&m.cage, &mv.roll, b_deg.to_radians());
+                    // The rotors' moment about the roll axis (turning the body by +angle).
+                    let rotor_moment = (moment(&p) - (m.cage.com_body - p).cross(&(g * w))).dot(&u);
+                    prop_assert!(rotor_moment >= needed - tol, "{} < {} at {}", rotor_moment, needed, b_deg);
+                    let v = u.cross(&g);
+                    match mv.roll.kind {
+                        MoveKind::Vertex => {
+                            prop_assert!(moment(&p).dot(&v).abs() <= tol, "topples sideways at {}", b_deg);
+                        }
+                        MoveKind::Edge => {
+                            let a = m.cage.nodes[mv.roll.pivot[0]].pos_body;
+                            let b = m.cage.nodes[mv.roll.pivot[1]].pos_body;
+                            let len = (b - a).dot(&u);
+                            prop_assert!(moment(&a).dot(&v) / len >= -tol, "node B pulls at {}", b_deg);
+                            prop_assert!(-moment(&b).dot(&v) / len >= -tol, "node A pulls at {}", b_deg);
+                        }
+                    }
+                    checked += 1;
+                }
+            }
+            prop_assert!(checked > 0);
         }
 
         /// More thrust never makes a feasible move infeasible, nor raises

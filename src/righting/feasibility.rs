@@ -1,51 +1,51 @@
-//! Quasi-static feasibility of a roll (DESIGN.md "Feasibility").
+//! Quasi-static feasibility of a roll, and the rotor commands that carry
+//! it.
 //!
 //! During a roll about axis u through p, gravity's moment about u is
 //! m g u . ((c - p) x g_b(b)), which has the form m g r cos(g0 + b): it
 //! resists until the centre of mass passes over the pivot (the tip angle),
 //! then helps. A rotor fixed to the body has the constant moment arm
-//! c_k = u . ((r_k - p) x t_k). At each roll angle the best moment the
-//! rotors can give is a small linear programme in the thrusts T_k:
-//! maximise sum c_k T_k with -reverse_k <= T_k <= max_k, the contact force
-//! pressing into the ground (no lift-off) and inside the friction cone (no
-//! sliding). The move is feasible when available / needed >= the torque
-//! margin at every angle up to the tip angle, checked every
-//! [`ANGLE_STEP_DEG`] and at both ends (the tip angle itself is exact, from
-//! the closed form of the gravity moment).
+//! c_k = u . ((r_k - p) x t_k). At each checked roll angle the thrusts
+//! must meet the contact conditions of [`super::contact`] (no lift-off, no
+//! sliding, the reaction between the two nodes of an edge, the sideways
+//! balance on the single node of a vertex pivot). The best moment the
+//! rotors can give there is a small linear programme (LP): maximise
+//! sum c_k T_k under those conditions. The move is feasible when
+//! available / needed >= the torque margin at every angle up to the tip
+//! angle (checked every [`ANGLE_STEP_DEG`] and at both ends; the tip angle
+//! itself is exact, from the closed form of the gravity moment), and when
+//! beyond the tip, where gravity helps, the conditions can still be met
+//! without the rotors pushing back harder than gravity helps: a vertex
+//! pivot stays on one point the whole way down, and an edge roll must not
+//! swing about one of its nodes.
 //!
-//! Two solvers:
-//! - All rotors along one axis (the usual multirotor): the contact force
-//!   depends on the thrusts only through their sum S, and the friction
-//!   cone and lift-off limits become an interval for S, exactly (the
-//!   tangential force has a fixed direction). For a fixed S the best moment
-//!   is a greedy fill by c_k; over S it is concave piecewise linear with
-//!   breakpoints where a rotor saturates, so its maximum is at a breakpoint
-//!   or an end of the interval. Exact, no tolerance.
-//! - Rotors along different axes: the tangential force is a 2-D vector, so
-//!   the friction cone is replaced by an inscribed regular polygon of
-//!   [`FRICTION_SIDES`] sides (an inner approximation: it can only
-//!   understate what the rotors can do) and the LP is solved with the
-//!   pure-Rust `microlp` crate. Its answer is checked against the
-//!   constraints here; an answer that fails the check, or a solver error,
-//!   counts as zero thrust (always feasible, moment 0), again erring on the
-//!   side of "cannot". microlp was chosen over a hand-written simplex
-//!   because it is maintained, pure Rust, and the problem is tiny.
+//! The LPs are solved with the pure-Rust `microlp` crate (maintained, no
+//! system library, and the problems are tiny). Every answer is checked
+//! against the conditions here; an answer that fails the check, or a
+//! solver error, counts as "no thrust can do it", erring on the side of
+//! "cannot". (An earlier exact greedy fill for rotors sharing one axis no
+//! longer applies: the conditions on the reaction and the sideways balance
+//! bind single rotors, not only the total thrust.)
 //!
-//! Limits of the model, stated so nobody reads more into it: quasi-static
-//! (no momentum carried over the tip), the contact along a rolled edge is
-//! not checked for where the pressure centre falls, a vertex pivot is
-//! treated like an edge roll about the axis through the node, and the
-//! rotors' thrust is assumed independent of the ground (no ground effect).
+//! **Rotor commands.** For a feasible move the least total thrust
+//! (sum |T_k|) that gives at least margin x needed moment where gravity
+//! resists, and at least the needed (negative) moment where it helps, with
+//! every condition met: first one setting for every checked angle at once
+//! (one more LP); where none exists, a schedule by roll angle, each entry
+//! the least-thrust setting at its angle, kept over the following angles
+//! for as long as it still meets them. The sideways balance of a vertex
+//! pivot is an equality whose gravity part is constant while the rotors'
+//! part turns with the roll, so a vertex pivot needs a changing setting
+//! (unless the centre of mass lies exactly over the pivot axis).
 
+use super::contact::{AngleRows, rows_at};
+pub use super::contact::{
+    Condition, FRICTION_SIDES, gravity_at, moment_arms_m, resisting_moment_nm,
+};
 use super::moves::Roll;
 use crate::cage::Cage;
 use crate::profile::Rotor;
 use crate::sample::STANDARD_GRAVITY_M_S2;
-use nalgebra::{Unit, UnitQuaternion, Vector3};
-
-/// Sides of the polygon that stands in for the friction cone in the
-/// general (multi-axis) case.
-pub const FRICTION_SIDES: usize = 16;
 
 /// Angular step of the check along the roll, degrees.
 pub const ANGLE_STEP_DEG: f64 = 0.5;
@@ -61,13 +61,57 @@ pub struct Limits {
     pub torque_margin: f64,
 }
 
+/// One rotor setting in force from a roll angle on.
+#[derive(Debug, Clone, PartialEq)]
+pub struct ScheduleEntry {
+    /// Roll angle from which the setting applies, degrees.
+    pub from_deg: f64,
+    /// Thrust per rotor in profile order, newtons (negative: reversed).
+    pub thrust_n: Vec<f64>,
+}
+
+/// What to set the rotors to for one move.
+#[derive(Debug, Clone, PartialEq, Default)]
+pub struct RotorCommands {
+    /// The setting to apply at the start of the roll, per rotor in profile
+    /// order, newtons (negative: reversed).
+    pub thrust_n: Vec<f64>,
+    /// When one setting cannot hold the whole roll: the settings by roll
+    /// angle, the first from 0 deg. Empty when `thrust_n` holds throughout.
+    pub schedule: Vec<ScheduleEntry>,
+}
+
+impl RotorCommands {
+    /// The setting in force at `angle_deg` into the roll.
+    pub fn at(&self, angle_deg: f64) -> &[f64] {
+        self.schedule
+            .iter()
+            .rev()
+            .find(|e| e.from_deg <= angle_deg + 1e-9)
+            .map_or(&self.thrust_n, |e| &e.thrust_n)
+    }
+}
+
+/// A thrust as a share of the rotor's limit in its direction: positive
+/// forward (over `max_thrust_n`), negative reversed (over
+/// `reverse_thrust_n`); 0 when the limit is 0.
+pub fn share(thrust_n: f64, rotor: &Rotor) -> f64 {
+    let limit = if thrust_n >= 0.0 {
+        rotor.max_thrust_n
+    } else {
+        rotor.reverse_thrust_n
+    };
+    if limit > 0.0 { thrust_n / limit } else { 0.0 }
+}
+
 /// The verdict on one roll.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Feasibility {
-    /// Whether available / needed >= margin over the whole resisted part.
+    /// Whether available / needed >= margin over the whole resisted part,
+    /// the conditions can be met over the rest, and commands were found.
     pub feasible: bool,
-    /// needed / available at the worst angle; `None` when the rotors cannot
-    /// give any helping moment where one is needed.
+    /// needed / available at the worst angle; `None` when no thrust within
+    /// the rotors' limits can carry the move.
     pub thrust_fraction: Option<f64>,
     /// Roll angle (from the start) where the ratio is worst.
     pub worst_angle_deg: f64,
@@ -78,23 +122,12 @@ pub struct Feasibility {
     /// Angle at which the centre of mass passes over the pivot (gravity
     /// stops resisting); at least the roll angle when it never does.
     pub tip_angle_deg: f64,
-}
-
-/// Body-frame gravity direction `beta_rad` into a roll.
-pub fn gravity_at(cage: &Cage, roll: &Roll, beta_rad: f64) -> Vector3<f64> {
-    let n = cage.faces[roll.from].normal_body;
-    let r = UnitQuaternion::from_axis_angle(&Unit::new_normalize(roll.axis_body), -beta_rad);
-    r * n
-}
-
-/// Gravity's moment about the roll axis that resists the roll, N m
-/// (negative once the centre of mass has passed over the pivot).
-pub fn resisting_moment_nm(cage: &Cage, roll: &Roll, beta_rad: f64) -> f64 {
-    let g = gravity_at(cage, roll, beta_rad);
-    let w = cage.mass_kg * STANDARD_GRAVITY_M_S2;
-    -roll
-        .axis_body
-        .dot(&(cage.com_body - roll.point_body).cross(&(g * w)))
+    /// Where no thrust can carry the move: the one condition without which
+    /// the rotors could (`None` when there is no single one, or the move
+    /// is not blocked).
+    pub blocked_by: Option<Condition>,
+    /// The rotor commands, for a feasible move.
+    pub commands: Option<RotorCommands>,
 }
 
 /// Angle (degrees) at which the centre of mass passes over the pivot: the
@@ -110,303 +143,271 @@ pub fn tip_angle_deg(cage: &Cage, roll: &Roll) -> f64 {
     x.to_degrees()
 }
 
-/// Moment arms c_k = u . ((r_k - p) x t_k) of the rotors about a roll axis.
-pub fn moment_arms_m(roll: &Roll, rotors: &[Rotor]) -> Vec<f64> {
-    rotors
+/// The angles the check visits, degrees: evenly up to the tip angle (both
+/// ends included), then evenly on to the end of the roll.
+pub fn checked_angles_deg(cage: &Cage, roll: &Roll) -> Vec<f64> {
+    let tip = tip_angle_deg(cage, roll);
+    let end = tip.min(roll.angle_deg);
+    let steps = (end / ANGLE_STEP_DEG).ceil().max(1.0) as usize;
+    let mut out: Vec<f64> = (0..=steps).map(|i| end * i as f64 / steps as f64).collect();
+    if roll.angle_deg > end + 1e-9 {
+        let rest = roll.angle_deg - end;
+        let n = (rest / ANGLE_STEP_DEG).ceil().max(1.0) as usize;
+        out.extend((1..=n).map(|i| end + rest * i as f64 / n as f64));
+    }
+    out
+}
+
+/// The constraint table of a roll: one [`AngleRows`] per checked angle.
+pub fn table(cage: &Cage, roll: &Roll, limits: &Limits) -> Vec<AngleRows> {
+    checked_angles_deg(cage, roll)
         .iter()
-        .map(|r| {
-            let pos = Vector3::from(r.position_m);
-            let t = Vector3::from(r.axis);
-            roll.axis_body.dot(&(pos - roll.point_body).cross(&t))
+        .map(|b| {
+            rows_at(
+                cage,
+                roll,
+                &limits.rotors,
+                limits.friction_coefficient,
+                b.to_radians(),
+            )
         })
         .collect()
 }
 
-/// Whether all rotors thrust along one axis (to 1e-9).
-fn shared_axis(rotors: &[Rotor]) -> Option<Vector3<f64>> {
-    let first = Vector3::from(rotors.first()?.axis);
-    rotors
-        .iter()
-        .all(|r| (Vector3::from(r.axis) - first).norm() < 1e-9)
-        .then_some(first)
-}
-
-/// Best rotor moment about the roll axis with gravity along `g_body`.
-pub fn best_moment_nm(cage: &Cage, limits: &Limits, arms: &[f64], g_body: &Vector3<f64>) -> f64 {
-    let w = cage.mass_kg * STANDARD_GRAVITY_M_S2;
-    match shared_axis(&limits.rotors) {
-        Some(t) => best_shared_axis(limits, arms, &t, g_body, w),
-        None => best_general(limits, arms, g_body, w, FRICTION_SIDES),
+/// The moment the rotors must give at an angle where gravity's resisting
+/// moment is `needed_nm`: margin times it while gravity resists, and no
+/// more than gravity's help (a negative need) once it helps.
+pub fn required_nm(needed_nm: f64, margin: f64) -> f64 {
+    if needed_nm > 0.0 {
+        needed_nm * margin
+    } else {
+        needed_nm
     }
 }
 
-/// Exact best moment when all rotors share the axis `t`.
-fn best_shared_axis(
-    limits: &Limits,
-    arms: &[f64],
-    t: &Vector3<f64>,
-    g: &Vector3<f64>,
-    weight_n: f64,
-) -> f64 {
-    let mu = limits.friction_coefficient;
-    let a = t.dot(g); // normal force N = W + S a
-    let s = (t - g * a).norm(); // |tangential| = |S| s
-    // Linear limits k S <= rhs: no lift-off (-a S <= W) and both sides of
-    // the friction cone ((s - mu a) S <= mu W, -(s + mu a) S <= mu W).
-    let (mut lo, mut hi): (f64, f64) = (
-        -limits
-            .rotors
-            .iter()
-            .map(|r| r.reverse_thrust_n)
-            .sum::<f64>(),
-        limits.rotors.iter().map(|r| r.max_thrust_n).sum::<f64>(),
-    );
-    for (k, rhs) in [
-        (-a, weight_n),
-        (s - mu * a, mu * weight_n),
-        (-(s + mu * a), mu * weight_n),
-    ] {
-        if k > 1e-12 {
-            hi = hi.min(rhs / k);
-        } else if k < -1e-12 {
-            lo = lo.max(rhs / k);
-        }
-    }
-    if lo > hi {
-        // Only when W <= 0, which a valid profile cannot give; S = 0 is safe.
-        return 0.0;
-    }
-    // Greedy fill: start every rotor at full reverse, raise the best first.
-    let mut order: Vec<usize> = (0..arms.len()).collect();
-    order.sort_by(|&i, &j| arms[j].total_cmp(&arms[i]));
-    let base_s: f64 = -limits
-        .rotors
-        .iter()
-        .map(|r| r.reverse_thrust_n)
-        .sum::<f64>();
-    let base_m: f64 = limits
-        .rotors
-        .iter()
-        .zip(arms)
-        .map(|(r, c)| -r.reverse_thrust_n * c)
-        .sum();
-    let value = |total: f64| {
-        let mut left = total - base_s;
-        let mut m = base_m;
-        for &k in &order {
-            let range = limits.rotors[k].max_thrust_n + limits.rotors[k].reverse_thrust_n;
-            let d = left.clamp(0.0, range);
-            m += arms[k] * d;
-            left -= d;
-        }
-        m
-    };
-    let mut best = value(lo).max(value(hi));
-    let mut cum = base_s;
-    for &k in &order {
-        cum += limits.rotors[k].max_thrust_n + limits.rotors[k].reverse_thrust_n;
-        if cum > lo && cum < hi {
-            best = best.max(value(cum));
-        }
-    }
-    best.max(0.0)
+/// Tolerance of the checks on an LP answer, newtons or newton metres.
+pub fn tolerance(cage: &Cage) -> f64 {
+    1e-7 * (1.0 + cage.mass_kg * STANDARD_GRAVITY_M_S2)
 }
 
-/// Best moment for rotors along different axes: LP with the friction cone
-/// replaced by an inscribed polygon of `sides` sides.
-fn best_general(
-    limits: &Limits,
-    arms: &[f64],
-    g: &Vector3<f64>,
-    weight_n: f64,
-    sides: usize,
-) -> f64 {
+/// Whether the setting `t` meets every condition at `rows` and gives at
+/// least the required moment there.
+pub fn meets(rows: &AngleRows, limits: &Limits, t: &[f64], tol: f64) -> bool {
+    rows.admits(&limits.rotors, t, tol)
+        && rows.moment_nm(t) >= required_nm(rows.needed_nm, limits.torque_margin) - tol
+}
+
+/// Best rotor moment about the roll axis at one angle and the thrusts
+/// that give it; `None` when no thrust within the limits meets the
+/// conditions (or the solver's answer fails the check).
+pub fn best_moment(rows: &AngleRows, rotors: &[Rotor], tol: f64) -> Option<(f64, Vec<f64>)> {
     use microlp::{ComparisonOp, OptimizationDirection, Problem};
-    let mu = limits.friction_coefficient;
+    if rotors.is_empty() {
+        return rows.admits(rotors, &[], tol).then(|| (0.0, Vec::new()));
+    }
     let mut lp = Problem::new(OptimizationDirection::Maximize);
-    let vars: Vec<_> = limits
-        .rotors
+    let vars: Vec<_> = rotors
         .iter()
-        .zip(arms)
+        .zip(&rows.arms_m)
         .map(|(r, &c)| lp.add_var(c, (-r.reverse_thrust_n, r.max_thrust_n)))
         .collect();
-    let ax: Vec<Vector3<f64>> = limits
-        .rotors
-        .iter()
-        .map(|r| Vector3::from(r.axis))
-        .collect();
-    let normal: Vec<f64> = ax.iter().map(|t| t.dot(g)).collect();
-    let tang: Vec<Vector3<f64>> = ax.iter().zip(&normal).map(|(t, a)| t - g * *a).collect();
-    // Tangent basis.
-    let helper = if g.x.abs() < 0.9 {
-        Vector3::x()
-    } else {
-        Vector3::y()
-    };
-    let e1 = g.cross(&helper).normalize();
-    let e2 = g.cross(&e1);
-    // No lift-off: W + sum a_k T_k >= 0.
-    let row: Vec<_> = vars.iter().zip(&normal).map(|(v, a)| (*v, *a)).collect();
-    lp.add_constraint(row.as_slice(), ComparisonOp::Ge, -weight_n);
-    let shrink = (std::f64::consts::PI / sides as f64).cos();
-    let mut rows = Vec::new();
-    for m in 0..sides {
-        let phi = 2.0 * std::f64::consts::PI * m as f64 / sides as f64;
-        let d = e1 * phi.cos() + e2 * phi.sin();
-        // sum T_k (t_k_perp . d) <= mu cos(pi/n) (W + sum a_k T_k)
-        let coeffs: Vec<f64> = tang
+    for row in &rows.rows {
+        let expr: Vec<_> = vars
             .iter()
-            .zip(&normal)
-            .map(|(tp, a)| tp.dot(&d) - mu * shrink * a)
+            .copied()
+            .zip(row.coeffs.iter().copied())
             .collect();
-        let row: Vec<_> = vars.iter().zip(&coeffs).map(|(v, c)| (*v, *c)).collect();
-        lp.add_constraint(row.as_slice(), ComparisonOp::Le, mu * shrink * weight_n);
-        rows.push(coeffs);
-    }
-    let Ok(outcome) = lp.solve() else { return 0.0 };
-    let Some(sol) = outcome.solution() else {
-        return 0.0;
-    };
-    let t: Vec<f64> = vars.iter().map(|v| sol.var_value(*v)).collect();
-    // Check the answer ourselves.
-    let tol = 1e-7 * (1.0 + weight_n);
-    let bounds_ok = t
-        .iter()
-        .zip(&limits.rotors)
-        .all(|(x, r)| *x >= -r.reverse_thrust_n - tol && *x <= r.max_thrust_n + tol);
-    let lift_ok = weight_n + t.iter().zip(&normal).map(|(x, a)| x * a).sum::<f64>() >= -tol;
-    let fric_ok = rows
-        .iter()
-        .all(|c| c.iter().zip(&t).map(|(c, x)| c * x).sum::<f64>() <= mu * shrink * weight_n + tol);
-    if !(bounds_ok && lift_ok && fric_ok) {
-        return 0.0;
-    }
-    t.iter().zip(arms).map(|(x, c)| x * c).sum::<f64>().max(0.0)
-}
-
-/// Check one roll over its resisted part.
-pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
-    let tip = tip_angle_deg(cage, roll);
-    let end = tip.min(roll.angle_deg);
-    let arms = moment_arms_m(roll, &limits.rotors);
-    let steps = (end / ANGLE_STEP_DEG).ceil().max(1.0) as usize;
-    let mut worst: Option<(f64, f64, f64, f64)> = None; // (ratio, angle, needed, avail)
-    for i in 0..=steps {
-        let b_deg = end * i as f64 / steps as f64;
-        let needed = resisting_moment_nm(cage, roll, b_deg.to_radians());
-        if needed <= 0.0 {
-            continue;
-        }
-        let g = gravity_at(cage, roll, b_deg.to_radians());
-        let avail = best_moment_nm(cage, limits, &arms, &g);
-        // A moment below a millionth of the need is rounding, not help.
-        let ratio = if avail > 1e-6 * needed {
-            needed / avail
+        let op = if row.equality {
+            ComparisonOp::Eq
         } else {
-            f64::INFINITY
+            ComparisonOp::Le
         };
-        if worst.is_none_or(|w| ratio > w.0) {
-            worst = Some((ratio, b_deg, needed, avail));
-        }
+        lp.add_constraint(expr.as_slice(), op, row.rhs);
     }
-    match worst {
-        None => Feasibility {
-            feasible: true,
-            thrust_fraction: Some(0.0),
-            worst_angle_deg: 0.0,
-            needed_nm: 0.0,
-            available_nm: 0.0,
-            tip_angle_deg: tip,
-        },
-        Some((ratio, angle, needed, avail)) => Feasibility {
-            feasible: ratio.is_finite() && ratio * limits.torque_margin <= 1.0 + 1e-12,
-            thrust_fraction: ratio.is_finite().then_some(ratio),
-            worst_angle_deg: angle,
-            needed_nm: needed,
-            available_nm: avail,
-            tip_angle_deg: tip,
-        },
-    }
+    let outcome = lp.solve().ok()?;
+    let sol = outcome.solution()?;
+    let t: Vec<f64> = vars.iter().map(|v| sol.var_value(*v)).collect();
+    rows.admits(rotors, &t, tol)
+        .then(|| (rows.moment_nm(&t), t))
 }
 
-#[cfg(test)]
-mod tests {
-    use super::*;
-    use proptest::prelude::*;
-
-    fn rotor(max: f64, rev: f64) -> Rotor {
-        Rotor {
-            position_m: [0.0, 0.0, 0.0],
-            axis: [0.0, 0.0, -1.0],
-            max_thrust_n: max,
-            reverse_thrust_n: rev,
-        }
+/// The least total thrust (sum |T_k|) that meets every condition and the
+/// required moment at all of `rows` at once; `None` when there is none.
+pub fn least_thrust(rows: &[&AngleRows], limits: &Limits, tol: f64) -> Option<Vec<f64>> {
+    use microlp::{ComparisonOp, OptimizationDirection, Problem};
+    let rotors = &limits.rotors;
+    let n = rotors.len();
+    if n == 0 {
+        let none: [f64; 0] = [];
+        return rows
+            .iter()
+            .all(|r| meets(r, limits, &none, tol))
+            .then(Vec::new);
     }
-
-    /// Whether thrusts `t` (shared axis -z) satisfy the contact limits.
-    fn admissible(t: &[f64], g: &Vector3<f64>, weight: f64, mu: f64) -> bool {
-        let axis = Vector3::new(0.0, 0.0, -1.0);
-        let f = g * weight + axis * t.iter().sum::<f64>();
-        let n = f.dot(g);
-        let tang = (f - g * n).norm();
-        n >= 0.0 && tang <= mu * n + 1e-12
-    }
-
-    proptest! {
-        #![proptest_config(ProptestConfig::with_cases(64))]
-
-        /// The greedy breakpoint search is an upper bound on every
-        /// admissible thrust vector: none found by sampling gives more
-        /// moment. (That the bound is attained follows from the
-        /// construction, see the module comment; the hand-worked cube test
-        /// pins an attained value.)
-        #[test]
-        fn greedy_is_optimal_for_a_shared_axis(
-            arms in proptest::collection::vec(-0.2..0.2f64, 1..5),
-            maxs in proptest::collection::vec(0.5..5.0f64, 5),
-            revs in proptest::collection::vec(0.0..3.0f64, 5),
-            tilt in 0.0..3.1f64, az in 0.0..std::f64::consts::TAU,
-            mu in 0.1..1.5f64, seed in any::<u64>(),
-        ) {
-            let n = arms.len();
-            let rotors: Vec<Rotor> = (0..n).map(|k| rotor(maxs[k], revs[k])).collect();
-            let limits = Limits { rotors, friction_coefficient: mu, torque_margin: 1.0 };
-            let g = Vector3::new(tilt.sin() * az.cos(), tilt.sin() * az.sin(), tilt.cos());
-            let weight = 7.0;
-            let t_axis = Vector3::new(0.0, 0.0, -1.0);
-            let best = best_shared_axis(&limits, &arms, &t_axis, &g, weight);
-            prop_assert!(best >= 0.0);
-            // Random admissible thrusts never beat it.
-            let mut state = seed | 1;
-            let mut next = || {
-                state ^= state << 13;
-                state ^= state >> 7;
-                state ^= state << 17;
-                (state % 1_000_000) as f64 / 1_000_000.0
-            };
-            for _ in 0..400 {
-                let t: Vec<f64> = (0..n)
-                    .map(|k| -revs[k] + next() * (maxs[k] + revs[k]))
-                    .collect();
-                if admissible(&t, &g, weight, mu) {
-                    let m: f64 = t.iter().zip(&arms).map(|(a, b)| a * b).sum();
-                    prop_assert!(m <= best + 1e-9, "{m} > {best}");
-                }
+    // T_k = P_k - Q_k with P_k, Q_k >= 0: minimising P + Q minimises |T|.
+    let mut lp = Problem::new(OptimizationDirection::Minimize);
+    let fwd: Vec<_> = rotors
+        .iter()
+        .map(|r| lp.add_var(1.0, (0.0, r.max_thrust_n)))
+        .collect();
+    let rev: Vec<_> = rotors
+        .iter()
+        .map(|r| lp.add_var(1.0, (0.0, r.reverse_thrust_n)))
+        .collect();
+    // Aim a little inside the inequalities, so the answer passes the check.
+    let inside = tol * 1e-2;
+    let expr = |coeffs: &[f64]| -> Vec<(microlp::Variable, f64)> {
+        fwd.iter()
+            .zip(coeffs)
+            .map(|(v, a)| (*v, *a))
+            .chain(rev.iter().zip(coeffs).map(|(v, a)| (*v, -*a)))
+            .collect()
+    };
+    for ar in rows {
+        for row in &ar.rows {
+            if row.equality {
+                lp.add_constraint(expr(&row.coeffs).as_slice(), ComparisonOp::Eq, row.rhs);
+            } else {
+                lp.add_constraint(
+                    expr(&row.coeffs).as_slice(),
+                    ComparisonOp::Le,
+                    row.rhs - inside,
+                );
             }
         }
+        let need = required_nm(ar.needed_nm, limits.torque_margin);
+        lp.add_constraint(expr(&ar.arms_m).as_slice(), ComparisonOp::Ge, need + inside);
     }
+    let outcome = lp.solve().ok()?;
+    let sol = outcome.solution()?;
+    let t: Vec<f64> = fwd
+        .iter()
+        .zip(&rev)
+        .map(|(p, q)| {
+            let x = sol.var_value(*p) - sol.var_value(*q);
+            if x.abs() < 1e-9 { 0.0 } else { x }
+        })
+        .collect();
+    rows.iter().all(|r| meets(r, limits, &t, tol)).then_some(t)
+}
 
-    #[test]
-    fn upright_lift_off_caps_the_total_thrust() {
-        // Level, one rotor with arm 0.1 m and 20 N available, weight 7 N:
-        // no lift-off caps S at 7 N, so the best moment is 0.7 N m.
-        let limits = Limits {
-            rotors: vec![rotor(20.0, 0.0)],
-            friction_coefficient: 0.5,
-            torque_margin: 1.0,
+/// Rotor commands for a feasible roll: one setting where one exists,
+/// otherwise a schedule by roll angle. `None` when some checked angle has
+/// no setting (which the caller treats as infeasible).
+pub fn commands(table: &[AngleRows], limits: &Limits, tol: f64) -> Option<RotorCommands> {
+    let all: Vec<&AngleRows> = table.iter().collect();
+    if let Some(t) = least_thrust(&all, limits, tol) {
+        return Some(RotorCommands {
+            thrust_n: t,
+            schedule: Vec::new(),
+        });
+    }
+    let mut schedule: Vec<ScheduleEntry> = Vec::new();
+    for rows in table {
+        if schedule
+            .last()
+            .is_some_and(|e| meets(rows, limits, &e.thrust_n, tol))
+        {
+            continue;
+        }
+        let t = least_thrust(&[rows], limits, tol)?;
+        schedule.push(ScheduleEntry {
+            from_deg: rows.angle_deg,
+            thrust_n: t,
+        });
+    }
+    let first = schedule.first()?.thrust_n.clone();
+    if schedule.len() == 1 {
+        schedule.clear();
+    }
+    Some(RotorCommands {
+        thrust_n: first,
+        schedule,
+    })
+}
+
+/// Which single condition, dropped, would let the rotors meet the rest
+/// at `rows` (the reason a move is blocked there).
+fn blocking_condition(rows: &AngleRows, limits: &Limits, tol: f64) -> Option<Condition> {
+    [Condition::Sideways, Condition::Between]
+        .into_iter()
+        .find(|c| {
+            if !rows.rows.iter().any(|r| r.condition == *c) {
+                return false;
+            }
+            let mut relaxed = rows.clone();
+            relaxed.rows.retain(|r| r.condition != *c);
+            best_moment(&relaxed, &limits.rotors, tol).is_some_and(|(m, _)| {
+                if rows.needed_nm > 0.0 {
+                    m > 1e-6 * rows.needed_nm
+                } else {
+                    m >= rows.needed_nm - tol
+                }
+            })
+        })
+}
+
+/// Check one roll over its whole angle, and find its rotor commands.
+pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
+    let tip = tip_angle_deg(cage, roll);
+    let tol = tolerance(cage);
+    let table = table(cage, roll, limits);
+    let zero = vec![0.0; limits.rotors.len()];
+    // (ratio, angle, needed, available)
+    let mut worst: Option<(f64, f64, f64, f64)> = None;
+    let mut blocked_by = None;
+    for rows in &table {
+        let needed = rows.needed_nm;
+        let (ratio, avail) = if needed <= 0.0 {
+            // Gravity helps: the rotors need only keep the contact.
+            if rows.admits(&limits.rotors, &zero, tol) {
+                continue;
+            }
+            match best_moment(rows, &limits.rotors, tol) {
+                Some((m, _)) if m >= needed - tol => continue,
+                Some((m, _)) => (f64::INFINITY, m),
+                None => (f64::INFINITY, 0.0),
+            }
+        } else {
+            match best_moment(rows, &limits.rotors, tol) {
+                // A moment below a millionth of the need is rounding, not help.
+                Some((m, _)) if m > 1e-6 * needed => (needed / m, m),
+                Some((m, _)) => (f64::INFINITY, m),
+                None => (f64::INFINITY, 0.0),
+            }
         };
-        let g = Vector3::new(0.0, 0.0, 1.0);
-        let best = best_shared_axis(&limits, &[0.1], &Vector3::new(0.0, 0.0, -1.0), &g, 7.0);
-        approx::assert_relative_eq!(best, 0.7, epsilon = 1e-12);
+        if ratio.is_infinite() && blocked_by.is_none() && worst.is_none_or(|w| w.0.is_finite()) {
+            blocked_by = blocking_condition(rows, limits, tol);
+        }
+        if worst.is_none_or(|w| ratio > w.0) {
+            worst = Some((ratio, rows.angle_deg, needed, avail));
+        }
+    }
+    let (mut feasible, thrust_fraction, worst_angle_deg, needed_nm, available_nm) = match worst {
+        None => (true, Some(0.0), 0.0, 0.0, 0.0),
+        Some((ratio, angle, needed, avail)) => (
+            ratio.is_finite() && ratio * limits.torque_margin <= 1.0 + 1e-12,
+            ratio.is_finite().then_some(ratio),
+            angle,
+            needed,
+            avail,
+        ),
+    };
+    let commands = if feasible {
+        commands(&table, limits, tol)
+    } else {
+        None
+    };
+    // No commands for a move the check passed: say "cannot" (fail safe).
+    feasible &= commands.is_some();
+    Feasibility {
+        feasible,
+        thrust_fraction,
+        worst_angle_deg,
+        needed_nm,
+        available_nm,
+        tip_angle_deg: tip,
+        blocked_by,
+        commands,
     }
 }

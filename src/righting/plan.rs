@@ -11,7 +11,8 @@
 //! than the angle between the first and last normals, and weights >= 1
 //! only raise the cost. Admissible and consistent.
 
-use super::{Move, MoveKind, RightingModel};
+use super::feasibility::Condition;
+use super::{Move, MoveKind, RightingModel, RotorCommands};
 use crate::attitude::{angle_between_deg, rotate_about_world};
 use crate::rest::resting_attitude;
 use nalgebra::UnitQuaternion;
@@ -34,6 +35,11 @@ pub struct Step {
     pub angle_deg: f64,
     /// Needed / available moment at the worst angle of the roll.
     pub thrust_fraction: f64,
+    /// What to set the rotors to (from the feasibility LP): one setting,
+    /// or a schedule by roll angle.
+    pub commands: RotorCommands,
+    /// Attitude before the step (the previous step's target).
+    pub start: UnitQuaternion<f64>,
     /// Attitude to expect after the step: the attitude before it, rotated
     /// about the world-frame pivot axis by the roll angle (and by any
     /// passive rolls that follow).
@@ -62,6 +68,15 @@ pub struct Plan {
     pub cost_deg: f64,
     /// The steps in order.
     pub steps: Vec<Step>,
+}
+
+/// What every plan of one map shares: the graph, the cost to go from every
+/// face and the goals, computed once per map (or per single plan) and
+/// handed to the plans and their explanations.
+struct Routes {
+    pg: PlanGraph,
+    to_go: Vec<Option<f64>>,
+    goals: Vec<usize>,
 }
 
 /// The graph of resting faces (node weight: face index) and feasible moves
@@ -120,8 +135,13 @@ impl RightingModel {
 
     /// The A* heuristic: angle from `face`'s normal to the nearest goal's.
     pub fn heuristic_deg(&self, face: usize) -> f64 {
+        self.heuristic_to(face, &self.goals())
+    }
+
+    /// [`RightingModel::heuristic_deg`] with the goals given.
+    fn heuristic_to(&self, face: usize, goals: &[usize]) -> f64 {
         let n = self.cage.faces[face].normal_body;
-        self.goals()
+        goals
             .iter()
             .map(|&g| angle_between_deg(&n, &self.cage.faces[g].normal_body))
             .fold(f64::INFINITY, f64::min)
@@ -131,7 +151,11 @@ impl RightingModel {
     /// one Dijkstra run from a virtual source joined to every goal, on the
     /// reversed graph.
     pub fn cost_to_go(&self) -> Vec<Option<f64>> {
-        let pg = self.graph();
+        self.cost_to_go_on(&self.graph(), &self.goals())
+    }
+
+    /// [`RightingModel::cost_to_go`] on a graph already built.
+    fn cost_to_go_on(&self, pg: &PlanGraph, goals: &[usize]) -> Vec<Option<f64>> {
         let mut rev: DiGraph<(), f64> = DiGraph::new();
         let nodes: Vec<NodeIndex> = pg.graph.node_indices().map(|_| rev.add_node(())).collect();
         for e in pg.graph.edge_references() {
@@ -139,7 +163,7 @@ impl RightingModel {
             rev.add_edge(nodes[e.target().index()], nodes[e.source().index()], cost);
         }
         let source = rev.add_node(());
-        for g in self.goals() {
+        for &g in goals {
             if let Some(n) = pg.node[g] {
                 rev.add_edge(source, nodes[n.index()], 0.0);
             }
@@ -154,9 +178,8 @@ impl RightingModel {
     /// The recovery map: a plan from every face, each starting at the
     /// face's zero-yaw resting attitude.
     pub fn recovery_map(&self) -> Vec<Plan> {
-        let pg = self.graph();
-        let to_go = self.cost_to_go();
-        let goals = self.goals();
+        let routes = self.routes();
+        let (pg, to_go, goals) = (&routes.pg, &routes.to_go, &routes.goals);
         (0..self.cage.faces.len())
             .map(|face| {
                 let start = self.settle_face(face);
@@ -186,9 +209,17 @@ impl RightingModel {
                         }
                     }
                 }
-                self.assemble(face, start, &attitude, &moves)
+                self.assemble(face, start, &attitude, &moves, &routes)
             })
             .collect()
+    }
+
+    /// The graph, cost to go and goals, once.
+    fn routes(&self) -> Routes {
+        let pg = self.graph();
+        let goals = self.goals();
+        let to_go = self.cost_to_go_on(&pg, &goals);
+        Routes { pg, to_go, goals }
     }
 
     /// One plan by A* from `face`, the steps' target attitudes starting from
@@ -211,8 +242,11 @@ impl RightingModel {
             };
         }
         let start = self.settle_face(face);
-        let pg = self.graph();
-        let goals = self.goals();
+        let routes = self.routes();
+        let (pg, goals) = (&routes.pg, &routes.goals);
+        let heuristic: Vec<f64> = (0..self.cage.faces.len())
+            .map(|f| self.heuristic_to(f, goals))
+            .collect();
         let moves = pg.node[start]
             .and_then(|s| {
                 petgraph::algo::astar(
@@ -220,7 +254,7 @@ impl RightingModel {
                     s,
                     |n| goals.contains(&pg.graph[n]),
                     |e| self.cost_deg(&self.moves[*e.weight()]),
-                    |n| self.heuristic_deg(pg.graph[n]),
+                    |n| heuristic[pg.graph[n]],
                 )
             })
             .map(|(_, path)| {
@@ -229,8 +263,8 @@ impl RightingModel {
                     .collect::<Vec<usize>>()
             });
         match moves {
-            Some(m) => self.assemble(face, start, attitude, &m),
-            None => self.assemble(face, start, attitude, &[]),
+            Some(m) => self.assemble(face, start, attitude, &m, &routes),
+            None => self.assemble(face, start, attitude, &[], &routes),
         }
     }
 
@@ -241,6 +275,7 @@ impl RightingModel {
         start: usize,
         attitude: &UnitQuaternion<f64>,
         moves: &[usize],
+        routes: &Routes,
     ) -> Plan {
         let f = |i: usize| self.cage.faces[i].id.as_str();
         let note = (start != face).then(|| {
@@ -259,6 +294,7 @@ impl RightingModel {
         let (mut total, mut cost) = (0.0, 0.0);
         for &k in moves {
             let m: &Move = &self.moves[k];
+            let start = q;
             for r in std::iter::once(&m.roll).chain(&m.settle) {
                 q = rotate_about_world(&q, &(q * r.axis_body), r.angle_deg.to_radians());
             }
@@ -271,18 +307,19 @@ impl RightingModel {
                 pivot: m.roll.pivot.clone(),
                 angle_deg: m.roll.angle_deg,
                 thrust_fraction: m.feasibility.thrust_fraction.unwrap_or(0.0),
+                commands: m.feasibility.commands.clone().unwrap_or_default(),
+                start,
                 target: q,
                 move_index: k,
             });
         }
         let end = steps.last().map_or(start, |s| s.to);
-        let goals = self.goals();
-        let reachable = goals.contains(&end);
+        let reachable = routes.goals.contains(&end);
         Plan {
             from: face,
             goal: reachable.then_some(end),
             reachable,
-            reason: (!reachable).then(|| self.explain(start)),
+            reason: (!reachable).then(|| self.explain_on(start, routes)),
             note,
             total_angle_deg: total,
             cost_deg: cost,
@@ -293,11 +330,16 @@ impl RightingModel {
     /// Why no take-off face can be reached from `face`: the move out of
     /// the set of faces it can reach that comes closest to being feasible.
     pub fn explain(&self, face: usize) -> String {
+        self.explain_on(face, &self.routes())
+    }
+
+    /// [`RightingModel::explain`] with the map's routes already worked out.
+    fn explain_on(&self, face: usize, routes: &Routes) -> String {
         let f = |i: usize| self.cage.faces[i].id.as_str();
-        if self.goals().is_empty() {
+        let (pg, to_go) = (&routes.pg, &routes.to_go);
+        if routes.goals.is_empty() {
             return "the profile's take-off faces include none this vehicle can rest on".into();
         }
-        let pg = self.graph();
         let mut reach = vec![false; self.cage.faces.len()];
         if let Some(n) = pg.node.get(face).copied().flatten() {
             let mut dfs = petgraph::visit::Dfs::new(&pg.graph, n);
@@ -307,7 +349,6 @@ impl RightingModel {
         }
         // Prefer a missing move after which a route exists (one move short);
         // otherwise any move out of the faces the rotors can reach.
-        let to_go = self.cost_to_go();
         let out: Vec<&Move> = self
             .moves
             .iter()
@@ -360,6 +401,14 @@ impl RightingModel {
                 m.feasibility.available_nm,
                 100.0 / self.limits.torque_margin,
                 self.limits.torque_margin
+            ),
+            None if m.feasibility.blocked_by == Some(Condition::Sideways) => format!(
+                "cannot be balanced: on its single node no thrust within the rotors' limits cancels gravity's sideways moment at {:.0} deg into the pivot while lifting the cage",
+                m.feasibility.worst_angle_deg
+            ),
+            None if m.feasibility.blocked_by == Some(Condition::Between) => format!(
+                "cannot be made as an edge roll: at {:.0} deg into the roll no thrust within the rotors' limits keeps the ground's push between the two pivot nodes (the cage would turn about one node)",
+                m.feasibility.worst_angle_deg
             ),
             None => {
                 let forward_only = self.limits.rotors.iter().all(|r| r.reverse_thrust_n <= 0.0);

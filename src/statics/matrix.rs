@@ -11,6 +11,14 @@ pub(crate) const RANK_TOLERANCE: f64 = 1e-9;
 /// The equilibrium matrix A (3n x b) at positions `pos`: `A t = f`.
 pub fn equilibrium_matrix(pos: &[Vector3<f64>], bars: &[Bar]) -> DMatrix<f64> {
     let mut a = DMatrix::zeros(3 * pos.len(), bars.len());
+    for_each_entry(pos, bars, |row, col, v| a[(row, col)] = v);
+    a
+}
+
+/// The non-zero entries of A (row, column, value): column j holds the unit
+/// vector from member j's second node to its first at the first node and
+/// its negative at the second; a member of zero length has none.
+fn for_each_entry(pos: &[Vector3<f64>], bars: &[Bar], mut put: impl FnMut(usize, usize, f64)) {
     for (j, bar) in bars.iter().enumerate() {
         let [p, q] = bar.nodes;
         let d = pos[p] - pos[q];
@@ -19,18 +27,15 @@ pub fn equilibrium_matrix(pos: &[Vector3<f64>], bars: &[Bar]) -> DMatrix<f64> {
             continue;
         }
         for k in 0..3 {
-            a[(3 * p + k, j)] = d[k] / l;
-            a[(3 * q + k, j)] = -d[k] / l;
+            put(3 * p + k, j, d[k] / l);
+            put(3 * q + k, j, -d[k] / l);
         }
     }
-    a
 }
 
 /// The SVD of A padded with zero rows to at least b rows, so its V holds
 /// the whole null space: rank, null-space basis (b x s) and a solver.
 pub(crate) struct Decomposed {
-    /// Rank of A.
-    pub rank: usize,
     /// Self-stress states as columns (b x s).
     pub null: DMatrix<f64>,
     svd: nalgebra::SVD<f64, nalgebra::Dyn, nalgebra::Dyn>,
@@ -48,7 +53,6 @@ impl Decomposed {
         let s = svd_with(padded, solvable, "equilibrium matrix")?;
         let smax = s.singular_values.iter().copied().fold(0.0, f64::max);
         let tol = RANK_TOLERANCE * smax.max(f64::MIN_POSITIVE);
-        let rank = s.singular_values.iter().filter(|&&x| x > tol).count();
         let null = match &s.v_t {
             Some(vt) => {
                 let cols: Vec<DVector<f64>> = (0..b)
@@ -68,7 +72,6 @@ impl Decomposed {
             }
         };
         Ok(Decomposed {
-            rank,
             null,
             svd: s,
             tol,
@@ -103,6 +106,88 @@ impl Decomposed {
     }
 }
 
+/// The rank of A and the projection onto its null space (the self-stress
+/// states), from one dense singular value decomposition of A^T by faer:
+/// the left singular vectors of A^T with non-zero singular values span the
+/// row space of A, and the self-stresses are its orthogonal complement, so
+/// neither V nor the padding to a square matrix is needed.
+pub(crate) struct RowSpace {
+    /// Rank of A.
+    pub rank: usize,
+    /// Orthonormal basis of the row space of A (b x rank).
+    basis: faer::Mat<f64>,
+}
+
+impl RowSpace {
+    /// Decompose A^T (built straight from the members, b x 3n).
+    pub(crate) fn new(pos: &[Vector3<f64>], bars: &[Bar]) -> Result<RowSpace, StaticsError> {
+        use faer::dyn_stack::{MemBuffer, MemStack};
+        use faer::linalg::svd::{ComputeSvdVectors, svd, svd_scratch};
+        let (b, m) = (bars.len(), 3 * pos.len());
+        let mut at = faer::Mat::<f64>::zeros(b, m);
+        for_each_entry(pos, bars, |row, col, v| at[(col, row)] = v);
+        let size = b.min(m);
+        if size == 0 {
+            return Ok(RowSpace {
+                rank: 0,
+                basis: faer::Mat::zeros(b, 0),
+            });
+        }
+        let mut s = faer::Col::<f64>::zeros(size);
+        let mut u = faer::Mat::<f64>::zeros(b, size);
+        let par = faer::Par::Seq;
+        let params = Default::default();
+        let req = svd_scratch::<f64>(
+            b,
+            m,
+            ComputeSvdVectors::Thin,
+            ComputeSvdVectors::No,
+            par,
+            params,
+        );
+        svd(
+            at.as_ref(),
+            s.as_diagonal_mut(),
+            Some(u.as_mut()),
+            None,
+            par,
+            MemStack::new(&mut MemBuffer::new(req)),
+            params,
+        )
+        .map_err(|_| StaticsError::NoDecomposition {
+            what: "equilibrium matrix",
+        })?;
+        let sv: Vec<f64> = (0..size).map(|i| s[i]).collect();
+        let smax = sv.iter().copied().fold(0.0, f64::max);
+        let tol = RANK_TOLERANCE * smax.max(f64::MIN_POSITIVE);
+        let keep: Vec<usize> = (0..size).filter(|&i| sv[i] > tol).collect();
+        let basis = faer::Mat::from_fn(b, keep.len(), |r, c| u[(r, keep[c])]);
+        Ok(RowSpace {
+            rank: keep.len(),
+            basis,
+        })
+    }
+
+    /// The part of `g` (length b) in the null space of A: g minus its
+    /// projection on the row space.
+    pub(crate) fn null_part(&self, g: &[f64]) -> Vec<f64> {
+        let (b, r) = self.basis.shape();
+        let mut coeff = vec![0.0; r];
+        for (c, x) in coeff.iter_mut().enumerate() {
+            let col = self.basis.col(c);
+            *x = (0..b).map(|i| col[i] * g[i]).sum();
+        }
+        let mut t = g.to_vec();
+        for (c, &x) in coeff.iter().enumerate() {
+            let col = self.basis.col(c);
+            for (i, ti) in t.iter_mut().enumerate() {
+                *ti -= x * col[i];
+            }
+        }
+        t
+    }
+}
+
 /// What the equilibrium matrix says about the cage, and the prestress.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SelfStress {
@@ -127,10 +212,9 @@ pub struct SelfStress {
 /// With several self-stress states, the one nearest to "all strings equally
 /// tensioned" (the projection of that pattern onto the null space) is used.
 pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, StaticsError> {
-    let a = equilibrium_matrix(&s.pos_m, &s.bars);
-    let d = Decomposed::new(&a, false)?;
+    let d = RowSpace::new(&s.pos_m, &s.bars)?;
     let b = s.bars.len();
-    let states = d.null.ncols();
+    let states = b - d.rank;
     let mechanisms = (3 * s.node_count()).saturating_sub(d.rank + 6);
     let strings: Vec<usize> = (0..b)
         .filter(|&j| s.bars[j].kind == MemberKind::String)
@@ -146,7 +230,7 @@ pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, Stati
     let counts = format!(
         "rank {} of {}x{}: {}, {}",
         d.rank,
-        a.nrows(),
+        3 * s.node_count(),
         b,
         plural(states, "self-stress state", "self-stress states"),
         plural(mechanisms, "mechanism", "mechanisms")
@@ -168,11 +252,11 @@ pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, Stati
         return Ok(fail("The cage has no strings to pretension".into()));
     }
     // Project "every string pulls equally" onto the self-stress states.
-    let mut g = DVector::zeros(b);
+    let mut g = vec![0.0; b];
     for &j in &strings {
         g[j] = 1.0;
     }
-    let t = &d.null * (d.null.transpose() * &g);
+    let t = DVector::from_vec(d.null_part(&g));
     let largest = strings.iter().map(|&j| t[j]).fold(f64::MIN, f64::max);
     let scale_ref = t.amax();
     if largest.is_nan() || largest <= 1e-9 * scale_ref.max(f64::MIN_POSITIVE) {

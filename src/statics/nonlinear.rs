@@ -14,6 +14,9 @@
 
 use super::{StaticsError, Structure, remove_rigid, rigid_modes, stack};
 use crate::cage::MemberKind;
+use faer::linalg::solvers::Solve;
+use faer::sparse::linalg::solvers::{Lu, SymbolicLu};
+use faer::sparse::{SparseColMat, Triplet};
 use nalgebra::{DMatrix, DVector, Matrix3, Vector3};
 
 /// A load that may depend on the current node positions: writes the
@@ -154,21 +157,14 @@ impl<'a> NonlinearModel<'a> {
 
     /// Consistent tangent stiffness at `pos` (3n x 3n), plus a penalty on
     /// the rigid-body modes so the system is solvable.
+    /// Dense: only the fallback when the sparse solve fails.
     fn tangent(&self, pos: &[Vector3<f64>], force: &[f64], k: &mut DMatrix<f64>) {
         k.fill(0.0);
         for ((bar, &l0), &t) in self.structure.bars.iter().zip(&self.rest_m).zip(force) {
             let [a, b] = bar.nodes;
-            let d = pos[a] - pos[b];
-            let l = d.norm();
-            if l <= 0.0 {
+            let Some(kj) = member_tangent(bar, l0, t, pos) else {
                 continue;
-            }
-            let e = d / l;
-            let taut = bar.kind == MemberKind::Rod || l >= l0;
-            let k_mat = bar.ea_n / l0 * if taut { 1.0 } else { SLACK_STIFFNESS };
-            let q = t / l;
-            let ee = e * e.transpose();
-            let kj: Matrix3<f64> = ee * k_mat + (Matrix3::identity() - ee) * q;
+            };
             for r in 0..3 {
                 for c in 0..3 {
                     let v = kj[(r, c)];
@@ -205,7 +201,8 @@ impl<'a> NonlinearModel<'a> {
             force: vec![0.0; b],
             f_buf,
             r: DVector::zeros(3 * n),
-            k: DMatrix::zeros(3 * n, 3 * n),
+            k: None,
+            sparse: SparseTangent::new(&self.structure.pos_m),
             trial: vec![Vector3::zeros(); n],
         };
         let from = start.load;
@@ -274,13 +271,10 @@ impl<'a> NonlinearModel<'a> {
             if rn <= tol {
                 return Ok((rn, it));
             }
-            self.tangent(pos, &ws.force, &mut ws.k);
-            let mut dx = match ws.k.clone().lu().solve(&ws.r) {
-                Some(dx) if dx.iter().all(|v| v.is_finite()) => dx,
-                _ => match super::svd(ws.k.clone(), "tangent stiffness")
-                    .ok()
-                    .and_then(|s| s.solve(&ws.r, 1e-12).ok())
-                {
+            let sparse = ws.sparse.solve(self, pos, &ws.force, &ws.r);
+            let mut dx = match sparse {
+                Some(dx) => dx,
+                None => match self.dense_step(pos, ws) {
                     Some(dx) => dx,
                     None => return Err((rn, it)),
                 },
@@ -341,11 +335,174 @@ impl<'a> NonlinearModel<'a> {
     }
 }
 
+impl NonlinearModel<'_> {
+    /// The Newton step by the dense tangent (LU, then SVD): the fallback
+    /// for a tangent the sparse LU cannot factorise.
+    fn dense_step(&self, pos: &[Vector3<f64>], ws: &mut Workspace) -> Option<DVector<f64>> {
+        let dim = ws.r.len();
+        let k = ws.k.get_or_insert_with(|| DMatrix::zeros(dim, dim));
+        self.tangent(pos, &ws.force, k);
+        match k.clone().lu().solve(&ws.r) {
+            Some(dx) if dx.iter().all(|v| v.is_finite()) => Some(dx),
+            _ => super::svd(k.clone(), "tangent stiffness")
+                .ok()
+                .and_then(|s| s.solve(&ws.r, 1e-12).ok()),
+        }
+    }
+}
+
+/// Consistent tangent of one member on its node pair (none for a member
+/// of zero length).
+fn member_tangent(bar: &super::Bar, l0: f64, t: f64, pos: &[Vector3<f64>]) -> Option<Matrix3<f64>> {
+    let [a, b] = bar.nodes;
+    let d = pos[a] - pos[b];
+    let l = d.norm();
+    if l <= 0.0 {
+        return None;
+    }
+    let e = d / l;
+    let taut = bar.kind == MemberKind::Rod || l >= l0;
+    let k_mat = bar.ea_n / l0 * if taut { 1.0 } else { SLACK_STIFFNESS };
+    let q = t / l;
+    let ee = e * e.transpose();
+    Some(ee * k_mat + (Matrix3::identity() - ee) * q)
+}
+
+/// The tangent system K dx = r solved sparse. The dense solver this
+/// replaces factorised M = K + s Phi Phi^T (Phi: the rigid modes, s the
+/// largest diagonal entry), a matrix made dense by the rank-six penalty.
+/// Here the same M is written as B + U C U^T with B = K + s E sparse (E:
+/// springs on the nine coordinates of three nodes spanning a triangle, so
+/// B has no rigid motion left), U = [Phi | E's columns] and
+/// C = diag(s, -s): one sparse LU of B and the Woodbury identity give
+/// M^-1 r to round-off, with no dense 3n x 3n matrix.
+struct SparseTangent {
+    /// Coordinates held by the springs of E.
+    anchors: Vec<usize>,
+    /// Triplets of B, in a fixed order so the pattern never changes.
+    triplets: Vec<Triplet<usize, usize, f64>>,
+    /// Symbolic LU of B's pattern, computed on first use.
+    symbolic: Option<SymbolicLu<usize>>,
+}
+
+impl SparseTangent {
+    fn new(pos: &[Vector3<f64>]) -> SparseTangent {
+        // Three nodes far apart: the first, the farthest from it, and the
+        // farthest from the line through both.
+        let a = 0;
+        let far = |f: &dyn Fn(&Vector3<f64>) -> f64| {
+            (0..pos.len())
+                .max_by(|&i, &j| f(&pos[i]).total_cmp(&f(&pos[j])))
+                .unwrap_or(0)
+        };
+        let b = far(&|p| (p - pos[a]).norm());
+        let axis = (pos[b] - pos[a])
+            .try_normalize(0.0)
+            .unwrap_or_else(Vector3::x);
+        let c = far(&|p| {
+            let r = p - pos[a];
+            (r - axis * axis.dot(&r)).norm()
+        });
+        let mut nodes = vec![a, b, c];
+        nodes.sort_unstable();
+        nodes.dedup();
+        SparseTangent {
+            anchors: nodes
+                .iter()
+                .flat_map(|&i| [3 * i, 3 * i + 1, 3 * i + 2])
+                .collect(),
+            triplets: Vec::new(),
+            symbolic: None,
+        }
+    }
+
+    /// Solve (K + s Phi Phi^T) dx = r for the tangent at `pos`; `None` when
+    /// the sparse factorisation fails or gives a non-finite answer (the
+    /// caller then falls back to the dense solver).
+    fn solve(
+        &mut self,
+        model: &NonlinearModel,
+        pos: &[Vector3<f64>],
+        force: &[f64],
+        r: &DVector<f64>,
+    ) -> Option<DVector<f64>> {
+        let dim = r.len();
+        let mut diag = vec![0.0; dim];
+        self.triplets.clear();
+        for ((bar, &l0), &t) in model.structure.bars.iter().zip(&model.rest_m).zip(force) {
+            let kj = member_tangent(bar, l0, t, pos).unwrap_or_else(Matrix3::zeros);
+            let [a, b] = bar.nodes;
+            for rr in 0..3 {
+                diag[3 * a + rr] += kj[(rr, rr)];
+                diag[3 * b + rr] += kj[(rr, rr)];
+                for cc in 0..3 {
+                    let v = kj[(rr, cc)];
+                    self.triplets.push(Triplet::new(3 * a + rr, 3 * a + cc, v));
+                    self.triplets.push(Triplet::new(3 * b + rr, 3 * b + cc, v));
+                    self.triplets.push(Triplet::new(3 * a + rr, 3 * b + cc, -v));
+                    self.triplets.push(Triplet::new(3 * b + rr, 3 * a + cc, -v));
+                }
+            }
+        }
+        let s = diag.iter().fold(0.0_f64, |m, d| m.max(d.abs())).max(1.0);
+        // Every diagonal entry present, so the pattern is the same every time.
+        for i in 0..dim {
+            let spring = if self.anchors.contains(&i) { s } else { 0.0 };
+            self.triplets.push(Triplet::new(i, i, spring));
+        }
+        let bmat =
+            SparseColMat::<usize, f64>::try_new_from_triplets(dim, dim, &self.triplets).ok()?;
+        if self.symbolic.is_none() {
+            self.symbolic = Some(SymbolicLu::try_new(bmat.symbolic()).ok()?);
+        }
+        let lu = Lu::try_new_with_symbolic(self.symbolic.clone()?, bmat.as_ref()).ok()?;
+        let modes = rigid_modes(pos);
+        let q = modes.ncols();
+        let extra = q + self.anchors.len();
+        // Right-hand sides: r, then the columns of U.
+        let mut y = faer::Mat::<f64>::zeros(dim, 1 + extra);
+        for i in 0..dim {
+            y[(i, 0)] = r[i];
+            for c in 0..q {
+                y[(i, 1 + c)] = modes[(i, c)];
+            }
+        }
+        for (k, &i) in self.anchors.iter().enumerate() {
+            y[(i, 1 + q + k)] = 1.0;
+        }
+        lu.solve_in_place(y.as_mut());
+        // U^T y for a column of y.
+        let ut = |col: usize, row: usize| -> f64 {
+            if row < q {
+                (0..dim).map(|i| modes[(i, row)] * y[(i, col)]).sum()
+            } else {
+                y[(self.anchors[row - q], col)]
+            }
+        };
+        let cap = DMatrix::from_fn(extra, extra, |i, j| {
+            let c_inv = if i == j {
+                if i < q { 1.0 / s } else { -1.0 / s }
+            } else {
+                0.0
+            };
+            c_inv + ut(1 + j, i)
+        });
+        let z = DVector::from_fn(extra, |i, _| ut(0, i));
+        let w = cap.lu().solve(&z)?;
+        let dx = DVector::from_fn(dim, |i, _| {
+            y[(i, 0)] - (0..extra).map(|k| y[(i, 1 + k)] * w[k]).sum::<f64>()
+        });
+        dx.iter().all(|v| v.is_finite()).then_some(dx)
+    }
+}
+
 struct Workspace {
     force: Vec<f64>,
     f_buf: Vec<Vector3<f64>>,
     r: DVector<f64>,
-    k: DMatrix<f64>,
+    /// Dense tangent, made only if the sparse solve ever fails.
+    k: Option<DMatrix<f64>>,
+    sparse: SparseTangent,
     trial: Vec<Vector3<f64>>,
 }
 

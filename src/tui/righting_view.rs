@@ -47,6 +47,9 @@ pub struct RightingScreen {
     pub selected: usize,
     /// First step row shown.
     pub offset: usize,
+    /// Where the view of the vehicle as it lies looks from, degrees
+    /// clockwise from north (`<` `>` turn it).
+    pub view_azimuth_deg: f64,
 }
 
 /// What the Righting screen's keys do.
@@ -58,6 +61,8 @@ pub enum RightingAction {
     Abandon,
     /// Move the step selection.
     Select(Move),
+    /// Turn the view of the vehicle about the vertical, degrees clockwise.
+    Turn(i8),
 }
 
 const KEYS: &[Binding<RightingAction>] = &[
@@ -81,6 +86,16 @@ const KEYS: &[Binding<RightingAction>] = &[
         action: RightingAction::Select(Move::Up),
         help: "select the previous step",
     },
+    Binding {
+        keys: &[Key::Char('>')],
+        action: RightingAction::Turn(1),
+        help: "turn the view of the vehicle clockwise",
+    },
+    Binding {
+        keys: &[Key::Char('<')],
+        action: RightingAction::Turn(-1),
+        help: "turn it anticlockwise",
+    },
 ];
 
 /// Faces along a plan, start first.
@@ -91,6 +106,46 @@ pub fn path_faces(plan: &Plan) -> Vec<usize> {
 }
 
 impl RightingScreen {
+    /// The vehicle as it lies, with the next step's pivot, rotor commands
+    /// and tipping direction (`<` `>` turn the view).
+    fn draw_vehicle(&self, shared: &Shared, frame: &mut Frame, area: Rect) {
+        use crate::tui::vehicle_view::{NextStep, VehicleView};
+        let Some(model) = self.model.as_ref() else {
+            return;
+        };
+        let attitude = shared
+            .live
+            .rest
+            .map_or_else(nalgebra::UnitQuaternion::identity, |x| x.attitude);
+        let step = self
+            .shown_plan()
+            .and_then(|p| p.steps.get(self.current().unwrap_or(0)));
+        let next = step.map(|s| NextStep {
+            pivot: &s.pivot,
+            thrust_n: &s.commands.thrust_n,
+            tip_body: cagehand::righting::describe::tip_direction_body(
+                &model.cage,
+                &model.moves[s.move_index].roll,
+            ),
+        });
+        frame.render_widget(
+            VehicleView {
+                cage: &model.cage,
+                rotors: &model.limits.rotors,
+                attitude,
+                next,
+                view_azimuth_deg: self.view_azimuth_deg,
+                theme: &shared.theme,
+                block: Some(
+                    Block::default()
+                        .borders(Borders::ALL)
+                        .title(" As it lies: < > turn the view "),
+                ),
+            },
+            area,
+        );
+    }
+
     /// The screen for a profile; the second value says why righting is
     /// unavailable, if it is.
     pub fn new(profile: &Profile, cage: &Cage) -> (RightingScreen, Option<String>) {
@@ -107,6 +162,7 @@ impl RightingScreen {
                 plans: 0,
                 selected: 0,
                 offset: 0,
+                view_azimuth_deg: 0.0,
             },
             why,
         )
@@ -278,6 +334,11 @@ impl Component for RightingScreen {
                 self.follow_live(shared);
                 true
             }
+            RightingAction::Turn(dir) => {
+                let turn = crate::tui::vehicle_view::TURN_STEP_DEG * f64::from(dir);
+                self.view_azimuth_deg = (self.view_azimuth_deg + turn).rem_euclid(360.0);
+                true
+            }
             RightingAction::Select(m) => {
                 let len = self.shown_plan().map_or(0, |p| p.steps.len());
                 let page = self.visible_rows(shared);
@@ -345,6 +406,10 @@ impl Component for RightingScreen {
             if let Some(p) = plan {
                 marks.path = path_faces(p);
             }
+            let [net_area, lies] =
+                Layout::vertical([Constraint::Percentage(50), Constraint::Percentage(50)])
+                    .areas(net_area);
+            self.draw_vehicle(shared, frame, lies);
             frame.render_widget(
                 NetView {
                     cage: &shared.cage,

@@ -262,7 +262,16 @@ fn carry_out(
             strike,
             input,
             note,
-        } => logwork::confirm(v, &mut book, operator, now, *seq, strike, input, note.clone()),
+        } => logwork::confirm(
+            v,
+            &mut book,
+            operator,
+            now,
+            *seq,
+            strike,
+            input,
+            note.clone(),
+        ),
         Work::Dismiss { seq, reason } => {
             logwork::dismiss(v, &mut book, operator, now, *seq, reason)
         }
@@ -274,7 +283,9 @@ fn carry_out(
         }
         Work::Note(text) => logwork::note(v, &mut book, operator, now, text),
         Work::Sign(signoff) => {
-            return sign(&mut book, operator, now, seen_seq, eval, signoff, vehicle, &path);
+            return sign(
+                &mut book, operator, now, seen_seq, eval, signoff, vehicle, &path,
+            );
         }
     };
     match result {

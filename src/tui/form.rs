@@ -323,19 +323,15 @@ impl Form {
                     .collect();
                 (!names.contains(&v)).then(|| format!("one of {}", names.join(", ")))
             }
-            Check::Finding => FindingKind::parse(v).is_none().then(|| {
-                format!(
-                    "one of {}",
-                    FindingKind::ALL.map(|k| k.name()).join(", ")
-                )
-            }),
+            Check::Finding => FindingKind::parse(v)
+                .is_none()
+                .then(|| format!("one of {}", FindingKind::ALL.map(|k| k.name()).join(", "))),
         };
         if own.is_some() {
             return own;
         }
         // Peak or speed: exactly one.
-        if matches!(self.purpose, Purpose::Confirm(_))
-            && matches!(f.label, "peak g" | "speed m/s")
+        if matches!(self.purpose, Purpose::Confirm(_)) && matches!(f.label, "peak g" | "speed m/s")
         {
             let peak = self.value("peak g").is_empty();
             let speed = self.value("speed m/s").is_empty();
@@ -482,9 +478,11 @@ impl Form {
         };
         frame.render_widget(Clear, r);
         frame.render_widget(
-            Paragraph::new(lines)
-                .wrap(Wrap { trim: false })
-                .block(Block::default().borders(Borders::ALL).title(self.title.clone())),
+            Paragraph::new(lines).wrap(Wrap { trim: false }).block(
+                Block::default()
+                    .borders(Borders::ALL)
+                    .title(self.title.clone()),
+            ),
             r,
         );
     }

@@ -487,7 +487,9 @@ fn on_form_key(model: &mut Model, key: &KeyEvent) {
         Some(a) => form.act(a),
         None => {
             if let KeyCode::Char(c) = key.code
-                && !key.modifiers.intersects(KeyModifiers::CONTROL | KeyModifiers::ALT)
+                && !key
+                    .modifiers
+                    .intersects(KeyModifiers::CONTROL | KeyModifiers::ALT)
             {
                 form.type_char(c);
             }
@@ -515,9 +517,7 @@ fn submit(model: &mut Model, form: Form) {
         (Purpose::Override(n), _) => {
             let reason = form.value("reason").to_string();
             model.screens.preflight.signoff.overrides.insert(*n, reason);
-            sh.notice = Some(format!(
-                "item {n} overridden (written with the sign-off)"
-            ));
+            sh.notice = Some(format!("item {n} overridden (written with the sign-off)"));
         }
         (Purpose::SignOperator, _) => {
             model.screens.preflight.sign(sh);

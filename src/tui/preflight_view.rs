@@ -4,10 +4,10 @@
 //! below the table.
 
 use crate::tui::component::Component;
+use crate::tui::form::{Form, Work};
 use crate::tui::keys::{Binding, Key, Move};
 use crate::tui::model::Shared;
 use crate::tui::table::{self, Column, Window};
-use crate::tui::form::{Form, Work};
 use cagehand::preflight::{ItemEval, ItemKind, Outcome, SignOff};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
@@ -129,10 +129,7 @@ impl PreflightScreen {
         } else if !item.blocks() {
             shared.notice = Some(format!("item {n} passes: nothing to override"));
         } else if !item.can_override {
-            shared.notice = Some(format!(
-                "item {n} cannot be overridden: {}",
-                item.detail
-            ));
+            shared.notice = Some(format!("item {n} cannot be overridden: {}", item.detail));
         } else {
             let current = self.signoff.overrides.get(&n).map(String::as_str);
             shared.form = Some(Form::override_reason(n, current));
@@ -315,11 +312,13 @@ impl Component for PreflightScreen {
             },
         };
         frame.render_widget(
-            Paragraph::new(vec![verdict, detail_text]).wrap(Wrap { trim: true }).block(
-                Block::default()
-                    .borders(Borders::TOP)
-                    .title(" Selected item "),
-            ),
+            Paragraph::new(vec![verdict, detail_text])
+                .wrap(Wrap { trim: true })
+                .block(
+                    Block::default()
+                        .borders(Borders::TOP)
+                        .title(" Selected item "),
+                ),
             detail,
         );
     }
@@ -342,7 +341,10 @@ mod tests {
         );
         let s = render_text(&m, 50, 14);
         assert!(s.contains("result"), "{s}");
-        assert!(s.contains("WAITING") && s.contains("[ ]"), "hand items show their tick box:\n{s}");
+        assert!(
+            s.contains("WAITING") && s.contains("[ ]"),
+            "hand items show their tick box:\n{s}"
+        );
         assert!(s.contains("Selected item"), "{s}");
     }
 

@@ -239,17 +239,15 @@ fn help(model: &Model, frame: &mut Frame) {
     );
     frame.render_widget(Clear, popup);
     frame.render_widget(
-        Paragraph::new(lines)
-            .wrap(Wrap { trim: false })
-            .block(
-                Block::default()
-                    .borders(Borders::ALL)
-                    .title(" Keys ")
-                    .title_bottom(Line::styled(
-                        " Estimates are not guarantees: inspect the cage, keep clear of propellers. ",
-                        t.warn,
-                    )),
-            ),
+        Paragraph::new(lines).wrap(Wrap { trim: false }).block(
+            Block::default()
+                .borders(Borders::ALL)
+                .title(" Keys ")
+                .title_bottom(Line::styled(
+                    " Estimates are not guarantees: inspect the cage, keep clear of propellers. ",
+                    t.warn,
+                )),
+        ),
         popup,
     );
 }

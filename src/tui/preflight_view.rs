@@ -355,4 +355,97 @@ mod tests {
         let s = render_text(&m, 80, 24);
         assert!(s.contains("evaluating the checklist"), "{s}");
     }
+
+    fn key(c: char) -> Msg {
+        Msg::Key(KeyEvent::new(KeyCode::Char(c), KeyModifiers::NONE))
+    }
+
+    /// The demo's checklist with item `n` selected.
+    fn on_item(n: u32) -> crate::tui::model::Model {
+        let m = demo_model();
+        let st = tracked(&m, &[], 0.0);
+        let mut m = with_preflight(m, &st);
+        update(&mut m, key('4'));
+        let items = &m.shared.live.preflight.as_ref().unwrap().items;
+        m.screens.preflight.selected = items.iter().position(|i| i.n == n).unwrap();
+        m
+    }
+
+    #[test]
+    fn space_ticks_only_hand_items() {
+        let m = on_item(1);
+        let eval = m.shared.live.preflight.clone().unwrap();
+        let hand = eval.hand_items()[0];
+        let mut m = on_item(hand);
+        update(&mut m, key(' '));
+        assert!(m.screens.preflight.signoff.ticked.contains(&hand));
+        update(&mut m, key(' '));
+        assert!(!m.screens.preflight.signoff.ticked.contains(&hand));
+        let auto = eval
+            .items
+            .iter()
+            .find(|i| i.kind == cagehand::preflight::ItemKind::Auto)
+            .unwrap()
+            .n;
+        let mut m = on_item(auto);
+        update(&mut m, key(' '));
+        assert!(m.screens.preflight.signoff.ticked.is_empty());
+        assert!(m.shared.notice.as_deref().unwrap().contains("not ticked"));
+    }
+
+    #[test]
+    fn signing_while_blocked_is_refused_here_with_the_reasons() {
+        let mut m = on_item(1);
+        m.shared.operator = Some("ana".into());
+        update(&mut m, key('s'));
+        assert!(m.shared.outbox.is_empty(), "nothing asked to be written");
+        let notice = m.shared.notice.clone().unwrap();
+        assert!(notice.starts_with("NOT signed"), "{notice}");
+    }
+
+    #[test]
+    fn an_item_that_cannot_be_overridden_says_why() {
+        let m = on_item(1);
+        let eval = m.shared.live.preflight.clone().unwrap();
+        let mut checked = 0;
+        if let Some(i) = eval.items.iter().find(|i| i.blocks() && !i.can_override) {
+            checked += 1;
+            let mut m = on_item(i.n);
+            update(&mut m, key('o'));
+            assert!(m.shared.form.is_none());
+            assert!(
+                m.shared
+                    .notice
+                    .as_deref()
+                    .unwrap()
+                    .contains("cannot be overridden")
+            );
+        }
+        if let Some(i) = eval.items.iter().find(|i| i.blocks() && i.can_override) {
+            checked += 1;
+            let mut m = on_item(i.n);
+            update(&mut m, key('o'));
+            assert!(
+                m.shared.form.is_some(),
+                "an overridable item opens the form"
+            );
+            for c in "tethered test".chars() {
+                update(&mut m, key(c));
+            }
+            update(
+                &mut m,
+                Msg::Key(KeyEvent::new(KeyCode::Enter, KeyModifiers::NONE)),
+            );
+            assert_eq!(
+                m.screens
+                    .preflight
+                    .signoff
+                    .overrides
+                    .get(&i.n)
+                    .map(String::as_str),
+                Some("tethered test")
+            );
+        }
+        assert!(checked > 0, "the stale demo has a blocking item: {eval:?}");
+    }
 }

@@ -1,4 +1,4 @@
-//! Attitude conventions (DESIGN.md contract): world NED, body FRD, attitude
+//! Attitude conventions (docs/design.md contract): world NED, body FRD, attitude
 //! is the rotation body -> world as a Hamilton unit quaternion; Euler angles
 //! are aerospace Z-Y-X, R = Rz(yaw) Ry(pitch) Rx(roll).
 
@@ -70,7 +70,7 @@ mod tests {
 
     #[test]
     fn euler_to_quaternion_reference_vector() {
-        // REFERENCES.md: roll 10, pitch 20, yaw 30 deg -> q, computed with scipy
+        // docs/references.md: roll 10, pitch 20, yaw 30 deg -> q, computed with scipy
         // Rotation (Z-Y-X); convention per ISO 1151-1 and Diebel 2006.
         let q = quat_from_rpy_deg(10.0, 20.0, 30.0);
         let c = q.coords; // (x, y, z, w)
@@ -90,7 +90,7 @@ mod tests {
 
     #[test]
     fn rodrigues_reference_vector() {
-        // REFERENCES.md: axis (1,2,3)/sqrt(14), 60 deg, v = (1,0,0), computed.
+        // docs/references.md: axis (1,2,3)/sqrt(14), 60 deg, v = (1,0,0), computed.
         let axis = Vector3::new(1.0, 2.0, 3.0);
         let q = rotate_about_world(&UnitQuaternion::identity(), &axis, 60f64.to_radians());
         let v = q * Vector3::x();

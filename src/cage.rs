@@ -566,7 +566,7 @@ mod tests {
         assert_eq!(c.rod_count(), 6);
         assert_eq!(c.members.len(), 30);
         assert_eq!(c.faces.len(), 20);
-        // REFERENCES.md (Pellegrino & Calladine 1986; Tibert & Pellegrino 2003):
+        // docs/references.md (Pellegrino & Calladine 1986; Tibert & Pellegrino 2003):
         // 8 faces bounded by three strings, 12 by two strings and a rod gap.
         let three = c.faces.iter().filter(|f| f.string_edges == 3).count();
         let two = c.faces.iter().filter(|f| f.string_edges == 2).count();
@@ -575,7 +575,7 @@ mod tests {
 
     #[test]
     fn icosa6_string_length_is_sqrt6_over_4() {
-        // REFERENCES.md: at s = L/2, string length sqrt(6)/4 L (Tibert &
+        // docs/references.md: at s = L/2, string length sqrt(6)/4 L (Tibert &
         // Pellegrino 2003; Burkhardt 2008, 2.3).
         let p = Profile::demo().unwrap();
         let CageShape::Icosa6 { rod_length_m, .. } = p.cage else {

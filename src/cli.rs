@@ -13,6 +13,7 @@ pub mod impact_cmd;
 pub mod link_args;
 pub mod live;
 pub mod log_cmd;
+pub mod margin_cmd;
 mod plan_cmd;
 mod preflight_cmd;
 mod profile_cmd;
@@ -66,7 +67,8 @@ pub fn color_choice() -> ColorChoice {
 
 #[derive(Debug, Subcommand)]
 enum Command {
-    /// Cage geometry, faces, members and statics report.
+    /// Cage geometry, faces, members and statics report; `cage margin`:
+    /// the remaining margin per face.
     Cage(cage_cmd::Args),
     /// Profile tools.
     Profile(profile_cmd::Args),

@@ -166,6 +166,9 @@ struct Acc {
     /// An `ok` finding recorded after the latest impact that added damage.
     inspected_since_damage: Option<String>,
     replaced: Option<String>,
+    /// Findings still in force (fray until replaced; slack and loose end
+    /// until a later `ok`), for the capacity derating of the margin.
+    open: BTreeSet<FindingKind>,
 }
 
 fn with_note(s: String, note: &Option<String>) -> String {
@@ -177,6 +180,40 @@ fn with_note(s: String, note: &Option<String>) -> String {
 
 /// Compute the health of every member of `cage` from the log's records.
 pub fn assess(records: &[Record], cage: &Cage, rules: &Inspection) -> HealthReport {
+    let (acc, unknown) = accumulate(records, cage, rules);
+    let members = cage
+        .members
+        .iter()
+        .zip(acc)
+        .map(|(m, a)| judge(&m.id, m.kind, a, rules))
+        .collect();
+    let warnings = unknown
+        .into_iter()
+        .map(|id| {
+            format!(
+                "the log names member {id}, which this cage does not have; its entries are ignored"
+            )
+        })
+        .collect();
+    HealthReport { members, warnings }
+}
+
+/// The findings still in force on every member (in cage member order):
+/// a fray until the member is replaced, slack and a loose end until a
+/// later `ok` finding or a replacement; by the same walk as [`assess`].
+/// Cuts and cracks are listed too, though they already make a member
+/// REPLACE NOW.
+pub fn open_findings(records: &[Record], cage: &Cage, rules: &Inspection) -> Vec<Vec<FindingKind>> {
+    accumulate(records, cage, rules)
+        .0
+        .into_iter()
+        .map(|a| a.open.into_iter().collect())
+        .collect()
+}
+
+/// Walk the records in file order and gather, per member, what the rules
+/// judge; also the member ids the log names that the cage does not have.
+fn accumulate(records: &[Record], cage: &Cage, rules: &Inspection) -> (Vec<Acc>, BTreeSet<String>) {
     let index: BTreeMap<&str, usize> = cage
         .members
         .iter()
@@ -254,6 +291,12 @@ pub fn assess(records: &[Record], cage: &Cage, rules: &Inspection) -> HealthRepo
                 };
                 let a = &mut acc[i];
                 let text = with_note(format!("finding {} ({when})", f.kind.name()), &f.note);
+                if f.kind == FindingKind::Ok {
+                    a.open
+                        .retain(|k| !matches!(k, FindingKind::Slack | FindingKind::LooseEnd));
+                } else {
+                    a.open.insert(f.kind);
+                }
                 match f.kind {
                     // A cut line is retired (Cordage Institute CI 2001-04,
                     // Fiber Rope Inspection and Retirement Criteria) and a
@@ -293,21 +336,7 @@ pub fn assess(records: &[Record], cage: &Cage, rules: &Inspection) -> HealthRepo
             Event::Preflight(_) | Event::Note(_) | Event::Detection(_) | Event::Dismissal(_) => {}
         }
     }
-    let members = cage
-        .members
-        .iter()
-        .zip(acc)
-        .map(|(m, a)| judge(&m.id, m.kind, a, rules))
-        .collect();
-    let warnings = unknown
-        .into_iter()
-        .map(|id| {
-            format!(
-                "the log names member {id}, which this cage does not have; its entries are ignored"
-            )
-        })
-        .collect();
-    HealthReport { members, warnings }
+    (acc, unknown)
 }
 
 fn judge(id: &str, kind: MemberKind, a: Acc, rules: &Inspection) -> MemberHealth {

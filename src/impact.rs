@@ -146,8 +146,10 @@ pub struct ImpactAnalysis {
     pub iterations: usize,
 }
 
-/// The contact points and the lumped masses that balance them.
-struct ContactLoad {
+/// The contact points and the lumped masses that balance them: the load
+/// an impact analysis follows, public so the remaining margin walks the
+/// same load path (`crate::margin`).
+pub struct ContactLoad {
     /// (node, unit share of the contact force): shares sum to the unit
     /// inward direction.
     contact: Vec<(usize, Vector3<f64>)>,
@@ -155,7 +157,8 @@ struct ContactLoad {
 }
 
 impl ContactLoad {
-    fn new(cage: &Cage, strike: Strike) -> Result<ContactLoad, StaticsError> {
+    /// The load of a strike on `cage`; an unknown face or node is an error.
+    pub fn new(cage: &Cage, strike: Strike) -> Result<ContactLoad, StaticsError> {
         let contact = match strike {
             Strike::Face(i) => {
                 let face = cage.faces.get(i).ok_or(StaticsError::UnknownFace {
@@ -184,7 +187,7 @@ impl ContactLoad {
     }
 
     /// Unit inward direction of the contact force.
-    fn direction(&self) -> Vector3<f64> {
+    pub fn direction(&self) -> Vector3<f64> {
         self.contact.iter().map(|(_, s)| s).sum()
     }
 
@@ -192,7 +195,7 @@ impl ContactLoad {
     /// it at the current positions: rigid acceleration a = F/m and angular
     /// acceleration alpha = J^-1 M about the lumped centre of mass, inertial
     /// force -m_i (a + alpha x r_i). Self-equilibrated at `pos`.
-    fn forces(&self, pos: &[Vector3<f64>], force_n: f64, out: &mut [Vector3<f64>]) {
+    pub fn forces(&self, pos: &[Vector3<f64>], force_n: f64, out: &mut [Vector3<f64>]) {
         let m: f64 = self.masses_kg.iter().sum();
         let c = centroid_weighted(pos, &self.masses_kg);
         let mut total = Vector3::zeros();
@@ -220,7 +223,7 @@ impl ContactLoad {
     }
 
     /// Mean displacement of the contact nodes along the inward direction.
-    fn displacement_m(&self, deformation: &[Vector3<f64>]) -> f64 {
+    pub fn displacement_m(&self, deformation: &[Vector3<f64>]) -> f64 {
         let dir = self.direction();
         let dir = dir / dir.norm().max(f64::MIN_POSITIVE);
         let sum: f64 = self
@@ -304,6 +307,30 @@ impl CageStatics {
     }
 }
 
+/// The surface preset by name (the profile's default when `None`): its
+/// name and contact stiffness, or an error listing the known names.
+pub fn surface_stiffness_n_per_m(
+    profile: &Profile,
+    name: Option<&str>,
+) -> Result<(String, f64), StaticsError> {
+    let name = name.unwrap_or(profile.impact.default_surface.as_str());
+    profile
+        .impact
+        .surfaces
+        .iter()
+        .find(|s| s.name == name)
+        .map(|s| (s.name.clone(), s.stiffness_n_per_m))
+        .ok_or_else(|| StaticsError::UnknownSurface {
+            name: name.to_string(),
+            known: profile
+                .impact
+                .surfaces
+                .iter()
+                .map(|s| s.name.clone())
+                .collect(),
+        })
+}
+
 /// Analyse an impact: the peak force by the method the input allows, and
 /// the member forces from the nonlinear equilibrium at that peak.
 pub fn analyse_impact(
@@ -365,24 +392,7 @@ pub fn analyse_impact_on(
             surface,
         } => {
             let v = positive("speed (m/s)", *speed_m_per_s)?;
-            let name = surface
-                .as_deref()
-                .unwrap_or(profile.impact.default_surface.as_str());
-            let k_s = profile
-                .impact
-                .surfaces
-                .iter()
-                .find(|s| s.name == name)
-                .map(|s| s.stiffness_n_per_m)
-                .ok_or_else(|| StaticsError::UnknownSurface {
-                    name: name.to_string(),
-                    known: profile
-                        .impact
-                        .surfaces
-                        .iter()
-                        .map(|s| s.name.clone())
-                        .collect(),
-                })?;
+            let k_s = surface_stiffness_n_per_m(profile, surface.as_deref())?.1;
             let energy = 0.5 * mass * v * v;
             let mut upper = v * (mass * k_s).sqrt();
             let mut states: Vec<Equilibrium> = Vec::new();
@@ -459,7 +469,7 @@ mod tests {
     #[test]
     fn half_sine_peak_is_pi_over_two_of_the_impulse_mean() {
         // Goldsmith, Impact, 1960; Stronge, Impact Mechanics, 2000
-        // (REFERENCES.md): F_avg = m (1 + e) v / dt, peak pi/2 F_avg.
+        // (docs/references.md): F_avg = m (1 + e) v / dt, peak pi/2 F_avg.
         // m 0.5 kg, e 0.2, v 4 m/s, dt 10 ms: F_avg = 240 N, peak 376.99 N.
         assert_relative_eq!(
             half_sine_peak_n(0.5, 4.0, 0.2, 0.01),
@@ -475,7 +485,7 @@ mod tests {
 
     #[test]
     fn energy_balance_of_two_linear_springs_in_series() {
-        // Goldsmith, Impact, 1960 (REFERENCES.md): a mass m at speed v on a
+        // Goldsmith, Impact, 1960 (docs/references.md): a mass m at speed v on a
         // linear spring k peaks at F = v sqrt(m k). Cage spring 3e4 N/m in
         // series with a surface of 1.5e5 N/m: k = 2.5e4 N/m; m 0.78 kg,
         // v 3 m/s -> F = 3 sqrt(0.78 * 2.5e4) = 418.93 N.
@@ -504,7 +514,7 @@ mod tests {
 
     #[test]
     fn a_face_impact_needs_the_nonlinear_solution() {
-        // DESIGN.md ("Why the linear answer is not enough"): the mechanism
+        // docs/design.md ("Why the linear answer is not enough"): the mechanism
         // leaves part of a face load unbalanced by the linear force method,
         // while the nonlinear equilibrium balances it. The design expects a
         // few hundred newtons on a face to slacken some strings and move
@@ -537,7 +547,7 @@ mod tests {
 
     #[test]
     fn slow_impact_matches_the_linear_spring_formula() {
-        // Goldsmith 1960 (REFERENCES.md): in the linear range the peak is
+        // Goldsmith 1960 (docs/references.md): in the linear range the peak is
         // F = v sqrt(m k), k the cage's face stiffness in series with the
         // surface's. The cage's stiffness is taken from a small static load.
         let (p, c) = demo();

@@ -20,6 +20,7 @@ pub mod impact_detect;
 pub mod link;
 pub mod logbook;
 pub mod logwork;
+pub mod margin;
 pub mod net;
 pub mod preflight;
 pub mod profile;

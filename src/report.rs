@@ -5,6 +5,7 @@ use crate::cage::MemberKind;
 use crate::health::{HealthReport, MemberHealth};
 use crate::logbook::Record;
 use crate::logbook::chain::{ChainHead, Integrity};
+use crate::margin::MarginTable;
 use crate::text;
 
 /// What a report is about.
@@ -46,8 +47,78 @@ fn cell(s: &str) -> String {
     text::markdown(s)
 }
 
+/// The remaining margin: per face, the impact speed at which the first
+/// member reaches its capacity, with the cage as the log says it is.
+fn margin_section(margin: Result<&MarginTable, String>) -> String {
+    let mut s = String::from("## Remaining margin\n\n");
+    let t = match margin {
+        Ok(t) => t,
+        Err(why) => {
+            s.push_str(&format!("Not computed: {}\n\n", cell(&why)));
+            return s;
+        }
+    };
+    s.push_str(&format!(
+        "Impact speed on {} at which the first member reaches its capacity, \
+from the nonlinear statics and the energy balance of the impact analysis.\n\n",
+        cell(&t.surface)
+    ));
+    if t.grounded() {
+        s.push_str(&format!(
+            "**GROUNDED**: {} at REPLACE NOW count as failed; every speed is 0. \
+Do not fly until replaced.\n\n",
+            t.grounded_by.join(", ")
+        ));
+    }
+    for d in &t.derated {
+        s.push_str(&format!(
+            "- {} counted at {:.0}% of its capacity (open findings)\n",
+            d.id,
+            d.factor * 100.0
+        ));
+    }
+    if !t.derated.is_empty() {
+        s.push('\n');
+    }
+    s.push_str("| Face | Speed (m/s) | Peak (g) | First to fail |\n");
+    s.push_str("|---|---:|---:|---|\n");
+    for f in &t.faces {
+        s.push_str(&format!(
+            "| {} | {:.2} | {:.0} | {} |\n",
+            f.id,
+            f.failure.speed_m_per_s,
+            f.failure.peak_g,
+            f.first_member
+                .as_deref()
+                .unwrap_or("none (beyond the model)")
+        ));
+    }
+    if let Some(w) = t.weakest_face() {
+        s.push_str(&format!(
+            "\nWeakest: **{}** at {:.2} m/s.\n",
+            w.id, w.failure.speed_m_per_s
+        ));
+    }
+    s.push_str(
+        "\nNot captured: fatigue beyond Miner's sum, hidden composite damage, \
+joints and end fittings. These are model estimates: inspect the cage physically.\n\n",
+    );
+    s
+}
+
 /// The Markdown maintenance report.
 pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> String {
+    markdown_with_margin(h, records, health, None)
+}
+
+/// The Markdown maintenance report with a remaining-margin section: the
+/// table, or why it could not be computed.
+pub fn markdown_with_margin(
+    h: &ReportHeader,
+    records: &[Record],
+    health: &HealthReport,
+    margin: Option<Result<&MarginTable, String>>,
+) -> String {
     let mut s = String::new();
     s.push_str(&format!(
         "# Cage maintenance report: {}\n\n",
@@ -135,6 +206,10 @@ pub fn markdown(h: &ReportHeader, records: &[Record], health: &HealthReport) -> 
             s.push_str(&format!("- {}\n", cell(w)));
         }
         s.push('\n');
+    }
+
+    if let Some(m) = margin {
+        s.push_str(&margin_section(m));
     }
 
     s.push_str("## Events\n\n");

@@ -2,7 +2,7 @@
 //! from its attitude alone.
 //!
 //! The face is the one whose outward normal (body frame) is closest to the
-//! body-frame gravity direction g_b = R^T (0, 0, 1) (DESIGN.md). That
+//! body-frame gravity direction g_b = R^T (0, 0, 1) (docs/design.md). That
 //! direction does not depend on yaw, so neither does anything here.
 //!
 //! A face is reported as *resting* only when
@@ -268,7 +268,7 @@ mod tests {
 
     #[test]
     fn dot_product_fit_agrees_with_the_smallest_angle() {
-        // The face of least angle to gravity (DESIGN.md's definition) found
+        // The face of least angle to gravity (docs/design.md's definition) found
         // by comparing angles must be the one found by dot products, with
         // the same errors, over directions all round the sphere.
         let (_, c) = demo();

@@ -111,7 +111,7 @@ fn regular_icosahedron_angles_and_margin() {
     assert_eq!(c.faces.len(), 20);
     assert_eq!(euler_characteristic(&c), 2);
     // Dihedral angle arccos(-sqrt(5)/3) = 138.1897 deg, so a roll between
-    // neighbouring faces is 41.8103 deg (REFERENCES.md).
+    // neighbouring faces is 41.8103 deg (docs/references.md).
     for ang in adjacent_normal_angles_deg(&c) {
         assert_relative_eq!(ang, 41.8103, epsilon = 1e-4);
     }

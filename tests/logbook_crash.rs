@@ -79,14 +79,21 @@ fn sigkill_at_random_moments_loses_no_reported_record() {
     let mut all_reported = BTreeSet::new();
     let start = Instant::now();
     let kills = 30;
-    for _ in 0..kills {
+    for k in 0..kills {
         let mut child = cagehand(&data, &["note", "crash", "--repeat", "1000000"])
             .stdout(Stdio::piped())
             .stderr(Stdio::null())
             .spawn()
             .unwrap();
-        // 2 to 60 ms: sometimes during start-up, mostly mid-stream.
-        std::thread::sleep(Duration::from_millis(2 + rng.next() % 59));
+        // 2 to 60 ms: sometimes during start-up, mostly mid-stream; every
+        // fifth child lives 150 to 350 ms, so that even on a loaded machine
+        // (a start-up of about 100 ms) some children are killed mid-write.
+        let wait_ms = if k % 5 == 4 {
+            150 + rng.next() % 201
+        } else {
+            2 + rng.next() % 59
+        };
+        std::thread::sleep(Duration::from_millis(wait_ms));
         child.kill().unwrap(); // SIGKILL on Unix
         child.wait().unwrap();
         let mut out = String::new();

@@ -9,7 +9,7 @@ use cagehand::statics::{Structure, linear_load_case, self_stress};
 use nalgebra::{Rotation3, Vector3};
 use proptest::prelude::*;
 
-/// Node positions of the six-strut cage (REFERENCES.md): (+-s/2, 0, +-L/2),
+/// Node positions of the six-strut cage (docs/references.md): (+-s/2, 0, +-L/2),
 /// (+-L/2, +-s/2, 0), (0, +-L/2, +-s/2); rods join nodes (2k, 2k+1).
 fn icosa6(l: f64, s: f64) -> Vec<Vector3<f64>> {
     let (h, q) = (l / 2.0, s / 2.0);
@@ -132,7 +132,7 @@ fn explicit_six_strut_matches_published_values() {
     assert_eq!(strings.len(), 24);
     let (p, c) = build(&pos, &strings, COM);
     let ss = self_stress(&Structure::from_cage(&c, &p), 20.0).unwrap();
-    // Pellegrino & Calladine 1986 (REFERENCES.md): rank 29, one self-stress
+    // Pellegrino & Calladine 1986 (docs/references.md): rank 29, one self-stress
     // state, one mechanism.
     assert_eq!((ss.rank, ss.states, ss.mechanisms), (29, 1, 1));
     assert!(ss.prestress_ok);
@@ -229,7 +229,7 @@ proptest! {
     }
 }
 
-/// The DESIGN.md case ("Why the linear answer is not enough"): a 0.3 m
+/// The docs/design.md case ("Why the linear answer is not enough"): a 0.3 m
 /// six-strut cage of 0.42 kg, 8 kN strings at 15 N pretension, 300 N on F1.
 ///
 /// "8 kN strings" is read here as a string axial stiffness E A = 8 kN
@@ -240,7 +240,7 @@ proptest! {
 fn design_case_toml() -> String {
     let modulus_gpa = 8.0 / (std::f64::consts::PI / 4.0);
     format!(
-        "# Invented test vehicle for the DESIGN.md case.\n\
+        "# Invented test vehicle for the docs/design.md case.\n\
          [vehicle]\nid = \"design-case\"\nmass_kg = 0.42\ncom_m = [0.0, 0.0, 0.0]\n\n\
          [cage]\nkind = \"icosa6\"\nrod_length_m = 0.3\n\n\
          [cage.rod_section]\nouter_diameter_mm = 8.0\ninner_diameter_mm = 6.0\n\
@@ -274,10 +274,10 @@ fn design_face_impact_slackens_strings_and_moves_the_face_a_centimetre() {
     assert!((r.force_n - 300.0).abs() < 1e-9);
     assert!(r.residual_n < 1e-6 * r.force_n);
     assert!(r.members.iter().all(|m| m.force_n < 2000.0));
-    // DESIGN.md design expectation: "a 300 N face impact slackens a few
+    // docs/design.md design expectation: "a 300 N face impact slackens a few
     // strings and moves the face in by about a centimetre".
     assert!(!slack.is_empty(), "no string slack: {slack:?}");
-    // DESIGN.md design expectation: about a centimetre, taken as 0.5-2.0 cm.
+    // docs/design.md design expectation: about a centimetre, taken as 0.5-2.0 cm.
     assert!(
         (0.005..=0.020).contains(&r.face_displacement_m),
         "face displacement {:.4} m",

@@ -19,6 +19,15 @@ pub struct Args {
     /// Print JSON instead of the readable report.
     #[arg(long)]
     json: bool,
+    #[command(subcommand)]
+    action: Option<Action>,
+}
+
+#[derive(Debug, clap::Subcommand)]
+enum Action {
+    /// Remaining margin: per face, the impact speed at which the first
+    /// member reaches its capacity, with the cage as the log says it is.
+    Margin(super::margin_cmd::Args),
 }
 
 #[derive(Debug, Serialize)]
@@ -190,6 +199,9 @@ fn report<'a>(
 
 /// Run the cage command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
+    if let Some(Action::Margin(m)) = &args.action {
+        return super::margin_cmd::run(m, &args.profile);
+    }
     let l = args.profile.load()?;
     super::progress::Large::new(&l.cage).stage("self-stress of the cage");
     let ss = self_stress(

@@ -917,7 +917,19 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         head: book.head(),
                         integrity: Some(&report.integrity),
                     };
-                    let md = export::markdown(&header, book.records(), &h);
+                    let margin = super::margin_cmd::compute(
+                        &l,
+                        book.records(),
+                        None,
+                        cagehand::margin::Strikes::Faces,
+                    )
+                    .map_err(|e| format!("{e:#}"));
+                    let md = export::markdown_with_margin(
+                        &header,
+                        book.records(),
+                        &h,
+                        Some(margin.as_ref().map_err(Clone::clone)),
+                    );
                     match (&note, report.new_file) {
                         // The warning goes right under the title, where a
                         // reader of the printed report cannot miss it.

@@ -163,6 +163,13 @@ fn evaluate(
     new_file: bool,
     trouble: Option<&str>,
 ) -> Evaluation {
+    // The margin item's figure, computed only when the profile asks for it;
+    // no answer leaves the item waiting (it blocks), never passing.
+    let margin = l.profile.preflight.min_margin_speed_m_per_s.and_then(|_| {
+        super::margin_cmd::compute(l, records, None, cagehand::margin::Strikes::Faces)
+            .ok()
+            .and_then(|t| t.summary())
+    });
     preflight::evaluate(&preflight::Inputs {
         profile: &l.profile,
         cage: &l.cage,
@@ -174,7 +181,7 @@ fn evaluate(
             trouble,
         },
         signing: live.and_then(|(_, key)| key.then_some(true)),
-        margin: None,
+        margin: margin.as_ref(),
     })
 }
 

@@ -1,7 +1,7 @@
 //! The log file format, pure: bytes in, records out, and records to lines.
 //! No file is touched here, so every rule can be tested on byte strings.
 //! How a single line is framed, hashed and chained is in
-//! [`chain`](super::chain); this module splits the file into its header and
+//! [`super::chain`]; this module splits the file into its header and
 //! lines, finds a torn tail, and gathers what the chain walk says into
 //! [`Integrity`].
 

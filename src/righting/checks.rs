@@ -129,7 +129,7 @@ fn icosahedron_tip_angle_is_half_the_roll_and_margin_is_a_over_2_sqrt3() {
                 continue;
             }
             rolls += 1;
-            // REFERENCES.md: dihedral arccos(-sqrt(5)/3) = 138.1897 deg, so a
+            // docs/references.md: dihedral arccos(-sqrt(5)/3) = 138.1897 deg, so a
             // roll is 41.8103 deg; the centre of mass passes over the edge
             // at half of it, 20.9052 deg (McGhee & Frank 1968; Messuri &
             // Klein, IEEE J. Robotics & Automation 1(3), 1985).
@@ -650,7 +650,7 @@ mod props {
 
 #[test]
 fn forward_only_rotors_rarely_roll_an_inverted_vehicle() {
-    // DESIGN.md "Feasibility": lying inverted, forward thrust presses the
+    // docs/design.md "Feasibility": lying inverted, forward thrust presses the
     // cage into its support face, so most rolls from inverted faces are
     // impossible; reversible motors open them.
     let p = Profile::demo().unwrap();

@@ -168,7 +168,7 @@ mod tests {
             let a = r.pivot[0].min(r.pivot[1]);
             let b = r.pivot[0].max(r.pivot[1]);
             let gap = !c.members.iter().any(|m| m.nodes == [a, b]);
-            // REFERENCES.md: string edge arccos(sqrt(3/5)) = 39.2315 deg, rod
+            // docs/references.md: string edge arccos(sqrt(3/5)) = 39.2315 deg, rod
             // gap 2 atan(1/2) = 53.1301 deg (computed with numpy from the
             // node coordinates of Jessen 1967 / Tibert & Pellegrino 2003).
             let want = if gap { 53.1301 } else { 39.2315 };

@@ -5,7 +5,7 @@
 //! Cost of a move = its rotation angle in degrees (commanded plus the
 //! passive rolls until it settles), times `vertex_pivot_weight` for vertex
 //! pivots. The A* heuristic is the angle between the current face's normal
-//! and the nearest take-off face's normal (REFERENCES.md; Hart, Nilsson &
+//! and the nearest take-off face's normal (docs/references.md; Hart, Nilsson &
 //! Raphael 1968): every roll turns the gravity direction by exactly its
 //! angle along a great circle, so the sum of the angles can never be less
 //! than the angle between the first and last normals, and weights >= 1

@@ -304,7 +304,7 @@ mod tests {
         let s = demo();
         let ss = self_stress(&s, 20.0).unwrap();
         // Pellegrino & Calladine, "Matrix analysis of statically and
-        // kinematically indeterminate frameworks", 1986 (REFERENCES.md):
+        // kinematically indeterminate frameworks", 1986 (docs/references.md):
         // 36 x 30, rank 29, one self-stress, one mechanism.
         assert_eq!(equilibrium_matrix(&s.pos_m, &s.bars).shape(), (36, 30));
         assert_eq!((ss.rank, ss.states, ss.mechanisms), (29, 1, 1));
@@ -394,7 +394,7 @@ mod tests {
         let ss = self_stress(&s, 20.0).unwrap();
         for (bar, &t) in s.bars.iter().zip(&ss.prestress_n) {
             match bar.kind {
-                // Tibert & Pellegrino 2003; Jessen 1967 (REFERENCES.md):
+                // Tibert & Pellegrino 2003; Jessen 1967 (docs/references.md):
                 // force ratio rod/string = -sqrt(6), force density ratio -3/2.
                 MemberKind::Rod => {
                     assert_relative_eq!(t / 20.0, -6f64.sqrt(), epsilon = 1e-9);

@@ -1,5 +1,5 @@
 //! Nonlinear equilibrium of the prestressed cage under loads the linear
-//! force method cannot balance (DESIGN.md, "Why the linear answer is not
+//! force method cannot balance (docs/design.md, "Why the linear answer is not
 //! enough"): unknown node positions; member forces from Hooke's law about
 //! rest lengths that carry the prestress; strings that cannot push;
 //! Newton iterations with the consistent tangent stiffness; load stepping;
@@ -10,7 +10,7 @@
 //! string with l < L0. Its consistent tangent on the node pair is
 //! k = (EA/L0) e e^T + (t/l) (I - e e^T) (zero material part when slack),
 //! which is Guest's K = A diag(EA/L0 - t/l) A^T + kron(Omega, I3)
-//! (Guest 2006, REFERENCES.md) written member by member.
+//! (Guest 2006, docs/references.md) written member by member.
 
 use super::{StaticsError, Structure, remove_rigid, rigid_modes, stack};
 use crate::cage::MemberKind;
@@ -555,7 +555,7 @@ mod tests {
 
     #[test]
     fn small_load_agrees_with_the_force_method() {
-        // REFERENCES.md (Zhang & Ohsaki 2015; Skelton & de Oliveira 2009,
+        // docs/references.md (Zhang & Ohsaki 2015; Skelton & de Oliveira 2009,
         // from memory): for a small load in the range of A the nonlinear
         // solution must agree with the linear force method (Pellegrino 1993).
         // Load: the two ends of rod R1 pulled apart, equal and opposite

@@ -14,6 +14,7 @@
 
 pub mod cage_view;
 pub mod component;
+pub mod form;
 pub mod keys;
 pub mod model;
 pub mod net_view;

@@ -20,7 +20,7 @@ const DEMO: &str = concat!(env!("CARGO_MANIFEST_DIR"), "/profiles/demo.toml");
 
 /// Schemas whose sections other branches write into docs/json.md: their
 /// commands are here already and run once the section is there.
-const SECTIONS_TO_COME: &[&str] = &["cagehand.margin/1"];
+const SECTIONS_TO_COME: &[&str] = &[];
 
 /// The documented field paths of each schema, read from the tables of the
 /// `##` sections whose heading names a `cagehand.` schema. A line such as
@@ -336,7 +336,13 @@ fn plan(d: &Path) -> Vec<Value> {
 
 fn margin(d: &Path) -> Vec<Value> {
     let data = some_log(d);
-    run(d, &["cage", "margin", "--json", "--data", &data], true)
+    let mut v = run(d, &["cage", "margin", "--json", "--data", &data], true);
+    v.extend(run(
+        d,
+        &["cage", "margin", "--json", "--nodes", "--data", &data],
+        true,
+    ));
+    v
 }
 
 fn preflight(d: &Path) -> Vec<Value> {

@@ -7,6 +7,7 @@ use super::Loaded;
 use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, lock_wait};
 use crate::transport::{Link, Mode};
+use crate::tui::form::Work;
 use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample, count};
 use crate::tui::theme::{ColourDepth, Theme};
 use cagehand::feed::Feed;
@@ -42,8 +43,14 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
         theme,
     )
     .with_health(health, health_source);
+    let mut model = model;
+    model.shared.operator = log.operator_opt();
+    model.shared.records = LogView::read(&loaded, log).records;
+    model.shared.live.pending = detection::pending(&model.shared.records);
     let (tx, rx) = mpsc::channel::<Msg>();
     let commander = link.commander();
+    let writer = loaded.clone();
+    let back = tx.clone();
     spawn_feed(link, loaded, log.clone(), tx.clone());
     let signal = crate::tui::run(model, tx, rx, |effect| match effect {
         Effect::SimRoll(face) => {
@@ -52,6 +59,21 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
             if let Some(c) = &commander {
                 let _ = c.send(SimCommand::Roll(face));
             }
+        }
+        Effect::Log {
+            operator,
+            work,
+            seen_seq,
+            eval,
+        } => {
+            let said = carry_out(&writer, log, &operator, &work, seen_seq, eval.as_deref());
+            // The record list, pending detections and member health anew
+            // at once, then what changed.
+            let fresh = LogView::read(&writer, log);
+            let _ = back.send(Msg::Records(fresh.records));
+            let (health, source) = read_health(&writer, log);
+            let _ = back.send(Msg::Health(health.map(Box::new), source));
+            let _ = back.send(Msg::Written(said));
         }
     })?;
     // Ended by a signal: the usual 128 + its number, after the restore.
@@ -229,6 +251,129 @@ impl LogView {
     }
 }
 
+/// Carry out one write the screens asked for; the words say what was
+/// written (and what it changed), on which vehicle, in which file, or why
+/// nothing was.
+fn carry_out(
+    l: &Loaded,
+    log: &LogOpts,
+    operator: &str,
+    work: &Work,
+    seen_seq: Option<u64>,
+    eval: Option<&preflight::Evaluation>,
+) -> String {
+    use cagehand::logwork::{self, Vehicle};
+    let vehicle = &l.profile.vehicle.id;
+    let dir = match log.data_dir() {
+        Ok(d) => d,
+        Err(e) => return format!("NOT written for {vehicle}: {e:#}"),
+    };
+    let mut book = match Logbook::open(&dir, vehicle, Access::Write, lock_wait()) {
+        Ok((b, _)) => b,
+        Err(e) => return format!("NOT written for {vehicle}: cannot open its cage log: {e}"),
+    };
+    let path = book.path().display().to_string();
+    let v = Vehicle {
+        profile: &l.profile,
+        cage: &l.cage,
+    };
+    let now = jiff::Timestamp::now();
+    let result = match work {
+        Work::Confirm {
+            seq,
+            strike,
+            input,
+            note,
+        } => logwork::confirm(
+            v,
+            &mut book,
+            operator,
+            now,
+            *seq,
+            strike,
+            input,
+            note.clone(),
+        ),
+        Work::Dismiss { seq, reason } => {
+            logwork::dismiss(v, &mut book, operator, now, *seq, reason)
+        }
+        Work::Finding { member, kind, note } => {
+            logwork::finding(v, &mut book, operator, now, member, *kind, note.clone())
+        }
+        Work::Replacement { member, part, note } => {
+            logwork::replacement(v, &mut book, operator, now, member, part, note.clone())
+        }
+        Work::Note(text) => logwork::note(v, &mut book, operator, now, text),
+        Work::Sign(signoff) => {
+            return sign(
+                &mut book, operator, now, seen_seq, eval, signoff, vehicle, &path,
+            );
+        }
+    };
+    match result {
+        Ok(w) => {
+            let changes = if w.changes.is_empty() {
+                "no status changed".to_string()
+            } else {
+                w.changes
+                    .iter()
+                    .map(|c| format!("{}: {} -> {}", c.id, c.from.label(), c.to.label()))
+                    .collect::<Vec<_>>()
+                    .join(", ")
+            };
+            let beyond = if w.beyond_model {
+                " (beyond the model: every member REPLACE NOW)"
+            } else {
+                ""
+            };
+            format!(
+                "{changes}{beyond}; #{} {} written for {vehicle} in {path}",
+                w.record.seq,
+                w.record.event.name()
+            )
+        }
+        Err(e) => format!("NOT written for {vehicle} ({path}): {e}"),
+    }
+}
+
+/// Sign the pre-flight, refused when the log changed since the checklist
+/// shown was evaluated (a record slipped in: evaluate again first) or a
+/// detection is pending in the log as it is now.
+#[allow(clippy::too_many_arguments)]
+fn sign(
+    book: &mut Logbook,
+    operator: &str,
+    now: jiff::Timestamp,
+    seen_seq: Option<u64>,
+    eval: Option<&preflight::Evaluation>,
+    signoff: &preflight::SignOff,
+    vehicle: &str,
+    path: &str,
+) -> String {
+    let Some(eval) = eval else {
+        return "NOT signed: the checklist was not evaluated".to_string();
+    };
+    if book.records().last().map(|r| r.seq) != seen_seq {
+        return format!(
+            "NOT signed: the cage log of {vehicle} changed since the checklist was shown; wait a second and sign again"
+        );
+    }
+    let pending = detection::pending(book.records());
+    if !pending.is_empty() {
+        return format!(
+            "NOT signed: {} pending in {path}",
+            count(pending.len(), "detection")
+        );
+    }
+    match preflight::sign_and_record(book, operator, now, eval, signoff) {
+        Ok(r) => format!(
+            "pre-flight signed off by {operator}: record #{} for {vehicle} in {path}",
+            r.seq
+        ),
+        Err(e) => format!("NOT signed for {vehicle}: {e}"),
+    }
+}
+
 /// Write a detection to the log at once; the notice says where it went
 /// (vehicle and file) or why it could not be written.
 fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEvent) -> String {
@@ -278,6 +423,9 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
                     fresh.margin = book.margin.take();
                 } else {
                     fresh = fresh.with_margin(&l);
+                    if tx.send(Msg::Records(fresh.records.clone())).is_err() {
+                        return;
+                    }
                     let (health, source) = read_health(&l, &log);
                     if tx.send(Msg::Health(health.map(Box::new), source)).is_err() {
                         return;

@@ -4,6 +4,7 @@
 //! to a cut column.
 
 use crate::tui::component::Component;
+use crate::tui::form::Form;
 use crate::tui::keys::{Binding, Key, Move};
 use crate::tui::model::{Shared, count};
 use crate::tui::table::{self, Column, Window, wrapped_height};
@@ -29,6 +30,16 @@ pub struct CageScreen {
 pub enum CageAction {
     /// Move the selection.
     Select(Move),
+    /// Confirm the selected detection as an impact (a form).
+    Confirm,
+    /// Dismiss the selected detection, with a reason (a form).
+    Dismiss,
+    /// Record a finding on the selected member (a form).
+    Finding,
+    /// Record a replacement of the selected member (a form).
+    Replacement,
+    /// Add a note (a form).
+    Note,
 }
 
 const KEYS: &[Binding<CageAction>] = &[
@@ -61,6 +72,31 @@ const KEYS: &[Binding<CageAction>] = &[
         keys: &[Key::End, Key::Char('G')],
         action: CageAction::Select(Move::Last),
         help: "last member",
+    },
+    Binding {
+        keys: &[Key::Char('y')],
+        action: CageAction::Confirm,
+        help: "confirm the oldest pending detection as an impact (form)",
+    },
+    Binding {
+        keys: &[Key::Char('x')],
+        action: CageAction::Dismiss,
+        help: "dismiss the oldest pending detection (reason required)",
+    },
+    Binding {
+        keys: &[Key::Char('f')],
+        action: CageAction::Finding,
+        help: "record a finding on the selected member",
+    },
+    Binding {
+        keys: &[Key::Char('R')],
+        action: CageAction::Replacement,
+        help: "replace the selected member (part or lot required)",
+    },
+    Binding {
+        keys: &[Key::Char('n')],
+        action: CageAction::Note,
+        help: "add a note to the cage log",
     },
 ];
 
@@ -96,6 +132,51 @@ fn kind_and_capacity(
 }
 
 impl CageScreen {
+    /// The detection the keys act on: the oldest pending one (the crew
+    /// resolves them in the order they happened).
+    fn selected_detection(&self, shared: &Shared) -> Option<u64> {
+        shared.live.pending.first().map(|d| d.seq)
+    }
+
+    /// The pending detections, then the latest records, newest first.
+    fn log_lines(&self, shared: &Shared, rows: usize) -> Vec<Line<'static>> {
+        let t = &shared.theme;
+        let chosen = self.selected_detection(shared);
+        let mut lines: Vec<Line> = shared
+            .live
+            .pending
+            .iter()
+            .map(|d| {
+                let mark = if Some(d.seq) == chosen { ">" } else { " " };
+                let speed = d
+                    .speed_m_per_s
+                    .map_or("speed ?".to_string(), |v| format!("{v:.1} m/s"));
+                Line::styled(
+                    format!(
+                        "{mark}#{} PENDING {:.1} g on {}, {speed}: y confirm, x dismiss",
+                        d.seq, d.peak_g, d.face
+                    ),
+                    t.alarm,
+                )
+            })
+            .collect();
+        for r in shared.records.iter().rev() {
+            if lines.len() >= rows {
+                break;
+            }
+            let time = r.time.get(11..16).unwrap_or(&r.time);
+            lines.push(Line::from(vec![
+                Span::styled(format!(" #{} {time} {} ", r.seq, r.operator), t.dim),
+                Span::styled(format!("{} ", r.event.name()), t.accent),
+                Span::styled(r.event.summary(), t.text),
+            ]));
+        }
+        if lines.is_empty() {
+            lines.push(Line::styled(" no records yet", t.dim));
+        }
+        lines
+    }
+
     fn health<'a>(&self, shared: &'a Shared, i: usize) -> Option<&'a MemberHealth> {
         let m = shared.cage.members.get(i)?;
         shared
@@ -117,7 +198,35 @@ impl Component for CageScreen {
     }
 
     fn act(&mut self, action: CageAction, shared: &mut Shared) -> bool {
-        let CageAction::Select(m) = action;
+        let member = shared.cage.members.get(self.selected).map(|m| m.id.clone());
+        let detection = self.selected_detection(shared);
+        let m = match action {
+            CageAction::Select(m) => m,
+            CageAction::Confirm | CageAction::Dismiss => {
+                match detection {
+                    Some(seq) if action == CageAction::Confirm => {
+                        shared.form = Some(Form::confirm(shared, seq))
+                    }
+                    Some(seq) => shared.form = Some(Form::dismiss(shared, seq)),
+                    None => shared.notice = Some("no pending detection to act on".into()),
+                }
+                return true;
+            }
+            CageAction::Finding | CageAction::Replacement => {
+                if let Some(id) = member {
+                    shared.form = Some(if action == CageAction::Finding {
+                        Form::finding(shared, &id)
+                    } else {
+                        Form::replacement(shared, &id)
+                    });
+                }
+                return true;
+            }
+            CageAction::Note => {
+                shared.form = Some(Form::note(shared));
+                return true;
+            }
+        };
         let len = shared.cage.members.len();
         let page = table_rows(shared.size.1.saturating_sub(3));
         self.selected = m.apply(self.selected, len, page);
@@ -132,13 +241,25 @@ impl Component for CageScreen {
         // a third of the body.
         let detail_h = (wrapped_height(std::slice::from_ref(&detail_line), area.width) + 1)
             .clamp(4, (area.height / 3).max(4));
-        let [caution, summary, table_area, detail] = Layout::vertical([
+        let log_h = if area.height >= 18 { 5 } else { 0 };
+        let [caution, summary, log_area, table_area, detail] = Layout::vertical([
             Constraint::Length(3),
             Constraint::Length(1),
+            Constraint::Length(log_h),
             Constraint::Min(4),
             Constraint::Length(detail_h),
         ])
         .areas(area);
+        if log_h > 0 {
+            frame.render_widget(
+                Paragraph::new(self.log_lines(shared, usize::from(log_h - 1))).block(
+                    Block::default()
+                        .borders(Borders::TOP)
+                        .title(" Cage log: pending, then latest (y x f R n) "),
+                ),
+                log_area,
+            );
+        }
         frame.render_widget(
             Paragraph::new(
                 cagehand::caution::CAUTION_LINES

@@ -33,6 +33,8 @@ pub enum Key {
     Home,
     /// End.
     End,
+    /// Backspace.
+    Backspace,
 }
 
 impl Key {
@@ -55,6 +57,7 @@ impl Key {
             (Key::PageDown, KeyCode::PageDown) => true,
             (Key::Home, KeyCode::Home) => true,
             (Key::End, KeyCode::End) => true,
+            (Key::Backspace, KeyCode::Backspace) => true,
             _ => false,
         }
     }
@@ -76,6 +79,7 @@ impl Key {
             Key::PageDown => "PgDn".to_string(),
             Key::Home => "Home".to_string(),
             Key::End => "End".to_string(),
+            Key::Backspace => "Backspace".to_string(),
         }
     }
 }

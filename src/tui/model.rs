@@ -8,6 +8,7 @@
 
 use crate::tui::cage_view::CageScreen;
 use crate::tui::component::Component;
+use crate::tui::form::{FORM_KEYS, Form, FormAction, Purpose, Work};
 use crate::tui::keys::{self, GLOBAL_KEYS, GlobalAction};
 use crate::tui::preflight_view::PreflightScreen;
 use crate::tui::righting_view::RightingScreen;
@@ -204,14 +205,33 @@ pub enum Msg {
     /// The cage log changed (this program or another wrote to it): member
     /// health anew, and where it came from or why there is none.
     Health(Option<Box<HealthReport>>, String),
+    /// The cage log's records as last read (the record list, the pending
+    /// detections).
+    Records(Vec<cagehand::logbook::Record>),
+    /// A write to the log was carried out (or refused): what changed, the
+    /// vehicle and the log file.
+    Written(String),
 }
 
 /// Side effects `update` asks the loop to carry out.
-#[derive(Debug, Clone, PartialEq, Eq)]
+#[derive(Debug, Clone, PartialEq)]
 pub enum Effect {
     /// Tell the in-process simulator to roll onto this face (the demo's
     /// stand-in for the operator flying the roll).
     SimRoll(String),
+    /// Write to the vehicle's cage log; the result comes back as
+    /// [`Msg::Written`] and fresh [`Msg::Records`] / [`Msg::Health`].
+    Log {
+        /// Who writes it.
+        operator: String,
+        /// What to write.
+        work: Work,
+        /// The newest sequence number the screen had read when it asked
+        /// (a sign-off is refused when the log changed since).
+        seen_seq: Option<u64>,
+        /// The checklist as evaluated when a sign-off was asked for.
+        eval: Option<Box<cagehand::preflight::Evaluation>>,
+    },
 }
 
 /// What every screen reads, and the few things any screen may change (the
@@ -240,6 +260,12 @@ pub struct Shared {
     pub outbox: Vec<Effect>,
     /// Terminal size (columns, rows), for page-sized scrolling.
     pub size: (u16, u16),
+    /// Who writes records (None: asked on the screen).
+    pub operator: Option<String>,
+    /// The cage log's records as last read.
+    pub records: Vec<cagehand::logbook::Record>,
+    /// The open log-work form, if any: it takes every key until Enter or Esc.
+    pub form: Option<Form>,
 }
 
 impl Shared {
@@ -300,6 +326,9 @@ impl Model {
                 health_source: "no cage log read".to_string(),
                 outbox: Vec::new(),
                 size: (80, 24),
+                operator: None,
+                records: Vec::new(),
+                form: None,
             },
             screens: Screens {
                 watch: WatchScreen::default(),
@@ -362,6 +391,15 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
             model.shared.health_source = source;
             true
         }
+        Msg::Records(records) => {
+            model.shared.live.pending = cagehand::logbook::detection::pending(&records);
+            model.shared.records = records;
+            true
+        }
+        Msg::Written(text) => {
+            model.shared.notice = Some(text);
+            true
+        }
         Msg::Signal(n) => {
             model.exit_signal = Some(n);
             model.quit = true;
@@ -380,6 +418,10 @@ fn dispatch<C: Component>(c: &mut C, shared: &mut Shared, key: &KeyEvent) -> Opt
 fn on_key(model: &mut Model, key: KeyEvent) -> bool {
     if key.kind == KeyEventKind::Release {
         return false;
+    }
+    if model.shared.form.is_some() {
+        on_form_key(model, &key);
+        return true;
     }
     let global = keys::find(GLOBAL_KEYS, &key);
     if model.help {
@@ -420,6 +462,88 @@ fn on_key(model: &mut Model, key: KeyEvent) -> bool {
             true
         }
     }
+}
+
+/// A key while a form is open: the form's keys, else a typed character;
+/// Ctrl-C still quits.
+fn on_form_key(model: &mut Model, key: &KeyEvent) {
+    use ratatui::crossterm::event::{KeyCode, KeyModifiers};
+    if keys::Key::Ctrl('c').matches(key) {
+        model.quit = true;
+        return;
+    }
+    let Some(mut form) = model.shared.form.take() else {
+        return;
+    };
+    match keys::find(FORM_KEYS, key) {
+        Some(FormAction::Cancel) => {
+            model.shared.notice = Some("cancelled: nothing written".to_string());
+            return;
+        }
+        Some(FormAction::Submit) => {
+            submit(model, form);
+            return;
+        }
+        Some(a) => form.act(a),
+        None => {
+            if let KeyCode::Char(c) = key.code
+                && !key
+                    .modifiers
+                    .intersects(KeyModifiers::CONTROL | KeyModifiers::ALT)
+            {
+                form.type_char(c);
+            }
+        }
+    }
+    model.shared.form = Some(form);
+}
+
+/// Enter in a form: write when every field is right, else keep the form
+/// open and say what is wrong.
+fn submit(model: &mut Model, form: Form) {
+    let sh = &mut model.shared;
+    let work = match form.work(sh) {
+        Ok(w) => w,
+        Err(why) => {
+            sh.notice = Some(format!("not written: {why}"));
+            sh.form = Some(form);
+            return;
+        }
+    };
+    if let Some(op) = form.operator() {
+        sh.operator = Some(op);
+    }
+    match (&form.purpose, work) {
+        (Purpose::Override(n), _) => {
+            let reason = form.value("reason").to_string();
+            model.screens.preflight.signoff.overrides.insert(*n, reason);
+            sh.notice = Some(format!("item {n} overridden (written with the sign-off)"));
+        }
+        (Purpose::SignOperator, _) => {
+            model.screens.preflight.sign(sh);
+        }
+        (_, Some(work)) => ask_write(sh, work, None),
+        (_, None) => {}
+    }
+}
+
+/// Queue a write to the log for the loop (the operator must be known).
+pub(crate) fn ask_write(
+    sh: &mut Shared,
+    work: Work,
+    eval: Option<Box<cagehand::preflight::Evaluation>>,
+) {
+    let Some(operator) = sh.operator.clone() else {
+        sh.notice = Some("not written: no operator name".to_string());
+        return;
+    };
+    sh.outbox.push(Effect::Log {
+        operator,
+        work,
+        seen_seq: sh.records.last().map(|r| r.seq),
+        eval,
+    });
+    sh.notice = Some("writing to the cage log...".to_string());
 }
 
 /// "1 step", "2 steps": a count with its noun, plural right.
@@ -721,6 +845,109 @@ mod tests {
         assert!(m.shared.health.is_some());
         assert_eq!(m.shared.health_source, "2 records in the test log");
         assert_eq!(m.screens.cage.selected, 5, "the screen's own state stays");
+    }
+
+    fn type_text(m: &mut Model, text: &str) {
+        for c in text.chars() {
+            update(m, key(KeyCode::Char(c)));
+        }
+    }
+
+    /// The demo with detection #4 pending in its read log.
+    fn with_pending_detection() -> Model {
+        use cagehand::logbook::{DetectionEvent, Event, Record};
+        let mut m = model();
+        let d = Record {
+            seq: 4,
+            time: "2026-12-02T05:40:00Z".into(),
+            operator: "ana".into(),
+            event: Event::Detection(DetectionEvent {
+                link_time_s: 3.0,
+                peak_g: 7.5,
+                direction_body: [0.0, 0.0, -1.0],
+                face: "F2".into(),
+                face_alignment: 1.0,
+                speed_m_per_s: None,
+                normal_speed_m_per_s: None,
+                source: "sim".into(),
+            }),
+        };
+        update(&mut m, Msg::Records(vec![d]));
+        m.shared.operator = Some("ana".into());
+        update(&mut m, key(KeyCode::Char('3')));
+        m
+    }
+
+    #[test]
+    fn esc_in_a_form_writes_nothing_and_keys_type_into_it() {
+        let mut m = with_pending_detection();
+        assert_eq!(m.shared.live.pending.len(), 1);
+        update(&mut m, key(KeyCode::Char('x')));
+        assert!(m.shared.form.is_some(), "x opens the dismissal form");
+        // q and the screen keys are typed, not obeyed, while a form is open.
+        type_text(&mut m, "q2 hand launch");
+        assert!(!m.quit && m.screen == Screen::Cage);
+        update(&mut m, key(KeyCode::Esc));
+        assert!(m.shared.form.is_none());
+        assert!(m.shared.outbox.is_empty(), "Esc writes nothing");
+    }
+
+    #[test]
+    fn a_confirmation_is_pre_filled_and_enter_asks_for_the_write() {
+        let mut m = with_pending_detection();
+        update(&mut m, key(KeyCode::Char('y')));
+        let f = m.shared.form.clone().expect("the confirm form");
+        assert_eq!(f.value("face or node"), "F2", "face from the detection");
+        assert_eq!(f.value("peak g"), "7.5", "no speed known: the peak");
+        update(&mut m, key(KeyCode::Enter));
+        match m.shared.outbox.as_slice() {
+            [Effect::Log { operator, work, .. }] => {
+                assert_eq!(operator, "ana");
+                assert_eq!(
+                    *work,
+                    Work::Confirm {
+                        seq: 4,
+                        strike: cagehand::logbook::StrikeRef::Face("F2".into()),
+                        input: cagehand::impact::ImpactInput::PeakAccel { g: 7.5 },
+                        note: None,
+                    }
+                );
+            }
+            other => panic!("one log write expected, got {other:?}"),
+        }
+    }
+
+    #[test]
+    fn a_bad_form_stays_open_with_what_was_typed() {
+        let mut m = with_pending_detection();
+        update(&mut m, key(KeyCode::Char('R')));
+        update(&mut m, key(KeyCode::Tab));
+        type_text(&mut m, "bent");
+        update(&mut m, key(KeyCode::Enter));
+        assert!(m.shared.outbox.is_empty(), "no part: nothing written");
+        let f = m.shared.form.as_ref().expect("the form stays open");
+        assert_eq!(f.value("note"), "bent");
+        assert!(m.shared.notice.as_deref().unwrap().contains("part or lot"));
+    }
+
+    #[test]
+    fn a_written_record_clears_the_pending_detection_at_once() {
+        use cagehand::logbook::{DismissalEvent, Event, Record};
+        let mut m = with_pending_detection();
+        let mut records = m.shared.records.clone();
+        records.push(Record {
+            seq: 5,
+            time: "2026-12-02T05:41:00Z".into(),
+            operator: "ana".into(),
+            event: Event::Dismissal(DismissalEvent {
+                detection: 4,
+                reason: "hand launch".into(),
+            }),
+        });
+        update(&mut m, Msg::Records(records));
+        update(&mut m, Msg::Written("#5 dismissal written".into()));
+        assert!(m.shared.live.pending.is_empty());
+        assert!(m.shared.notice.as_deref().unwrap().contains("#5"));
     }
 
     #[test]

@@ -4,10 +4,11 @@
 //! below the table.
 
 use crate::tui::component::Component;
+use crate::tui::form::{Form, Work};
 use crate::tui::keys::{Binding, Key, Move};
 use crate::tui::model::Shared;
 use crate::tui::table::{self, Column, Window};
-use cagehand::preflight::{ItemEval, Outcome};
+use cagehand::preflight::{ItemEval, ItemKind, Outcome, SignOff};
 use ratatui::Frame;
 use ratatui::layout::{Constraint, Layout, Rect};
 use ratatui::style::{Modifier, Style};
@@ -15,12 +16,14 @@ use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Paragraph, Row, Wrap};
 
 /// The Preflight screen's own state: the selected item and the first row shown.
-#[derive(Debug, Clone, Default, PartialEq, Eq)]
+#[derive(Debug, Clone, Default, PartialEq)]
 pub struct PreflightScreen {
     /// Selected item.
     pub selected: usize,
     /// First item row shown.
     pub offset: usize,
+    /// Hand items ticked and override reasons typed, kept until signed.
+    pub signoff: SignOff,
 }
 
 /// What the Preflight screen's keys do.
@@ -28,6 +31,12 @@ pub struct PreflightScreen {
 pub enum PreflightAction {
     /// Move the selection.
     Select(Move),
+    /// Tick or untick the selected hand item.
+    Tick,
+    /// Type an override reason for the selected automatic item.
+    Override,
+    /// Sign the checklist off.
+    Sign,
 }
 
 const KEYS: &[Binding<PreflightAction>] = &[
@@ -40,6 +49,21 @@ const KEYS: &[Binding<PreflightAction>] = &[
         keys: &[Key::Up, Key::Char('k')],
         action: PreflightAction::Select(Move::Up),
         help: "previous item",
+    },
+    Binding {
+        keys: &[Key::Char(' '), Key::Char('t')],
+        action: PreflightAction::Tick,
+        help: "tick / untick the selected hand item",
+    },
+    Binding {
+        keys: &[Key::Char('o')],
+        action: PreflightAction::Override,
+        help: "override a failing or waiting item, with a reason",
+    },
+    Binding {
+        keys: &[Key::Char('s')],
+        action: PreflightAction::Sign,
+        help: "sign off (written only when nothing blocks)",
     },
 ];
 
@@ -71,6 +95,86 @@ impl PreflightScreen {
     }
 }
 
+impl PreflightScreen {
+    fn tick(&mut self, shared: &mut Shared) {
+        let Some(item) = Self::items(shared).get(self.selected) else {
+            shared.notice = Some("no item: the checklist is not evaluated yet".into());
+            return;
+        };
+        if item.kind != ItemKind::Hand {
+            shared.notice = Some(format!(
+                "item {} is checked by the tool, not ticked; o overrides it with a reason",
+                item.n
+            ));
+            return;
+        }
+        let n = item.n;
+        self.signoff.toggle(n);
+        let word = if self.signoff.ticked.contains(&n) {
+            "ticked"
+        } else {
+            "unticked"
+        };
+        shared.notice = Some(format!("item {n} {word}"));
+    }
+
+    fn ask_override(&mut self, shared: &mut Shared) {
+        let Some(item) = Self::items(shared).get(self.selected) else {
+            shared.notice = Some("no item: the checklist is not evaluated yet".into());
+            return;
+        };
+        let n = item.n;
+        if item.kind == ItemKind::Hand {
+            shared.notice = Some(format!("item {n} is a hand item: tick it with Space"));
+        } else if !item.blocks() {
+            shared.notice = Some(format!("item {n} passes: nothing to override"));
+        } else if !item.can_override {
+            shared.notice = Some(format!("item {n} cannot be overridden: {}", item.detail));
+        } else {
+            let current = self.signoff.overrides.get(&n).map(String::as_str);
+            shared.form = Some(Form::override_reason(n, current));
+        }
+    }
+
+    /// Sign off: refused here with every blocking reason, else asks for
+    /// the operator when none is known, else asks the loop to write.
+    pub fn sign(&mut self, shared: &mut Shared) {
+        let Some(eval) = shared.live.preflight.clone() else {
+            shared.notice = Some("cannot sign: the checklist is not evaluated yet".into());
+            return;
+        };
+        if let Err(r) = cagehand::preflight::sign(&eval, &self.signoff) {
+            shared.notice = Some(format!("NOT signed: {}", r.reasons.join("; ")));
+            return;
+        }
+        if shared.operator.is_none() {
+            shared.form = Some(Form::sign_operator());
+            return;
+        }
+        crate::tui::model::ask_write(
+            shared,
+            Work::Sign(self.signoff.clone()),
+            Some(Box::new(eval)),
+        );
+    }
+
+    /// The result shown for an item: a ticked hand item or an overridden
+    /// automatic one says so.
+    fn shown(&self, item: &ItemEval) -> String {
+        if item.kind == ItemKind::Hand {
+            if self.signoff.ticked.contains(&item.n) {
+                "[x]".to_string()
+            } else {
+                "[ ]".to_string()
+            }
+        } else if item.blocks() && self.signoff.overrides.contains_key(&item.n) {
+            "OVERRID".to_string()
+        } else {
+            mark(item.result)
+        }
+    }
+}
+
 impl Component for PreflightScreen {
     type Action = PreflightAction;
 
@@ -83,7 +187,21 @@ impl Component for PreflightScreen {
     }
 
     fn act(&mut self, action: PreflightAction, shared: &mut Shared) -> bool {
-        let PreflightAction::Select(m) = action;
+        let m = match action {
+            PreflightAction::Select(m) => m,
+            PreflightAction::Tick => {
+                self.tick(shared);
+                return true;
+            }
+            PreflightAction::Override => {
+                self.ask_override(shared);
+                return true;
+            }
+            PreflightAction::Sign => {
+                self.sign(shared);
+                return true;
+            }
+        };
         let len = Self::items(shared).len();
         let page = usize::from(shared.size.1.saturating_sub(3 + CHROME_ROWS)).max(1);
         self.selected = m.apply(self.selected, len, page);
@@ -135,7 +253,7 @@ impl Component for PreflightScreen {
                 let style = mark_style(shared, item.result);
                 let cells = vec![
                     item.n.to_string(),
-                    mark(item.result),
+                    self.shown(item),
                     item.text.clone(),
                     item.detail.clone(),
                 ];
@@ -169,15 +287,38 @@ impl Component for PreflightScreen {
                     t.text.add_modifier(Modifier::BOLD),
                 ),
                 Span::styled(item.detail.clone(), t.text),
+                Span::styled(
+                    match self.signoff.overrides.get(&item.n) {
+                        Some(r) => format!(" Override: {r}."),
+                        None => String::new(),
+                    },
+                    t.warn,
+                ),
             ]),
             None => Line::styled("evaluating the checklist: waiting for the feed", t.warn),
         };
+        let verdict = match shared.live.preflight.as_ref() {
+            None => Line::raw(""),
+            Some(eval) => match cagehand::preflight::sign(eval, &self.signoff) {
+                Ok(_) => Line::styled("READY to sign: s signs and writes the record", t.good),
+                Err(r) => Line::styled(
+                    format!(
+                        "BLOCKED ({}): {}",
+                        r.reasons.len(),
+                        r.reasons.first().cloned().unwrap_or_default()
+                    ),
+                    t.alarm,
+                ),
+            },
+        };
         frame.render_widget(
-            Paragraph::new(detail_text).wrap(Wrap { trim: true }).block(
-                Block::default()
-                    .borders(Borders::TOP)
-                    .title(" Selected item "),
-            ),
+            Paragraph::new(vec![verdict, detail_text])
+                .wrap(Wrap { trim: true })
+                .block(
+                    Block::default()
+                        .borders(Borders::TOP)
+                        .title(" Selected item "),
+                ),
             detail,
         );
     }
@@ -200,7 +341,10 @@ mod tests {
         );
         let s = render_text(&m, 50, 14);
         assert!(s.contains("result"), "{s}");
-        assert!(s.contains("WAITING") && s.contains("HAND"), "{s}");
+        assert!(
+            s.contains("WAITING") && s.contains("[ ]"),
+            "hand items show their tick box:\n{s}"
+        );
         assert!(s.contains("Selected item"), "{s}");
     }
 
@@ -210,5 +354,98 @@ mod tests {
         m.screen = crate::tui::model::Screen::Preflight;
         let s = render_text(&m, 80, 24);
         assert!(s.contains("evaluating the checklist"), "{s}");
+    }
+
+    fn key(c: char) -> Msg {
+        Msg::Key(KeyEvent::new(KeyCode::Char(c), KeyModifiers::NONE))
+    }
+
+    /// The demo's checklist with item `n` selected.
+    fn on_item(n: u32) -> crate::tui::model::Model {
+        let m = demo_model();
+        let st = tracked(&m, &[], 0.0);
+        let mut m = with_preflight(m, &st);
+        update(&mut m, key('4'));
+        let items = &m.shared.live.preflight.as_ref().unwrap().items;
+        m.screens.preflight.selected = items.iter().position(|i| i.n == n).unwrap();
+        m
+    }
+
+    #[test]
+    fn space_ticks_only_hand_items() {
+        let m = on_item(1);
+        let eval = m.shared.live.preflight.clone().unwrap();
+        let hand = eval.hand_items()[0];
+        let mut m = on_item(hand);
+        update(&mut m, key(' '));
+        assert!(m.screens.preflight.signoff.ticked.contains(&hand));
+        update(&mut m, key(' '));
+        assert!(!m.screens.preflight.signoff.ticked.contains(&hand));
+        let auto = eval
+            .items
+            .iter()
+            .find(|i| i.kind == cagehand::preflight::ItemKind::Auto)
+            .unwrap()
+            .n;
+        let mut m = on_item(auto);
+        update(&mut m, key(' '));
+        assert!(m.screens.preflight.signoff.ticked.is_empty());
+        assert!(m.shared.notice.as_deref().unwrap().contains("not ticked"));
+    }
+
+    #[test]
+    fn signing_while_blocked_is_refused_here_with_the_reasons() {
+        let mut m = on_item(1);
+        m.shared.operator = Some("ana".into());
+        update(&mut m, key('s'));
+        assert!(m.shared.outbox.is_empty(), "nothing asked to be written");
+        let notice = m.shared.notice.clone().unwrap();
+        assert!(notice.starts_with("NOT signed"), "{notice}");
+    }
+
+    #[test]
+    fn an_item_that_cannot_be_overridden_says_why() {
+        let m = on_item(1);
+        let eval = m.shared.live.preflight.clone().unwrap();
+        let mut checked = 0;
+        if let Some(i) = eval.items.iter().find(|i| i.blocks() && !i.can_override) {
+            checked += 1;
+            let mut m = on_item(i.n);
+            update(&mut m, key('o'));
+            assert!(m.shared.form.is_none());
+            assert!(
+                m.shared
+                    .notice
+                    .as_deref()
+                    .unwrap()
+                    .contains("cannot be overridden")
+            );
+        }
+        if let Some(i) = eval.items.iter().find(|i| i.blocks() && i.can_override) {
+            checked += 1;
+            let mut m = on_item(i.n);
+            update(&mut m, key('o'));
+            assert!(
+                m.shared.form.is_some(),
+                "an overridable item opens the form"
+            );
+            for c in "tethered test".chars() {
+                update(&mut m, key(c));
+            }
+            update(
+                &mut m,
+                Msg::Key(KeyEvent::new(KeyCode::Enter, KeyModifiers::NONE)),
+            );
+            assert_eq!(
+                m.screens
+                    .preflight
+                    .signoff
+                    .overrides
+                    .get(&i.n)
+                    .map(String::as_str),
+                Some("tethered test")
+            );
+        }
+        assert!(checked > 0, "the stale demo has a blocking item: {eval:?}");
     }
 }

@@ -265,3 +265,103 @@ fn help_overlay() {
         );
     }
 }
+
+/// The pending demo with its cage log read: the detection and two records
+/// before it (invented scenario).
+fn with_records() -> Model {
+    use cagehand::logbook::{DetectionEvent, Event, FindingEvent, FindingKind, NoteEvent, Record};
+    let mut m = pending();
+    let rec = |seq, time: &str, event| Record {
+        seq,
+        time: time.to_string(),
+        operator: "ana".to_string(),
+        event,
+    };
+    let records = vec![
+        rec(
+            10,
+            "2026-12-02T05:30:00Z",
+            Event::Note(NoteEvent {
+                text: "field day 3, grass strip (invented)".into(),
+            }),
+        ),
+        rec(
+            11,
+            "2026-12-02T05:35:00Z",
+            Event::Finding(FindingEvent {
+                member: "S4".into(),
+                kind: FindingKind::Fray,
+                note: Some("light fraying at the end".into()),
+            }),
+        ),
+        rec(
+            12,
+            "2026-12-02T05:40:00Z",
+            Event::Detection(DetectionEvent {
+                link_time_s: 31.2,
+                peak_g: 6.4,
+                direction_body: [0.0, 0.0, -1.0],
+                face: "F5".into(),
+                face_alignment: 0.97,
+                speed_m_per_s: Some(2.1),
+                normal_speed_m_per_s: Some(1.9),
+                source: "sim".into(),
+            }),
+        ),
+    ];
+    update(&mut m, Msg::Records(records));
+    m.shared.operator = Some("ana".into());
+    m
+}
+
+#[test]
+fn cage_log_panel() {
+    let m = with_records();
+    assert_eq!(m.shared.live.pending.len(), 1, "the detection is pending");
+    snap("records", &m, &[Screen::Cage]);
+}
+
+#[test]
+fn forms_with_a_bad_entry() {
+    use crate::tui::form::Form;
+    // A confirmation pre-filled from detection #12, the face mistyped.
+    let mut m = with_records();
+    let mut f = Form::confirm(&m.shared, 12);
+    f.fields[0].value = "F55".into();
+    m.shared.form = Some(f);
+    snap("form_confirm_bad", &m, &[Screen::Cage]);
+    // A replacement with a note typed but the part left empty; no
+    // operator known, so the form asks for one.
+    let mut m = with_records();
+    m.shared.operator = None;
+    let mut f = Form::replacement(&m.shared, "R3");
+    f.fields[2].value = "bent at N7".into();
+    f.focus = 2;
+    m.shared.form = Some(f);
+    snap("form_replacement_bad", &m, &[Screen::Cage]);
+}
+
+#[test]
+fn preflight_blocked_and_ready() {
+    // Blocked: resting on F9 (no take-off face), hand items unticked.
+    snap("blocked", &demo(), &[Screen::Preflight]);
+    // Ready: resting on a take-off face, every hand item ticked.
+    let m = demo_model();
+    let face = m.shared.takeoff[0];
+    let mut live = live_on(&m, face, 12.0, LiveState::Resting);
+    live.battery_v = Some(12.4);
+    live.armed = Some(false);
+    let q = cagehand::rest::resting_attitude(&m.shared.cage, face);
+    let st = tracked(&m, &held(q, Some(12.4), Some(false)), 1.5);
+    let health = assess(&[], &m.shared.cage, &m.shared.profile.inspection);
+    let m = with_live(m, live).with_health(Some(health), "no records yet (demo)".to_string());
+    let mut m = with_preflight(m, &st);
+    let eval = m.shared.live.preflight.clone().expect("evaluated");
+    m.screens.preflight.signoff = cagehand::preflight::SignOff::tick_all(&eval);
+    assert!(
+        cagehand::preflight::sign(&eval, &m.screens.preflight.signoff).is_ok(),
+        "{:?}",
+        eval.blocking()
+    );
+    snap("ready", &m, &[Screen::Preflight]);
+}

@@ -19,7 +19,14 @@ pub fn view(model: &Model, frame: &mut Frame) {
         too_small(model, frame, (need_w, need_h));
         return;
     }
-    let notice_rows = u16::from(model.shared.notice.is_some());
+    // A long message (a write names the vehicle and the log file) wraps
+    // onto up to three rows rather than losing its end.
+    let notice_rows = model.shared.notice.as_ref().map_or(0, |n| {
+        let chars = n.chars().count() + 16;
+        u16::try_from(chars.div_ceil(usize::from(area.width.max(1))))
+            .unwrap_or(3)
+            .clamp(1, 3)
+    });
     let pending_rows = u16::from(!model.shared.live.pending.is_empty());
     let [tabs, vehicle, pending, body, notice] = Layout::vertical([
         Constraint::Length(1),
@@ -47,9 +54,13 @@ pub fn view(model: &Model, frame: &mut Frame) {
                 Span::styled("! ", model.shared.theme.warn),
                 Span::styled(n.clone(), model.shared.theme.warn),
                 Span::styled("  (Esc clears)", model.shared.theme.dim),
-            ])),
+            ]))
+            .wrap(Wrap { trim: false }),
             notice,
         );
+    }
+    if let Some(form) = &model.shared.form {
+        form.draw(&model.shared, frame, body);
     }
     if model.help {
         help(model, frame);
@@ -218,10 +229,6 @@ fn help(model: &Model, frame: &mut Frame) {
             ]));
         }
     }
-    lines.push(Line::styled(
-        "Estimates are not guarantees: inspect the cage, keep clear of propellers.",
-        t.warn,
-    ));
     let w = 76.min(area.width);
     let h = (lines.len() as u16 + 2).min(area.height);
     let popup = Rect::new(
@@ -232,9 +239,15 @@ fn help(model: &Model, frame: &mut Frame) {
     );
     frame.render_widget(Clear, popup);
     frame.render_widget(
-        Paragraph::new(lines)
-            .wrap(Wrap { trim: false })
-            .block(Block::default().borders(Borders::ALL).title(" Keys ")),
+        Paragraph::new(lines).wrap(Wrap { trim: false }).block(
+            Block::default()
+                .borders(Borders::ALL)
+                .title(" Keys ")
+                .title_bottom(Line::styled(
+                    " Estimates are not guarantees: inspect the cage, keep clear of propellers. ",
+                    t.warn,
+                )),
+        ),
         popup,
     );
 }

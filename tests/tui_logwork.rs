@@ -160,3 +160,119 @@ fn a_crash_is_confirmed_and_the_cage_repaired_from_the_screens() {
     assert_eq!(records[3]["part"], "LOT-9");
     assert!(records.iter().all(|r| r["operator"] == "ana"));
 }
+
+/// The pre-flight signed from the screens after righting the demo: the
+/// crash's detection is dismissed (the invented scenario's vehicle was
+/// "dropped on the bench"), the plan is stepped to a take-off face, every
+/// hand item is ticked, and `s` signs; the log then ends with a signed
+/// `preflight` record by the operator.
+#[test]
+fn the_demo_is_righted_and_its_preflight_signed_from_the_screens() {
+    let present = Command::new("tmux")
+        .arg("-V")
+        .output()
+        .is_ok_and(|o| o.status.success());
+    if !present {
+        println!("skipped: tmux is not installed, so there is no terminal to drive");
+        return;
+    }
+    let dir = tempfile::tempdir().expect("temp dir");
+    let data = dir.path().join("data");
+    let bin = env!("CARGO_BIN_EXE_cagehand");
+    let sock = format!("cagehand-signoff-{}", std::process::id());
+    let _server = Server(sock.clone());
+    let script = format!(
+        "'{bin}' watch --link sim --data '{}' --operator ana; echo \"EXIT=$?\"; sleep 60",
+        data.display()
+    );
+    let out = tmux(
+        &sock,
+        &[
+            "new-session",
+            "-d",
+            "-s",
+            "t",
+            "-x",
+            "80",
+            "-y",
+            "24",
+            "-e",
+            "NO_COLOR=1",
+            "sh",
+            "-c",
+            &script,
+        ],
+    );
+    assert!(out.status.success(), "tmux new-session: {out:?}");
+    wait_for(&sock, "PENDING");
+    keys(&sock, &["3"]);
+    keys(&sock, &["x"]);
+    wait_for(&sock, "Dismiss detection");
+    literal(&sock, "dropped on the bench");
+    keys(&sock, &["Enter"]);
+    wait_for(&sock, "written for kestrel-demo");
+    // Step the plan until the vehicle is on a take-off face (the simulator
+    // rolls when a step is commanded; a replan is stepped the same way).
+    keys(&sock, &["2"]);
+    let t0 = Instant::now();
+    loop {
+        let p = pane(&sock);
+        if p.contains("Righting complete") {
+            break;
+        }
+        assert!(
+            t0.elapsed() < Duration::from_secs(180),
+            "righting did not complete:\n{p}"
+        );
+        if p.contains("Enter: command step") {
+            keys(&sock, &["Enter"]);
+        }
+        std::thread::sleep(Duration::from_millis(700));
+    }
+    // Tick every hand item: the rows showing `[ ]`, each reached from the
+    // top of the list.
+    keys(&sock, &["4"]);
+    let p = wait_for(&sock, "Preflight checklist");
+    let hand: Vec<usize> = p
+        .lines()
+        .filter_map(|l| {
+            let row = l.trim_start_matches('│').trim_start();
+            let (n, rest) = row.split_once(' ')?;
+            let n: usize = n.parse().ok()?;
+            rest.trim_start().starts_with("[ ]").then_some(n)
+        })
+        .collect();
+    assert!(!hand.is_empty(), "the demo has hand items:\n{p}");
+    for n in hand {
+        for _ in 0..12 {
+            keys(&sock, &["Up"]);
+        }
+        for _ in 1..n {
+            keys(&sock, &["Down"]);
+        }
+        keys(&sock, &["Space"]);
+    }
+    wait_for(&sock, "READY to sign");
+    keys(&sock, &["s"]);
+    wait_for(&sock, "pre-flight signed off by ana");
+    keys(&sock, &["q"]);
+    let p = wait_for(&sock, "EXIT=");
+    assert!(p.contains("EXIT=0"), "quit exits 0:\n{p}");
+
+    let show = Command::new(bin)
+        .args(["log", "show", "--json", "--data"])
+        .arg(&data)
+        .output()
+        .expect("run log show");
+    assert!(show.status.success(), "log show: {show:?}");
+    let v: serde_json::Value = serde_json::from_slice(&show.stdout).expect("log show JSON");
+    let records = v["records"].as_array().expect("records");
+    let events: Vec<&str> = records
+        .iter()
+        .map(|r| r["event"].as_str().unwrap_or("?"))
+        .collect();
+    assert_eq!(events, ["detection", "dismissal", "preflight"], "in order");
+    let signed = &records[2];
+    assert_eq!(signed["operator"], "ana");
+    assert_eq!(signed["signed_off"], true, "{signed}");
+}

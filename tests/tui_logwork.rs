@@ -65,21 +65,21 @@ impl Drop for Server {
     }
 }
 
-#[test]
-fn a_crash_is_confirmed_and_the_cage_repaired_from_the_screens() {
+/// Open the demo screens (simulated vehicle, operator `ana`, log in
+/// `data`) in a tmux server of their own at 80x24; None, with the reason
+/// printed, where tmux is not installed.
+fn start_demo(name: &str, data: &std::path::Path) -> Option<(String, Server)> {
     let present = Command::new("tmux")
         .arg("-V")
         .output()
         .is_ok_and(|o| o.status.success());
     if !present {
         println!("skipped: tmux is not installed, so there is no terminal to drive");
-        return;
+        return None;
     }
-    let dir = tempfile::tempdir().expect("temp dir");
-    let data = dir.path().join("data");
     let bin = env!("CARGO_BIN_EXE_cagehand");
-    let sock = format!("cagehand-logwork-{}", std::process::id());
-    let _server = Server(sock.clone());
+    let sock = format!("cagehand-{name}-{}", std::process::id());
+    let server = Server(sock.clone());
     let script = format!(
         "'{bin}' watch --link sim --data '{}' --operator ana; echo \"EXIT=$?\"; sleep 60",
         data.display()
@@ -103,6 +103,17 @@ fn a_crash_is_confirmed_and_the_cage_repaired_from_the_screens() {
         ],
     );
     assert!(out.status.success(), "tmux new-session: {out:?}");
+    Some((sock, server))
+}
+
+#[test]
+fn a_crash_is_confirmed_and_the_cage_repaired_from_the_screens() {
+    let dir = tempfile::tempdir().expect("temp dir");
+    let data = dir.path().join("data");
+    let bin = env!("CARGO_BIN_EXE_cagehand");
+    let Some((sock, _server)) = start_demo("logwork", &data) else {
+        return;
+    };
     // The simulated crash is detected and written as a pending detection.
     wait_for(&sock, "PENDING");
     keys(&sock, &["3"]);
@@ -168,42 +179,12 @@ fn a_crash_is_confirmed_and_the_cage_repaired_from_the_screens() {
 /// `preflight` record by the operator.
 #[test]
 fn the_demo_is_righted_and_its_preflight_signed_from_the_screens() {
-    let present = Command::new("tmux")
-        .arg("-V")
-        .output()
-        .is_ok_and(|o| o.status.success());
-    if !present {
-        println!("skipped: tmux is not installed, so there is no terminal to drive");
-        return;
-    }
     let dir = tempfile::tempdir().expect("temp dir");
     let data = dir.path().join("data");
     let bin = env!("CARGO_BIN_EXE_cagehand");
-    let sock = format!("cagehand-signoff-{}", std::process::id());
-    let _server = Server(sock.clone());
-    let script = format!(
-        "'{bin}' watch --link sim --data '{}' --operator ana; echo \"EXIT=$?\"; sleep 60",
-        data.display()
-    );
-    let out = tmux(
-        &sock,
-        &[
-            "new-session",
-            "-d",
-            "-s",
-            "t",
-            "-x",
-            "80",
-            "-y",
-            "24",
-            "-e",
-            "NO_COLOR=1",
-            "sh",
-            "-c",
-            &script,
-        ],
-    );
-    assert!(out.status.success(), "tmux new-session: {out:?}");
+    let Some((sock, _server)) = start_demo("signoff", &data) else {
+        return;
+    };
     wait_for(&sock, "PENDING");
     keys(&sock, &["3"]);
     keys(&sock, &["x"]);

@@ -16,6 +16,7 @@ pub mod describe;
 pub mod feasibility;
 pub mod moves;
 pub mod plan;
+pub mod screen;
 pub mod stepper;
 
 #[cfg(test)]

@@ -159,14 +159,27 @@ pub(crate) struct Doc<'a> {
     text: &'a str,
     file: &'a str,
     seen: RefCell<Locations>,
+    /// Byte offset where each line starts, so that locating a key is a
+    /// binary search rather than a count of the newlines before it (which
+    /// made reading a large cage quadratic in its size).
+    line_starts: Vec<usize>,
 }
 
 impl<'a> Doc<'a> {
     pub(crate) fn new(text: &'a str, file: &'a str) -> Doc<'a> {
+        let line_starts = std::iter::once(0)
+            .chain(
+                text.bytes()
+                    .enumerate()
+                    .filter(|(_, b)| *b == b'\n')
+                    .map(|(i, _)| i + 1),
+            )
+            .collect();
         Doc {
             text,
             file,
             seen: RefCell::new(Locations::default()),
+            line_starts,
         }
     }
 
@@ -180,7 +193,15 @@ impl<'a> Doc<'a> {
     }
 
     pub(crate) fn location(&self, span: &Range<usize>) -> Location {
-        let (line, column) = line_col(self.text, span.start);
+        let offset = span.start.min(self.text.len());
+        // Lines starting at or before the offset; the last is its line.
+        let line = self.line_starts.partition_point(|&s| s <= offset).max(1);
+        let start = self.line_starts.get(line - 1).copied().unwrap_or(0);
+        let column = self
+            .text
+            .get(start..offset)
+            .map_or(offset - start, |s| s.chars().count())
+            + 1;
         Location { line, column }
     }
 
@@ -631,6 +652,16 @@ mod tests {
     fn line_col_counts_from_one() {
         assert_eq!(line_col("a\nbc\n", 3), (2, 2));
         assert_eq!(line_col("abc", 0), (1, 1));
+    }
+
+    #[test]
+    fn indexed_locations_match_line_col_everywhere() {
+        let text = "a = 1\n\n[b]\nc = \"\u{e9}x\"\nd=2";
+        let doc = Doc::new(text, "t.toml");
+        for offset in 0..=text.len() + 2 {
+            let at = doc.location(&(offset..offset));
+            assert_eq!((at.line, at.column), line_col(text, offset), "{offset}");
+        }
     }
 
     #[test]

@@ -39,6 +39,7 @@
 //! (unless the centre of mass lies exactly over the pivot axis).
 
 use super::contact::{AngleRows, rows_at};
+use super::screen::{self, Screen};
 pub use super::contact::{
     Condition, FRICTION_SIDES, gravity_at, moment_arms_m, resisting_moment_nm,
 };
@@ -347,9 +348,10 @@ fn blocking_condition(rows: &AngleRows, limits: &Limits, tol: f64) -> Option<Con
         })
 }
 
-/// Check one roll over its whole angle, and find its rotor commands.
-pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
-    let tip = tip_angle_deg(cage, roll);
+/// Check one roll over its whole angle by the LP at every checked angle,
+/// and find its rotor commands: the reference that [`assess`] must agree
+/// with (the agreement tests run both), and its fallback.
+pub fn assess_plain(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
     let tol = tolerance(cage);
     let table = table(cage, roll, limits);
     let zero = vec![0.0; limits.rotors.len()];
@@ -383,6 +385,183 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
             worst = Some((ratio, rows.angle_deg, needed, avail));
         }
     }
+    finish(cage, roll, limits, &table, tol, worst, blocked_by)
+}
+
+/// Relative slack of the screen's decisions: answers this close to a
+/// threshold or a tie go to the LP.
+const SCREEN_SLACK: f64 = 1e-6;
+
+/// What the screen and, where needed, the LP say about one angle.
+enum AngleOutcome {
+    /// Nothing to report (gravity helps and the contact holds).
+    Fine,
+    /// Ratio needed / available lies in `[lo, hi]`, or is exactly `lo`
+    /// when `exact` (then `avail` is the LP's moment).
+    Finite {
+        lo: f64,
+        hi: f64,
+        exact: Option<f64>,
+    },
+    /// No thrust carries the move here; `avail` as the LP gives it.
+    Blocked { avail: f64 },
+}
+
+/// The verdict at one angle exactly as [`assess_plain`] reaches it, by the
+/// LP.
+fn angle_by_lp(rows: &AngleRows, limits: &Limits, tol: f64) -> AngleOutcome {
+    let needed = rows.needed_nm;
+    match best_moment(rows, &limits.rotors, tol) {
+        Some((m, _)) if needed <= 0.0 && m >= needed - tol => AngleOutcome::Fine,
+        Some((m, _)) if needed > 0.0 && m > 1e-6 * needed => AngleOutcome::Finite {
+            lo: needed / m,
+            hi: needed / m,
+            exact: Some(m),
+        },
+        Some((m, _)) => AngleOutcome::Blocked { avail: m },
+        None => AngleOutcome::Blocked { avail: 0.0 },
+    }
+}
+
+/// The verdict at one angle: proved by the screen where it can be, by the
+/// LP otherwise. A ratio the screen proves is only bounded; the caller
+/// asks the LP for the exact value where it matters.
+fn angle_outcome(rows: &AngleRows, limits: &Limits, tol: f64, zero: &[f64]) -> AngleOutcome {
+    let needed = rows.needed_nm;
+    let slack = SCREEN_SLACK * (1.0 + needed.abs());
+    if needed <= 0.0 && rows.admits(&limits.rotors, zero, tol) {
+        return AngleOutcome::Fine;
+    }
+    match screen::best_moment(rows, &limits.rotors, tol) {
+        Screen::Infeasible => AngleOutcome::Blocked { avail: 0.0 },
+        Screen::Optimum { lo, .. } if needed <= 0.0 && lo >= needed - tol + slack => {
+            AngleOutcome::Fine
+        }
+        Screen::Optimum { lo, hi, .. } if needed > 0.0 && lo > 1e-6 * needed + slack => {
+            AngleOutcome::Finite {
+                lo: needed / hi,
+                hi: needed / lo,
+                exact: None,
+            }
+        }
+        _ => angle_by_lp(rows, limits, tol),
+    }
+}
+
+/// [`blocking_condition`] with the screen deciding where it can.
+fn blocking_condition_screened(rows: &AngleRows, limits: &Limits, tol: f64) -> Option<Condition> {
+    let needed = rows.needed_nm;
+    let slack = SCREEN_SLACK * (1.0 + needed.abs());
+    // The threshold the LP's moment is held to.
+    let bar = if needed > 0.0 { 1e-6 * needed } else { needed - tol };
+    [Condition::Sideways, Condition::Between]
+        .into_iter()
+        .find(|c| {
+            if !rows.rows.iter().any(|r| r.condition == *c) {
+                return false;
+            }
+            let mut relaxed = rows.clone();
+            relaxed.rows.retain(|r| r.condition != *c);
+            match screen::best_moment(&relaxed, &limits.rotors, tol) {
+                Screen::Infeasible => false,
+                Screen::Optimum { lo, .. } if lo > bar + slack => true,
+                Screen::Optimum { hi, .. } if hi < bar - slack => false,
+                _ => best_moment(&relaxed, &limits.rotors, tol).is_some_and(|(m, _)| {
+                    if needed > 0.0 {
+                        m > 1e-6 * needed
+                    } else {
+                        m >= needed - tol
+                    }
+                }),
+            }
+        })
+}
+
+/// Check one roll over its whole angle, and find its rotor commands.
+///
+/// The same answer as [`assess_plain`] with far fewer LPs: the screen
+/// ([`screen`]) proves most angles' verdicts; the scan stops at the first
+/// angle no thrust can carry (nothing later can be worse, and the plain
+/// check reports the first such angle); among the carried angles only
+/// those whose proven ratio range reaches the worst proven lower bound get
+/// the LP, so the reported ratio, angle and moments are the LP's own. Any
+/// disagreement between the screen and the LP sends the roll to
+/// [`assess_plain`].
+pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
+    let tol = tolerance(cage);
+    let zero = vec![0.0; limits.rotors.len()];
+    // (index, ratio lower bound, upper bound, LP moment when exact)
+    let mut carried: Vec<(usize, f64, f64, Option<f64>)> = Vec::new();
+    let mut blocked: Option<(usize, f64)> = None;
+    // The rows are built as the scan reaches them (a blocked roll often
+    // stops at its first angle).
+    let mut table: Vec<AngleRows> = Vec::new();
+    for (i, b) in checked_angles_deg(cage, roll).iter().enumerate() {
+        let rows = rows_at(
+            cage,
+            roll,
+            &limits.rotors,
+            limits.friction_coefficient,
+            b.to_radians(),
+        );
+        let outcome = angle_outcome(&rows, limits, tol, &zero);
+        table.push(rows);
+        match outcome {
+            AngleOutcome::Fine => {}
+            AngleOutcome::Finite { lo, hi, exact } => carried.push((i, lo, hi, exact)),
+            AngleOutcome::Blocked { avail } => {
+                blocked = Some((i, avail));
+                break;
+            }
+        }
+    }
+    // (ratio, angle, needed, available)
+    let mut blocked_by = None;
+    let worst: Option<(f64, f64, f64, f64)> = match blocked {
+        Some((i, avail)) => {
+            let rows = &table[i];
+            blocked_by = blocking_condition_screened(rows, limits, tol);
+            Some((f64::INFINITY, rows.angle_deg, rows.needed_nm, avail))
+        }
+        None => {
+            let floor = carried.iter().map(|c| c.1).fold(f64::NEG_INFINITY, f64::max);
+            let mut worst: Option<(f64, f64, f64, f64)> = None;
+            for &(i, _, hi, exact) in &carried {
+                if hi * (1.0 + SCREEN_SLACK) < floor * (1.0 - SCREEN_SLACK) {
+                    continue;
+                }
+                let rows = &table[i];
+                let m = match exact {
+                    Some(m) => m,
+                    None => match angle_by_lp(rows, limits, tol) {
+                        AngleOutcome::Finite { exact: Some(m), .. } => m,
+                        // The LP disagrees with the screen: take the plain path.
+                        _ => return assess_plain(cage, roll, limits),
+                    },
+                };
+                let ratio = rows.needed_nm / m;
+                if worst.is_none_or(|w| ratio > w.0) {
+                    worst = Some((ratio, rows.angle_deg, rows.needed_nm, m));
+                }
+            }
+            worst
+        }
+    };
+    finish(cage, roll, limits, &table, tol, worst, blocked_by)
+}
+
+/// The verdict from the worst angle: feasible when carried with the
+/// margin there, and then the rotor commands (by the LP, over every
+/// checked angle).
+fn finish(
+    cage: &Cage,
+    roll: &Roll,
+    limits: &Limits,
+    table: &[AngleRows],
+    tol: f64,
+    worst: Option<(f64, f64, f64, f64)>,
+    blocked_by: Option<Condition>,
+) -> Feasibility {
     let (mut feasible, thrust_fraction, worst_angle_deg, needed_nm, available_nm) = match worst {
         None => (true, Some(0.0), 0.0, 0.0, 0.0),
         Some((ratio, angle, needed, avail)) => (
@@ -394,7 +573,7 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
         ),
     };
     let commands = if feasible {
-        commands(&table, limits, tol)
+        commands(table, limits, tol)
     } else {
         None
     };
@@ -406,8 +585,9 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
         worst_angle_deg,
         needed_nm,
         available_nm,
-        tip_angle_deg: tip,
+        tip_angle_deg: tip_angle_deg(cage, roll),
         blocked_by,
         commands,
     }
 }
+

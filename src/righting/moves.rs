@@ -90,9 +90,27 @@ impl Roll {
 
 /// Every roll from every face: edge rolls always, vertex pivots when asked.
 pub fn candidate_rolls(cage: &Cage, vertex_pivots: bool) -> Vec<Roll> {
+    // Only faces that share a node can roll into each other: list them per
+    // node once, rather than trying every pair of faces. Same rolls, same
+    // order (by `from`, then by `to`).
+    let mut faces_at: Vec<Vec<usize>> = vec![Vec::new(); cage.nodes.len()];
+    for (i, f) in cage.faces.iter().enumerate() {
+        for &n in &f.nodes {
+            if let Some(list) = faces_at.get_mut(n) {
+                list.push(i);
+            }
+        }
+    }
     let mut out = Vec::new();
+    let mut near: Vec<usize> = Vec::new();
     for i in 0..cage.faces.len() {
-        for j in 0..cage.faces.len() {
+        near.clear();
+        for &n in &cage.faces[i].nodes {
+            near.extend(faces_at.get(n).into_iter().flatten().copied());
+        }
+        near.sort_unstable();
+        near.dedup();
+        for &j in &near {
             if i == j {
                 continue;
             }

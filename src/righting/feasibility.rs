@@ -39,11 +39,11 @@
 //! (unless the centre of mass lies exactly over the pivot axis).
 
 use super::contact::{AngleRows, rows_at};
-use super::screen::{self, Screen};
 pub use super::contact::{
     Condition, FRICTION_SIDES, gravity_at, moment_arms_m, resisting_moment_nm,
 };
 use super::moves::Roll;
+use super::screen::{self, Screen};
 use crate::cage::Cage;
 use crate::profile::Rotor;
 use crate::sample::STANDARD_GRAVITY_M_S2;
@@ -453,7 +453,11 @@ fn blocking_condition_screened(rows: &AngleRows, limits: &Limits, tol: f64) -> O
     let needed = rows.needed_nm;
     let slack = SCREEN_SLACK * (1.0 + needed.abs());
     // The threshold the LP's moment is held to.
-    let bar = if needed > 0.0 { 1e-6 * needed } else { needed - tol };
+    let bar = if needed > 0.0 {
+        1e-6 * needed
+    } else {
+        needed - tol
+    };
     [Condition::Sideways, Condition::Between]
         .into_iter()
         .find(|c| {
@@ -524,7 +528,10 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
             Some((f64::INFINITY, rows.angle_deg, rows.needed_nm, avail))
         }
         None => {
-            let floor = carried.iter().map(|c| c.1).fold(f64::NEG_INFINITY, f64::max);
+            let floor = carried
+                .iter()
+                .map(|c| c.1)
+                .fold(f64::NEG_INFINITY, f64::max);
             let mut worst: Option<(f64, f64, f64, f64)> = None;
             for &(i, _, hi, exact) in &carried {
                 if hi * (1.0 + SCREEN_SLACK) < floor * (1.0 - SCREEN_SLACK) {
@@ -590,4 +597,3 @@ fn finish(
         commands,
     }
 }
-

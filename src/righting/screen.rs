@@ -65,7 +65,10 @@ pub fn screen(c: &[f64], rows: &[Row], lo: &[f64], hi: &[f64], tol: f64) -> Scre
         || lo.len() != n
         || hi.len() != n
         || rows.iter().any(|r| r.coeffs.len() != n)
-        || lo.iter().zip(hi).any(|(a, b)| !(a <= b) || !a.is_finite() || !b.is_finite())
+        || lo
+            .iter()
+            .zip(hi)
+            .any(|(a, b)| !a.is_finite() || !b.is_finite() || a > b)
         || c.iter().any(|v| !v.is_finite())
         || rows
             .iter()
@@ -94,7 +97,11 @@ pub fn screen(c: &[f64], rows: &[Row], lo: &[f64], hi: &[f64], tol: f64) -> Scre
                 .all(|(v, (a, b))| *v >= a - hair && *v <= b + hair)
                 && rows.iter().all(|r| {
                     let e = r.excess(&x);
-                    if r.equality { e.abs() <= hair } else { e <= hair }
+                    if r.equality {
+                        e.abs() <= hair
+                    } else {
+                        e <= hair
+                    }
                 });
             if !meets {
                 return Screen::Unknown;
@@ -349,7 +356,8 @@ impl Simplex {
                     let better = match best {
                         None => true,
                         Some((r, bi)) => {
-                            ratio < r - 1e-15 || (ratio <= r + 1e-15 && self.basis[i] < self.basis[bi])
+                            ratio < r - 1e-15
+                                || (ratio <= r + 1e-15 && self.basis[i] < self.basis[bi])
                         }
                     };
                     if better {

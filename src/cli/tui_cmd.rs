@@ -400,7 +400,7 @@ fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEv
 /// The link's reader messages through the core feed into the screens'
 /// channel; detections are written to the log as they come. Ends when the
 /// link ends or the screens close.
-fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
+fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log).with_margin(&l);

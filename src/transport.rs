@@ -42,7 +42,7 @@ use std::collections::VecDeque;
 use std::path::PathBuf;
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::mpsc::{self, Receiver, RecvError, RecvTimeoutError, Sender};
+use std::sync::mpsc::{self, Receiver, RecvError, RecvTimeoutError, Sender, TryRecvError};
 use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
@@ -260,7 +260,7 @@ pub struct LinkRx {
 }
 
 impl LinkRx {
-    fn new(rx: Receiver<Vec<LinkMsg>>) -> LinkRx {
+    pub(crate) fn new(rx: Receiver<Vec<LinkMsg>>) -> LinkRx {
         LinkRx {
             rx,
             queue: VecDeque::new(),
@@ -291,6 +291,17 @@ impl LinkRx {
             }
             let left = deadline.saturating_duration_since(Instant::now());
             let batch = self.rx.recv_timeout(left)?;
+            self.queue.extend(batch);
+        }
+    }
+
+    /// The next message if one is already here (not waiting).
+    pub fn try_recv(&mut self) -> Result<LinkMsg, TryRecvError> {
+        loop {
+            if let Some(m) = self.queue.pop_front() {
+                return Ok(m);
+            }
+            let batch = self.rx.try_recv()?;
             self.queue.extend(batch);
         }
     }

@@ -327,27 +327,6 @@ pub fn commands(table: &[AngleRows], limits: &Limits, tol: f64) -> Option<RotorC
     })
 }
 
-/// Which single condition, dropped, would let the rotors meet the rest
-/// at `rows` (the reason a move is blocked there).
-fn blocking_condition(rows: &AngleRows, limits: &Limits, tol: f64) -> Option<Condition> {
-    [Condition::Sideways, Condition::Between]
-        .into_iter()
-        .find(|c| {
-            if !rows.rows.iter().any(|r| r.condition == *c) {
-                return false;
-            }
-            let mut relaxed = rows.clone();
-            relaxed.rows.retain(|r| r.condition != *c);
-            best_moment(&relaxed, &limits.rotors, tol).is_some_and(|(m, _)| {
-                if rows.needed_nm > 0.0 {
-                    m > 1e-6 * rows.needed_nm
-                } else {
-                    m >= rows.needed_nm - tol
-                }
-            })
-        })
-}
-
 /// Check one roll over its whole angle by the LP at every checked angle,
 /// and find its rotor commands: the reference that [`assess`] must agree
 /// with (the agreement tests run both), and its fallback.
@@ -379,7 +358,7 @@ pub fn assess_plain(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
             }
         };
         if ratio.is_infinite() && blocked_by.is_none() && worst.is_none_or(|w| w.0.is_finite()) {
-            blocked_by = blocking_condition(rows, limits, tol);
+            blocked_by = blocking_condition(rows, limits, tol, false);
         }
         if worst.is_none_or(|w| ratio > w.0) {
             worst = Some((ratio, rows.angle_deg, needed, avail));
@@ -448,8 +427,15 @@ fn angle_outcome(rows: &AngleRows, limits: &Limits, tol: f64, zero: &[f64]) -> A
     }
 }
 
-/// [`blocking_condition`] with the screen deciding where it can.
-fn blocking_condition_screened(rows: &AngleRows, limits: &Limits, tol: f64) -> Option<Condition> {
+/// Which single condition, dropped, would let the rotors meet the rest
+/// at `rows` (the reason a move is blocked there); with `screened`, the
+/// screen decides where it can prove the answer and the LP the rest.
+fn blocking_condition(
+    rows: &AngleRows,
+    limits: &Limits,
+    tol: f64,
+    screened: bool,
+) -> Option<Condition> {
     let needed = rows.needed_nm;
     let slack = SCREEN_SLACK * (1.0 + needed.abs());
     // The threshold the LP's moment is held to.
@@ -466,7 +452,12 @@ fn blocking_condition_screened(rows: &AngleRows, limits: &Limits, tol: f64) -> O
             }
             let mut relaxed = rows.clone();
             relaxed.rows.retain(|r| r.condition != *c);
-            match screen::best_moment(&relaxed, &limits.rotors, tol) {
+            let proof = if screened {
+                screen::best_moment(&relaxed, &limits.rotors, tol)
+            } else {
+                Screen::Unknown
+            };
+            match proof {
                 Screen::Infeasible => false,
                 Screen::Optimum { lo, .. } if lo > bar + slack => true,
                 Screen::Optimum { hi, .. } if hi < bar - slack => false,
@@ -524,7 +515,7 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
     let worst: Option<(f64, f64, f64, f64)> = match blocked {
         Some((i, avail)) => {
             let rows = &table[i];
-            blocked_by = blocking_condition_screened(rows, limits, tol);
+            blocked_by = blocking_condition(rows, limits, tol, true);
             Some((f64::INFINITY, rows.angle_deg, rows.needed_nm, avail))
         }
         None => {

@@ -292,12 +292,41 @@ pub fn least_thrust(rows: &[&AngleRows], limits: &Limits, tol: f64) -> Option<Ve
     rows.iter().all(|r| meets(r, limits, &t, tol)).then_some(t)
 }
 
+/// Whether the screen proves that no one setting meets every condition
+/// and the required moment at the first, middle and last checked angles
+/// together, each relaxed by `tol` as [`meets`] relaxes them.
+fn no_single_setting(table: &[AngleRows], limits: &Limits, tol: f64) -> bool {
+    let (Some(first), Some(last)) = (table.first(), table.last()) else {
+        return false;
+    };
+    let mut rows: Vec<super::contact::Row> = Vec::new();
+    for ar in [first, &table[table.len() / 2], last] {
+        rows.extend(ar.rows.iter().cloned());
+        // moment >= required  <=>  -arms . T <= -required
+        rows.push(super::contact::Row {
+            coeffs: ar.arms_m.iter().map(|c| -c).collect(),
+            rhs: -required_nm(ar.needed_nm, limits.torque_margin),
+            equality: false,
+            condition: Condition::LiftOff,
+        });
+    }
+    let lo: Vec<f64> = limits.rotors.iter().map(|r| -r.reverse_thrust_n).collect();
+    let hi: Vec<f64> = limits.rotors.iter().map(|r| r.max_thrust_n).collect();
+    let zero = vec![0.0; lo.len()];
+    screen::screen(&zero, &rows, &lo, &hi, tol) == Screen::Infeasible
+}
+
 /// Rotor commands for a feasible roll: one setting where one exists,
 /// otherwise a schedule by roll angle. `None` when some checked angle has
 /// no setting (which the caller treats as infeasible).
 pub fn commands(table: &[AngleRows], limits: &Limits, tol: f64) -> Option<RotorCommands> {
     let all: Vec<&AngleRows> = table.iter().collect();
-    if let Some(t) = least_thrust(&all, limits, tol) {
+    // The one-setting LP is skipped only where a proof shows that no
+    // setting meets the first, middle and last angles together (then it
+    // could not meet them all, and its answer would be None anyway).
+    if !no_single_setting(table, limits, tol)
+        && let Some(t) = least_thrust(&all, limits, tol)
+    {
         return Some(RotorCommands {
             thrust_n: t,
             schedule: Vec::new(),

@@ -261,10 +261,13 @@ type MarginJob = Result<Vec<Record>, String>;
 #[derive(Clone)]
 struct MarginWorker {
     jobs: Sender<MarginJob>,
-    /// The summary for the reading last worked out (None inside: no faces
-    /// or no solution).
-    latest: Arc<Mutex<Option<(LogMark, Option<preflight::MarginSummary>)>>>,
+    /// The summary for the reading last worked out.
+    latest: Arc<Mutex<Option<Latest>>>,
 }
+
+/// A reading of the log and its pre-flight summary (None: no faces or no
+/// solution).
+type Latest = (LogMark, Option<preflight::MarginSummary>);
 
 impl MarginWorker {
     /// Ask for the margin of a reading of the log; false when the worker

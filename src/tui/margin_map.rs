@@ -133,10 +133,16 @@ pub fn headline(shared: &Shared) -> Span<'static> {
         MarginState::Ready(m) => match m.table.weakest_face() {
             Some(w) => Span::styled(
                 format!(
-                    "weakest {} takes {:.1} m/s ({} first)",
+                    "weakest {} takes {:.1} m/s ({} first){}",
                     w.id,
                     w.failure.speed_m_per_s,
-                    w.first_member.as_deref().unwrap_or("no member")
+                    w.first_member.as_deref().unwrap_or("no member"),
+                    // A pending crash is not in the log's damage yet.
+                    if shared.live.pending.is_empty() {
+                        ""
+                    } else {
+                        ", pending crash not in it"
+                    }
                 ),
                 speed_style(shared, w.failure.speed_m_per_s, true),
             ),

@@ -5,9 +5,8 @@
 //! (`cagehand::geodesic`: level 2 has 320 faces and 561 members, level 3
 //! 1280 faces and 2241 members, level 4 2562 nodes).
 //!
-//! The screens live in the binary crate, not the library, so a bench (which
-//! links only the library) cannot draw a Watch frame; that figure is taken
-//! whole-process instead (DEVELOPERS.md).
+//! Drawing a Watch frame is in benches/screens.rs (it compiles the screens'
+//! source into itself, since they are modules of the binary).
 //!
 //! `cargo bench` runs them all (a few minutes, most of it the 2241-member
 //! impact); `cargo bench -- impact` runs one group. CI only compiles them.

@@ -46,16 +46,7 @@ pub struct Cli {
     command: Option<Command>,
 }
 
-/// When to use colour (`--color`).
-#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
-pub enum ColorChoice {
-    /// Colour when the output is a terminal and NO_COLOR is not set.
-    Auto,
-    /// Colour even when NO_COLOR is set.
-    Always,
-    /// No colour at all.
-    Never,
-}
+pub use crate::tui::theme::ColorChoice;
 
 /// The `--color` choice of this run, set once in `main`.
 static COLOR_CHOICE: std::sync::OnceLock<ColorChoice> = std::sync::OnceLock::new();

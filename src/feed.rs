@@ -80,6 +80,22 @@ pub struct Step {
     pub ended: bool,
 }
 
+/// What one input changed, without the watch state: [`Feed::advance`]
+/// returns it for every sample of a fast link, and the caller builds the
+/// state ([`Feed::state`]) only when it shows or prints it.
+#[derive(Debug, Clone, PartialEq)]
+pub struct Change {
+    /// The state or the face differs from the previous input's (the first
+    /// input counts as a change).
+    pub changed: bool,
+    /// An impact detected with this input (see [`Step::detection`]).
+    pub detection: Option<DetectionEvent>,
+    /// A link event in words, passed through.
+    pub note: Option<String>,
+    /// The input has ended; no more inputs will follow.
+    pub ended: bool,
+}
+
 /// Link messages in, watch state and detections out.
 #[derive(Debug, Clone)]
 pub struct Feed {
@@ -87,7 +103,7 @@ pub struct Feed {
     tracker: Tracker,
     detector: ImpactDetector,
     source: String,
-    last_key: Option<(WatchStateKind, Option<String>)>,
+    last_key: Option<(WatchStateKind, Option<usize>)>,
     detections: u64,
 }
 
@@ -106,8 +122,20 @@ impl Feed {
         }
     }
 
-    /// Take one input.
+    /// Take one input and return the state after it.
     pub fn push(&mut self, input: FeedInput) -> Step {
+        let c = self.advance(input);
+        Step {
+            state: self.state(),
+            changed: c.changed,
+            detection: c.detection,
+            note: c.note,
+            ended: c.ended,
+        }
+    }
+
+    /// Take one input; the state is not built (see [`Change`]).
+    pub fn advance(&mut self, input: FeedInput) -> Change {
         let mut detection = None;
         let mut note = None;
         let mut ended = false;
@@ -135,17 +163,20 @@ impl Feed {
             self.detections += 1;
             DetectionEvent::from_proposed(&p, &self.source)
         });
-        let state = self.tracker.state(&self.cage);
-        let key = (state.state, state.face.clone());
-        let changed = self.last_key.as_ref() != Some(&key);
+        let key = self.tracker.state_key(&self.cage);
+        let changed = self.last_key != Some(key);
         self.last_key = Some(key);
-        Step {
-            state,
+        Change {
             changed,
             detection,
             note,
             ended,
         }
+    }
+
+    /// The link clock now, s (as the state's `t`).
+    pub fn time_s(&self) -> f64 {
+        self.tracker.time_s()
     }
 
     /// End of watching without an end of input (a time limit, a closed
@@ -250,6 +281,28 @@ mod tests {
         assert!(steps[0].changed);
         // Below the threshold there is none.
         assert!(run(&scripted(3.0)).0.is_empty());
+    }
+
+    #[test]
+    fn the_quiet_step_agrees_with_the_full_state() {
+        // `advance` decides "changed" from the tracker's key, without the
+        // state; it must say what comparing whole states says.
+        let p = Profile::demo().unwrap();
+        let cage = Cage::from_profile(&p).unwrap();
+        let mut feed = Feed::new(cage, &p, "file:crash.rec");
+        let mut last: Option<(WatchStateKind, Option<String>)> = None;
+        let mut changes = 0;
+        for input in scripted(7.9) {
+            let c = feed.advance(input);
+            let st = feed.state();
+            let key = (st.state, st.face.clone());
+            assert_eq!(c.changed, last.as_ref() != Some(&key), "at t = {}", st.t);
+            assert_eq!(feed.time_s(), st.t);
+            changes += usize::from(c.changed);
+            last = Some(key);
+        }
+        // The first input, then resting on F1 once the dwell has passed.
+        assert!(changes >= 2, "{changes}");
     }
 
     #[test]

@@ -292,6 +292,37 @@ impl Tracker {
         }
     }
 
+    /// The state's kind and face, without building the whole state: what
+    /// a consumer compares to see a change, cheap enough for every sample.
+    /// Agrees with [`Tracker::state`]'s `state` and `face_index`.
+    pub fn state_key(&self, cage: &Cage) -> (WatchStateKind, Option<usize>) {
+        match self.last {
+            Some(a) if !self.is_stale() => (
+                self.kind_of(&a),
+                cage.faces.get(a.status.face).map(|_| a.status.face),
+            ),
+            _ => (WatchStateKind::Stale, None),
+        }
+    }
+
+    /// The link clock now, s, rounded to the millisecond as
+    /// [`WatchState::t`] is.
+    pub fn time_s(&self) -> f64 {
+        (self.now_s * 1000.0).round() / 1000.0
+    }
+
+    fn kind_of(&self, a: &Attitude) -> WatchStateKind {
+        if self.airborne {
+            WatchStateKind::Airborne
+        } else {
+            match a.status.state {
+                RestState::Resting => WatchStateKind::Resting,
+                RestState::Propped => WatchStateKind::Propped,
+                RestState::Moving => WatchStateKind::Moving,
+            }
+        }
+    }
+
     /// The state now.
     pub fn state(&self, cage: &Cage) -> WatchState {
         let stale = self.is_stale();
@@ -328,7 +359,7 @@ impl Tracker {
         };
         let base = WatchState {
             schema: WATCH_SCHEMA,
-            t: (self.now_s * 1000.0).round() / 1000.0,
+            t: self.time_s(),
             state: WatchStateKind::Stale,
             reason,
             face: None,
@@ -341,15 +372,7 @@ impl Tracker {
         };
         match self.last {
             Some(a) if !stale => {
-                let state = if self.airborne {
-                    WatchStateKind::Airborne
-                } else {
-                    match a.status.state {
-                        RestState::Resting => WatchStateKind::Resting,
-                        RestState::Propped => WatchStateKind::Propped,
-                        RestState::Moving => WatchStateKind::Moving,
-                    }
-                };
+                let state = self.kind_of(&a);
                 let face = cage.faces.get(a.status.face);
                 let reason = match (state, face) {
                     (WatchStateKind::Propped, Some(f)) => Some(format!(

@@ -38,14 +38,15 @@ use cagehand::sample::Sample;
 use cagehand::sim::wire::Wire;
 use cagehand::sim::{Sim, SimCommand};
 use sink::Sink;
+use std::collections::VecDeque;
 use std::path::PathBuf;
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
-use std::sync::mpsc::{self, Receiver, Sender};
+use std::sync::mpsc::{self, Receiver, RecvError, RecvTimeoutError, Sender, TryRecvError};
 use std::thread::JoinHandle;
 use std::time::{Duration, Instant};
 
-/// Messages the channel holds before a live reader starts dropping.
+/// Batches the channel holds before a live reader starts dropping.
 const CHANNEL_CAP: usize = 4096;
 
 /// What a reader sends.
@@ -248,11 +249,69 @@ impl LinkError {
     }
 }
 
+/// The consumer's end of a link: the reader ships its messages in batches
+/// (everything one read produced goes in one channel send, so a fast link
+/// costs one hand-over per read rather than per sample); this hands them
+/// out one at a time, in order.
+#[derive(Debug)]
+pub struct LinkRx {
+    rx: Receiver<Vec<LinkMsg>>,
+    queue: VecDeque<LinkMsg>,
+}
+
+impl LinkRx {
+    pub(crate) fn new(rx: Receiver<Vec<LinkMsg>>) -> LinkRx {
+        LinkRx {
+            rx,
+            queue: VecDeque::new(),
+        }
+    }
+
+    /// The next message, waiting as long as it takes; Err once the reader
+    /// has ended and everything it sent was handed out.
+    pub fn recv(&mut self) -> Result<LinkMsg, RecvError> {
+        loop {
+            if let Some(m) = self.queue.pop_front() {
+                return Ok(m);
+            }
+            let batch = self.rx.recv()?;
+            self.queue.extend(batch);
+        }
+    }
+
+    /// The next message, waiting at most `timeout`.
+    pub fn recv_timeout(&mut self, timeout: Duration) -> Result<LinkMsg, RecvTimeoutError> {
+        if let Some(m) = self.queue.pop_front() {
+            return Ok(m); // the common case: no clock read
+        }
+        let deadline = Instant::now() + timeout;
+        loop {
+            if let Some(m) = self.queue.pop_front() {
+                return Ok(m);
+            }
+            let left = deadline.saturating_duration_since(Instant::now());
+            let batch = self.rx.recv_timeout(left)?;
+            self.queue.extend(batch);
+        }
+    }
+
+    /// The next message if one is already here (not waiting).
+    pub fn try_recv(&mut self) -> Result<LinkMsg, TryRecvError> {
+        loop {
+            if let Some(m) = self.queue.pop_front() {
+                return Ok(m);
+            }
+            let batch = self.rx.try_recv()?;
+            self.queue.extend(batch);
+        }
+    }
+}
+
 /// An open link: its channel and a way to stop it.
 #[derive(Debug)]
 pub struct Link {
     /// Messages from the reader.
-    pub rx: Receiver<LinkMsg>,
+    pub rx: LinkRx,
     /// The spec it was opened from, as shown on the health line.
     pub source: String,
     commands: Option<Sender<SimCommand>>,
@@ -277,7 +336,10 @@ impl Drop for Link {
         self.stop.store(true, Ordering::Relaxed);
         if let Some(h) = self.reader.take() {
             // Close our end first, so a reader waiting to send is released.
-            drop(std::mem::replace(&mut self.rx, mpsc::sync_channel(0).1));
+            drop(std::mem::replace(
+                &mut self.rx,
+                LinkRx::new(mpsc::sync_channel(0).1),
+            ));
             let _ = h.join();
         }
     }
@@ -385,7 +447,7 @@ pub fn open(spec: &LinkSpec, opts: LinkOptions, mode: Mode) -> Result<Link, Link
         .spawn(body)
         .map_err(LinkError::Thread)?;
     Ok(Link {
-        rx,
+        rx: LinkRx::new(rx),
         source: spec.to_string(),
         commands,
         stop,

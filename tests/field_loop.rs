@@ -5,28 +5,10 @@
 
 use serde_json::Value;
 use std::path::Path;
-use std::process::{Command, Output};
+use std::process::Output;
 
-const BIN: &str = env!("CARGO_BIN_EXE_cagehand");
-
-fn cmd(data: &Path, args: &[&str]) -> Output {
-    Command::new(BIN)
-        .args(args)
-        .env("CAGEHAND_DATA", data)
-        .env("CAGEHAND_OPERATOR", "ana")
-        .output()
-        .unwrap()
-}
-
-fn ok(o: &Output) -> String {
-    assert!(
-        o.status.success(),
-        "exit {:?}: {}",
-        o.status.code(),
-        String::from_utf8_lossy(&o.stderr)
-    );
-    String::from_utf8(o.stdout.clone()).unwrap()
-}
+mod common;
+use common::{cmd, ok};
 
 fn json(o: &Output) -> Value {
     serde_json::from_str(&ok(o)).unwrap()

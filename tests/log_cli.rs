@@ -2,28 +2,10 @@
 //! binary on the bundled demo profile.
 
 use std::path::Path;
-use std::process::{Command, Output};
+use std::process::Command;
 
-const BIN: &str = env!("CARGO_BIN_EXE_cagehand");
-
-fn cmd(data: &Path, args: &[&str]) -> Output {
-    Command::new(BIN)
-        .args(args)
-        .env("CAGEHAND_DATA", data)
-        .env("CAGEHAND_OPERATOR", "ana")
-        .output()
-        .unwrap()
-}
-
-fn ok(o: &Output) -> String {
-    assert!(
-        o.status.success(),
-        "exit {:?}: {}",
-        o.status.code(),
-        String::from_utf8_lossy(&o.stderr)
-    );
-    String::from_utf8(o.stdout.clone()).unwrap()
-}
+mod common;
+use common::{BIN, cmd, ok};
 
 /// The members of `log health --json` (cagehand.health/1, docs/json.md).
 fn health(data: &Path) -> Vec<serde_json::Value> {

@@ -5,28 +5,10 @@
 
 use cagehand::logbook::chain::{SUM_TAG, sha256_hex};
 use std::path::{Path, PathBuf};
-use std::process::{Command, Output};
+use std::process::Command;
 
-const BIN: &str = env!("CARGO_BIN_EXE_cagehand");
-
-fn cmd(data: &Path, args: &[&str]) -> Output {
-    Command::new(BIN)
-        .args(args)
-        .env("CAGEHAND_DATA", data)
-        .env("CAGEHAND_OPERATOR", "ana")
-        .output()
-        .unwrap()
-}
-
-fn ok(o: &Output) -> String {
-    assert!(
-        o.status.success(),
-        "exit {:?}: {}",
-        o.status.code(),
-        String::from_utf8_lossy(&o.stderr)
-    );
-    String::from_utf8(o.stdout.clone()).unwrap()
-}
+mod common;
+use common::{BIN, cmd, ok};
 
 /// What a command said on stderr besides the line naming the log it wrote
 /// to (every write names its vehicle and log file).

@@ -235,6 +235,10 @@ fn the_demo_is_righted_and_its_preflight_signed_from_the_screens() {
     }
     wait_for(&sock, "READY to sign");
     keys(&sock, &["s"]);
+    // The sign form: the operator is known (ana), the note comes next.
+    wait_for(&sock, "Sign the pre-flight");
+    literal(&sock, "rotors spun up by hand, clear");
+    keys(&sock, &["Enter"]);
     wait_for(&sock, "pre-flight signed off by ana");
     keys(&sock, &["q"]);
     let p = wait_for(&sock, "EXIT=");
@@ -256,4 +260,5 @@ fn the_demo_is_righted_and_its_preflight_signed_from_the_screens() {
     let signed = &records[2];
     assert_eq!(signed["operator"], "ana");
     assert_eq!(signed["signed_off"], true, "{signed}");
+    assert_eq!(signed["note"], "rotors spun up by hand, clear", "{signed}");
 }

@@ -106,7 +106,7 @@ fn listen(args: &Args, l: &Loaded) -> anyhow::Result<Option<(WatchState, bool)>>
         signing_key: args.signing_key.clone(),
         ..LinkArgs::default_sim()
     };
-    let link = link_args.open(Some(l.cage.clone()), Mode::Decode, || args.log.data_dir())?;
+    let mut link = link_args.open(Some(l.cage.clone()), Mode::Decode, || args.log.data_dir())?;
     let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
     let start = Instant::now();
     let deadline = Duration::from_secs_f64(listen_s);

@@ -51,7 +51,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     };
     // A recording keeps the bytes as they came: nothing is checked, so no
     // replay floor (and no data folder) is needed.
-    let link = args.link.open(cage, Mode::Raw, || {
+    let mut link = args.link.open(cage, Mode::Raw, || {
         Err(super::bad_input("recording keeps no replay floor"))
     })?;
     let file = std::fs::OpenOptions::new()

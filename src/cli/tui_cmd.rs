@@ -525,7 +525,13 @@ fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEv
 /// The link's reader messages through the core feed into the screens'
 /// channel; detections are written to the log as they come. Ends when the
 /// link ends or the screens close.
-fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: MarginWorker) {
+fn spawn_feed(
+    mut link: Link,
+    l: Loaded,
+    log: LogOpts,
+    tx: Sender<Msg>,
+    margin: MarginWorker,
+) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log);
@@ -534,8 +540,7 @@ fn spawn_feed(link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: Marg
             return;
         }
         let mut last_read = Instant::now();
-        while let Ok(msg) = link.rx.recv() {
-            let step = feed.push(super::live::feed_input(msg));
+        while let Some(step) = super::live::next_step(&mut link.rx, &mut feed) {
             let mut extra = step.note.clone().map(Msg::Notice);
             let mut reread = last_read.elapsed() >= LOG_REREAD;
             if let Some(d) = &step.detection {

@@ -175,7 +175,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let loaded = args.profile.load()?;
     let cage = &loaded.cage;
     let wall0 = Instant::now();
-    let link = args
+    let mut link = args
         .link
         .open(Some(cage.clone()), Mode::Decode, || args.log.data_dir())?;
     let mut feed = Feed::new(cage.clone(), &loaded.profile, &link.source);
@@ -190,7 +190,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             Err(RecvTimeoutError::Timeout) => continue,
             Err(RecvTimeoutError::Disconnected) => break,
         };
-        let step = feed.push(super::live::feed_input(msg));
+        let step = feed.advance(super::live::feed_input(msg));
         if let Some(text) = &step.note {
             let _ = writeln!(
                 std::io::stderr().lock(),
@@ -198,18 +198,23 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 link.source
             );
         }
-        let st = &step.state;
-        // At the end, a last line if the link's counters moved since the
-        // last one, so the last line agrees with the summary.
-        let link_moved = step.ended && last_link.as_ref() != Some(&st.link);
-        if step.changed || st.t >= next_periodic || link_moved {
-            states.insert(st.state);
-            if writeln!(out, "{}", serde_json::to_string(st)?).is_err() {
-                return Ok(ExitCode::SUCCESS); // the reader of our output went away
+        // The state is built only when a line may be due: a change, a new
+        // second of link time, or the end.
+        let t = feed.time_s();
+        if step.changed || t >= next_periodic || step.ended {
+            let st = feed.state();
+            // At the end, a last line if the link's counters moved since the
+            // last one, so the last line agrees with the summary.
+            let link_moved = step.ended && last_link.as_ref() != Some(&st.link);
+            if step.changed || st.t >= next_periodic || link_moved {
+                states.insert(st.state);
+                if writeln!(out, "{}", serde_json::to_string(&st)?).is_err() {
+                    return Ok(ExitCode::SUCCESS); // the reader of our output went away
+                }
+                lines += 1;
+                next_periodic = st.t.floor() + 1.0;
+                last_link = Some(st.link);
             }
-            lines += 1;
-            last_link = Some(st.link.clone());
-            next_periodic = st.t.floor() + 1.0;
         }
         if let Some(d) = &step.detection {
             if !write_detection(&mut out, &loaded, &args.log, d)? {
@@ -220,7 +225,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         if step.ended {
             break;
         }
-        if args.duration_s.is_some_and(|d| st.t >= d) {
+        if args.duration_s.is_some_and(|d| t >= d) {
             // Stopping early: an impact in progress is still reported.
             if let Some(d) = feed.finish() {
                 write_detection(&mut out, &loaded, &args.log, &d)?;

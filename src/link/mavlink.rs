@@ -46,7 +46,7 @@ pub const MAX_BUFFERED: usize = CHUNK + 2 * MAX_FRAME_LEN;
 /// Frames kept for the caller before the oldest are dropped.
 const MAX_QUEUED: usize = 256;
 
-const X25: Crc<u16> = Crc::<u16>::new(&CRC_16_MCRF4XX);
+static X25: Crc<u16> = Crc::<u16>::new(&CRC_16_MCRF4XX);
 
 /// CRC-16/MCRF4XX of `bytes` followed by `extra` (the MAVLink checksum).
 pub fn checksum(bytes: &[u8], extra: u8) -> u16 {

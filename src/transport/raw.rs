@@ -7,7 +7,7 @@ use std::io::Read;
 use std::sync::atomic::{AtomicBool, Ordering};
 
 pub(super) fn read_raw(mut f: std::fs::File, sink: &mut Sink, stop: &AtomicBool) {
-    let mut buf = vec![0u8; 4096];
+    let mut buf = vec![0u8; 1 << 16];
     loop {
         if stop.load(Ordering::Relaxed) {
             return;

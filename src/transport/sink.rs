@@ -8,8 +8,16 @@ use cagehand::link::{Counters, Decoder};
 use std::sync::mpsc::{SyncSender, TrySendError};
 
 /// The reader's side of the channel, with its decoder.
+///
+/// What one read of bytes produces (samples, counters, ticks) is held and
+/// shipped as one batch when the read is done: one channel hand-over per
+/// read instead of two per sample. The order of the messages is unchanged.
 pub(super) struct Sink {
-    pub(super) tx: SyncSender<LinkMsg>,
+    pub(super) tx: SyncSender<Vec<LinkMsg>>,
+    /// Messages of the read in progress, not yet shipped.
+    held: Vec<LinkMsg>,
+    /// Inside a read: `send` holds instead of shipping.
+    holding: bool,
     pub(super) decoder: Decoder,
     pub(super) raw: bool,
     pub(super) blocking: bool,
@@ -28,7 +36,7 @@ impl Sink {
     /// A sink for a reader: `blocking` waits for the consumer instead of
     /// dropping; `sample_clock` runs the link clock on sender time.
     pub(super) fn new(
-        tx: SyncSender<LinkMsg>,
+        tx: SyncSender<Vec<LinkMsg>>,
         decoder: Decoder,
         raw: bool,
         blocking: bool,
@@ -37,6 +45,8 @@ impl Sink {
     ) -> Sink {
         Sink {
             tx,
+            held: Vec::new(),
+            holding: false,
             decoder,
             raw,
             blocking,
@@ -49,24 +59,38 @@ impl Sink {
         }
     }
 
-    /// Send; false once the consumer is gone.
+    /// Send (or hold, inside a read); false once the consumer is gone.
     pub(super) fn send(&mut self, msg: LinkMsg) -> bool {
         self.last_sent_s = self.clock_s;
-        if self.blocking {
-            return self.tx.send(msg).is_ok();
+        if self.holding {
+            self.held.push(msg);
+            return true;
         }
-        match self.tx.try_send(msg) {
+        self.ship(vec![msg])
+    }
+
+    /// Hand a batch to the consumer. A live link whose consumer is behind
+    /// drops the batch rather than wait: its samples count as dropped and
+    /// its counters go again with the next batch.
+    fn ship(&mut self, batch: Vec<LinkMsg>) -> bool {
+        if self.blocking {
+            return self.tx.send(batch).is_ok();
+        }
+        match self.tx.try_send(batch) {
             Ok(()) => true,
-            Err(TrySendError::Full(LinkMsg::Sample { .. })) => {
-                self.decoder.count_dropped(1);
+            Err(TrySendError::Full(batch)) => {
+                let samples = batch
+                    .iter()
+                    .filter(|m| matches!(m, LinkMsg::Sample { .. }))
+                    .count();
+                if samples > 0 {
+                    self.decoder.count_dropped(samples as u64);
+                }
+                if batch.iter().any(|m| matches!(m, LinkMsg::Health { .. })) {
+                    self.health_sent = None;
+                }
                 true
             }
-            Err(TrySendError::Full(LinkMsg::Health { .. })) => {
-                // Lost: send the counters with the next batch.
-                self.health_sent = None;
-                true
-            }
-            Err(TrySendError::Full(_)) => true,
             Err(TrySendError::Disconnected(_)) => false,
         }
     }
@@ -77,8 +101,32 @@ impl Sink {
         }
     }
 
-    /// Bytes that arrived at `at_s`.
+    /// Hold what follows until [`Sink::release`]: a reader that gathers
+    /// several reads into one batch (UDP, see src/transport/udp.rs).
+    pub(super) fn hold(&mut self) {
+        self.holding = true;
+    }
+
+    /// Ship what was held; false once the consumer is gone.
+    pub(super) fn release(&mut self) -> bool {
+        self.holding = false;
+        let batch = std::mem::take(&mut self.held);
+        batch.is_empty() || self.ship(batch)
+    }
+
+    /// Bytes that arrived at `at_s`: decoded, and everything they give
+    /// shipped as one batch (or added to the one being held).
     pub(super) fn data(&mut self, at_s: f64, bytes: &[u8]) -> bool {
+        if self.holding {
+            return self.data_held(at_s, bytes);
+        }
+        self.holding = true;
+        let ok = self.data_held(at_s, bytes);
+        let shipped = self.release();
+        ok && shipped
+    }
+
+    fn data_held(&mut self, at_s: f64, bytes: &[u8]) -> bool {
         self.advance(at_s);
         if self.raw {
             let at_s = self.clock_s;
@@ -199,7 +247,7 @@ impl Sink {
         self.decoder.finish(self.clock_s);
         self.flush();
         let at_s = self.clock_s;
-        let _ = self.tx.send(LinkMsg::End { at_s });
+        let _ = self.tx.send(vec![LinkMsg::End { at_s }]);
     }
 }
 

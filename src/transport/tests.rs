@@ -19,7 +19,7 @@ fn udp_link_reads_frames_and_refuses_strangers() {
         allow: vec![AllowEntry::Socket(me)],
         ..Default::default()
     };
-    let link = open(&LinkSpec::Udp(addr), opts, Mode::Decode).expect("open udp");
+    let mut link = open(&LinkSpec::Udp(addr), opts, Mode::Decode).expect("open udp");
     let stranger = std::net::UdpSocket::bind("127.0.0.1:0").expect("bind");
     stranger
         .send_to(b"t=1 roll=0 pitch=0 yaw=0\n", addr)
@@ -52,7 +52,7 @@ fn serial_link_reads_reports_busy_and_loss() {
         path: path.clone(),
         baud: 57600,
     };
-    let link = open(&spec, LinkOptions::default(), Mode::Decode).expect("open pty");
+    let mut link = open(&spec, LinkOptions::default(), Mode::Decode).expect("open pty");
     // A second opener finds the port taken (serialport opens exclusively).
     let e = open(&spec, LinkOptions::default(), Mode::Decode).expect_err("busy");
     assert!(matches!(e, LinkError::SerialBusy { .. }), "{e}");
@@ -107,7 +107,7 @@ fn sim_at_max_speed_gives_samples_and_takes_commands() {
         replay_speed: ReplaySpeed::Max,
         ..Default::default()
     };
-    let link = open(&LinkSpec::Sim { seed: 2 }, opts, Mode::Decode).expect("sim");
+    let mut link = open(&LinkSpec::Sim { seed: 2 }, opts, Mode::Decode).expect("sim");
     let commander = link.commander().expect("the simulator takes commands");
     assert!(commander.send(SimCommand::Fly).is_ok());
     let mut n = 0;

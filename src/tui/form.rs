@@ -29,8 +29,8 @@ pub enum Purpose {
     Note,
     /// An override reason for pre-flight item `n`.
     Override(u32),
-    /// The operator's name, then sign the pre-flight.
-    SignOperator,
+    /// Who signs and a note, then sign the pre-flight.
+    Sign,
 }
 
 /// How a field's text is checked.
@@ -279,13 +279,18 @@ impl Form {
         }
     }
 
-    /// The operator's name for a sign-off.
-    pub fn sign_operator() -> Form {
+    /// The sign-off: who signs (filled in when known) and a note written
+    /// with the record (optional).
+    pub fn sign(operator: Option<&str>, note: Option<&str>) -> Form {
         Form {
-            purpose: Purpose::SignOperator,
-            title: " Sign the pre-flight: who signs? ".to_string(),
-            fields: vec![field("operator", "", Check::Required)],
-            focus: 0,
+            purpose: Purpose::Sign,
+            title: " Sign the pre-flight ".to_string(),
+            fields: vec![
+                field("operator", operator.unwrap_or(""), Check::Required),
+                field("note", note.unwrap_or(""), Check::Optional),
+            ],
+            // Straight to the note when the operator is known.
+            focus: usize::from(operator.is_some()),
         }
     }
 
@@ -399,7 +404,7 @@ impl Form {
     }
 
     /// The write this form asks for, once every field is right (None for
-    /// the forms that write nothing themselves: override, sign operator).
+    /// the forms that write nothing themselves: override, sign).
     pub fn work(&self, shared: &Shared) -> Result<Option<Work>, String> {
         if let Some((i, p)) = self.problems(shared).into_iter().next() {
             return Err(format!("{}: {p}", self.fields[i].label));
@@ -445,7 +450,7 @@ impl Form {
                 note,
             }),
             Purpose::Note => Some(Work::Note(self.value("text").to_string())),
-            Purpose::Override(_) | Purpose::SignOperator => None,
+            Purpose::Override(_) | Purpose::Sign => None,
         })
     }
 

@@ -554,8 +554,10 @@ fn submit(model: &mut Model, form: Form) {
             model.screens.preflight.signoff.overrides.insert(*n, reason);
             sh.notice = Some(format!("item {n} overridden (written with the sign-off)"));
         }
-        (Purpose::SignOperator, _) => {
-            model.screens.preflight.sign(sh);
+        (Purpose::Sign, _) => {
+            let note = form.value("note").trim();
+            model.screens.preflight.signoff.note = (!note.is_empty()).then(|| note.to_string());
+            model.screens.preflight.write_sign(sh);
         }
         (_, Some(work)) => ask_write(sh, work, None),
         (_, None) => {}

@@ -136,26 +136,43 @@ impl PreflightScreen {
         }
     }
 
-    /// Sign off: refused here with every blocking reason, else asks for
-    /// the operator when none is known, else asks the loop to write.
+    /// Sign off (the key): refused here with every blocking reason, else
+    /// the sign form opens (who signs, a note).
     pub fn sign(&mut self, shared: &mut Shared) {
-        let Some(eval) = shared.live.preflight.clone() else {
-            shared.notice = Some("cannot sign: the checklist is not evaluated yet".into());
+        if self.signable(shared).is_none() {
+            return;
+        }
+        shared.form = Some(Form::sign(
+            shared.operator.as_deref(),
+            self.signoff.note.as_deref(),
+        ));
+    }
+
+    /// After the sign form: checked again (the checklist may have moved
+    /// while the form was open), then the loop is asked to write.
+    pub fn write_sign(&mut self, shared: &mut Shared) {
+        let Some(eval) = self.signable(shared) else {
             return;
         };
-        if let Err(r) = cagehand::preflight::sign(&eval, &self.signoff) {
-            shared.notice = Some(format!("NOT signed: {}", r.reasons.join("; ")));
-            return;
-        }
-        if shared.operator.is_none() {
-            shared.form = Some(Form::sign_operator());
-            return;
-        }
         crate::tui::model::ask_write(
             shared,
             Work::Sign(self.signoff.clone()),
             Some(Box::new(eval)),
         );
+    }
+
+    /// The evaluation to sign against, or None with the reasons on the
+    /// message line.
+    fn signable(&self, shared: &mut Shared) -> Option<cagehand::preflight::Evaluation> {
+        let Some(eval) = shared.live.preflight.clone() else {
+            shared.notice = Some("cannot sign: the checklist is not evaluated yet".into());
+            return None;
+        };
+        if let Err(r) = cagehand::preflight::sign(&eval, &self.signoff) {
+            shared.notice = Some(format!("NOT signed: {}", r.reasons.join("; ")));
+            return None;
+        }
+        Some(eval)
     }
 
     /// The result shown for an item: a ticked hand item or an overridden
@@ -300,7 +317,7 @@ impl Component for PreflightScreen {
         let verdict = match shared.live.preflight.as_ref() {
             None => Line::raw(""),
             Some(eval) => match cagehand::preflight::sign(eval, &self.signoff) {
-                Ok(_) => Line::styled("READY to sign: s signs and writes the record", t.good),
+                Ok(_) => Line::styled("READY to sign: s opens the sign-off (who signs, a note)", t.good),
                 Err(r) => Line::styled(
                     format!(
                         "BLOCKED ({}): {}",
@@ -401,6 +418,55 @@ mod tests {
         assert!(m.shared.outbox.is_empty(), "nothing asked to be written");
         let notice = m.shared.notice.clone().unwrap();
         assert!(notice.starts_with("NOT signed"), "{notice}");
+    }
+
+    #[test]
+    fn signing_opens_a_form_whose_note_goes_with_the_record() {
+        use crate::tui::model::{LiveState, held, live_on};
+        // Ready: resting on a take-off face, every hand item ticked.
+        let m = demo_model();
+        let face = m.shared.takeoff[0];
+        let mut live = live_on(&m, face, 12.0, LiveState::Resting);
+        live.battery_v = Some(12.4);
+        let q = cagehand::rest::resting_attitude(&m.shared.cage, face);
+        let st = tracked(&m, &held(q, Some(12.4), Some(false)), 1.5);
+        let health = cagehand::health::assess(&[], &m.shared.cage, &m.shared.profile.inspection);
+        let mut m = m.with_health(Some(health), "no records".to_string());
+        update(&mut m, Msg::Live(Box::new(live)));
+        let mut m = with_preflight(m, &st);
+        update(&mut m, key('4'));
+        let eval = m.shared.live.preflight.clone().unwrap();
+        m.screens.preflight.signoff = cagehand::preflight::SignOff::tick_all(&eval);
+        m.shared.operator = Some("ana".into());
+
+        update(&mut m, key('s'));
+        let form = m.shared.form.as_ref().expect("the sign form opens");
+        assert_eq!(
+            form.value("operator"),
+            "ana",
+            "the known operator is filled in"
+        );
+        assert!(m.shared.outbox.is_empty(), "nothing written before Enter");
+        for c in "props checked".chars() {
+            update(&mut m, key(c));
+        }
+        update(
+            &mut m,
+            Msg::Key(KeyEvent::new(KeyCode::Enter, KeyModifiers::NONE)),
+        );
+        assert!(m.shared.form.is_none());
+        match m.shared.outbox.as_slice() {
+            [crate::tui::model::Effect::Log { operator, work, .. }] => {
+                assert_eq!(operator, "ana");
+                match work {
+                    crate::tui::form::Work::Sign(s) => {
+                        assert_eq!(s.note.as_deref(), Some("props checked"));
+                    }
+                    other => panic!("not a sign-off: {other:?}"),
+                }
+            }
+            other => panic!("one write expected: {other:?}"),
+        }
     }
 
     #[test]

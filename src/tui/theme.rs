@@ -4,6 +4,18 @@
 
 use ratatui::style::{Color, Modifier, Style};
 
+/// When to use colour (`--color`). Defined with the screens, whose
+/// colours it governs; the command line re-exports it.
+#[derive(Debug, Clone, Copy, PartialEq, Eq, clap::ValueEnum)]
+pub enum ColorChoice {
+    /// Colour when the output is a terminal and NO_COLOR is not set.
+    Auto,
+    /// Colour even when NO_COLOR is set.
+    Always,
+    /// No colour at all.
+    Never,
+}
+
 /// What the terminal can show.
 #[derive(Debug, Clone, Copy, PartialEq, Eq)]
 pub enum ColourDepth {
@@ -29,8 +41,7 @@ impl ColourDepth {
 
     /// Decide from the `--color` choice: `never` is no colour, `always`
     /// ignores NO_COLOR, `auto` reads the environment.
-    pub fn for_choice(choice: crate::cli::ColorChoice) -> ColourDepth {
-        use crate::cli::ColorChoice;
+    pub fn for_choice(choice: ColorChoice) -> ColourDepth {
         match choice {
             ColorChoice::Never => ColourDepth::None,
             ColorChoice::Always => {

@@ -525,13 +525,7 @@ fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEv
 /// The link's reader messages through the core feed into the screens'
 /// channel; detections are written to the log as they come. Ends when the
 /// link ends or the screens close.
-fn spawn_feed(
-    mut link: Link,
-    l: Loaded,
-    log: LogOpts,
-    tx: Sender<Msg>,
-    margin: MarginWorker,
-) {
+fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: MarginWorker) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
         let mut book = LogView::read(&l, &log);
@@ -591,4 +585,93 @@ fn spawn_feed(
             }
         }
     });
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::time::Duration;
+
+    /// The messages the workers send until `Written`, then the margin.
+    fn until_written_and_margin(rx: &mpsc::Receiver<Msg>) -> (Vec<Msg>, Msg) {
+        let mut before = Vec::new();
+        loop {
+            let m = rx
+                .recv_timeout(Duration::from_secs(300))
+                .expect("the writer answers");
+            let done = matches!(m, Msg::Written(_));
+            before.push(m);
+            if done {
+                break;
+            }
+        }
+        loop {
+            let m = rx
+                .recv_timeout(Duration::from_secs(300))
+                .expect("the margin worker answers");
+            if matches!(m, Msg::Margin { .. }) {
+                return (before, m);
+            }
+        }
+    }
+
+    #[test]
+    fn writes_are_carried_out_off_the_asking_thread_and_refusals_change_nothing() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let log = LogOpts {
+            data: Some(dir.path().to_path_buf()),
+            operator: Some("ana".into()),
+        };
+        let l = cagehand::vehicle::demo().expect("the demo loads");
+        let (tx, rx) = mpsc::channel::<Msg>();
+        let margin = spawn_margin(l.clone(), tx.clone());
+        let writer = spawn_writer(l.clone(), log.clone(), tx, margin);
+        // Asking returns at once; the answer comes over the channel.
+        let t0 = Instant::now();
+        writer
+            .send(WriteJob {
+                operator: "ana".into(),
+                work: Work::Note("grass strip, day 3 (invented)".into()),
+                seen_seq: None,
+                eval: None,
+            })
+            .expect("the writer takes the job");
+        assert!(t0.elapsed() < Duration::from_secs(1));
+        let (msgs, margin_msg) = until_written_and_margin(&rx);
+        match &msgs[..] {
+            [Msg::Records(r), Msg::Health(..), Msg::Written(said)] => {
+                assert_eq!(r.len(), 1, "the note is in the records sent");
+                assert!(said.contains("note written for kestrel-demo"), "{said}");
+            }
+            other => panic!("records, health, written expected: {other:?}"),
+        }
+        match margin_msg {
+            Msg::Margin { mark, result } => {
+                assert_eq!(mark.0, 1, "worked out for the log with the note");
+                assert!(result.is_ok(), "{result:?}");
+            }
+            other => panic!("{other:?}"),
+        }
+        // A dismissal of a detection that is not in the log is refused and
+        // the log keeps its one record.
+        writer
+            .send(WriteJob {
+                operator: "ana".into(),
+                work: Work::Dismiss {
+                    seq: 9,
+                    reason: "no such detection".into(),
+                },
+                seen_seq: Some(1),
+                eval: None,
+            })
+            .expect("the writer takes the job");
+        let (msgs, _) = until_written_and_margin(&rx);
+        match &msgs[..] {
+            [Msg::Records(r), Msg::Health(..), Msg::Written(said)] => {
+                assert_eq!(r.len(), 1, "nothing written");
+                assert!(said.starts_with("NOT written"), "{said}");
+            }
+            other => panic!("records, health, written expected: {other:?}"),
+        }
+    }
 }

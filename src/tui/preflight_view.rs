@@ -317,7 +317,10 @@ impl Component for PreflightScreen {
         let verdict = match shared.live.preflight.as_ref() {
             None => Line::raw(""),
             Some(eval) => match cagehand::preflight::sign(eval, &self.signoff) {
-                Ok(_) => Line::styled("READY to sign: s opens the sign-off (who signs, a note)", t.good),
+                Ok(_) => Line::styled(
+                    "READY to sign: s opens the sign-off (who signs, a note)",
+                    t.good,
+                ),
                 Err(r) => Line::styled(
                     format!(
                         "BLOCKED ({}): {}",

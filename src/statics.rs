@@ -16,6 +16,7 @@ use nalgebra::{DMatrix, DVector, SVD, Vector3};
 mod force_method;
 mod matrix;
 mod nonlinear;
+mod reduced;
 
 pub use force_method::{LinearResult, linear_load_case};
 pub use matrix::{SelfStress, equilibrium_matrix, self_stress};

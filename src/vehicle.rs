@@ -10,13 +10,16 @@
 //! To add a check that needs the cage: write a [`CageCheck`] function below
 //! and list it in [`CAGE_CHECKS`]; point its refusal at a key path from
 //! `crate::profile` (`takeoff_face_path`, `member_path`, `cage_key`, ...).
+//! The prestress check runs last, on the cage's statics, which the loaded
+//! vehicle keeps ([`Loaded::statics`]) so no command works them out again.
 
 use crate::cage::{Cage, CageError};
+use crate::impact::CageStatics;
 use crate::profile::{
     CageShape, DEMO_PROFILE_NAME, DEMO_PROFILE_TOML, Profile, ProfileError, TakeoffFaces, cage_key,
     member_path, pretension_path, takeoff_face_path, vehicle_key,
 };
-use crate::statics::{StaticsError, Structure, self_stress};
+use crate::statics::StaticsError;
 
 /// A profile that passed every check, and its cage.
 #[derive(Debug, Clone)]
@@ -25,6 +28,9 @@ pub struct Loaded {
     pub profile: Profile,
     /// Its cage.
     pub cage: Cage,
+    /// The cage's statics (structure, rank, self-stress, prestress), worked
+    /// out once by the prestress check and shared by every analysis.
+    pub statics: CageStatics,
 }
 
 /// Why a vehicle could not be loaded.
@@ -46,12 +52,12 @@ pub enum LoadError {
 /// A check that needs the built cage.
 pub type CageCheck = fn(&Profile, &Cage) -> Result<(), LoadError>;
 
-/// The checks that need the built cage, in the order they run.
+/// The checks that need the built cage, in the order they run (then the
+/// prestress check, which needs the cage's statics too).
 pub const CAGE_CHECKS: &[CageCheck] = &[
     takeoff_faces_exist,
     takeoff_faces_hold_the_vehicle,
     rods_do_not_cross,
-    prestress_within_capacity,
 ];
 
 /// Load a vehicle from a profile file's bytes; `file` names it in messages.
@@ -71,7 +77,16 @@ impl Loaded {
         for check in CAGE_CHECKS {
             check(&profile, &cage)?;
         }
-        Ok(Loaded { profile, cage })
+        let statics = CageStatics::new(&cage, &profile).map_err(|source| LoadError::Statics {
+            file: profile.source.clone(),
+            source,
+        })?;
+        prestress_within_capacity(&profile, &statics)?;
+        Ok(Loaded {
+            profile,
+            cage,
+            statics,
+        })
     }
 }
 
@@ -246,12 +261,8 @@ fn rods_do_not_cross(p: &Profile, _c: &Cage) -> Result<(), LoadError> {
 /// rod that buckles under the prestress has no reserve for any impact.
 /// A cage with no self-stress carries no prestress (the impact analysis
 /// refuses it on its own).
-fn prestress_within_capacity(p: &Profile, c: &Cage) -> Result<(), LoadError> {
-    let s = Structure::from_cage(c, p);
-    let ss = self_stress(&s, p.string.pretension_n).map_err(|source| LoadError::Statics {
-        file: p.source.clone(),
-        source,
-    })?;
+fn prestress_within_capacity(p: &Profile, statics: &CageStatics) -> Result<(), LoadError> {
+    let (s, ss) = (&statics.structure, &statics.self_stress);
     // A utilisation that is not a number counts as beyond capacity (fail safe).
     let mut worst: Option<(usize, f64, f64, f64)> = None;
     for (j, (bar, &t)) in s.bars.iter().zip(&ss.prestress_n).enumerate() {

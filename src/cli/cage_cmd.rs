@@ -6,7 +6,7 @@ use super::rotor_out::{RotorJson, ScheduleJson, rotors_json, schedule_json};
 use cagehand::cage::{Cage, MemberKind};
 use cagehand::profile::Profile;
 use cagehand::righting::{MoveKind, RightingModel};
-use cagehand::statics::{SelfStress, Structure, self_stress};
+use cagehand::statics::SelfStress;
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -203,14 +203,11 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         return super::margin_cmd::run(m, &args.profile);
     }
     let l = args.profile.load()?;
-    super::progress::Large::new(&l.cage).stage("self-stress of the cage");
-    let ss = self_stress(
-        &Structure::from_cage(&l.cage, &l.profile),
-        l.profile.string.pretension_n,
-    )?;
+    // The self-stress was worked out once, when the vehicle loaded.
+    let ss = &l.statics.self_stress;
     let model = RightingModel::new(&l.profile, &l.cage)
         .map_err(|e| super::bad_input(format!("{}: {e}", l.profile.source)))?;
-    let r = report(&l.profile, &l.cage, &ss, &model);
+    let r = report(&l.profile, &l.cage, ss, &model);
     let mut out = std::io::stdout().lock();
     if args.json {
         writeln!(out, "{}", serde_json::to_string_pretty(&r)?)?;

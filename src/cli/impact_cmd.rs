@@ -313,12 +313,10 @@ pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Re
     if let (Some(seq), Some(book)) = (detection, book.as_ref()) {
         log_cmd::check_pending(book, seq)?;
     }
-    let large = super::progress::Large::new(&l.cage);
-    large.stage("self-stress of the cage");
-    let statics = CageStatics::new(&l.cage, &l.profile)
-        .map_err(|e| anyhow::Error::new(e).context("impact analysis failed"))?;
-    large.stage("impact");
-    let a = match (analyse(l, &statics, &resolved), book.as_mut()) {
+    // The cage's statics were worked out once, when the vehicle loaded.
+    let statics = &l.statics;
+    super::progress::Large::new(&l.cage).stage("impact");
+    let a = match (analyse(l, statics, &resolved), book.as_mut()) {
         (Ok(a), _) => a,
         (Err(e), Some(book)) => {
             // The worst crash is the one that most needs logging: record it

@@ -188,6 +188,21 @@ impl RowSpace {
     }
 }
 
+/// The rank of A and the part of `g` in its null space: by the sparse
+/// reduced stiffness when the cage has no mechanism and that route is well
+/// conditioned (`super::reduced`), else by the dense decomposition. Both
+/// give the same projection to round-off where both apply.
+pub(crate) fn rank_and_null_part(
+    s: &Structure,
+    g: &[f64],
+) -> Result<(usize, Vec<f64>), StaticsError> {
+    if let Some(found) = super::reduced::project(&s.pos_m, &s.bars, g) {
+        return Ok(found);
+    }
+    let d = RowSpace::new(&s.pos_m, &s.bars)?;
+    Ok((d.rank, d.null_part(g)))
+}
+
 /// What the equilibrium matrix says about the cage, and the prestress.
 #[derive(Debug, Clone, PartialEq)]
 pub struct SelfStress {
@@ -212,13 +227,18 @@ pub struct SelfStress {
 /// With several self-stress states, the one nearest to "all strings equally
 /// tensioned" (the projection of that pattern onto the null space) is used.
 pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, StaticsError> {
-    let d = RowSpace::new(&s.pos_m, &s.bars)?;
     let b = s.bars.len();
-    let states = b - d.rank;
-    let mechanisms = (3 * s.node_count()).saturating_sub(d.rank + 6);
     let strings: Vec<usize> = (0..b)
         .filter(|&j| s.bars[j].kind == MemberKind::String)
         .collect();
+    // "Every string pulls equally", to be projected onto the self-stresses.
+    let mut g = vec![0.0; b];
+    for &j in &strings {
+        g[j] = 1.0;
+    }
+    let (rank, projected) = rank_and_null_part(s, &g)?;
+    let states = b - rank;
+    let mechanisms = (3 * s.node_count()).saturating_sub(rank + 6);
     let zero = vec![0.0; b];
     let plural = |n: usize, one: &str, many: &str| {
         if n == 1 {
@@ -229,14 +249,14 @@ pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, Stati
     };
     let counts = format!(
         "rank {} of {}x{}: {}, {}",
-        d.rank,
+        rank,
         3 * s.node_count(),
         b,
         plural(states, "self-stress state", "self-stress states"),
         plural(mechanisms, "mechanism", "mechanisms")
     );
     let fail = |why: String| SelfStress {
-        rank: d.rank,
+        rank,
         states,
         mechanisms,
         prestress_n: zero.clone(),
@@ -251,12 +271,8 @@ pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, Stati
     if strings.is_empty() {
         return Ok(fail("The cage has no strings to pretension".into()));
     }
-    // Project "every string pulls equally" onto the self-stress states.
-    let mut g = vec![0.0; b];
-    for &j in &strings {
-        g[j] = 1.0;
-    }
-    let t = DVector::from_vec(d.null_part(&g));
+    // The projection of "every string pulls equally" onto the states.
+    let t = DVector::from_vec(projected);
     let largest = strings.iter().map(|&j| t[j]).fold(f64::MIN, f64::max);
     let scale_ref = t.amax();
     if largest.is_nan() || largest <= 1e-9 * scale_ref.max(f64::MIN_POSITIVE) {
@@ -276,7 +292,7 @@ pub fn self_stress(s: &Structure, pretension_n: f64) -> Result<SelfStress, Stati
         )));
     }
     Ok(SelfStress {
-        rank: d.rank,
+        rank,
         states,
         mechanisms,
         prestress_n: t.iter().copied().collect(),

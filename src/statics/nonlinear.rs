@@ -15,7 +15,7 @@
 use super::{StaticsError, Structure, remove_rigid, rigid_modes, stack};
 use crate::cage::MemberKind;
 use faer::linalg::solvers::Solve;
-use faer::sparse::linalg::solvers::{Lu, SymbolicLu};
+use faer::sparse::linalg::solvers::{Llt, Lu, SymbolicLlt, SymbolicLu};
 use faer::sparse::{SparseColMat, Triplet};
 use nalgebra::{DMatrix, DVector, Matrix3, Vector3};
 
@@ -383,6 +383,10 @@ struct SparseTangent {
     triplets: Vec<Triplet<usize, usize, f64>>,
     /// Symbolic LU of B's pattern, computed on first use.
     symbolic: Option<SymbolicLu<usize>>,
+    /// Symbolic Cholesky of B's pattern, computed on first use: B is
+    /// symmetric, and positive definite while the cage is stable, where
+    /// the Cholesky factorisation costs a fraction of the LU.
+    symbolic_llt: Option<SymbolicLlt<usize>>,
 }
 
 impl SparseTangent {
@@ -413,6 +417,7 @@ impl SparseTangent {
                 .collect(),
             triplets: Vec::new(),
             symbolic: None,
+            symbolic_llt: None,
         }
     }
 
@@ -452,10 +457,23 @@ impl SparseTangent {
         }
         let bmat =
             SparseColMat::<usize, f64>::try_new_from_triplets(dim, dim, &self.triplets).ok()?;
-        if self.symbolic.is_none() {
-            self.symbolic = Some(SymbolicLu::try_new(bmat.symbolic()).ok()?);
+        if self.symbolic_llt.is_none() {
+            self.symbolic_llt = SymbolicLlt::try_new(bmat.symbolic(), faer::Side::Lower).ok();
         }
-        let lu = Lu::try_new_with_symbolic(self.symbolic.clone()?, bmat.as_ref()).ok()?;
+        let llt = self
+            .symbolic_llt
+            .clone()
+            .and_then(|sym| Llt::try_new_with_symbolic(sym, bmat.as_ref(), faer::Side::Lower).ok());
+        // Not positive definite (a compressed rod near buckling): LU.
+        let factor = match llt {
+            Some(llt) => Ok(llt),
+            None => {
+                if self.symbolic.is_none() {
+                    self.symbolic = Some(SymbolicLu::try_new(bmat.symbolic()).ok()?);
+                }
+                Err(Lu::try_new_with_symbolic(self.symbolic.clone()?, bmat.as_ref()).ok()?)
+            }
+        };
         let modes = rigid_modes(pos);
         let q = modes.ncols();
         let extra = q + self.anchors.len();
@@ -470,7 +488,10 @@ impl SparseTangent {
         for (k, &i) in self.anchors.iter().enumerate() {
             y[(i, 1 + q + k)] = 1.0;
         }
-        lu.solve_in_place(y.as_mut());
+        match &factor {
+            Ok(llt) => llt.solve_in_place(y.as_mut()),
+            Err(lu) => lu.solve_in_place(y.as_mut()),
+        }
         // U^T y for a column of y.
         let ut = |col: usize, row: usize| -> f64 {
             if row < q {

@@ -16,6 +16,7 @@ pub mod cage_view;
 pub mod component;
 pub mod form;
 pub mod keys;
+pub mod margin_map;
 pub mod model;
 pub mod net_view;
 pub mod preflight_view;

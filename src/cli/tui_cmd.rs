@@ -8,17 +8,20 @@ use super::link_args::LinkArgs;
 use super::log_cmd::{LogOpts, lock_wait};
 use crate::transport::{Link, Mode};
 use crate::tui::form::Work;
+use crate::tui::margin_map::{LogMark, log_mark};
 use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestSample, count};
 use crate::tui::theme::{ColourDepth, Theme};
 use cagehand::feed::Feed;
 use cagehand::health::assess;
 use cagehand::logbook::store::{Access, Logbook};
 use cagehand::logbook::{Record, detection};
+use cagehand::margin::MarginTable;
 use cagehand::preflight;
 use cagehand::sim::SimCommand;
 use cagehand::tracker::{Tracker, WatchState, WatchStateKind};
 use std::process::ExitCode;
 use std::sync::mpsc::{self, Sender};
+use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
 /// How often the feed thread reads the cage log again, to pick up records
@@ -49,9 +52,10 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
     model.shared.live.pending = detection::pending(&model.shared.records);
     let (tx, rx) = mpsc::channel::<Msg>();
     let commander = link.commander();
-    let writer = loaded.clone();
+    let margin = spawn_margin(loaded.clone(), tx.clone());
+    let writer = spawn_writer(loaded.clone(), log.clone(), tx.clone(), margin.clone());
     let back = tx.clone();
-    spawn_feed(link, loaded, log.clone(), tx.clone());
+    spawn_feed(link, loaded, log.clone(), tx.clone(), margin);
     let signal = crate::tui::run(model, tx, rx, |effect| match effect {
         Effect::SimRoll(face) => {
             // Only the in-process simulator takes commands; on a real link the
@@ -66,14 +70,19 @@ pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Resul
             seen_seq,
             eval,
         } => {
-            let said = carry_out(&writer, log, &operator, &work, seen_seq, eval.as_deref());
-            // The record list, pending detections and member health anew
-            // at once, then what changed.
-            let fresh = LogView::read(&writer, log);
-            let _ = back.send(Msg::Records(fresh.records));
-            let (health, source) = read_health(&writer, log);
-            let _ = back.send(Msg::Health(health.map(Box::new), source));
-            let _ = back.send(Msg::Written(said));
+            // Carried out on the writer thread: the screens stay live while
+            // a confirmation runs the impact analysis.
+            let job = WriteJob {
+                operator,
+                work,
+                seen_seq,
+                eval,
+            };
+            if writer.send(job).is_err() {
+                let _ = back.send(Msg::Written(
+                    "NOT written: the log writer has stopped; restart the screens".to_string(),
+                ));
+            }
         }
     })?;
     // Ended by a signal: the usual 128 + its number, after the restore.
@@ -167,10 +176,6 @@ struct LogView {
     error: Option<String>,
     /// Detections not yet confirmed or dismissed.
     pending: Vec<cagehand::logbook::Pending>,
-    /// The remaining margin for the pre-flight's margin item, when the
-    /// profile asks for one (worked out on the feed thread when the log
-    /// changes, never on the screens' thread).
-    margin: Option<preflight::MarginSummary>,
 }
 
 impl LogView {
@@ -190,7 +195,6 @@ impl LogView {
                 trouble: report.integrity.headline(),
                 error: None,
                 pending: detection::pending(book.records()),
-                margin: None,
             },
             Err(e) => LogView {
                 records: Vec::new(),
@@ -199,7 +203,6 @@ impl LogView {
                 trouble: None,
                 error: Some(e),
                 pending: Vec::new(),
-                margin: None,
             },
         }
     }
@@ -214,7 +217,20 @@ impl LogView {
         )
     }
 
-    fn evaluate(&self, l: &Loaded, st: &WatchState) -> preflight::Evaluation {
+    /// What the margin worker is asked to work out for this reading.
+    fn margin_job(&self) -> MarginJob {
+        match &self.error {
+            Some(e) => Err(format!("cannot read the cage log: {e}")),
+            None => Ok(self.records.clone()),
+        }
+    }
+
+    fn evaluate(
+        &self,
+        l: &Loaded,
+        st: &WatchState,
+        margin: Option<&preflight::MarginSummary>,
+    ) -> preflight::Evaluation {
         let log = match &self.error {
             Some(e) => preflight::LogInput::Unreadable(e),
             None => preflight::LogInput::Read {
@@ -230,25 +246,134 @@ impl LogView {
             live: Some(st),
             log,
             signing: None,
-            margin: self.margin.as_ref(),
+            margin,
         })
     }
+}
 
-    /// Work the margin out for this reading of the log, when the profile
-    /// sets `min_margin_speed_m_per_s`; no answer leaves the item waiting.
-    fn with_margin(mut self, l: &Loaded) -> LogView {
-        if l.profile.preflight.min_margin_speed_m_per_s.is_some() && self.error.is_none() {
-            self.margin = super::margin_cmd::compute(
-                l,
-                &self.records,
-                None,
-                cagehand::margin::Strikes::Faces,
-            )
-            .ok()
-            .and_then(|t| t.summary());
-        }
-        self
+/// What the margin worker works from: the log's records, or why the log
+/// could not be read.
+type MarginJob = Result<Vec<Record>, String>;
+
+/// The margin worker: asked with each new reading of the log, it works
+/// the margin out off the screens' thread and the feed thread, sends it to
+/// the screens, and keeps the pre-flight's summary for the feed.
+#[derive(Clone)]
+struct MarginWorker {
+    jobs: Sender<MarginJob>,
+    /// The summary for the reading last worked out.
+    latest: Arc<Mutex<Option<Latest>>>,
+}
+
+/// A reading of the log and its pre-flight summary (None: no faces or no
+/// solution).
+type Latest = (LogMark, Option<preflight::MarginSummary>);
+
+impl MarginWorker {
+    /// Ask for the margin of a reading of the log; false when the worker
+    /// has stopped.
+    fn ask(&self, job: MarginJob) -> bool {
+        self.jobs.send(job).is_ok()
     }
+
+    /// The pre-flight's summary, only when it was worked out for `mark`
+    /// (otherwise the margin item waits).
+    fn summary_for(&self, mark: LogMark) -> Option<preflight::MarginSummary> {
+        let latest = self.latest.lock().ok()?;
+        match latest.as_ref() {
+            Some((m, summary)) if *m == mark => summary.clone(),
+            _ => None,
+        }
+    }
+}
+
+/// Start the margin worker. Only the newest reading waiting is worked
+/// out; a reading already worked out is answered again without working.
+fn spawn_margin(l: Loaded, ui: Sender<Msg>) -> MarginWorker {
+    let (jobs, rx) = mpsc::channel::<MarginJob>();
+    let latest = Arc::new(Mutex::new(None));
+    let slot = Arc::clone(&latest);
+    std::thread::spawn(move || {
+        let mut last: Option<(LogMark, Result<Box<MarginTable>, String>)> = None;
+        while let Ok(mut job) = rx.recv() {
+            while let Ok(newer) = rx.try_recv() {
+                job = newer;
+            }
+            let (mark, result) = match job {
+                Err(why) => (log_mark(&[]), Err(why)),
+                Ok(records) => {
+                    let mark = log_mark(&records);
+                    let result = match &last {
+                        Some((m, r)) if *m == mark => r.clone(),
+                        _ => super::margin_cmd::compute(
+                            &l,
+                            &records,
+                            None,
+                            cagehand::margin::Strikes::Faces,
+                        )
+                        .map(Box::new)
+                        .map_err(|e| format!("{e:#}")),
+                    };
+                    (mark, result)
+                }
+            };
+            if let Ok(mut s) = slot.lock() {
+                *s = Some((mark, result.as_ref().ok().and_then(|t| t.summary())));
+            }
+            let msg = Msg::Margin {
+                mark,
+                result: result.clone(),
+            };
+            if ui.send(msg).is_err() {
+                return;
+            }
+            last = Some((mark, result));
+        }
+    });
+    MarginWorker { jobs, latest }
+}
+
+/// One write the screens asked for, carried out on the writer thread.
+struct WriteJob {
+    operator: String,
+    work: Work,
+    seen_seq: Option<u64>,
+    eval: Option<Box<preflight::Evaluation>>,
+}
+
+/// Start the writer: each write is carried out in turn (the same checks
+/// and refusals as before, a refusal leaves the log unchanged), then the
+/// record list, pending detections and member health are sent anew, the
+/// margin is asked for, and the message line says what was written.
+fn spawn_writer(
+    l: Loaded,
+    log: LogOpts,
+    ui: Sender<Msg>,
+    margin: MarginWorker,
+) -> Sender<WriteJob> {
+    let (jobs, rx) = mpsc::channel::<WriteJob>();
+    std::thread::spawn(move || {
+        while let Ok(job) = rx.recv() {
+            let said = carry_out(
+                &l,
+                &log,
+                &job.operator,
+                &job.work,
+                job.seen_seq,
+                job.eval.as_deref(),
+            );
+            let fresh = LogView::read(&l, &log);
+            let asked = margin.ask(fresh.margin_job());
+            let (health, source) = read_health(&l, &log);
+            let sent = ui.send(Msg::Records(fresh.records)).is_ok()
+                && ui.send(Msg::Health(health.map(Box::new), source)).is_ok()
+                && ui.send(Msg::Written(said)).is_ok();
+            if !sent || !asked {
+                return;
+            }
+        }
+    });
+    jobs
 }
 
 /// Carry out one write the screens asked for; the words say what was
@@ -400,10 +525,14 @@ fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEv
 /// The link's reader messages through the core feed into the screens'
 /// channel; detections are written to the log as they come. Ends when the
 /// link ends or the screens close.
-fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
+fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: MarginWorker) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
-        let mut book = LogView::read(&l, &log).with_margin(&l);
+        let mut book = LogView::read(&l, &log);
+        // The screens start from this reading, and its margin is asked for.
+        if tx.send(Msg::Records(book.records.clone())).is_err() || !margin.ask(book.margin_job()) {
+            return;
+        }
         let mut last_read = Instant::now();
         while let Some(step) = super::live::next_step(&mut link.rx, &mut feed) {
             let mut extra = step.note.clone().map(Msg::Notice);
@@ -416,13 +545,12 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
                 // Records written by this program or by another one (a
                 // `cagehand log confirm` in a second terminal) show within
                 // about a second; the screens keep their own state.
-                let mut fresh = LogView::read(&l, &log);
+                let fresh = LogView::read(&l, &log);
                 last_read = Instant::now();
-                if fresh.mark() == book.mark() {
-                    fresh.margin = book.margin.take();
-                } else {
-                    fresh = fresh.with_margin(&l);
-                    if tx.send(Msg::Records(fresh.records.clone())).is_err() {
+                if fresh.mark() != book.mark() {
+                    if !margin.ask(fresh.margin_job())
+                        || tx.send(Msg::Records(fresh.records.clone())).is_err()
+                    {
                         return;
                     }
                     let (health, source) = read_health(&l, &log);
@@ -432,7 +560,11 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
                 }
                 book = fresh;
             }
-            let eval = book.evaluate(&l, &step.state);
+            let summary = match book.error {
+                None => margin.summary_for(log_mark(&book.records)),
+                Some(_) => None,
+            };
+            let eval = book.evaluate(&l, &step.state, summary.as_ref());
             let live = Msg::Live(Box::new(live_view(
                 &step.state,
                 feed.tracker(),
@@ -453,4 +585,101 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>) {
             }
         }
     });
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use std::time::Duration;
+
+    const WAIT: Duration = Duration::from_secs(120);
+
+    /// The messages the writer sends, up to and with `Written`.
+    fn until_written(rx: &mpsc::Receiver<Msg>) -> Vec<Msg> {
+        let mut msgs = Vec::new();
+        loop {
+            let m = rx.recv_timeout(WAIT).expect("the writer answers");
+            let done = matches!(m, Msg::Written(_));
+            msgs.push(m);
+            if done {
+                return msgs;
+            }
+        }
+    }
+
+    #[test]
+    fn writes_are_carried_out_off_the_asking_thread_and_refusals_change_nothing() {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let log = LogOpts {
+            data: Some(dir.path().to_path_buf()),
+            operator: Some("ana".into()),
+        };
+        let l = cagehand::vehicle::demo().expect("the demo loads");
+        let (tx, rx) = mpsc::channel::<Msg>();
+        // The margin worker's end is held here: the test sees what the
+        // writer asks of it without working the margin out.
+        let (jobs, asked) = mpsc::channel::<MarginJob>();
+        let margin = MarginWorker {
+            jobs,
+            latest: Arc::new(Mutex::new(None)),
+        };
+        let writer = spawn_writer(l, log, tx, margin);
+        // Asking returns at once; the answer comes over the channel.
+        let t0 = Instant::now();
+        writer
+            .send(WriteJob {
+                operator: "ana".into(),
+                work: Work::Note("grass strip, day 3 (invented)".into()),
+                seen_seq: None,
+                eval: None,
+            })
+            .expect("the writer takes the job");
+        assert!(t0.elapsed() < Duration::from_secs(1));
+        match &until_written(&rx)[..] {
+            [Msg::Records(r), Msg::Health(..), Msg::Written(said)] => {
+                assert_eq!(r.len(), 1, "the note is in the records sent");
+                assert!(said.contains("note written for kestrel-demo"), "{said}");
+            }
+            other => panic!("records, health, written expected: {other:?}"),
+        }
+        let job = asked.recv_timeout(WAIT).expect("the margin asked for");
+        assert_eq!(job.map(|r| r.len()), Ok(1), "for the log with the note");
+        // A dismissal of a detection that is not in the log is refused and
+        // the log keeps its one record.
+        writer
+            .send(WriteJob {
+                operator: "ana".into(),
+                work: Work::Dismiss {
+                    seq: 9,
+                    reason: "no such detection".into(),
+                },
+                seen_seq: Some(1),
+                eval: None,
+            })
+            .expect("the writer takes the job");
+        match &until_written(&rx)[..] {
+            [Msg::Records(r), Msg::Health(..), Msg::Written(said)] => {
+                assert_eq!(r.len(), 1, "nothing written");
+                assert!(said.starts_with("NOT written"), "{said}");
+            }
+            other => panic!("records, health, written expected: {other:?}"),
+        }
+    }
+
+    #[test]
+    fn an_unreadable_log_gives_no_margin_and_says_why() {
+        let l = cagehand::vehicle::demo().expect("the demo loads");
+        let (tx, rx) = mpsc::channel::<Msg>();
+        let worker = spawn_margin(l, tx);
+        assert!(worker.ask(Err("cannot read the cage log: locked".into())));
+        match rx.recv_timeout(WAIT).expect("the margin worker answers") {
+            Msg::Margin { mark, result } => {
+                assert_eq!(mark, (0, None), "the screens show no records then");
+                assert_eq!(result, Err("cannot read the cage log: locked".into()));
+            }
+            other => panic!("{other:?}"),
+        }
+        // The pre-flight gets no summary: its margin item waits.
+        assert_eq!(worker.summary_for((0, None)), None);
+    }
 }

@@ -6,6 +6,7 @@
 use crate::tui::component::Component;
 use crate::tui::form::Form;
 use crate::tui::keys::{Binding, Key, Move};
+use crate::tui::margin_map;
 use crate::tui::model::{Shared, count};
 use crate::tui::table::{self, Column, Window, wrapped_height};
 use cagehand::cage::MemberKind;
@@ -16,13 +17,17 @@ use ratatui::style::{Modifier, Style};
 use ratatui::text::{Line, Span};
 use ratatui::widgets::{Block, Borders, Paragraph, Row, Wrap};
 
-/// The Cage screen's own state: the selected member and the first row shown.
+/// The Cage screen's own state: the selected member, the first row shown,
+/// and whether the margin map is shown instead of the member table.
 #[derive(Debug, Clone, Default, PartialEq, Eq)]
 pub struct CageScreen {
     /// Selected member (index into `cage.members`).
     pub selected: usize,
     /// First member row shown.
     pub offset: usize,
+    /// The margin map (net shaded by the speed each face takes) instead of
+    /// the member table.
+    pub margin_map: bool,
 }
 
 /// What the Cage screen's keys do.
@@ -40,48 +45,56 @@ pub enum CageAction {
     Replacement,
     /// Add a note (a form).
     Note,
+    /// Show the margin map or the member table.
+    ToggleMap,
 }
 
 const KEYS: &[Binding<CageAction>] = &[
+    // Pairs share their words: the help gives each pair one row.
     Binding {
         keys: &[Key::Down, Key::Char('j')],
         action: CageAction::Select(Move::Down),
-        help: "next member (its detail below the table)",
+        help: "next / previous member (detail below the table)",
     },
     Binding {
         keys: &[Key::Up, Key::Char('k')],
         action: CageAction::Select(Move::Up),
-        help: "previous member",
+        help: "next / previous member (detail below the table)",
     },
     Binding {
         keys: &[Key::PageDown],
         action: CageAction::Select(Move::PageDown),
-        help: "a page down",
+        help: "a page down / up",
     },
     Binding {
         keys: &[Key::PageUp],
         action: CageAction::Select(Move::PageUp),
-        help: "a page up",
+        help: "a page down / up",
     },
     Binding {
         keys: &[Key::Home, Key::Char('g')],
         action: CageAction::Select(Move::First),
-        help: "first member",
+        help: "first / last member",
     },
     Binding {
         keys: &[Key::End, Key::Char('G')],
         action: CageAction::Select(Move::Last),
-        help: "last member",
+        help: "first / last member",
+    },
+    Binding {
+        keys: &[Key::Char('m')],
+        action: CageAction::ToggleMap,
+        help: "margin map (speed each face takes) or members",
     },
     Binding {
         keys: &[Key::Char('y')],
         action: CageAction::Confirm,
-        help: "confirm the oldest pending detection as an impact (form)",
+        help: "confirm the oldest pending detection (impact form)",
     },
     Binding {
         keys: &[Key::Char('x')],
         action: CageAction::Dismiss,
-        help: "dismiss the oldest pending detection (reason required)",
+        help: "dismiss the oldest pending detection (reason needed)",
     },
     Binding {
         keys: &[Key::Char('f')],
@@ -226,6 +239,10 @@ impl Component for CageScreen {
                 shared.form = Some(Form::note(shared));
                 return true;
             }
+            CageAction::ToggleMap => {
+                self.margin_map = !self.margin_map;
+                return true;
+            }
         };
         let len = shared.cage.members.len();
         let page = table_rows(shared.size.1.saturating_sub(3));
@@ -235,6 +252,10 @@ impl Component for CageScreen {
     }
 
     fn draw(&self, shared: &Shared, frame: &mut Frame, area: Rect) {
+        if self.margin_map {
+            self.draw_map(shared, frame, area);
+            return;
+        }
         let t = &shared.theme;
         let detail_line = self.detail(shared);
         // The selected member whole: as many rows as its text needs, up to
@@ -260,34 +281,7 @@ impl Component for CageScreen {
                 log_area,
             );
         }
-        frame.render_widget(
-            Paragraph::new(
-                cagehand::caution::CAUTION_LINES
-                    .iter()
-                    .map(|l| Line::styled(*l, t.warn))
-                    .collect::<Vec<_>>(),
-            )
-            .wrap(Wrap { trim: true }),
-            caution,
-        );
-        let summary_line = match &shared.health {
-            Some(h) => {
-                let act = h.to_act_on();
-                Line::from(vec![
-                    Span::styled(
-                        format!("worst {}", h.worst().label()),
-                        status_style(shared, h.worst()),
-                    ),
-                    Span::styled(
-                        format!("  {} to act on", count(act.len(), "member")),
-                        t.text,
-                    ),
-                    Span::styled(format!("  cage log: {}", shared.health_source), t.dim),
-                ])
-            }
-            None => Line::styled(format!("cage log: {}", shared.health_source), t.dim),
-        };
-        frame.render_widget(Paragraph::new(summary_line), summary);
+        caution_and_summary(shared, frame, caution, summary);
 
         let p = &shared.profile;
         let members = &shared.cage.members;
@@ -315,6 +309,12 @@ impl Component for CageScreen {
             Column {
                 header: "max u",
                 width: 5,
+                rank: 2,
+                flex: false,
+            },
+            Column {
+                header: "margin",
+                width: 8,
                 rank: 2,
                 flex: false,
             },
@@ -383,6 +383,7 @@ impl Component for CageScreen {
                     status,
                     damage,
                     max_u,
+                    margin_map::member_cell(shared, i),
                     kind.to_string(),
                     nodes,
                     format!("{:.0}", m.length_m * 1e3),
@@ -419,7 +420,80 @@ impl Component for CageScreen {
     }
 }
 
+/// The caution (every advising view carries it) and the one-line summary:
+/// the worst status, the members to act on, the margin's headline, and
+/// where the log was read.
+fn caution_and_summary(shared: &Shared, frame: &mut Frame, caution: Rect, summary: Rect) {
+    let t = &shared.theme;
+    frame.render_widget(
+        Paragraph::new(
+            cagehand::caution::CAUTION_LINES
+                .iter()
+                .map(|l| Line::styled(*l, t.warn))
+                .collect::<Vec<_>>(),
+        )
+        .wrap(Wrap { trim: true }),
+        caution,
+    );
+    let mut spans = match &shared.health {
+        Some(h) => {
+            let act = h.to_act_on();
+            vec![
+                Span::styled(
+                    format!("worst {}", h.worst().label()),
+                    status_style(shared, h.worst()),
+                ),
+                Span::styled(
+                    format!("  {} to act on  ", count(act.len(), "member")),
+                    t.text,
+                ),
+            ]
+        }
+        None => Vec::new(),
+    };
+    spans.push(margin_map::headline(shared));
+    spans.push(Span::styled(
+        format!("  cage log: {}", shared.health_source),
+        t.dim,
+    ));
+    frame.render_widget(
+        Paragraph::new(Line::from(spans)).wrap(Wrap { trim: true }),
+        summary,
+    );
+}
+
 impl CageScreen {
+    /// The margin view: caution, summary, the shaded net with the faces
+    /// weakest first, and the member the log keys act on.
+    fn draw_map(&self, shared: &Shared, frame: &mut Frame, area: Rect) {
+        let t = &shared.theme;
+        let summary_h = if area.width >= 120 { 1 } else { 2 };
+        let [caution, summary, map, selected] = Layout::vertical([
+            Constraint::Length(3),
+            Constraint::Length(summary_h),
+            Constraint::Min(6),
+            Constraint::Length(1),
+        ])
+        .areas(area);
+        caution_and_summary(shared, frame, caution, summary);
+        margin_map::draw(shared, frame, map);
+        let member = shared
+            .cage
+            .members
+            .get(self.selected)
+            .map_or("none", |m| m.id.as_str());
+        frame.render_widget(
+            Paragraph::new(Line::from(vec![
+                Span::styled(format!("selected member {member}"), t.text),
+                Span::styled(
+                    "  f finding, R replacement, j/k another, m member table",
+                    t.dim,
+                ),
+            ])),
+            selected,
+        );
+    }
+
     /// The selected member whole: every column and the full reasons.
     fn detail(&self, shared: &Shared) -> Line<'static> {
         let t = &shared.theme;

@@ -114,9 +114,21 @@ pub fn find<A: Copy>(table: &[Binding<A>], ev: &KeyEvent) -> Option<A> {
         .map(|b| b.action)
 }
 
-/// The help rows of a table: key names and what they do.
+/// The help rows of a table: key names and what they do. Neighbouring
+/// bindings with the same words (next / previous) share one row, so a
+/// screen's help stays within 24 rows.
 pub fn help_rows<A: Copy>(table: &[Binding<A>]) -> Vec<(String, &'static str)> {
-    table.iter().map(|b| (b.key_names(), b.help)).collect()
+    let mut rows: Vec<(String, &'static str)> = Vec::new();
+    for b in table {
+        match rows.last_mut() {
+            Some((keys, help)) if *help == b.help => {
+                keys.push_str(" / ");
+                keys.push_str(&b.key_names());
+            }
+            _ => rows.push((b.key_names(), b.help)),
+        }
+    }
+    rows
 }
 
 /// What the keys that work on every screen do.
@@ -242,6 +254,34 @@ mod tests {
             Some(GlobalAction::Go(2))
         );
         assert_eq!(find(GLOBAL_KEYS, &ev(KeyCode::Char('z'), none)), None);
+    }
+
+    #[test]
+    fn neighbours_with_the_same_words_share_a_help_row() {
+        const T: &[Binding<u8>] = &[
+            Binding {
+                keys: &[Key::Down, Key::Char('j')],
+                action: 0,
+                help: "next / previous",
+            },
+            Binding {
+                keys: &[Key::Up],
+                action: 1,
+                help: "next / previous",
+            },
+            Binding {
+                keys: &[Key::Char('x')],
+                action: 2,
+                help: "other",
+            },
+        ];
+        assert_eq!(
+            help_rows(T),
+            vec![
+                ("Down / j / Up".to_string(), "next / previous"),
+                ("x".to_string(), "other"),
+            ]
+        );
     }
 
     #[test]

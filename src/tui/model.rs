@@ -10,6 +10,7 @@ use crate::tui::cage_view::CageScreen;
 use crate::tui::component::Component;
 use crate::tui::form::{FORM_KEYS, Form, FormAction, Purpose, Work};
 use crate::tui::keys::{self, GLOBAL_KEYS, GlobalAction};
+use crate::tui::margin_map::{LogMark, MarginShown, MarginState, log_mark};
 use crate::tui::preflight_view::PreflightScreen;
 use crate::tui::righting_view::RightingScreen;
 use crate::tui::theme::Theme;
@@ -211,6 +212,15 @@ pub enum Msg {
     /// A write to the log was carried out (or refused): what changed, the
     /// vehicle and the log file.
     Written(String),
+    /// The remaining margin worked out (off the screens' thread) for the
+    /// log as it was at `mark`, or why it could not be; shown only while
+    /// the screens show that same log.
+    Margin {
+        /// The reading of the log it was worked out for.
+        mark: LogMark,
+        /// The table, or why there is none.
+        result: Result<Box<cagehand::margin::MarginTable>, String>,
+    },
 }
 
 /// Side effects `update` asks the loop to carry out.
@@ -266,6 +276,9 @@ pub struct Shared {
     pub records: Vec<cagehand::logbook::Record>,
     /// The open log-work form, if any: it takes every key until Enter or Esc.
     pub form: Option<Form>,
+    /// The remaining margin for the records shown (worked out off the
+    /// screens' thread; `Working` until it arrives).
+    pub margin: MarginState,
 }
 
 impl Shared {
@@ -329,6 +342,7 @@ impl Model {
                 operator: None,
                 records: Vec::new(),
                 form: None,
+                margin: MarginState::Working,
             },
             screens: Screens {
                 watch: WatchScreen::default(),
@@ -393,11 +407,32 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
         }
         Msg::Records(records) => {
             model.shared.live.pending = cagehand::logbook::detection::pending(&records);
+            if log_mark(&records) != log_mark(&model.shared.records) {
+                // The margin shown was for other records: wait for the
+                // one worked out for these.
+                model.shared.margin = MarginState::Working;
+            }
             model.shared.records = records;
             true
         }
         Msg::Written(text) => {
             model.shared.notice = Some(text);
+            true
+        }
+        Msg::Margin { mark, result } => {
+            if mark != log_mark(&model.shared.records) {
+                // Worked out for a reading of the log the screens no
+                // longer (or not yet) show: one for the shown log follows.
+                return false;
+            }
+            let sh = &mut model.shared;
+            sh.margin = match result {
+                Ok(table) => {
+                    let ids: Vec<&str> = sh.cage.members.iter().map(|m| m.id.as_str()).collect();
+                    MarginState::Ready(Box::new(MarginShown::new(*table, &ids)))
+                }
+                Err(why) => MarginState::Failed(why),
+            };
             true
         }
         Msg::Signal(n) => {
@@ -539,13 +574,26 @@ pub(crate) fn ask_write(
         sh.notice = Some("not written: no operator name".to_string());
         return;
     };
+    let work_kind = match &work {
+        Work::Confirm { .. } => Some("running the impact analysis"),
+        _ => None,
+    };
     sh.outbox.push(Effect::Log {
         operator,
         work,
         seen_seq: sh.records.last().map(|r| r.seq),
         eval,
     });
-    sh.notice = Some("writing to the cage log...".to_string());
+    // The write runs off the screens' thread (a confirmation runs the
+    // impact analysis); the margin is worked out anew after it.
+    sh.notice = Some(format!(
+        "working: writing to the cage log{}...",
+        match &work_kind {
+            Some(k) => format!(" ({k})"),
+            None => String::new(),
+        }
+    ));
+    sh.margin = MarginState::Working;
 }
 
 /// "1 step", "2 steps": a count with its noun, plural right.

@@ -9,10 +9,10 @@ use crate::tui::theme::Theme;
 use cagehand::cage::{Cage, MemberKind};
 use cagehand::net::{Net, NetFace};
 use ratatui::layout::Rect;
-use ratatui::style::{Modifier, Style};
+use ratatui::style::{Color, Modifier, Style};
 use ratatui::symbols::Marker;
 use ratatui::text::{Line, Span};
-use ratatui::widgets::canvas::{Canvas, Context, Line as CanvasLine};
+use ratatui::widgets::canvas::{Canvas, Context, Line as CanvasLine, Points};
 use ratatui::widgets::{Block, Widget};
 
 /// What to mark on the net.
@@ -26,6 +26,25 @@ pub struct NetMarks {
     pub takeoff: Vec<usize>,
     /// Planned path as the sequence of faces, start first.
     pub path: Vec<usize>,
+    /// Faces shaded and labelled by a figure (the margin map); a face
+    /// listed here shows its fill's label instead of its id.
+    pub fills: Vec<FaceFill>,
+}
+
+/// One face of a shaded map: how dense its dots are and what it says.
+#[derive(Debug, Clone, PartialEq)]
+pub struct FaceFill {
+    /// Face index in the cage.
+    pub face: usize,
+    /// Shade: 0 none, 1 light, 2 medium, 3 dense.
+    pub density: u8,
+    /// Label at the face's centre (carries the figure, so the map reads
+    /// without colour or shade).
+    pub label: String,
+    /// Style of the label and colour of the dots.
+    pub style: Style,
+    /// Label printed after all others, so no neighbour's label covers it.
+    pub on_top: bool,
 }
 
 impl NetMarks {
@@ -42,6 +61,7 @@ impl NetMarks {
             },
             takeoff: shared.takeoff.clone(),
             path: Vec::new(),
+            fills: Vec::new(),
         }
     }
 }
@@ -134,6 +154,80 @@ fn draw_outline(
     }
 }
 
+/// Dots inside a net face, on the canvas's own dot grid (so neighbouring
+/// faces share one pattern), kept off the outline: every dot for density
+/// 3 on alternate rows, every other dot for 2, every other dot on every
+/// fourth row for 1.
+fn fill_dots(nf: &NetFace, density: u8, xb: [f64; 2], yb: [f64; 2], area: Rect) -> Vec<(f64, f64)> {
+    let (sx, sy) = match density {
+        0 => return Vec::new(),
+        1 => (2, 4),
+        2 => (2, 2),
+        _ => (1, 2),
+    };
+    // Braille: 2 x 4 dots per cell.
+    let px = (xb[1] - xb[0]) / (f64::from(area.width.max(1)) * 2.0);
+    let py = (yb[1] - yb[0]) / (f64::from(area.height.max(1)) * 4.0);
+    if !(px > 0.0 && py > 0.0) {
+        return Vec::new();
+    }
+    // The face shrunk towards its centre, so the dots stay clear of the
+    // outline.
+    let c = Net::centroid(nf);
+    let inset: Vec<[f64; 2]> = nf
+        .points
+        .iter()
+        .map(|p| [c[0] + 0.8 * (p[0] - c[0]), c[1] + 0.8 * (p[1] - c[1])])
+        .collect();
+    let (mut x0, mut x1, mut y0, mut y1) = (f64::MAX, f64::MIN, f64::MAX, f64::MIN);
+    for p in &inset {
+        x0 = x0.min(p[0]);
+        x1 = x1.max(p[0]);
+        y0 = y0.min(p[1]);
+        y1 = y1.max(p[1]);
+    }
+    let inside = |x: f64, y: f64| {
+        let k = inset.len();
+        let mut sign = 0.0_f64;
+        for i in 0..k {
+            let (a, b) = (inset[i], inset[(i + 1) % k]);
+            let cross = (b[0] - a[0]) * (y - a[1]) - (b[1] - a[1]) * (x - a[0]);
+            if cross * sign < 0.0 {
+                return false;
+            }
+            if cross != 0.0 {
+                sign = cross;
+            }
+        }
+        true
+    };
+    // Grid indices from the canvas origin, so patterns line up.
+    let (i0, i1) = (
+        ((x0 - xb[0]) / px).floor() as i64,
+        ((x1 - xb[0]) / px).ceil() as i64,
+    );
+    let (j0, j1) = (
+        ((y0 - yb[0]) / py).floor() as i64,
+        ((y1 - yb[0]) / py).ceil() as i64,
+    );
+    let mut dots = Vec::new();
+    for j in j0.max(0)..=j1 {
+        if j % sy != 0 {
+            continue;
+        }
+        for i in i0.max(0)..=i1 {
+            if i % sx != 0 {
+                continue;
+            }
+            let (x, y) = (xb[0] + (i as f64 + 0.5) * px, yb[0] + (j as f64 + 0.5) * py);
+            if inside(x, y) {
+                dots.push((x, y));
+            }
+        }
+    }
+    dots
+}
+
 impl Widget for NetView<'_> {
     fn render(self, area: Rect, buf: &mut ratatui::buffer::Buffer) {
         let inner = self.block.inner(area);
@@ -145,12 +239,28 @@ impl Widget for NetView<'_> {
             theme,
             block,
         } = self;
+        // The fill of each face, by face index.
+        let mut fill_of: Vec<Option<&FaceFill>> = vec![None; cage.faces.len()];
+        for f in &marks.fills {
+            if let Some(slot) = fill_of.get_mut(f.face) {
+                *slot = Some(f);
+            }
+        }
         Canvas::default()
             .block(block)
             .marker(Marker::Braille)
             .x_bounds(xb)
             .y_bounds(yb)
             .paint(|ctx| {
+                for fill in &marks.fills {
+                    if let Some(nf) = net.face(fill.face) {
+                        let coords = fill_dots(nf, fill.density, xb, yb, inner);
+                        ctx.draw(&Points {
+                            coords: &coords,
+                            color: fill.style.fg.unwrap_or(Color::Reset),
+                        });
+                    }
+                }
                 for nf in &net.faces {
                     draw_outline(ctx, cage, nf, theme, None);
                 }
@@ -184,21 +294,35 @@ impl Widget for NetView<'_> {
                     draw_outline(ctx, cage, nf, theme, Some(theme.rest_colour));
                 }
                 ctx.layer();
-                for nf in &net.faces {
+                // Labels on top last (a later label wins a shared cell).
+                let on_top = |nf: &&NetFace| {
+                    fill_of
+                        .get(nf.face)
+                        .copied()
+                        .flatten()
+                        .is_some_and(|f| f.on_top)
+                };
+                let below = net.faces.iter().filter(|nf| !on_top(nf));
+                for nf in below.chain(net.faces.iter().filter(on_top)) {
                     let c = Net::centroid(nf);
                     let id = &cage.faces[nf.face].id;
                     let resting = marks.resting == Some(nf.face);
                     let nearest = marks.nearest == Some(nf.face);
                     let takeoff = marks.takeoff.contains(&nf.face);
                     let caret = if takeoff { "^" } else { "" };
-                    let text = if resting {
+                    let fill = fill_of.get(nf.face).copied().flatten();
+                    let text = if let Some(f) = fill {
+                        f.label.clone()
+                    } else if resting {
                         format!("[{id}{caret}]")
                     } else if nearest {
                         format!("({id}{caret})")
                     } else {
                         format!("{id}{caret}")
                     };
-                    let style = if resting {
+                    let style = if let Some(f) = fill {
+                        f.style
+                    } else if resting {
                         Style::default()
                             .fg(theme.rest_colour)
                             .add_modifier(Modifier::BOLD | Modifier::REVERSED)

@@ -365,3 +365,45 @@ fn preflight_blocked_and_ready() {
     );
     snap("ready", &m, &[Screen::Preflight]);
 }
+
+/// The Cage screen with the remaining margin: the member table with its
+/// margin column, and the margin map, on the undamaged demo; the map while
+/// the margin is still being worked out; the map with the fray of the
+/// records (derated) and grounded by a cut rod (invented scenario).
+#[test]
+fn margin_on_the_cage_screen() {
+    use crate::tui::margin_map::with_margin;
+    let m = with_margin(demo());
+    snap("margin", &m, &[Screen::Cage]);
+    let mut map = m.clone();
+    map.screens.cage.margin_map = true;
+    snap("margin_map", &map, &[Screen::Cage]);
+    let mut working = demo();
+    working.screens.cage.margin_map = true;
+    snap("margin_working", &working, &[Screen::Cage]);
+    let mut frayed = with_margin(with_records());
+    frayed.screens.cage.margin_map = true;
+    snap("margin_frayed", &frayed, &[Screen::Cage]);
+    let mut grounded = demo();
+    let cut = cagehand::logbook::Record {
+        seq: 1,
+        time: "2026-12-02T06:10:00Z".into(),
+        operator: "ana".into(),
+        event: cagehand::logbook::Event::Finding(cagehand::logbook::FindingEvent {
+            member: "R3".into(),
+            kind: cagehand::logbook::FindingKind::Cut,
+            note: Some("cut through at N7 (invented)".into()),
+        }),
+    };
+    let health = assess(
+        std::slice::from_ref(&cut),
+        &grounded.shared.cage,
+        &grounded.shared.profile.inspection,
+    );
+    update(&mut grounded, Msg::Records(vec![cut]));
+    let mut grounded =
+        with_margin(grounded).with_health(Some(health), "1 record (invented demo log)".to_string());
+    snap("margin_grounded", &grounded, &[Screen::Cage]);
+    grounded.screens.cage.margin_map = true;
+    snap("margin_grounded_map", &grounded, &[Screen::Cage]);
+}

@@ -217,19 +217,28 @@ fn help(model: &Model, frame: &mut Frame) {
     let t = &model.shared.theme;
     let area = frame.area();
     let mut lines: Vec<Line> = Vec::new();
-    for (title, rows) in help_sections(model) {
+    let sections = help_sections(model);
+    // The key column as wide as its longest entry (shared rows such as
+    // `Down / j / Up / k`), at least 16, and always a space before the words.
+    let kw = sections
+        .iter()
+        .flat_map(|(_, rows)| rows.iter().map(|(k, _)| k.chars().count() + 1))
+        .max()
+        .unwrap_or(0)
+        .max(16);
+    for (title, rows) in sections {
         lines.push(Line::styled(title, t.accent));
         if rows.is_empty() {
             lines.push(Line::styled("  no keys of its own", t.dim));
         }
         for (k, v) in rows {
             lines.push(Line::from(vec![
-                Span::styled(format!("  {k:<16}"), t.text.add_modifier(Modifier::BOLD)),
+                Span::styled(format!("  {k:<kw$}"), t.text.add_modifier(Modifier::BOLD)),
                 Span::raw(v),
             ]));
         }
     }
-    let w = 76.min(area.width);
+    let w = 78.min(area.width);
     let h = (lines.len() as u16 + 2).min(area.height);
     let popup = Rect::new(
         area.x + (area.width - w) / 2,

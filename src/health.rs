@@ -352,8 +352,9 @@ fn judge(id: &str, kind: MemberKind, a: Acc, rules: &Inspection) -> MemberHealth
     } else {
         "in the log"
     };
+    let impacts = if a.damaging == 1 { "impact" } else { "impacts" };
     let damage_words = format!(
-        "Miner damage D = {d:.3} from {} impact(s) at or above the endurance level {:.2} {since}",
+        "Miner damage D = {d:.3} from {} {impacts} at or above the endurance level {:.2} {since}",
         a.damaging, rules.endurance_utilisation
     );
     if d >= rules.due_damage {
@@ -533,7 +534,7 @@ mod tests {
         assert_eq!(s1.impacts, 14);
         assert_eq!(s1.max_utilisation, 0.8);
         assert!(s1.reasons[0].contains("D = 0.681"), "{:?}", s1.reasons);
-        assert!(s1.reasons[0].contains("12 impact(s)"), "{:?}", s1.reasons);
+        assert!(s1.reasons[0].contains("12 impacts"), "{:?}", s1.reasons);
         // One more impact at 0.6 adds 0.6^6 = 0.046656 (by hand): D = 0.727194, due.
         let mut ev2 = vec![impact(&[("S1", 0.5)]); 10];
         ev2.extend([

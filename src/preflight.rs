@@ -338,8 +338,9 @@ fn cage_log(inp: &Inputs) -> (Outcome, String, bool) {
             .iter()
             .map(|p| format!("#{} ({:.1} g on {})", p.seq, p.peak_g, p.face))
             .collect();
+        let noun = if list.len() == 1 { "detection" } else { "detections" };
         problems.push(format!(
-            "detection(s) {} pending: confirm or dismiss first",
+            "{noun} {} pending: confirm or dismiss first",
             list.join(", ")
         ));
     }

@@ -338,7 +338,11 @@ fn cage_log(inp: &Inputs) -> (Outcome, String, bool) {
             .iter()
             .map(|p| format!("#{} ({:.1} g on {})", p.seq, p.peak_g, p.face))
             .collect();
-        let noun = if list.len() == 1 { "detection" } else { "detections" };
+        let noun = if list.len() == 1 {
+            "detection"
+        } else {
+            "detections"
+        };
         problems.push(format!(
             "{noun} {} pending: confirm or dismiss first",
             list.join(", ")

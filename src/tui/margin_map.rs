@@ -299,7 +299,7 @@ fn legend(shared: &Shared, m: &MarginShown, long: bool) -> Vec<Line<'static>> {
             t.text,
         ),
         Line::styled("      (9: 9 m/s or more)", t.dim),
-        Line::styled("!F4  the weakest face", t.text),
+        Line::styled("!     marks the weakest face", t.text),
         Line::styled("dots  denser: nearer weakest", t.text),
     ];
     if let Some(min) = shared.profile.preflight.min_margin_speed_m_per_s {

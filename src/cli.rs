@@ -29,6 +29,20 @@ mod watch_cmd;
 #[error("{0}")]
 pub struct BadInput(pub String);
 
+/// Refuse a `--surface` the profile does not define, naming the valid ones.
+pub fn check_surface_arg(
+    settings: &cagehand::profile::ImpactSettings,
+    surface: Option<&str>,
+) -> anyhow::Result<()> {
+    match surface {
+        Some(name) if !settings.surface_names().contains(&name) => Err(bad_input(format!(
+            "--surface {name}: not a surface of this profile; valid surfaces are {}",
+            settings.surface_names().join(", ")
+        ))),
+        _ => Ok(()),
+    }
+}
+
 /// Wrap a message as bad input (exit code 2).
 pub fn bad_input(msg: impl Into<String>) -> anyhow::Error {
     anyhow::Error::new(BadInput(msg.into()))

@@ -105,15 +105,7 @@ pub fn resolve(args: &Args, l: &Loaded) -> anyhow::Result<Resolved> {
         }
     };
     let settings = &l.profile.impact;
-    if let Some(name) = &args.surface
-        && !settings.surfaces.iter().any(|s| &s.name == name)
-    {
-        let names: Vec<&str> = settings.surfaces.iter().map(|s| s.name.as_str()).collect();
-        return Err(bad_input(format!(
-            "--surface {name}: not a surface of this profile; valid surfaces are {}",
-            names.join(", ")
-        )));
-    }
+    super::check_surface_arg(settings, args.surface.as_deref())?;
     let input = match (args.peak_accel_g, args.speed) {
         (Some(g), _) => ImpactInput::PeakAccel { g },
         (None, Some(v)) => match (

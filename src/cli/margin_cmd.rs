@@ -150,21 +150,7 @@ pub fn run(args: &Args, parent: &ProfileArg) -> anyhow::Result<ExitCode> {
         Some(_) => args.profile.load()?,
         None => parent.load()?,
     };
-    if let Some(name) = &args.surface
-        && !l.profile.impact.surfaces.iter().any(|s| &s.name == name)
-    {
-        let names: Vec<&str> = l
-            .profile
-            .impact
-            .surfaces
-            .iter()
-            .map(|s| s.name.as_str())
-            .collect();
-        return Err(bad_input(format!(
-            "--surface {name}: not a surface of this profile; valid surfaces are {}",
-            names.join(", ")
-        )));
-    }
+    super::check_surface_arg(&l.profile.impact, args.surface.as_deref())?;
     let (book, open) = args.log.open_reporting(&l, Access::Read)?;
     if let Some(n) = trust_note(&open, &book) {
         eprintln!("cagehand: warning: {n}");

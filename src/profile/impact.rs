@@ -28,6 +28,13 @@ pub struct ImpactSettings {
     pub detect_threshold_g: f64,
 }
 
+impl ImpactSettings {
+    /// The names of the surface presets, in profile order.
+    pub fn surface_names(&self) -> Vec<&str> {
+        self.surfaces.iter().map(|s| s.name.as_str()).collect()
+    }
+}
+
 const KEYS: &[&str] = &[
     "default_surface",
     "surface",

@@ -319,13 +319,7 @@ impl Form {
             },
             Check::Surface if v.is_empty() => None,
             Check::Surface => {
-                let names: Vec<&str> = shared
-                    .profile
-                    .impact
-                    .surfaces
-                    .iter()
-                    .map(|s| s.name.as_str())
-                    .collect();
+                let names = shared.profile.impact.surface_names();
                 (!names.contains(&v)).then(|| format!("one of {}", names.join(", ")))
             }
             Check::Finding => FindingKind::parse(v)

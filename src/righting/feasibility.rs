@@ -20,7 +20,13 @@
 //! swing about one of its nodes.
 //!
 //! The LPs are solved with the pure-Rust `microlp` crate (maintained, no
-//! system library, and the problems are tiny). Every answer is checked
+//! system library, and the problems are tiny) wherever the screen
+//! ([`super::screen`]) cannot prove the answer itself: a best moment whose
+//! proved bounds meet to round-off, or a least-thrust setting proved to be
+//! the *only* optimum (which any correct solver must return), is taken
+//! from the screen; the angles of a roll start from the previous angle's
+//! tight constraints. The agreement tests hold both paths to round-off on
+//! every move of the demo and of geodesic cages. Every answer is checked
 //! against the conditions here; an answer that fails the check, or a
 //! solver error, counts as "no thrust can do it", erring on the side of
 //! "cannot". (An earlier exact greedy fill for rotors sharing one axis no
@@ -38,7 +44,7 @@
 //! part turns with the roll, so a vertex pivot needs a changing setting
 //! (unless the centre of mass lies exactly over the pivot axis).
 
-use super::contact::{AngleRows, rows_at};
+use super::contact::{AngleRows, Row, rows_at};
 pub use super::contact::{
     Condition, FRICTION_SIDES, gravity_at, moment_arms_m, resisting_moment_nm,
 };
@@ -234,7 +240,190 @@ pub fn best_moment(rows: &AngleRows, rotors: &[Rotor], tol: f64) -> Option<(f64,
 
 /// The least total thrust (sum |T_k|) that meets every condition and the
 /// required moment at all of `rows` at once; `None` when there is none.
+///
+/// Where the screen proves the optimum and that it is the only one
+/// ([`least_thrust_proved`]), that is the answer: any correct solver must
+/// give the same setting up to round-off. Otherwise the general solver
+/// ([`least_thrust_lp`]) answers, as it always did.
 pub fn least_thrust(rows: &[&AngleRows], limits: &Limits, tol: f64) -> Option<Vec<f64>> {
+    least_thrust_proved(rows, limits, tol).or_else(|| least_thrust_lp(rows, limits, tol))
+}
+
+/// Rounds of adding violated angles before [`least_thrust_proved`] gives
+/// up and leaves the programme to the general solver.
+const MAX_ROUNDS: usize = 8;
+
+/// The least-thrust programme of [`least_thrust_lp`] in the same split
+/// form, for the screen: T = P - Q with `0 <= P <= max`, `0 <= Q <=
+/// reverse`, objective `max -(sum P + sum Q)`, the inequalities aimed
+/// `inside` as the LP aims them, and one row per angle for the moment.
+struct SplitLp {
+    cost: Vec<f64>,
+    lo: Vec<f64>,
+    hi: Vec<f64>,
+    /// The rows of each angle, in the order of the angles.
+    rows: Vec<Vec<Row>>,
+}
+
+impl SplitLp {
+    fn new(angles: &[&AngleRows], limits: &Limits, tol: f64) -> SplitLp {
+        let n = limits.rotors.len();
+        let inside = tol * 1e-2;
+        let split = |coeffs: &[f64], sign: f64| -> Vec<f64> {
+            coeffs
+                .iter()
+                .map(|a| sign * a)
+                .chain(coeffs.iter().map(|a| -sign * a))
+                .collect()
+        };
+        let rows = angles
+            .iter()
+            .map(|ar| {
+                let mut out: Vec<Row> = ar
+                    .rows
+                    .iter()
+                    .map(|r| Row {
+                        coeffs: split(&r.coeffs, 1.0),
+                        rhs: if r.equality { r.rhs } else { r.rhs - inside },
+                        equality: r.equality,
+                        condition: r.condition,
+                    })
+                    .collect();
+                // moment >= required + inside
+                //   <=>  -arms . (P - Q) <= -(required + inside)
+                out.push(Row {
+                    coeffs: split(&ar.arms_m, -1.0),
+                    rhs: -(required_nm(ar.needed_nm, limits.torque_margin) + inside),
+                    equality: false,
+                    condition: Condition::LiftOff,
+                });
+                out
+            })
+            .collect();
+        SplitLp {
+            cost: vec![-1.0; 2 * n],
+            lo: vec![0.0; 2 * n],
+            hi: limits
+                .rotors
+                .iter()
+                .map(|r| r.max_thrust_n)
+                .chain(limits.rotors.iter().map(|r| r.reverse_thrust_n))
+                .collect(),
+            rows,
+        }
+    }
+
+    /// The thrusts of a split answer, with the LP path's rounding of
+    /// dust to zero.
+    fn thrusts(x: &[f64]) -> Vec<f64> {
+        let n = x.len() / 2;
+        (0..n)
+            .map(|k| {
+                let v = x[k] - x[n + k];
+                if v.abs() < 1e-9 { 0.0 } else { v }
+            })
+            .collect()
+    }
+}
+
+/// The least-thrust programme of [`least_thrust_lp`], solved by the screen
+/// and kept only when its optimum is proved unique and the setting passes
+/// [`meets`] at every angle; `None` when not proved.
+///
+/// Many angles are solved by adding them as needed: start from the first,
+/// middle and last, and add every angle whose rows the answer breaks. An
+/// answer that meets every angle and is the only optimum of a programme
+/// with fewer rows is the only optimum of the whole one (its feasible set
+/// is smaller and still holds the answer).
+pub fn least_thrust_proved(rows: &[&AngleRows], limits: &Limits, tol: f64) -> Option<Vec<f64>> {
+    least_thrust_vertex(rows, limits, tol).map(|(t, _)| t)
+}
+
+/// [`least_thrust_proved`] with the tight set of the answer (empty unless
+/// every angle was in the final programme and the vertex is
+/// non-degenerate).
+fn least_thrust_vertex(
+    rows: &[&AngleRows],
+    limits: &Limits,
+    tol: f64,
+) -> Option<(Vec<f64>, Vec<screen::Tight>)> {
+    if limits.rotors.is_empty() || rows.is_empty() {
+        return None;
+    }
+    let lp = SplitLp::new(rows, limits, tol);
+    let mut chosen: Vec<bool> = vec![false; rows.len()];
+    for i in [0, rows.len() / 2, rows.len() - 1] {
+        chosen[i] = true;
+    }
+    let hair = tol * 1e-2;
+    for _ in 0..MAX_ROUNDS {
+        let sub: Vec<Row> = lp
+            .rows
+            .iter()
+            .zip(&chosen)
+            .filter(|(_, c)| **c)
+            .flat_map(|(r, _)| r.iter().cloned())
+            .collect();
+        let vertex = screen::unique_optimum(&lp.cost, &sub, &lp.lo, &lp.hi, tol)?;
+        let mut broken = false;
+        for (i, rs) in lp.rows.iter().enumerate() {
+            if !chosen[i]
+                && rs.iter().any(|r| {
+                    let e = r.excess(&vertex.x);
+                    if r.equality { e.abs() > hair } else { e > hair }
+                })
+            {
+                chosen[i] = true;
+                broken = true;
+            }
+        }
+        if broken {
+            continue;
+        }
+        let t = SplitLp::thrusts(&vertex.x);
+        let tight = if chosen.iter().all(|c| *c) {
+            vertex.tight
+        } else {
+            Vec::new()
+        };
+        return rows
+            .iter()
+            .all(|r| meets(r, limits, &t, tol))
+            .then_some((t, tight));
+    }
+    None
+}
+
+/// The least-thrust setting at one angle, trying first the tight set of
+/// the previous angle's answer (`hint`, updated), then the screen, then
+/// the general solver: the same answer as [`least_thrust`] at that angle.
+fn least_thrust_at(
+    rows: &AngleRows,
+    limits: &Limits,
+    tol: f64,
+    hint: &mut Vec<screen::Tight>,
+) -> Option<Vec<f64>> {
+    if !hint.is_empty() && !limits.rotors.is_empty() {
+        let lp = SplitLp::new(&[rows], limits, tol);
+        if let Some(x) = screen::unique_optimum_at(&lp.cost, &lp.rows[0], &lp.lo, &lp.hi, tol, hint)
+        {
+            let t = SplitLp::thrusts(&x);
+            if meets(rows, limits, &t, tol) {
+                return Some(t);
+            }
+        }
+    }
+    if let Some((t, tight)) = least_thrust_vertex(&[rows], limits, tol) {
+        *hint = tight;
+        return Some(t);
+    }
+    hint.clear();
+    least_thrust_lp(&[rows], limits, tol)
+}
+
+/// [`least_thrust`] by the general solver alone: the reference the proved
+/// answers are checked against, and the answer wherever no proof is made.
+pub fn least_thrust_lp(rows: &[&AngleRows], limits: &Limits, tol: f64) -> Option<Vec<f64>> {
     use microlp::{ComparisonOp, OptimizationDirection, Problem};
     let rotors = &limits.rotors;
     let n = rotors.len();
@@ -320,12 +509,34 @@ fn no_single_setting(table: &[AngleRows], limits: &Limits, tol: f64) -> bool {
 /// otherwise a schedule by roll angle. `None` when some checked angle has
 /// no setting (which the caller treats as infeasible).
 pub fn commands(table: &[AngleRows], limits: &Limits, tol: f64) -> Option<RotorCommands> {
+    commands_by(table, limits, tol, false)
+}
+
+/// [`commands`] with every programme left to the general solver: the
+/// reference the proved answers are checked against.
+pub fn commands_lp(table: &[AngleRows], limits: &Limits, tol: f64) -> Option<RotorCommands> {
+    commands_by(table, limits, tol, true)
+}
+
+fn commands_by(
+    table: &[AngleRows],
+    limits: &Limits,
+    tol: f64,
+    by_lp: bool,
+) -> Option<RotorCommands> {
     let all: Vec<&AngleRows> = table.iter().collect();
+    let solve_all = || {
+        if by_lp {
+            least_thrust_lp(&all, limits, tol)
+        } else {
+            least_thrust(&all, limits, tol)
+        }
+    };
     // The one-setting LP is skipped only where a proof shows that no
     // setting meets the first, middle and last angles together (then it
     // could not meet them all, and its answer would be None anyway).
     if !no_single_setting(table, limits, tol)
-        && let Some(t) = least_thrust(&all, limits, tol)
+        && let Some(t) = solve_all()
     {
         return Some(RotorCommands {
             thrust_n: t,
@@ -333,6 +544,7 @@ pub fn commands(table: &[AngleRows], limits: &Limits, tol: f64) -> Option<RotorC
         });
     }
     let mut schedule: Vec<ScheduleEntry> = Vec::new();
+    let mut hint = Vec::new();
     for rows in table {
         if schedule
             .last()
@@ -340,7 +552,11 @@ pub fn commands(table: &[AngleRows], limits: &Limits, tol: f64) -> Option<RotorC
         {
             continue;
         }
-        let t = least_thrust(&[rows], limits, tol)?;
+        let t = if by_lp {
+            least_thrust_lp(&[rows], limits, tol)?
+        } else {
+            least_thrust_at(rows, limits, tol, &mut hint)?
+        };
         schedule.push(ScheduleEntry {
             from_deg: rows.angle_deg,
             thrust_n: t,
@@ -393,7 +609,7 @@ pub fn assess_plain(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
             worst = Some((ratio, rows.angle_deg, needed, avail));
         }
     }
-    finish(cage, roll, limits, &table, tol, worst, blocked_by)
+    finish(cage, roll, limits, &table, worst, blocked_by, true)
 }
 
 /// Relative slack of the screen's decisions: answers this close to a
@@ -404,8 +620,9 @@ const SCREEN_SLACK: f64 = 1e-6;
 enum AngleOutcome {
     /// Nothing to report (gravity helps and the contact holds).
     Fine,
-    /// Ratio needed / available lies in `[lo, hi]`, or is exactly `lo`
-    /// when `exact` (then `avail` is the LP's moment).
+    /// Ratio needed / available lies in `[lo, hi]`; `exact` is the best
+    /// moment where it is known (from the LP, or proved to round-off by
+    /// the screen).
     Finite {
         lo: f64,
         hi: f64,
@@ -431,16 +648,29 @@ fn angle_by_lp(rows: &AngleRows, limits: &Limits, tol: f64) -> AngleOutcome {
     }
 }
 
-/// The verdict at one angle: proved by the screen where it can be, by the
-/// LP otherwise. A ratio the screen proves is only bounded; the caller
-/// asks the LP for the exact value where it matters.
-fn angle_outcome(rows: &AngleRows, limits: &Limits, tol: f64, zero: &[f64]) -> AngleOutcome {
+/// Relative width under which the screen's proved bounds on the best
+/// moment are the optimum itself (round-off apart), as the LP would give
+/// it.
+const PROVED_EXACT: f64 = 1e-9;
+
+/// The verdict at one angle: proved by the screen where it can be
+/// (starting from the previous angle's tight set, `hint`), by the LP
+/// otherwise. Where the proved bounds on the moment meet up to round-off
+/// the moment is taken as exact; otherwise the ratio is only bounded and
+/// the caller asks the LP for the exact value where it matters.
+fn angle_outcome(
+    rows: &AngleRows,
+    limits: &Limits,
+    tol: f64,
+    zero: &[f64],
+    hint: &mut Vec<screen::Tight>,
+) -> AngleOutcome {
     let needed = rows.needed_nm;
     let slack = SCREEN_SLACK * (1.0 + needed.abs());
     if needed <= 0.0 && rows.admits(&limits.rotors, zero, tol) {
         return AngleOutcome::Fine;
     }
-    match screen::best_moment(rows, &limits.rotors, tol) {
+    match screen::best_moment_from(rows, &limits.rotors, tol, hint) {
         Screen::Infeasible => AngleOutcome::Blocked { avail: 0.0 },
         Screen::Optimum { lo, .. } if needed <= 0.0 && lo >= needed - tol + slack => {
             AngleOutcome::Fine
@@ -449,7 +679,7 @@ fn angle_outcome(rows: &AngleRows, limits: &Limits, tol: f64, zero: &[f64]) -> A
             AngleOutcome::Finite {
                 lo: needed / hi,
                 hi: needed / lo,
-                exact: None,
+                exact: (hi - lo <= PROVED_EXACT * (1.0 + lo.abs())).then_some(lo),
             }
         }
         _ => angle_by_lp(rows, limits, tol),
@@ -520,6 +750,7 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
     // The rows are built as the scan reaches them (a blocked roll often
     // stops at its first angle).
     let mut table: Vec<AngleRows> = Vec::new();
+    let mut hint = Vec::new();
     for (i, b) in checked_angles_deg(cage, roll).iter().enumerate() {
         let rows = rows_at(
             cage,
@@ -528,7 +759,7 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
             limits.friction_coefficient,
             b.to_radians(),
         );
-        let outcome = angle_outcome(&rows, limits, tol, &zero);
+        let outcome = angle_outcome(&rows, limits, tol, &zero, &mut hint);
         table.push(rows);
         match outcome {
             AngleOutcome::Fine => {}
@@ -574,21 +805,22 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
             worst
         }
     };
-    finish(cage, roll, limits, &table, tol, worst, blocked_by)
+    finish(cage, roll, limits, &table, worst, blocked_by, false)
 }
 
 /// The verdict from the worst angle: feasible when carried with the
-/// margin there, and then the rotor commands (by the LP, over every
-/// checked angle).
+/// margin there, and then the rotor commands over every checked angle
+/// (`by_lp`: by the general solver alone, as the reference check does).
 fn finish(
     cage: &Cage,
     roll: &Roll,
     limits: &Limits,
     table: &[AngleRows],
-    tol: f64,
     worst: Option<(f64, f64, f64, f64)>,
     blocked_by: Option<Condition>,
+    by_lp: bool,
 ) -> Feasibility {
+    let tol = tolerance(cage);
     let (mut feasible, thrust_fraction, worst_angle_deg, needed_nm, available_nm) = match worst {
         None => (true, Some(0.0), 0.0, 0.0, 0.0),
         Some((ratio, angle, needed, avail)) => (
@@ -600,7 +832,7 @@ fn finish(
         ),
     };
     let commands = if feasible {
-        commands(table, limits, tol)
+        commands_by(table, limits, tol, by_lp)
     } else {
         None
     };

@@ -17,6 +17,13 @@
 //!   widened by the tolerance of the answer check, so no answer the
 //!   general solver could give would pass that check either.
 //!
+//! - **The only optimum** ([`unique_optimum`]): when the constraints an
+//!   optimum must keep tight (by complementary slackness) pin a single
+//!   point, that point is what every correct solver returns.
+//! - **Warm starts** ([`screen_from`], [`unique_optimum_at`]): the
+//!   constraints tight at the previous angle's optimum are tried first;
+//!   the point they pin is accepted only with the same proofs.
+//!
 //! Anything the screen cannot prove comes back [`Screen::Unknown`] and the
 //! caller solves the LP as before, so a slip here costs time, never a
 //! wrong verdict. (Chvátal, "Linear Programming", 1983, ch. 2-5 and 8:
@@ -58,69 +65,405 @@ pub fn best_moment(rows: &AngleRows, rotors: &[Rotor], tol: f64) -> Screen {
     screen(&rows.arms_m, &rows.rows, &lo, &hi, tol)
 }
 
+/// [`best_moment`] starting from the tight set of the previous angle's
+/// optimum (see [`screen_from`]).
+pub fn best_moment_from(
+    rows: &AngleRows,
+    rotors: &[Rotor],
+    tol: f64,
+    hint: &mut Vec<Tight>,
+) -> Screen {
+    let lo: Vec<f64> = rotors.iter().map(|r| -r.reverse_thrust_n).collect();
+    let hi: Vec<f64> = rotors.iter().map(|r| r.max_thrust_n).collect();
+    screen_from(&rows.arms_m, &rows.rows, &lo, &hi, tol, hint)
+}
+
 /// Screen `max c . x` subject to `rows` and `lo <= x <= hi`.
 pub fn screen(c: &[f64], rows: &[Row], lo: &[f64], hi: &[f64], tol: f64) -> Screen {
-    let n = c.len();
-    if n == 0
-        || lo.len() != n
-        || hi.len() != n
-        || rows.iter().any(|r| r.coeffs.len() != n)
-        || lo
-            .iter()
-            .zip(hi)
-            .any(|(a, b)| !a.is_finite() || !b.is_finite() || a > b)
-        || c.iter().any(|v| !v.is_finite())
-        || rows
-            .iter()
-            .any(|r| !r.rhs.is_finite() || r.coeffs.iter().any(|v| !v.is_finite()))
+    screen_cold(c, rows, lo, hi, tol).0
+}
+
+/// [`screen`], trying first the constraints that were tight at the
+/// previous programme's optimum (`hint`, updated with this one's): where
+/// the point they pin meets every row and its multipliers' dual bound
+/// equals its value up to round-off, that proves the optimum as the
+/// simplex's answer would, with one small linear solve instead of the
+/// simplex. The angles of a roll change their programme a little at a
+/// time, so the tight set mostly carries over.
+pub fn screen_from(
+    c: &[f64],
+    rows: &[Row],
+    lo: &[f64],
+    hi: &[f64],
+    tol: f64,
+    hint: &mut Vec<Tight>,
+) -> Screen {
+    if hint.len() == c.len()
+        && well_formed(c, rows, lo, hi)
+        && let Some((x, lambda)) = vertex_solve(c, rows, lo, hi, hint)
+        && holds(rows, lo, hi, &x, tol * 1e-2)
     {
-        return Screen::Unknown;
+        let mut mult = vec![0.0; rows.len()];
+        for (t, l) in hint.iter().zip(&lambda) {
+            if let Tight::Row(r) = *t {
+                mult[r] = *l;
+            }
+        }
+        let value: f64 = c.iter().zip(&x).map(|(a, b)| a * b).sum();
+        if let Some(bound) = dual_bound(c, rows, lo, hi, &mult)
+            && (bound - value).abs() <= 1e-9 * (1.0 + value.abs())
+        {
+            return Screen::Optimum {
+                lo: value,
+                hi: bound.max(value),
+                x,
+            };
+        }
+    }
+    let (answer, tight) = screen_cold(c, rows, lo, hi, tol);
+    *hint = tight;
+    answer
+}
+
+/// [`screen`] by the simplex, with the tight set of a proved optimum when
+/// it has exactly one constraint per variable (empty otherwise).
+fn screen_cold(c: &[f64], rows: &[Row], lo: &[f64], hi: &[f64], tol: f64) -> (Screen, Vec<Tight>) {
+    if !well_formed(c, rows, lo, hi) {
+        return (Screen::Unknown, Vec::new());
     }
     let Some(sol) = Simplex::solve(c, rows, lo, hi) else {
-        return Screen::Unknown;
+        return (Screen::Unknown, Vec::new());
     };
     match sol {
         Solved::Infeasible(mult) => {
             if farkas_holds(rows, lo, hi, &mult, tol) {
-                Screen::Infeasible
+                (Screen::Infeasible, Vec::new())
             } else {
-                Screen::Unknown
+                (Screen::Unknown, Vec::new())
             }
         }
         Solved::Optimal { x, mult } => {
             // A hundredth of the answer check's tolerance: the setting is
             // well inside what the check accepts.
             let hair = tol * 1e-2;
-            let meets = x
-                .iter()
-                .zip(lo.iter().zip(hi))
-                .all(|(v, (a, b))| *v >= a - hair && *v <= b + hair)
-                && rows.iter().all(|r| {
-                    let e = r.excess(&x);
-                    if r.equality {
-                        e.abs() <= hair
-                    } else {
-                        e <= hair
-                    }
-                });
-            if !meets {
-                return Screen::Unknown;
+            if !holds(rows, lo, hi, &x, hair) {
+                return (Screen::Unknown, Vec::new());
             }
             let value: f64 = c.iter().zip(&x).map(|(a, b)| a * b).sum();
             let Some(bound) = dual_bound(c, rows, lo, hi, &mult) else {
-                return Screen::Unknown;
+                return (Screen::Unknown, Vec::new());
             };
             // The bound and the value can cross only by round-off.
             if bound < value - 1e-9 * (1.0 + value.abs()) {
-                return Screen::Unknown;
+                return (Screen::Unknown, Vec::new());
             }
-            Screen::Optimum {
-                lo: value,
-                hi: bound.max(value),
-                x,
+            let mut tight = tight_set(c, rows, lo, hi, &x, &mult, hair).unwrap_or_default();
+            if tight.len() != c.len() {
+                tight.clear();
+            }
+            (
+                Screen::Optimum {
+                    lo: value,
+                    hi: bound.max(value),
+                    x,
+                },
+                tight,
+            )
+        }
+    }
+}
+
+/// The constraints an optimal `x'` must keep tight, given the multipliers
+/// `mult` of the rows: every equality, every inequality with a positive
+/// multiplier, every bound whose reduced cost is not zero, every fixed
+/// variable (see [`unique_optimum`] for why). `None` when one of them is
+/// not tight at `x` (the multipliers do not belong to `x`).
+fn tight_set(
+    c: &[f64],
+    rows: &[Row],
+    lo: &[f64],
+    hi: &[f64],
+    x: &[f64],
+    mult: &[f64],
+    hair: f64,
+) -> Option<Vec<Tight>> {
+    let mut r = c.to_vec();
+    let scale = 1.0 + c.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    let strict = 1e-9 * scale;
+    let mut tight: Vec<Tight> = Vec::new();
+    for (i, (row, &m)) in rows.iter().zip(mult).enumerate() {
+        let m = if row.equality { m } else { m.max(0.0) };
+        for (rk, a) in r.iter_mut().zip(&row.coeffs) {
+            *rk -= m * a;
+        }
+        if row.equality || m > strict {
+            if row.excess(x).abs() > hair {
+                return None;
+            }
+            tight.push(Tight::Row(i));
+        }
+    }
+    for k in 0..c.len() {
+        let bound = if hi[k] <= lo[k] || r[k] < -strict {
+            Tight::Lower(k)
+        } else if r[k] > strict {
+            Tight::Upper(k)
+        } else {
+            continue;
+        };
+        let v = if bound == Tight::Lower(k) {
+            lo[k]
+        } else {
+            hi[k]
+        };
+        if (x[k] - v).abs() > hair {
+            return None;
+        }
+        tight.push(bound);
+    }
+    Some(tight)
+}
+
+/// The point where the `n` constraints `tight` hold with equality, and
+/// their multipliers: `lambda` with `c = sum lambda_i a_i` over their
+/// normals. `None` when the system is singular or the answer is not
+/// finite.
+fn vertex_solve(
+    c: &[f64],
+    rows: &[Row],
+    lo: &[f64],
+    hi: &[f64],
+    tight: &[Tight],
+) -> Option<(Vec<f64>, Vec<f64>)> {
+    let n = c.len();
+    if tight.len() != n {
+        return None;
+    }
+    // Row-major n x n matrix of the tight constraints' normals.
+    let mut a = vec![0.0; n * n];
+    let mut b = vec![0.0; n];
+    for (i, t) in tight.iter().enumerate() {
+        match *t {
+            Tight::Row(r) => {
+                let row = rows.get(r)?;
+                a[i * n..(i + 1) * n].copy_from_slice(&row.coeffs);
+                b[i] = row.rhs;
+            }
+            Tight::Lower(k) | Tight::Upper(k) if k >= n => return None,
+            Tight::Lower(k) => {
+                a[i * n + k] = 1.0;
+                b[i] = lo[k];
+            }
+            Tight::Upper(k) => {
+                a[i * n + k] = 1.0;
+                b[i] = hi[k];
             }
         }
     }
+    // Small systems on the stack (the common case: one or two unknowns
+    // per rotor), larger ones on the heap.
+    let (x, lambda) = match n {
+        0..=4 => solve_pair_4(n, &a, &b, c)?,
+        5..=8 => solve_pair_8(n, &a, &b, c)?,
+        9..=16 => solve_pair_16(n, &a, &b, c)?,
+        _ => {
+            let m = nalgebra::DMatrix::from_row_slice(n, n, &a);
+            let x = m
+                .clone()
+                .lu()
+                .solve(&nalgebra::DVector::from_column_slice(&b))?;
+            let l = m
+                .transpose()
+                .lu()
+                .solve(&nalgebra::DVector::from_column_slice(c))?;
+            (x.iter().copied().collect(), l.iter().copied().collect())
+        }
+    };
+    let scale = 1.0 + c.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    // The multipliers must reproduce c (a check on the solve itself).
+    let reproduces = (0..n).all(|k| {
+        let sum: f64 = (0..n).map(|i| a[i * n + k] * lambda[i]).sum();
+        (sum - c[k]).abs() <= 1e-9 * scale
+    });
+    let finite = x.iter().chain(&lambda).all(|v| v.is_finite());
+    (finite && reproduces).then_some((x, lambda))
+}
+
+/// Solvers of `A x = b` and `A^T lambda = c` for an `n x n` row-major
+/// `A`, padded to a fixed size with the identity so the work stays on the
+/// stack (nalgebra's fixed-size LU).
+macro_rules! fixed_pair_solver {
+    ($name:ident, $size:literal) => {
+        fn $name(n: usize, a: &[f64], b: &[f64], c: &[f64]) -> Option<(Vec<f64>, Vec<f64>)> {
+            let mut m = nalgebra::SMatrix::<f64, $size, $size>::identity();
+            let mut bv = nalgebra::SVector::<f64, $size>::zeros();
+            let mut cv = nalgebra::SVector::<f64, $size>::zeros();
+            for i in 0..n {
+                for k in 0..n {
+                    m[(i, k)] = a[i * n + k];
+                }
+                bv[i] = b[i];
+                cv[i] = c[i];
+            }
+            let x = m.lu().solve(&bv)?;
+            let l = m.transpose().lu().solve(&cv)?;
+            Some((x.as_slice()[..n].to_vec(), l.as_slice()[..n].to_vec()))
+        }
+    };
+}
+fixed_pair_solver!(solve_pair_4, 4);
+fixed_pair_solver!(solve_pair_8, 8);
+fixed_pair_solver!(solve_pair_16, 16);
+
+/// Whether the programme is one the simplex can take: matching lengths,
+/// finite numbers, a non-empty box.
+fn well_formed(c: &[f64], rows: &[Row], lo: &[f64], hi: &[f64]) -> bool {
+    let n = c.len();
+    n > 0
+        && lo.len() == n
+        && hi.len() == n
+        && rows.iter().all(|r| r.coeffs.len() == n)
+        && lo
+            .iter()
+            .zip(hi)
+            .all(|(a, b)| a.is_finite() && b.is_finite() && a <= b)
+        && c.iter().all(|v| v.is_finite())
+        && rows
+            .iter()
+            .all(|r| r.rhs.is_finite() && r.coeffs.iter().all(|v| v.is_finite()))
+}
+
+/// Whether `x` meets every row and bound within `hair`.
+fn holds(rows: &[Row], lo: &[f64], hi: &[f64], x: &[f64], hair: f64) -> bool {
+    x.iter()
+        .zip(lo.iter().zip(hi))
+        .all(|(v, (a, b))| *v >= a - hair && *v <= b + hair)
+        && rows.iter().all(|r| {
+            let e = r.excess(x);
+            if r.equality {
+                e.abs() <= hair
+            } else {
+                e <= hair
+            }
+        })
+}
+
+/// The optimum of `max c . x` over `rows` and `lo <= x <= hi`, when it is
+/// proved optimal *and* proved to be the only optimum; `None` otherwise
+/// (the caller then asks the general solver).
+///
+/// Optimal: `x` meets every row and bound within a hundredth of `tol`,
+/// and the weak-duality bound of its multipliers meets `c . x` up to
+/// round-off. The only one: every feasible `x'` has
+/// `bound - c . x' = sum_i y_i (b_i - a_i . x') + sum_k (max(r_k lo_k,
+/// r_k hi_k) - r_k x'_k)`, a sum of terms that are never negative, so an
+/// optimal `x'` keeps tight every inequality with `y_i > 0` and every
+/// bound with `r_k != 0`, as well as every equality. When those
+/// constraints alone have rank `n`, they pin a single point: `x`.
+/// (Chvátal 1983, ch. 5, complementary slackness; the same argument as
+/// "a non-degenerate dual optimum gives a unique primal optimum".)
+/// A unique optimum is what any correct solver must return, up to its
+/// round-off, so the answer does not depend on which solver found it.
+pub fn unique_optimum(c: &[f64], rows: &[Row], lo: &[f64], hi: &[f64], tol: f64) -> Option<Vertex> {
+    if !well_formed(c, rows, lo, hi) {
+        return None;
+    }
+    let Solved::Optimal { x, mult } = Simplex::solve(c, rows, lo, hi)? else {
+        return None;
+    };
+    let hair = tol * 1e-2;
+    if !holds(rows, lo, hi, &x, hair) {
+        return None;
+    }
+    let value: f64 = c.iter().zip(&x).map(|(a, b)| a * b).sum();
+    let bound = dual_bound(c, rows, lo, hi, &mult)?;
+    if (bound - value).abs() > 1e-9 * (1.0 + value.abs()) {
+        return None;
+    }
+    let n = c.len();
+    let tight = tight_set(c, rows, lo, hi, &x, &mult, hair)?;
+    let count = tight.len();
+    let mut pinned: Vec<f64> = Vec::with_capacity(count * n);
+    for t in &tight {
+        match *t {
+            Tight::Row(i) => pinned.extend_from_slice(&rows[i].coeffs),
+            Tight::Lower(k) | Tight::Upper(k) => {
+                pinned.extend((0..n).map(|j| if j == k { 1.0 } else { 0.0 }))
+            }
+        }
+    }
+    if count < n {
+        return None;
+    }
+    let a = nalgebra::DMatrix::from_row_slice(count, n, &pinned);
+    let largest = a.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    if a.rank(1e-9 * largest.max(1.0)) != n {
+        return None;
+    }
+    // A degenerate vertex (more tight constraints than unknowns) is no
+    // starting point for the next programme.
+    let tight = if count > n { Vec::new() } else { tight };
+    Some(Vertex { x, tight })
+}
+
+/// A constraint held with equality at a vertex: a row, or a variable's
+/// lower or upper bound.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+pub enum Tight {
+    /// Row `i` of the programme.
+    Row(usize),
+    /// Variable `k` at its lower bound (or fixed, when its bounds meet).
+    Lower(usize),
+    /// Variable `k` at its upper bound.
+    Upper(usize),
+}
+
+/// A proved unique optimum and, when it is a non-degenerate vertex, the
+/// `n` constraints that pin it (empty otherwise).
+#[derive(Debug, Clone, PartialEq)]
+pub struct Vertex {
+    /// The optimum.
+    pub x: Vec<f64>,
+    /// The constraints tight at it, one per variable.
+    pub tight: Vec<Tight>,
+}
+
+/// The unique optimum of `max c . x` over `rows` and `lo <= x <= hi` when
+/// the `n` constraints `tight` pin it, proved without the simplex: the
+/// point where they all hold with equality meets every row and bound
+/// within a hundredth of `tol`, and `c` is a combination of those
+/// constraints' normals with every multiplier strictly of the sign that
+/// makes it optimal (positive for `a . x <= b` and upper bounds, negative
+/// for lower bounds, any sign for equalities and fixed variables). That is
+/// the optimality condition of LP, and strict signs with `n` independent
+/// constraints make the optimum the only one, as in [`unique_optimum`].
+/// Programmes that change little from one to the next (the angles of a
+/// roll) usually keep the same tight set, so the previous answer's set is
+/// tried first.
+pub fn unique_optimum_at(
+    c: &[f64],
+    rows: &[Row],
+    lo: &[f64],
+    hi: &[f64],
+    tol: f64,
+    tight: &[Tight],
+) -> Option<Vec<f64>> {
+    let n = c.len();
+    if tight.len() != n || !well_formed(c, rows, lo, hi) {
+        return None;
+    }
+    let (x, lambda) = vertex_solve(c, rows, lo, hi, tight)?;
+    if !holds(rows, lo, hi, &x, tol * 1e-2) {
+        return None;
+    }
+    let scale = 1.0 + c.iter().fold(0.0_f64, |m, v| m.max(v.abs()));
+    let strict = 1e-9 * scale;
+    let signs_hold = tight.iter().zip(&lambda).all(|(t, &l)| match *t {
+        Tight::Row(r) => rows[r].equality || l > strict,
+        Tight::Upper(_) => l > strict,
+        Tight::Lower(k) => hi[k] <= lo[k] || l < -strict,
+    });
+    signs_hold.then_some(x)
 }
 
 /// Weak-duality upper bound on `max c . x` from row multipliers (negative
@@ -409,20 +752,61 @@ mod tests {
         Profile::parse(&crate::geodesic::profile_toml(k), "geodesic").expect("profile")
     }
 
-    /// The fast check and the plain one (the LP at every angle) give the
-    /// same verdict, ratio, worst angle, moments, blocking condition and
-    /// rotor commands on every move, bit for bit: the reported figures
-    /// come from the same LPs.
+    /// Whether two figures agree to round-off.
+    fn near(x: f64, y: f64) -> bool {
+        (x - y).abs() <= 1e-9 * (1.0 + x.abs().max(y.abs()))
+    }
+
+    /// Two settings agree to round-off (newtons).
+    fn same_setting(a: &[f64], b: &[f64]) -> bool {
+        a.len() == b.len() && a.iter().zip(b).all(|(x, y)| (x - y).abs() <= 1e-7)
+    }
+
+    /// The fast check (the screen's proofs, warm starts from the previous
+    /// angle's tight set, least-thrust settings proved to be the only
+    /// optimum) and the plain one (the microlp solver, a general-purpose
+    /// LP library, at every angle and for every command) agree on every
+    /// move: the same verdict, blocking condition, worst angle and
+    /// schedule by angle; the ratio, the moments and every thrust to
+    /// round-off.
     fn agree_on_every_move(m: &RightingModel) -> usize {
         let mut compared = 0;
         for mv in &m.moves {
+            let what = format!("{} -> {} ({:?})", mv.roll.from, mv.roll.to, mv.roll.kind);
             let plain = assess_plain(&m.cage, &mv.roll, &m.limits);
+            let fast = &mv.feasibility;
             assert_eq!(
-                mv.feasibility, plain,
-                "{} -> {} ({:?})",
-                mv.roll.from, mv.roll.to, mv.roll.kind
+                fast,
+                &assess(&m.cage, &mv.roll, &m.limits),
+                "{what}: repeatable"
             );
-            assert_eq!(assess(&m.cage, &mv.roll, &m.limits), plain);
+            assert_eq!(fast.feasible, plain.feasible, "{what}");
+            assert_eq!(fast.blocked_by, plain.blocked_by, "{what}");
+            assert_eq!(fast.worst_angle_deg, plain.worst_angle_deg, "{what}");
+            assert_eq!(fast.tip_angle_deg, plain.tip_angle_deg, "{what}");
+            match (fast.thrust_fraction, plain.thrust_fraction) {
+                (Some(x), Some(y)) => assert!(near(x, y), "{what}: {x} vs {y}"),
+                (x, y) => assert_eq!(x, y, "{what}"),
+            }
+            assert!(near(fast.needed_nm, plain.needed_nm), "{what}");
+            assert!(near(fast.available_nm, plain.available_nm), "{what}");
+            match (&fast.commands, &plain.commands) {
+                (Some(x), Some(y)) => {
+                    assert!(
+                        same_setting(&x.thrust_n, &y.thrust_n),
+                        "{what}: {x:?} vs {y:?}"
+                    );
+                    assert_eq!(x.schedule.len(), y.schedule.len(), "{what}");
+                    for (e, f) in x.schedule.iter().zip(&y.schedule) {
+                        assert_eq!(e.from_deg, f.from_deg, "{what}");
+                        assert!(
+                            same_setting(&e.thrust_n, &f.thrust_n),
+                            "{what}: {e:?} vs {f:?}"
+                        );
+                    }
+                }
+                (x, y) => assert_eq!(x, y, "{what}"),
+            }
             compared += 1;
         }
         compared
@@ -525,6 +909,54 @@ mod tests {
             panic!("{s:?}")
         };
         assert!((lo - 2.0).abs() < 1e-12 && (hi - 2.0).abs() < 1e-12);
+    }
+
+    /// Hand-worked: maximise -x - 2y subject to x + y >= 1 in the box
+    /// [0, 2]^2 has the single optimum (1, 0), pinned by the row and the
+    /// lower bound of y; maximise -x - y there has a whole segment of
+    /// optima, so no unique answer is claimed. Moving the row to
+    /// x + y >= 1.5 keeps the same tight set, which then gives (1.5, 0)
+    /// without the simplex; a wrong tight set (x at its lower bound) gives
+    /// a point whose multipliers have the wrong sign, and is refused
+    /// (common practice, no published source).
+    #[test]
+    fn unique_optima_by_hand() {
+        let row = |coeffs: Vec<f64>, rhs: f64| Row {
+            coeffs,
+            rhs,
+            equality: false,
+            condition: super::super::contact::Condition::LiftOff,
+        };
+        let (lo, hi) = ([0.0, 0.0], [2.0, 2.0]);
+        let rows = [row(vec![-1.0, -1.0], -1.0)];
+        let v = unique_optimum(&[-1.0, -2.0], &rows, &lo, &hi, 1e-7).expect("unique");
+        assert!(
+            (v.x[0] - 1.0).abs() < 1e-12 && v.x[1].abs() < 1e-12,
+            "{v:?}"
+        );
+        assert_eq!(v.tight, vec![Tight::Row(0), Tight::Lower(1)]);
+        assert_eq!(unique_optimum(&[-1.0, -1.0], &rows, &lo, &hi, 1e-7), None);
+        let moved = [row(vec![-1.0, -1.0], -1.5)];
+        let x = unique_optimum_at(&[-1.0, -2.0], &moved, &lo, &hi, 1e-7, &v.tight).expect("warm");
+        assert!((x[0] - 1.5).abs() < 1e-12 && x[1].abs() < 1e-12, "{x:?}");
+        let wrong = [Tight::Row(0), Tight::Lower(0)];
+        assert_eq!(
+            unique_optimum_at(&[-1.0, -2.0], &moved, &lo, &hi, 1e-7, &wrong),
+            None
+        );
+        // The warm screen proves the same optimum as the simplex, with or
+        // without a usable hint, and leaves a hint for the next one.
+        let cold = screen(&[-1.0, -2.0], &moved, &lo, &hi, 1e-7);
+        for start in [v.tight.clone(), wrong.to_vec(), Vec::new()] {
+            let mut hint = start;
+            let warm = screen_from(&[-1.0, -2.0], &moved, &lo, &hi, 1e-7, &mut hint);
+            let (Screen::Optimum { lo: a, .. }, Screen::Optimum { lo: b, .. }) = (&warm, &cold)
+            else {
+                panic!("{warm:?} {cold:?}")
+            };
+            assert!((a - b).abs() < 1e-12 && (a + 1.5).abs() < 1e-12);
+            assert_eq!(hint.len(), 2);
+        }
     }
 
     /// The node-sharing search lists the same rolls, in the same order, as

@@ -188,6 +188,19 @@ pub fn main() -> ExitCode {
     }
 }
 
+/// Print `value` as pretty JSON and a newline, streamed through a buffer
+/// (a recovery map of a large cage is over 100 MB: no copy of it is held
+/// as one string). Write errors stay `std::io::Error`s, so a closed
+/// stdout is still recognised.
+pub fn write_json<T: serde::Serialize>(out: impl std::io::Write, value: &T) -> anyhow::Result<()> {
+    use std::io::Write as _;
+    let mut w = std::io::BufWriter::with_capacity(1 << 16, out);
+    serde_json::to_writer_pretty(&mut w, value).map_err(std::io::Error::from)?;
+    writeln!(w)?;
+    w.flush()?;
+    Ok(())
+}
+
 /// A reader that closed our stdout early (`| head`) is not a failure.
 fn is_broken_pipe(e: &anyhow::Error) -> bool {
     e.chain().any(|c| {

@@ -39,8 +39,14 @@ pub struct Move {
     pub settle: Vec<Roll>,
     /// Face the vehicle ends on.
     pub settles_on: usize,
-    /// Quasi-static verdict on the commanded roll.
+    /// Quasi-static verdict on the commanded roll. In a [`RightingModel`]
+    /// its `commands` are left out and `feasible` says only that the check
+    /// passed: [`RightingModel::commands`] and [`RightingModel::feasible`]
+    /// give the whole answer.
     pub feasibility: Feasibility,
+    /// The rotor commands, worked out on first use: a move's check costs
+    /// a fraction of its commands, and a plan takes few of the moves.
+    commands: std::sync::OnceLock<Option<RotorCommands>>,
 }
 
 impl Move {
@@ -103,12 +109,13 @@ impl RightingModel {
             if settles_on == roll.from {
                 continue;
             }
-            let feasibility = feasibility::assess(&cage, &roll, &limits);
+            let feasibility = feasibility::assess_check(&cage, &roll, &limits);
             moves.push(Move {
                 roll,
                 settle,
                 settles_on,
                 feasibility,
+                commands: std::sync::OnceLock::new(),
             });
         }
         RightingModel {
@@ -127,6 +134,32 @@ impl RightingModel {
             MoveKind::Vertex => self.vertex_pivot_weight,
         };
         m.total_angle_deg() * w
+    }
+
+    /// The rotor commands of move `k` (worked out on first use); `None`
+    /// when the check refuses it, or when no setting carries some angle of
+    /// it, which makes it infeasible (fail safe).
+    pub fn commands(&self, k: usize) -> Option<&RotorCommands> {
+        let m = self.moves.get(k)?;
+        if !m.feasibility.feasible {
+            return None;
+        }
+        m.commands
+            .get_or_init(|| feasibility::move_commands(&self.cage, &m.roll, &self.limits))
+            .as_ref()
+    }
+
+    /// Whether move `k` can be made: the check passes and rotor commands
+    /// exist (working them out if need be).
+    pub fn feasible(&self, k: usize) -> bool {
+        self.commands(k).is_some()
+    }
+
+    /// Whether move `k` may be planned with: the check passes and its
+    /// commands, where already worked out, exist.
+    fn plannable(&self, k: usize) -> bool {
+        let m = &self.moves[k];
+        m.feasibility.feasible && m.commands.get().is_none_or(|c| c.is_some())
     }
 
     /// Where the vehicle ends up if left lying on `face`.

@@ -121,12 +121,6 @@ fn report<'a>(
     let nid = |i: usize| c.nodes[i].id.as_str();
     let fid = |i: usize| c.faces[i].id.as_str();
     let rotors = &model.limits.rotors;
-    fn commands(m: &cagehand::righting::Move) -> Option<&cagehand::righting::RotorCommands> {
-        m.feasibility
-            .commands
-            .as_ref()
-            .filter(|_| m.feasibility.feasible)
-    }
     Report {
         schema: "cagehand.cage/1",
         vehicle: VehicleJson {
@@ -181,17 +175,18 @@ fn report<'a>(
         moves: model
             .moves
             .iter()
-            .map(|m| MoveJson {
+            .enumerate()
+            .map(|(k, m)| MoveJson {
                 from: fid(m.roll.from),
                 to: fid(m.roll.to),
                 kind: m.roll.kind,
                 pivot: m.roll.pivot.iter().map(|&i| nid(i)).collect(),
                 angle_deg: m.roll.angle_deg,
-                feasible: m.feasibility.feasible,
+                feasible: model.feasible(k),
                 thrust_fraction: m.feasibility.thrust_fraction,
                 settles_on: fid(m.settles_on),
-                rotors: commands(m).map(|c| rotors_json(rotors, &c.thrust_n)),
-                rotor_schedule: commands(m).and_then(|c| schedule_json(rotors, c)),
+                rotors: model.commands(k).map(|c| rotors_json(rotors, &c.thrust_n)),
+                rotor_schedule: model.commands(k).and_then(|c| schedule_json(rotors, c)),
             })
             .collect(),
     }
@@ -210,7 +205,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let r = report(&l.profile, &l.cage, ss, &model);
     let mut out = std::io::stdout().lock();
     if args.json {
-        writeln!(out, "{}", serde_json::to_string_pretty(&r)?)?;
+        super::write_json(&mut out, &r)?;
         return Ok(ExitCode::SUCCESS);
     }
     let t = cagehand::text::terminal;

@@ -262,7 +262,7 @@ fn record_beyond_model(
             "log": book.path().display().to_string(),
             "status_changes": changes,
         });
-        writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+        super::write_json(&mut out, &j)?;
         return Ok(ExitCode::SUCCESS);
     }
     writeln!(out, "{}", cagehand::text::terminal(&why.to_string()))?;
@@ -386,7 +386,7 @@ pub fn run_loaded(args: &Args, l: &Loaded, detection: Option<u64>) -> anyhow::Re
     };
     let mut out = std::io::stdout().lock();
     if args.json {
-        writeln!(out, "{}", serde_json::to_string_pretty(&report)?)?;
+        super::write_json(&mut out, &report)?;
         return Ok(ExitCode::SUCCESS);
     }
     match (report.record_seq, &book) {

@@ -620,7 +620,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     records: book.records(),
                     integrity: integrity_json(&book, &report.integrity),
                 };
-                writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+                super::write_json(&mut out, &j)?;
             } else {
                 write_title(&mut out, &l, &book)?;
                 if let Some(h) = report.integrity.headline() {
@@ -666,7 +666,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     members: &h.members,
                     warnings: &h.warnings,
                 };
-                writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+                super::write_json(&mut out, &j)?;
             } else {
                 let vid = terminal(&l.profile.vehicle.id);
                 if report.new_file {
@@ -783,7 +783,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let pending = cagehand::logbook::pending(book.records());
             if *json {
                 // The contract: an array of pending detections.
-                writeln!(out, "{}", serde_json::to_string_pretty(&pending)?)?;
+                super::write_json(&mut out, &pending)?;
             } else if pending.is_empty() {
                 writeln!(
                     out,
@@ -1001,7 +1001,7 @@ fn verify(
                 },
             }),
         };
-        writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+        super::write_json(&mut *out, &j)?;
     } else {
         write_title(out, l, &book)?;
         if report.new_file {

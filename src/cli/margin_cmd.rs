@@ -172,7 +172,7 @@ pub fn run(args: &Args, parent: &ProfileArg) -> anyhow::Result<ExitCode> {
     let r = report(&t, args.nodes);
     let mut out = std::io::stdout().lock();
     if args.json {
-        writeln!(out, "{}", serde_json::to_string_pretty(&r)?)?;
+        super::write_json(&mut out, &r)?;
         return Ok(ExitCode::SUCCESS);
     }
     writeln!(

@@ -469,7 +469,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 schema: SCHEMA,
                 faces: plans.iter().map(|p| plan_json(&model, p)).collect(),
             };
-            writeln!(out, "{}", serde_json::to_string_pretty(&js)?)?;
+            super::write_json(&mut out, &js)?;
         } else if args.format == Format::Md {
             write_sheet_header(&mut out, &model, &l.profile.vehicle.name)?;
             for p in &plans {
@@ -524,7 +524,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     if args.json {
         let mut js = plan_json(&model, &plan);
         js.schema = Some(SCHEMA);
-        writeln!(out, "{}", serde_json::to_string_pretty(&js)?)?;
+        super::write_json(&mut out, &js)?;
     } else if args.format == Format::Md {
         write_sheet_header(&mut out, &model, &l.profile.vehicle.name)?;
         write_sheet(&mut out, &model, &plan)?;

@@ -264,7 +264,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     can_sign: e.can_sign(),
                     blocking: e.blocking(),
                 };
-                writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+                super::write_json(&mut out, &j)?;
             } else {
                 writeln!(
                     out,
@@ -331,7 +331,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                             operator: Some(&operator),
                             blocking: &[],
                         };
-                        writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+                        super::write_json(&mut out, &j)?;
                     } else {
                         writeln!(out, "{}", rec.seq)?;
                         eprintln!(
@@ -352,7 +352,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                             operator: None,
                             blocking: &r.reasons,
                         };
-                        writeln!(out, "{}", serde_json::to_string_pretty(&j)?)?;
+                        super::write_json(&mut out, &j)?;
                     }
                     eprintln!(
                         "cagehand: pre-flight of {vehicle} NOT signed; nothing was written to {path}:"

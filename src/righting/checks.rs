@@ -577,8 +577,8 @@ mod props {
             let mu = m.limits.friction_coefficient;
             let tol = 1e-6 * (1.0 + w);
             let mut checked = 0;
-            for mv in m.moves.iter().filter(|x| x.feasibility.feasible) {
-                let cmd = mv.feasibility.commands.as_ref().expect("feasible moves carry commands");
+            for (k, mv) in m.moves.iter().enumerate().filter(|(_, x)| x.feasibility.feasible) {
+                let cmd = m.commands(k).expect("moves the check passes have commands");
                 prop_assert_eq!(cmd.thrust_n.len(), m.limits.rotors.len());
                 if let Some(first) = cmd.schedule.first() {
                     prop_assert_eq!(first.from_deg, 0.0);
@@ -778,5 +778,47 @@ fn unstable_faces_settle_and_plans_start_where_the_vehicle_settles() {
             }
             h = height;
         }
+    }
+}
+
+/// A move whose check passes but for which no rotor setting is found
+/// counts as infeasible (the fail-safe rule of the feasibility check;
+/// common practice, no published source): the recovery map and a single
+/// plan route around it, no cost falls without it, and every step shown
+/// carries its commands.
+#[test]
+fn a_move_without_commands_is_routed_around() {
+    let p = Profile::demo().expect("demo");
+    let c = Cage::from_profile(&p).expect("cage");
+    let m = RightingModel::new(&p, &c).expect("model");
+    let map = m.recovery_map();
+    let (face, first) = map
+        .iter()
+        .enumerate()
+        .find_map(|(f, plan)| plan.steps.first().map(|s| (f, s.move_index)))
+        .expect("some plan has a step");
+    let fresh = RightingModel::new(&p, &c).expect("model");
+    assert!(fresh.moves[first].feasibility.feasible);
+    fresh.moves[first]
+        .commands
+        .set(None)
+        .expect("commands not worked out yet");
+    assert!(!fresh.feasible(first));
+    let again = fresh.recovery_map();
+    assert!(
+        again
+            .iter()
+            .flat_map(|plan| &plan.steps)
+            .all(|s| s.move_index != first)
+    );
+    let single = fresh.plan(face, &resting_attitude(&fresh.cage, face));
+    assert!(single.steps.iter().all(|s| s.move_index != first));
+    for (before, after) in map.iter().zip(&again) {
+        if after.reachable {
+            assert!(before.reachable && after.cost_deg >= before.cost_deg - 1e-9);
+        }
+    }
+    for s in again.iter().flat_map(|plan| &plan.steps) {
+        assert_eq!(Some(&s.commands), fresh.commands(s.move_index));
     }
 }

@@ -576,6 +576,21 @@ fn commands_by(
 /// and find its rotor commands: the reference that [`assess`] must agree
 /// with (the agreement tests run both), and its fallback.
 pub fn assess_plain(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
+    plain_with(cage, roll, limits, CommandsBy::Lp)
+}
+
+/// How a check finds the rotor commands of a move it passes.
+#[derive(Debug, Clone, Copy, PartialEq, Eq)]
+enum CommandsBy {
+    /// The general solver for every programme (the reference).
+    Lp,
+    /// Proved answers where possible, the solver elsewhere.
+    Proved,
+    /// Not now: the caller asks [`move_commands`] when it needs them.
+    Later,
+}
+
+fn plain_with(cage: &Cage, roll: &Roll, limits: &Limits, by: CommandsBy) -> Feasibility {
     let tol = tolerance(cage);
     let table = table(cage, roll, limits);
     let zero = vec![0.0; limits.rotors.len()];
@@ -609,7 +624,7 @@ pub fn assess_plain(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
             worst = Some((ratio, rows.angle_deg, needed, avail));
         }
     }
-    finish(cage, roll, limits, &table, worst, blocked_by, true)
+    finish(cage, roll, limits, &table, worst, blocked_by, by)
 }
 
 /// Relative slack of the screen's decisions: answers this close to a
@@ -742,6 +757,24 @@ fn blocking_condition(
 /// disagreement between the screen and the LP sends the roll to
 /// [`assess_plain`].
 pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
+    assess_with(cage, roll, limits, CommandsBy::Proved)
+}
+
+/// [`assess`] without the rotor commands: `feasible` says only that the
+/// check passed, and `commands` is `None`. The planner checks every move
+/// this way and asks [`move_commands`] for the moves a plan takes (a
+/// move without commands then counts as infeasible, as in [`assess`]).
+pub fn assess_check(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
+    assess_with(cage, roll, limits, CommandsBy::Later)
+}
+
+/// The rotor commands of a roll the check passes (as [`assess`] finds
+/// them); `None` when no setting carries some checked angle.
+pub fn move_commands(cage: &Cage, roll: &Roll, limits: &Limits) -> Option<RotorCommands> {
+    commands(&table(cage, roll, limits), limits, tolerance(cage))
+}
+
+fn assess_with(cage: &Cage, roll: &Roll, limits: &Limits, by: CommandsBy) -> Feasibility {
     let tol = tolerance(cage);
     let zero = vec![0.0; limits.rotors.len()];
     // (index, ratio lower bound, upper bound, LP moment when exact)
@@ -794,7 +827,14 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
                     None => match angle_by_lp(rows, limits, tol) {
                         AngleOutcome::Finite { exact: Some(m), .. } => m,
                         // The LP disagrees with the screen: take the plain path.
-                        _ => return assess_plain(cage, roll, limits),
+                        _ => {
+                            let by = if by == CommandsBy::Later {
+                                by
+                            } else {
+                                CommandsBy::Lp
+                            };
+                            return plain_with(cage, roll, limits, by);
+                        }
                     },
                 };
                 let ratio = rows.needed_nm / m;
@@ -805,12 +845,12 @@ pub fn assess(cage: &Cage, roll: &Roll, limits: &Limits) -> Feasibility {
             worst
         }
     };
-    finish(cage, roll, limits, &table, worst, blocked_by, false)
+    finish(cage, roll, limits, &table, worst, blocked_by, by)
 }
 
 /// The verdict from the worst angle: feasible when carried with the
-/// margin there, and then the rotor commands over every checked angle
-/// (`by_lp`: by the general solver alone, as the reference check does).
+/// margin there, and then the rotor commands over every checked angle,
+/// found as `by` says.
 fn finish(
     cage: &Cage,
     roll: &Roll,
@@ -818,7 +858,7 @@ fn finish(
     table: &[AngleRows],
     worst: Option<(f64, f64, f64, f64)>,
     blocked_by: Option<Condition>,
-    by_lp: bool,
+    by: CommandsBy,
 ) -> Feasibility {
     let tol = tolerance(cage);
     let (mut feasible, thrust_fraction, worst_angle_deg, needed_nm, available_nm) = match worst {
@@ -831,13 +871,17 @@ fn finish(
             avail,
         ),
     };
-    let commands = if feasible {
-        commands_by(table, limits, tol, by_lp)
-    } else {
-        None
+    let commands = match by {
+        _ if !feasible => None,
+        CommandsBy::Later => None,
+        CommandsBy::Lp => commands_by(table, limits, tol, true),
+        CommandsBy::Proved => commands_by(table, limits, tol, false),
     };
     // No commands for a move the check passed: say "cannot" (fail safe).
-    feasible &= commands.is_some();
+    // (Later: the caller does this when it asks for them.)
+    if by != CommandsBy::Later {
+        feasible &= commands.is_some();
+    }
     Feasibility {
         feasible,
         thrust_fraction,

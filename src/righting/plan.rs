@@ -103,7 +103,7 @@ impl RightingModel {
             .collect();
         let mut best: HashMap<(usize, usize), usize> = HashMap::new();
         for (k, m) in self.moves.iter().enumerate() {
-            if !m.feasibility.feasible {
+            if !self.plannable(k) {
                 continue;
             }
             let key = (m.roll.from, m.settles_on);
@@ -177,41 +177,72 @@ impl RightingModel {
 
     /// The recovery map: a plan from every face, each starting at the
     /// face's zero-yaw resting attitude.
+    ///
+    /// The rotor commands are worked out only for the moves the map takes;
+    /// where one of them has none (the check passed but no setting carries
+    /// some angle), that move leaves the graph and the map is worked out
+    /// again, so every step shown has its commands.
     pub fn recovery_map(&self) -> Vec<Plan> {
-        let routes = self.routes();
+        loop {
+            let routes = self.routes();
+            let hops: Vec<(usize, Vec<usize>)> = (0..self.cage.faces.len())
+                .map(|face| {
+                    let start = self.settle_face(face);
+                    (start, self.next_hops(start, &routes))
+                })
+                .collect();
+            if !self.commands_found(hops.iter().flat_map(|(_, h)| h)) {
+                continue;
+            }
+            return hops
+                .iter()
+                .enumerate()
+                .map(|(face, (start, moves))| {
+                    let attitude = resting_attitude(&self.cage, face);
+                    self.assemble(face, *start, &attitude, moves, &routes)
+                })
+                .collect();
+        }
+    }
+
+    /// The moves from `start` that follow the cost to go down to a goal.
+    fn next_hops(&self, start: usize, routes: &Routes) -> Vec<usize> {
         let (pg, to_go, goals) = (&routes.pg, &routes.to_go, &routes.goals);
-        (0..self.cage.faces.len())
-            .map(|face| {
-                let start = self.settle_face(face);
-                let attitude = resting_attitude(&self.cage, face);
-                let mut moves = Vec::new();
-                let mut at = start;
-                if to_go[start].is_some() {
-                    // Follow the next hop that realises the cost to go.
-                    while !goals.contains(&at) && moves.len() <= self.cage.faces.len() {
-                        let Some(n) = pg.node[at] else { break };
-                        let here = to_go[at].unwrap_or(f64::INFINITY);
-                        let next = pg
-                            .graph
-                            .edges(n)
-                            .filter_map(|e| {
-                                let m = *e.weight();
-                                let to = pg.graph[e.target()];
-                                to_go[to].map(|d| (m, to, d + self.cost_deg(&self.moves[m])))
-                            })
-                            .min_by(|a, b| a.2.total_cmp(&b.2));
-                        match next {
-                            Some((m, to, c)) if c <= here + 1e-6 => {
-                                moves.push(m);
-                                at = to;
-                            }
-                            _ => break,
-                        }
-                    }
+        let mut moves = Vec::new();
+        let mut at = start;
+        if to_go[start].is_none() {
+            return moves;
+        }
+        // Follow the next hop that realises the cost to go.
+        while !goals.contains(&at) && moves.len() <= self.cage.faces.len() {
+            let Some(n) = pg.node[at] else { break };
+            let here = to_go[at].unwrap_or(f64::INFINITY);
+            let next = pg
+                .graph
+                .edges(n)
+                .filter_map(|e| {
+                    let m = *e.weight();
+                    let to = pg.graph[e.target()];
+                    to_go[to].map(|d| (m, to, d + self.cost_deg(&self.moves[m])))
+                })
+                .min_by(|a, b| a.2.total_cmp(&b.2));
+            match next {
+                Some((m, to, c)) if c <= here + 1e-6 => {
+                    moves.push(m);
+                    at = to;
                 }
-                self.assemble(face, start, &attitude, &moves, &routes)
-            })
-            .collect()
+                _ => break,
+            }
+        }
+        moves
+    }
+
+    /// Work out the commands of every move listed; whether all were found
+    /// (a move without them no longer counts as feasible).
+    fn commands_found<'a>(&self, moves: impl Iterator<Item = &'a usize>) -> bool {
+        // Every move is asked, not only up to the first without commands,
+        // so one pass removes all of them from the next graph.
+        moves.filter(|&&k| self.commands(k).is_none()).count() == 0
     }
 
     /// The graph, cost to go and goals, once.
@@ -242,29 +273,33 @@ impl RightingModel {
             };
         }
         let start = self.settle_face(face);
-        let routes = self.routes();
-        let (pg, goals) = (&routes.pg, &routes.goals);
-        let heuristic: Vec<f64> = (0..self.cage.faces.len())
-            .map(|f| self.heuristic_to(f, goals))
-            .collect();
-        let moves = pg.node[start]
-            .and_then(|s| {
-                petgraph::algo::astar(
-                    &pg.graph,
-                    s,
-                    |n| goals.contains(&pg.graph[n]),
-                    |e| self.cost_deg(&self.moves[*e.weight()]),
-                    |n| heuristic[pg.graph[n]],
-                )
-            })
-            .map(|(_, path)| {
-                path.windows(2)
-                    .filter_map(|w| pg.graph.find_edge(w[0], w[1]).map(|e| pg.graph[e]))
-                    .collect::<Vec<usize>>()
-            });
-        match moves {
-            Some(m) => self.assemble(face, start, attitude, &m, &routes),
-            None => self.assemble(face, start, attitude, &[], &routes),
+        loop {
+            let routes = self.routes();
+            let (pg, goals) = (&routes.pg, &routes.goals);
+            let heuristic: Vec<f64> = (0..self.cage.faces.len())
+                .map(|f| self.heuristic_to(f, goals))
+                .collect();
+            let moves = pg.node[start]
+                .and_then(|s| {
+                    petgraph::algo::astar(
+                        &pg.graph,
+                        s,
+                        |n| goals.contains(&pg.graph[n]),
+                        |e| self.cost_deg(&self.moves[*e.weight()]),
+                        |n| heuristic[pg.graph[n]],
+                    )
+                })
+                .map(|(_, path)| {
+                    path.windows(2)
+                        .filter_map(|w| pg.graph.find_edge(w[0], w[1]).map(|e| pg.graph[e]))
+                        .collect::<Vec<usize>>()
+                })
+                .unwrap_or_default();
+            // As in the recovery map: a move without commands leaves the
+            // graph and the plan is worked out again.
+            if self.commands_found(moves.iter()) {
+                return self.assemble(face, start, attitude, &moves, &routes);
+            }
         }
     }
 
@@ -307,7 +342,7 @@ impl RightingModel {
                 pivot: m.roll.pivot.clone(),
                 angle_deg: m.roll.angle_deg,
                 thrust_fraction: m.feasibility.thrust_fraction.unwrap_or(0.0),
-                commands: m.feasibility.commands.clone().unwrap_or_default(),
+                commands: self.commands(k).cloned().unwrap_or_default(),
                 start,
                 target: q,
                 move_index: k,
@@ -352,7 +387,9 @@ impl RightingModel {
         let out: Vec<&Move> = self
             .moves
             .iter()
-            .filter(|m| reach[m.roll.from] && !reach[m.settles_on] && !m.feasibility.feasible)
+            .enumerate()
+            .filter(|(k, m)| reach[m.roll.from] && !reach[m.settles_on] && !self.plannable(*k))
+            .map(|(_, m)| m)
             .collect();
         let short: Vec<&Move> = out
             .iter()

@@ -740,7 +740,7 @@ mod tests {
     use super::*;
     use crate::cage::Cage;
     use crate::profile::Profile;
-    use crate::righting::feasibility::{self, assess, assess_plain, tolerance};
+    use crate::righting::feasibility::{self, Feasibility, assess, assess_plain, tolerance};
     use crate::righting::{RightingModel, moves};
 
     fn model(p: &Profile) -> RightingModel {
@@ -771,15 +771,22 @@ mod tests {
     /// round-off.
     fn agree_on_every_move(m: &RightingModel) -> usize {
         let mut compared = 0;
-        for mv in &m.moves {
+        for (k, mv) in m.moves.iter().enumerate() {
             let what = format!("{} -> {} ({:?})", mv.roll.from, mv.roll.to, mv.roll.kind);
             let plain = assess_plain(&m.cage, &mv.roll, &m.limits);
-            let fast = &mv.feasibility;
-            assert_eq!(
-                fast,
-                &assess(&m.cage, &mv.roll, &m.limits),
-                "{what}: repeatable"
-            );
+            let fast = &assess(&m.cage, &mv.roll, &m.limits);
+            // The model's check is the same check without the commands,
+            // and its commands, asked for, are the same commands.
+            let check = feasibility::assess_check(&m.cage, &mv.roll, &m.limits);
+            assert_eq!(&mv.feasibility, &check, "{what}: repeatable");
+            assert_eq!(m.commands(k), fast.commands.as_ref(), "{what}");
+            assert_eq!(m.feasible(k), fast.feasible, "{what}");
+            let same_but_commands = Feasibility {
+                commands: None,
+                feasible: check.feasible,
+                ..fast.clone()
+            };
+            assert_eq!(check, same_but_commands, "{what}");
             assert_eq!(fast.feasible, plain.feasible, "{what}");
             assert_eq!(fast.blocked_by, plain.blocked_by, "{what}");
             assert_eq!(fast.worst_angle_deg, plain.worst_angle_deg, "{what}");

@@ -171,6 +171,9 @@ fn quantise(x: f64, step: f64) -> i64 {
 
 /// Node positions (cage frame) in id order, ids, and member end pairs.
 struct Layout {
+    /// Index of each node in the profile's order (the profile's hull
+    /// counts nodes that way).
+    profile_index: Vec<usize>,
     pos: Vec<Vector3<f64>>,
     ids: Vec<String>,
     rods: Vec<[usize; 2]>,
@@ -179,6 +182,7 @@ struct Layout {
 }
 
 fn layout(profile: &Profile, mount: &Rotation3<f64>) -> Result<Layout, CageError> {
+    let profile_index: Vec<usize>;
     let mut pos: Vec<Vector3<f64>>;
     let ids: Vec<String>;
     let mut rods: Vec<[usize; 2]>;
@@ -194,10 +198,9 @@ fn layout(profile: &Profile, mount: &Rotation3<f64>) -> Result<Layout, CageError
                 .map(|q| Vector3::from(*q))
                 .collect();
             rods = (0..6).map(|k| [2 * k, 2 * k + 1]).collect();
-            let pts: Vec<[f64; 3]> = pos.iter().map(|v| [v.x, v.y, v.z]).collect();
-            let hull = Hull::new(&pts)?;
+            // The profile's hull is of these same points, in this order.
             strings = Vec::new();
-            for f in &hull.faces {
+            for f in &profile.hull.faces {
                 for i in 0..f.vertices.len() {
                     let (a, b) = (f.vertices[i], f.vertices[(i + 1) % f.vertices.len()]);
                     let e = [a.min(b), a.max(b)];
@@ -219,6 +222,7 @@ fn layout(profile: &Profile, mount: &Rotation3<f64>) -> Result<Layout, CageError
                 new_index[old] = new;
             }
             pos = order.iter().map(|&i| pos[i]).collect();
+            profile_index = order;
             ids = (1..=pos.len()).map(|i| format!("N{i}")).collect();
             for m in rods.iter_mut().chain(strings.iter_mut()) {
                 *m = [new_index[m[0]], new_index[m[1]]];
@@ -230,6 +234,7 @@ fn layout(profile: &Profile, mount: &Rotation3<f64>) -> Result<Layout, CageError
             strings: s,
         } => {
             pos = nodes.iter().map(|n| Vector3::from(n.pos_m)).collect();
+            profile_index = (0..nodes.len()).collect();
             ids = nodes.iter().map(|n| n.id.clone()).collect();
             rods = r.iter().map(|m| m.nodes).collect();
             strings = s.iter().map(|m| m.nodes).collect();
@@ -237,11 +242,45 @@ fn layout(profile: &Profile, mount: &Rotation3<f64>) -> Result<Layout, CageError
         }
     }
     Ok(Layout {
+        profile_index,
         pos,
         ids,
         rods,
         strings,
         tags,
+    })
+}
+
+/// The hull in the body frame from the profile's hull (cage frame,
+/// profile order): the hull of rotated points is the rotated hull, so the
+/// faces keep their vertices (renumbered to the cage's order) and
+/// offsets, and the normals turn with the mount. `None` when the hull does
+/// not fit the nodes (then the caller builds it afresh).
+fn body_hull(hull: &Hull, profile_index: &[usize], mount: &Rotation3<f64>) -> Option<Hull> {
+    let n = profile_index.len();
+    let mut new_index = vec![usize::MAX; n];
+    for (new, &old) in profile_index.iter().enumerate() {
+        *new_index.get_mut(old)? = new;
+    }
+    let faces = hull
+        .faces
+        .iter()
+        .map(|f| {
+            let vertices = f
+                .vertices
+                .iter()
+                .map(|&v| new_index.get(v).copied().filter(|&i| i != usize::MAX))
+                .collect::<Option<Vec<usize>>>()?;
+            Some(crate::hull::HullFace {
+                vertices,
+                normal: mount * f.normal,
+                offset: f.offset,
+            })
+        })
+        .collect::<Option<Vec<_>>>()?;
+    Some(Hull {
+        faces,
+        tolerance: hull.tolerance,
     })
 }
 
@@ -252,6 +291,7 @@ impl Cage {
         let mount = rotation_from_rpy_deg(r, p, y);
         // Positions (cage frame), ids, and member pairs as indices.
         let Layout {
+            profile_index,
             pos,
             ids,
             rods,
@@ -284,14 +324,15 @@ impl Cage {
         let nodes: Vec<Node> = pos
             .iter()
             .zip(&ids)
-            .map(|(p, id)| Node {
+            .enumerate()
+            .map(|(i, (p, id))| Node {
                 id: id.clone(),
                 pos_cage: *p,
                 pos_body: mount * p,
                 tag: match &profile.cage {
                     crate::profile::CageShape::Explicit { nodes, .. } => nodes
-                        .iter()
-                        .find(|n| &n.id == id)
+                        .get(profile_index[i])
+                        .filter(|n| &n.id == id)
                         .and_then(|n| n.tag.clone()),
                     _ => None,
                 },
@@ -303,7 +344,10 @@ impl Cage {
             .iter()
             .map(|n| [n.pos_body.x, n.pos_body.y, n.pos_body.z])
             .collect();
-        let hull = Hull::new(&pts)?;
+        let hull = match body_hull(&profile.hull, &profile_index, &mount) {
+            Some(h) => h,
+            None => Hull::new(&pts)?,
+        };
         let size = pts
             .iter()
             .flat_map(|p| p.iter().map(|x| x.abs()))
@@ -557,6 +601,55 @@ mod tests {
 
     fn demo() -> Cage {
         Cage::from_profile(&Profile::demo().unwrap()).unwrap()
+    }
+
+    /// The body-frame hull taken from the profile's hull (turned by the
+    /// mount, nodes renumbered) is the hull built afresh from the
+    /// body-frame points: the same faces with the same vertex cycles and
+    /// offsets, normals to round-off (a rotation maps the hull of points
+    /// onto the hull of the turned points; common practice, no published
+    /// source). The demo is renumbered and mounted at an angle; the prism
+    /// is an explicit cage.
+    #[test]
+    fn the_profile_hull_turned_into_the_body_frame_is_the_body_hull() {
+        let prism = Profile::parse(
+            include_str!("../profiles/prism-explicit.toml"),
+            "prism-explicit.toml",
+        )
+        .unwrap();
+        for p in [Profile::demo().unwrap(), prism] {
+            let [r, pi, y] = p.mount_rpy_deg;
+            let mount = rotation_from_rpy_deg(r, pi, y);
+            let lay = layout(&p, &mount).unwrap();
+            let pts: Vec<[f64; 3]> = lay
+                .pos
+                .iter()
+                .map(|q| {
+                    let b = mount * q;
+                    [b.x, b.y, b.z]
+                })
+                .collect();
+            let fresh = Hull::new(&pts).unwrap();
+            let turned = body_hull(&p.hull, &lay.profile_index, &mount).expect("the hull fits");
+            assert_eq!(turned.faces.len(), fresh.faces.len());
+            for f in &fresh.faces {
+                let same_cycle = |g: &[usize]| {
+                    g.len() == f.vertices.len()
+                        && g.iter()
+                            .position(|v| *v == f.vertices[0])
+                            .is_some_and(|at| {
+                                (0..g.len()).all(|i| g[(at + i) % g.len()] == f.vertices[i])
+                            })
+                };
+                let g = turned
+                    .faces
+                    .iter()
+                    .find(|g| same_cycle(&g.vertices))
+                    .expect("the same face");
+                assert!((g.normal - f.normal).norm() < 1e-12, "{:?}", f.vertices);
+                assert_relative_eq!(g.offset, f.offset, epsilon = 1e-12);
+            }
+        }
     }
 
     #[test]

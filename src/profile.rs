@@ -164,6 +164,10 @@ pub struct Profile {
     pub string: StringSection,
     /// Node ids the payload hangs from (empty: spread over all nodes).
     pub payload_nodes: Vec<String>,
+    /// Convex hull of the nodes in the cage frame, node indices in the
+    /// profile's order: built once when the profile is read (the centre
+    /// of mass is checked against it) and reused by the cage.
+    pub hull: crate::hull::Hull,
     /// Cage-to-body rotation, Z-Y-X Euler angles in degrees.
     pub mount_rpy_deg: [f64; 3],
     /// Rotors, body frame.
@@ -247,7 +251,13 @@ impl Profile {
         let doc = Doc::new(text, file);
         let root = doc.root(&top, SECTIONS)?;
         let vehicle = vehicle::read(&root)?;
-        let (cage, rod, string, payload_nodes) = shape::read(&root, &vehicle)?;
+        let shape::Shape {
+            cage,
+            rod,
+            string,
+            payload_nodes,
+            hull,
+        } = shape::read(&root, &vehicle)?;
         let (mount_rpy_deg, rotors) = rotor::read(&root)?;
         let righting = righting::read(&root)?;
         let watch = watch::read(&root)?;
@@ -261,6 +271,7 @@ impl Profile {
             rod,
             string,
             payload_nodes,
+            hull,
             mount_rpy_deg,
             rotors,
             righting,

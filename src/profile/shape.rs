@@ -231,7 +231,15 @@ pub fn member_path(rod: bool, index: usize) -> KeyPath {
         .key("nodes")
 }
 
-type Shape = (CageShape, RodSection, StringSection, Vec<String>);
+/// What the `[cage]` section gives: the shape, the sections, the payload
+/// nodes and the hull of the nodes (cage frame, profile order).
+pub(super) struct Shape {
+    pub(super) cage: CageShape,
+    pub(super) rod: RodSection,
+    pub(super) string: StringSection,
+    pub(super) payload_nodes: Vec<String>,
+    pub(super) hull: crate::hull::Hull,
+}
 
 pub(super) fn read(root: &Table, vehicle: &Vehicle) -> Result<Shape, ProfileError> {
     let t = root.table("cage", KEYS)?;
@@ -239,8 +247,14 @@ pub(super) fn read(root: &Table, vehicle: &Vehicle) -> Result<Shape, ProfileErro
     let string = string_section(&t.table("string_section", STRING_KEYS)?)?;
     let shape = cage_shape(&t)?;
     let payload_nodes = payload_nodes(&t, &shape)?;
-    check_com_inside(&t, &shape, vehicle.com_m)?;
-    Ok((shape, rod, string, payload_nodes))
+    let hull = check_com_inside(&t, &shape, vehicle.com_m)?;
+    Ok(Shape {
+        cage: shape,
+        rod,
+        string,
+        payload_nodes,
+        hull,
+    })
 }
 
 fn rod_section(t: &Table) -> Result<RodSection, ProfileError> {
@@ -545,8 +559,13 @@ fn dist(a: [f64; 3], b: [f64; 3]) -> f64 {
     ((a[0] - b[0]).powi(2) + (a[1] - b[1]).powi(2) + (a[2] - b[2]).powi(2)).sqrt()
 }
 
-/// The centre of mass must lie strictly inside the hull of the nodes.
-fn check_com_inside(t: &Table, shape: &CageShape, com: [f64; 3]) -> Result<(), ProfileError> {
+/// The centre of mass must lie strictly inside the hull of the nodes; the
+/// hull is kept (the cage reuses it rather than building it again).
+fn check_com_inside(
+    t: &Table,
+    shape: &CageShape,
+    com: [f64; 3],
+) -> Result<crate::hull::Hull, ProfileError> {
     let com_path = vehicle_key("com_m");
     let hull = crate::hull::Hull::new(&shape.points_m()).map_err(|e| {
         t.doc().invalid(
@@ -568,5 +587,5 @@ fn check_com_inside(t: &Table, shape: &CageShape, com: [f64; 3]) -> Result<(), P
             ),
         ));
     }
-    Ok(())
+    Ok(hull)
 }

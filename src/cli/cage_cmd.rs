@@ -192,6 +192,30 @@ fn report<'a>(
     }
 }
 
+/// Work out the rotor commands of every move the check passes (the JSON
+/// report lists them all), spread over the machine's cores: each move's
+/// commands are independent, and the model keeps each the first time it
+/// is asked, from whichever thread.
+fn commands_of_every_move(model: &RightingModel) {
+    let threads = std::thread::available_parallelism()
+        .map_or(1, |n| n.get())
+        .clamp(1, 8);
+    let next = std::sync::atomic::AtomicUsize::new(0);
+    std::thread::scope(|scope| {
+        for _ in 0..threads {
+            scope.spawn(|| {
+                loop {
+                    let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
+                    if k >= model.moves.len() {
+                        break;
+                    }
+                    model.commands(k);
+                }
+            });
+        }
+    });
+}
+
 /// Run the cage command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     if let Some(Action::Margin(m)) = &args.action {
@@ -202,6 +226,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let ss = &l.statics.self_stress;
     let model = RightingModel::new(&l.profile, &l.cage)
         .map_err(|e| super::bad_input(format!("{}: {e}", l.profile.source)))?;
+    if args.json {
+        commands_of_every_move(&model);
+    }
     let r = report(&l.profile, &l.cage, ss, &model);
     let mut out = std::io::stdout().lock();
     if args.json {

@@ -13,6 +13,16 @@
 use std::borrow::Cow;
 use std::fmt::Write as _;
 
+/// A count and its noun, singular for one: `count(1, "record", "records")`
+/// is "1 record", `count(0, ...)` "0 records".
+pub fn count<N>(n: N, one: &str, many: &str) -> String
+where
+    N: std::fmt::Display + PartialEq + From<u8>,
+{
+    let noun = if n == N::from(1) { one } else { many };
+    format!("{n} {noun}")
+}
+
 /// Whether a character must not reach a terminal as itself: C0 controls
 /// (below U+0020, ESC among them), DEL, C1 controls (U+0080..U+009F, which
 /// some terminals read as escape introducers), the line and paragraph
@@ -97,6 +107,18 @@ pub fn markdown(s: &str) -> String {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    /// One takes the singular, every other count the plural (English
+    /// grammar; common practice, no published source).
+    #[test]
+    fn counts_take_the_right_noun() {
+        assert_eq!(count(1usize, "record", "records"), "1 record");
+        assert_eq!(count(0usize, "record", "records"), "0 records");
+        assert_eq!(
+            count(2u64, "integrity problem", "integrity problems"),
+            "2 integrity problems"
+        );
+    }
     use proptest::prelude::*;
 
     #[test]

@@ -309,13 +309,13 @@ fn a_missing_or_damaged_log_is_never_reported_as_a_healthy_cage() {
     std::fs::write(&log, damaged).unwrap();
     let out = ok(&cmd(d, &["log", "health"]));
     assert!(
-        out.contains("the cage log has 1 integrity problem(s): damage may be understated"),
+        out.contains("the cage log has 1 integrity problem: damage may be understated"),
         "{out}"
     );
     assert!(out.contains("line 3: corrupt record skipped"), "{out}");
     let md = ok(&cmd(d, &["log", "export", "--format", "md"]));
     assert!(
-        md.contains("> **Warning.** the cage log has 1 integrity problem(s)"),
+        md.contains("> **Warning.** the cage log has 1 integrity problem"),
         "{md}"
     );
 }

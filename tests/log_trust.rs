@@ -134,8 +134,7 @@ fn a_finding_edited_from_cut_to_ok_and_rehashed_is_caught() {
 
     let out = ok(&cmd(d, &["log", "health"]));
     // The warning comes before the table, with what it affects and where.
-    let warn =
-        out.find("WARNING: the cage log has 1 integrity problem(s): damage may be understated");
+    let warn = out.find("WARNING: the cage log has 1 integrity problem: damage may be understated");
     let table = out.find("member  kind");
     assert!(warn.is_some() && warn < table, "{out}");
     assert!(
@@ -144,7 +143,7 @@ fn a_finding_edited_from_cut_to_ok_and_rehashed_is_caught() {
     );
     let md = ok(&cmd(d, &["log", "export", "--format", "md"]));
     assert!(
-        md.contains("> **Warning.** the cage log has 1 integrity problem(s)"),
+        md.contains("> **Warning.** the cage log has 1 integrity problem"),
         "{md}"
     );
     assert!(md.contains("does not follow record 3 (line 4)"), "{md}");
@@ -206,7 +205,7 @@ fn an_edit_to_the_newest_record_or_its_removal_shows_against_the_kept_head() {
     ok(&cmd(d, &["log", "note", "one more"]));
     let (code, v) = verify(d, &["--head", &kept]);
     assert_eq!(code, 0, "{v}");
-    assert!(v.contains("1 record(s) after it"), "{v}");
+    assert!(v.contains("1 record after it"), "{v}");
     // Remove the two newest: the log alone looks whole, the kept head not.
     let l = lines(d);
     write_lines(d, &l[..l.len() - 2]);
@@ -238,7 +237,7 @@ fn a_deleted_middle_record_is_shown_in_health_and_reports() {
     write_lines(d, &l);
     let out = ok(&cmd(d, &["log", "health"]));
     assert!(
-        out.contains("WARNING: the cage log has 2 integrity problem(s)"),
+        out.contains("WARNING: the cage log has 2 integrity problems"),
         "{out}"
     );
     assert!(out.contains("record 2 is missing"), "{out}");
@@ -297,7 +296,7 @@ fn a_corrupt_record_is_reported_as_such_not_as_a_wrong_number() {
     l[2] = l[2].replace("pre-season", "pre-seasoN");
     write_lines(d, &l);
     let out = ok(&cmd(d, &["log", "health"]));
-    assert!(out.contains("1 integrity problem(s)"), "{out}");
+    assert!(out.contains("1 integrity problem"), "{out}");
     assert!(
         out.contains("line 3: corrupt record skipped (it claims number 2)"),
         "{out}"

@@ -794,8 +794,8 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             } else {
                 writeln!(
                     out,
-                    "{} pending detection(s) in the cage log of {} ({}):",
-                    pending.len(),
+                    "{} pending in the cage log of {} ({}):",
+                    cagehand::text::count(pending.len(), "detection", "detections"),
                     l.profile.vehicle.id,
                     book.path().display()
                 )?;
@@ -1021,8 +1021,12 @@ fn verify(
         if integrity.unchained > 0 {
             writeln!(
                 out,
-                "note: the first {} record(s) were written by format 1, before records were chained: a change to them shows only against a chain head kept from before the change",
-                integrity.unchained
+                "note: the first {} written by format 1, before records were chained: a change to them shows only against a chain head kept from before the change",
+                if integrity.unchained == 1 {
+                    "record was".to_string()
+                } else {
+                    format!("{} records were", integrity.unchained)
+                }
             )?;
         }
         if let Some((k, r)) = &kept_result {

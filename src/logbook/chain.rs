@@ -322,8 +322,8 @@ impl Integrity {
             }
         }
         Some(format!(
-            "the cage log has {} integrity problem(s): {}",
-            self.issues.len(),
+            "the cage log has {}: {}",
+            crate::text::count(self.issues.len(), "integrity problem", "integrity problems"),
             effects.join("; ")
         ))
     }
@@ -362,8 +362,9 @@ impl Integrity {
             format!("the log ends at the kept head, record {}", kept.seq)
         } else {
             format!(
-                "the log holds the kept head (record {}) and {later} record(s) after it",
-                kept.seq
+                "the log holds the kept head (record {}) and {} after it",
+                kept.seq,
+                crate::text::count(later, "record", "records")
             )
         })
     }

@@ -253,8 +253,8 @@ pub fn pending_warning(pending: &[Pending]) -> Option<String> {
         .map(|p| format!("#{} ({:.1} g on {}, {})", p.seq, p.peak_g, p.face, p.time))
         .collect();
     Some(format!(
-        "{} detected impact(s) not yet confirmed or dismissed: {}. The health below does not include them: confirm each (`log confirm SEQ`) or dismiss it with a reason (`log dismiss SEQ --reason TEXT`) before flying",
-        pending.len(),
+        "{} not yet confirmed or dismissed: {}. The health below does not include them: confirm each (`log confirm SEQ`) or dismiss it with a reason (`log dismiss SEQ --reason TEXT`) before flying",
+        crate::text::count(pending.len(), "detected impact", "detected impacts"),
         list.join(", ")
     ))
 }

@@ -180,9 +180,9 @@ fn bad_line(items: &mut Vec<Item>, no: usize, line: &[u8], error: chain::LineErr
     let mut error = error;
     if !found.is_empty() {
         error.reason = format!(
-            "{}; {} whole record(s) recovered from it",
+            "{}; {} recovered from it",
             error.reason,
-            found.len()
+            crate::text::count(found.len(), "whole record", "whole records")
         );
     }
     items.push(Item::Bad {
@@ -245,8 +245,8 @@ pub fn parse(bytes: &[u8]) -> Result<Parsed, FormatError> {
             line: 1,
             error: chain::LineError {
                 reason: format!(
-                    "the header line runs on; {} whole record(s) recovered from it",
-                    stowaways.len()
+                    "the header line runs on; {} recovered from it",
+                    crate::text::count(stowaways.len(), "whole record", "whole records")
                 ),
                 verified: false,
                 tag: None,
@@ -592,7 +592,7 @@ mod tests {
         let bad = issues(&p, IssueKind::Corrupt);
         assert_eq!(bad.len(), 1);
         assert_eq!(bad[0].line, 2);
-        assert!(bad[0].detail.contains("2 whole record(s) recovered"));
+        assert!(bad[0].detail.contains("2 whole records recovered"));
     }
 
     #[test]

@@ -678,6 +678,7 @@ fn angle_outcome(
     limits: &Limits,
     tol: f64,
     zero: &[f64],
+    bounds: (&[f64], &[f64]),
     hint: &mut Vec<screen::Tight>,
 ) -> AngleOutcome {
     let needed = rows.needed_nm;
@@ -685,7 +686,7 @@ fn angle_outcome(
     if needed <= 0.0 && rows.admits(&limits.rotors, zero, tol) {
         return AngleOutcome::Fine;
     }
-    match screen::best_moment_from(rows, &limits.rotors, tol, hint) {
+    match screen::best_moment_from(rows, bounds.0, bounds.1, tol, hint) {
         Screen::Infeasible => AngleOutcome::Blocked { avail: 0.0 },
         Screen::Optimum { lo, .. } if needed <= 0.0 && lo >= needed - tol + slack => {
             AngleOutcome::Fine
@@ -784,6 +785,8 @@ fn assess_with(cage: &Cage, roll: &Roll, limits: &Limits, by: CommandsBy) -> Fea
     // stops at its first angle).
     let mut table: Vec<AngleRows> = Vec::new();
     let mut hint = Vec::new();
+    let lo: Vec<f64> = limits.rotors.iter().map(|r| -r.reverse_thrust_n).collect();
+    let hi: Vec<f64> = limits.rotors.iter().map(|r| r.max_thrust_n).collect();
     for (i, b) in checked_angles_deg(cage, roll).iter().enumerate() {
         let rows = rows_at(
             cage,
@@ -792,7 +795,7 @@ fn assess_with(cage: &Cage, roll: &Roll, limits: &Limits, by: CommandsBy) -> Fea
             limits.friction_coefficient,
             b.to_radians(),
         );
-        let outcome = angle_outcome(&rows, limits, tol, &zero, &mut hint);
+        let outcome = angle_outcome(&rows, limits, tol, &zero, (&lo, &hi), &mut hint);
         table.push(rows);
         match outcome {
             AngleOutcome::Fine => {}

@@ -66,16 +66,17 @@ pub fn best_moment(rows: &AngleRows, rotors: &[Rotor], tol: f64) -> Screen {
 }
 
 /// [`best_moment`] starting from the tight set of the previous angle's
-/// optimum (see [`screen_from`]).
+/// optimum (see [`screen_from`]), with the thrust limits as bounds
+/// (`lo`: minus the reverse limits, `hi`: the forward limits), worked out
+/// once per roll by the caller.
 pub fn best_moment_from(
     rows: &AngleRows,
-    rotors: &[Rotor],
+    lo: &[f64],
+    hi: &[f64],
     tol: f64,
     hint: &mut Vec<Tight>,
 ) -> Screen {
-    let lo: Vec<f64> = rotors.iter().map(|r| -r.reverse_thrust_n).collect();
-    let hi: Vec<f64> = rotors.iter().map(|r| r.max_thrust_n).collect();
-    screen_from(&rows.arms_m, &rows.rows, &lo, &hi, tol, hint)
+    screen_from(&rows.arms_m, &rows.rows, lo, hi, tol, hint)
 }
 
 /// Screen `max c . x` subject to `rows` and `lo <= x <= hi`.
@@ -239,9 +240,17 @@ fn vertex_solve(
     if tight.len() != n {
         return None;
     }
-    // Row-major n x n matrix of the tight constraints' normals.
-    let mut a = vec![0.0; n * n];
-    let mut b = vec![0.0; n];
+    // Row-major n x n matrix of the tight constraints' normals (on the
+    // stack for the sizes the fixed solvers take).
+    let (mut a_stack, mut b_stack) = ([0.0; 256], [0.0; 16]);
+    let (mut a_heap, mut b_heap) = (Vec::new(), Vec::new());
+    let (a, b): (&mut [f64], &mut [f64]) = if n <= 16 {
+        (&mut a_stack[..n * n], &mut b_stack[..n])
+    } else {
+        a_heap.resize(n * n, 0.0);
+        b_heap.resize(n, 0.0);
+        (&mut a_heap, &mut b_heap)
+    };
     for (i, t) in tight.iter().enumerate() {
         match *t {
             Tight::Row(r) => {
@@ -263,15 +272,15 @@ fn vertex_solve(
     // Small systems on the stack (the common case: one or two unknowns
     // per rotor), larger ones on the heap.
     let (x, lambda) = match n {
-        0..=4 => solve_pair_4(n, &a, &b, c)?,
-        5..=8 => solve_pair_8(n, &a, &b, c)?,
-        9..=16 => solve_pair_16(n, &a, &b, c)?,
+        0..=4 => solve_pair_4(n, a, b, c)?,
+        5..=8 => solve_pair_8(n, a, b, c)?,
+        9..=16 => solve_pair_16(n, a, b, c)?,
         _ => {
-            let m = nalgebra::DMatrix::from_row_slice(n, n, &a);
+            let m = nalgebra::DMatrix::from_row_slice(n, n, a);
             let x = m
                 .clone()
                 .lu()
-                .solve(&nalgebra::DVector::from_column_slice(&b))?;
+                .solve(&nalgebra::DVector::from_column_slice(b))?;
             let l = m
                 .transpose()
                 .lu()

@@ -46,6 +46,31 @@ fn crc_check_value() {
     // CRC catalogue, CRC-16/MCRF4XX: check value of "123456789" is 0x6F91
     // (docs/references.md). Our checksum appends CRC_EXTRA, so compare the plain CRC.
     assert_eq!(X25.checksum(b"123456789"), 0x6F91);
+    // The same through the frame checksum: "12345678" with '9' as the
+    // trailing CRC_EXTRA byte is the catalogue's "123456789".
+    assert_eq!(checksum(b"12345678", b'9'), 0x6F91);
+    // And through the crc crate's plain one-lane table.
+    let plain = crc::Crc::<u16>::new(&crc::CRC_16_MCRF4XX);
+    assert_eq!(plain.checksum(b"123456789"), 0x6F91);
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(512))]
+    /// The sliced frame checksum (16-lane table, tails in blocks of 8, 4
+    /// and 2) agrees with the crc crate's one-lane CRC-16/MCRF4XX, the
+    /// byte-at-a-time table the decoder used before, on any bytes of any
+    /// length (every block and tail size below 300 bytes).
+    #[test]
+    fn sliced_checksum_matches_the_one_lane_table(
+        bytes in proptest::collection::vec(any::<u8>(), 0..300),
+        extra in any::<u8>(),
+    ) {
+        let plain = crc::Crc::<u16>::new(&crc::CRC_16_MCRF4XX);
+        let mut d = plain.digest();
+        d.update(&bytes);
+        d.update(&[extra]);
+        prop_assert_eq!(checksum(&bytes, extra), d.finalize());
+    }
 }
 
 #[test]

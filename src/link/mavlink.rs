@@ -668,11 +668,13 @@ fn vec3(v: &[f32; 3]) -> Vector3<f64> {
 /// unit length (further off means a wrong field order or units, not noise).
 pub fn unit_quaternion(wxyz: [f64; 4]) -> Option<UnitQuaternion<f64>> {
     let q = Quaternion::new(wxyz[0], wxyz[1], wxyz[2], wxyz[3]);
-    let n = q.norm();
+    // The norm is worked out once: this is `from_quaternion` (q over its
+    // norm), with the norm it used handed back for the check.
+    let (unit, n) = UnitQuaternion::new_and_get(q);
     if !n.is_finite() || (n - 1.0).abs() > 0.1 {
         return None;
     }
-    Some(UnitQuaternion::from_quaternion(q))
+    Some(unit)
 }
 
 #[cfg(test)]

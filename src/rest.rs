@@ -160,7 +160,7 @@ impl AngleLimit {
     const MARGIN: f64 = 1e-9;
 
     fn new(deg: f64) -> AngleLimit {
-        let tan_below_above = (deg >= 1e-6 && deg <= 89.0).then(|| {
+        let tan_below_above = (1e-6..=89.0).contains(&deg).then(|| {
             let t = deg.to_radians().tan();
             (t * (1.0 - Self::MARGIN), t * (1.0 + Self::MARGIN))
         });

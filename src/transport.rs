@@ -251,7 +251,8 @@ impl LinkError {
 /// The consumer's end of a link: the reader ships its messages in batches
 /// (everything one read produced goes in one channel send, so a fast link
 /// costs one hand-over per read rather than per sample); this hands them
-/// out one at a time, in order.
+/// out one at a time, in order, and hands each emptied batch back to the
+/// reader for reuse.
 #[derive(Debug)]
 pub struct LinkRx {
     rx: Receiver<Vec<LinkMsg>>,

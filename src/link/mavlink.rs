@@ -87,10 +87,11 @@ pub fn checksum(bytes: &[u8], extra: u8) -> u16 {
         crc = slice_step(t, crc, block);
         rest = tail;
     }
-    for &b in rest.iter().chain(std::iter::once(&extra)) {
-        crc = t[0][usize::from((crc ^ u16::from(b)) & 0xFF)] ^ (crc >> 8);
+    // At most one byte is left: it and the CRC_EXTRA byte go as one block.
+    match rest {
+        [b] => slice_step(t, crc, &[*b, extra]),
+        _ => t[0][usize::from((crc ^ u16::from(extra)) & 0xFF)] ^ (crc >> 8),
     }
-    crc
 }
 
 /// One slicing step of a reflected CRC-16 over `N` (2 to 16) bytes: the

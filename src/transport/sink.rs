@@ -14,7 +14,8 @@ const BLOCKING_BATCH: usize = 1024;
 ///
 /// What one read of bytes produces (samples, counters, ticks) is held and
 /// shipped as one batch when the read is done: one channel hand-over per
-/// read instead of two per sample. The order of the messages is unchanged.
+/// read instead of two per sample (a replay's long reads in parts of
+/// [`BLOCKING_BATCH`]). The order of the messages is unchanged.
 pub(super) struct Sink {
     pub(super) tx: SyncSender<Vec<LinkMsg>>,
     /// Messages of the read in progress, not yet shipped.

@@ -151,6 +151,15 @@ pub struct Cage {
     pub mass_kg: f64,
     /// Lumped mass at each node (rod mass at its ends plus payload share).
     pub node_mass_kg: Vec<f64>,
+    /// The faces' outward normals side by side (a copy of each face's
+    /// `normal_body`): the live path searches them for every attitude
+    /// sample, and packed they stay in the cache while the samples stream
+    /// through it.
+    face_normals_body: Vec<Vector3<f64>>,
+    /// Per face, the square of tan(half the smallest angle between its
+    /// normal and another face's), kept a little short of it (see
+    /// [`Cage::face_capture_tan2`]); empty for cages of many faces.
+    face_capture_tan2: Vec<f64>,
 }
 
 /// Short hull edges of the six-strut cage that carry no member: between the
@@ -285,6 +294,26 @@ fn body_hull(hull: &Hull, profile_index: &[usize], mount: &Rotation3<f64>) -> Op
 }
 
 impl Cage {
+    /// The faces' outward normals in face order, packed (the same values
+    /// as each face's `normal_body`).
+    pub fn face_normals_body(&self) -> &[Vector3<f64>] {
+        &self.face_normals_body
+    }
+
+    /// Per face b, a bound c_b such that a direction g with b's normal
+    /// n_b . g > 0 and |g|^2 - (n_b . g)^2 < c_b (n_b . g)^2 is closer to
+    /// n_b than to every other face's normal by a clear margin: within half
+    /// the smallest angle from n_b to another normal, no other normal can
+    /// be nearer (the bisector plane lies at half that angle), and c_b is
+    /// tan^2 of that half-angle, shrunk by 1e-4 and capped at 10 so the gap
+    /// between the dot products is far above their rounding. Zero (never
+    /// true) for a face whose normal is almost another's. Empty for cages
+    /// of more than [`CAPTURE_MAX_FACES`] faces (the bound costs a pass over
+    /// every pair of faces).
+    pub fn face_capture_tan2(&self) -> &[f64] {
+        &self.face_capture_tan2
+    }
+
     /// Build the cage of a validated profile.
     pub fn from_profile(profile: &Profile) -> Result<Cage, CageError> {
         let [r, p, y] = profile.mount_rpy_deg;
@@ -433,7 +462,11 @@ impl Cage {
             com_body,
             mass_kg: profile.vehicle.mass_kg,
             node_mass_kg: Vec::new(),
+            face_normals_body: Vec::new(),
+            face_capture_tan2: Vec::new(),
         };
+        cage.face_normals_body = cage.faces.iter().map(|f| f.normal_body).collect();
+        cage.face_capture_tan2 = capture_tan2(&cage.face_normals_body);
         cage.node_mass_kg = cage.lumped_masses(profile)?;
         Ok(cage)
     }
@@ -592,6 +625,38 @@ pub(crate) fn demo_cage() -> (Profile, Cage) {
     let p = Profile::demo().expect("demo profile");
     let c = Cage::from_profile(&p).expect("demo cage");
     (p, c)
+}
+
+/// Cages with more faces than this get no capture bounds
+/// ([`Cage::face_capture_tan2`]): every pair of faces would be compared.
+pub const CAPTURE_MAX_FACES: usize = 512;
+
+fn capture_tan2(normals: &[Vector3<f64>]) -> Vec<f64> {
+    if normals.len() > CAPTURE_MAX_FACES {
+        return Vec::new();
+    }
+    normals
+        .iter()
+        .enumerate()
+        .map(|(b, nb)| {
+            // The nearest other normal: the largest cosine.
+            let c = normals
+                .iter()
+                .enumerate()
+                .filter(|&(j, _)| j != b)
+                .map(|(_, nj)| nb.dot(nj).clamp(-1.0, 1.0))
+                .fold(f64::NEG_INFINITY, f64::max);
+            if !c.is_finite() {
+                // A single face: nothing else can be nearer.
+                return 10.0;
+            }
+            if 1.0 - c < 1e-6 {
+                return 0.0;
+            }
+            // tan^2(theta / 2) = (1 - cos theta) / (1 + cos theta).
+            ((1.0 - c) / (1.0 + c)).min(10.0) * (1.0 - 1e-4)
+        })
+        .collect()
 }
 
 #[cfg(test)]

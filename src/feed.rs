@@ -63,6 +63,65 @@ pub enum FeedInput {
     },
 }
 
+/// A [`FeedInput`] borrowed from where the caller keeps it: a fast link's
+/// samples are read where they arrived, not moved through every layer.
+#[derive(Debug, Clone, PartialEq)]
+pub enum FeedInputRef<'a> {
+    /// See [`FeedInput::Sample`].
+    Sample {
+        /// Link clock, seconds.
+        at_s: f64,
+        /// The sample.
+        sample: &'a Sample,
+    },
+    /// See [`FeedInput::Counters`].
+    Counters {
+        /// Link clock, seconds.
+        at_s: f64,
+        /// The counters.
+        counters: Counters,
+    },
+    /// See [`FeedInput::Tick`].
+    Tick {
+        /// Link clock, seconds.
+        at_s: f64,
+    },
+    /// See [`FeedInput::Note`].
+    Note {
+        /// Link clock, seconds.
+        at_s: f64,
+        /// What.
+        text: std::borrow::Cow<'a, str>,
+    },
+    /// See [`FeedInput::End`].
+    End {
+        /// Link clock, seconds.
+        at_s: f64,
+    },
+}
+
+impl FeedInput {
+    /// The input, borrowed.
+    pub fn as_ref(&self) -> FeedInputRef<'_> {
+        match self {
+            FeedInput::Sample { at_s, sample } => FeedInputRef::Sample {
+                at_s: *at_s,
+                sample,
+            },
+            FeedInput::Counters { at_s, counters } => FeedInputRef::Counters {
+                at_s: *at_s,
+                counters: *counters,
+            },
+            FeedInput::Tick { at_s } => FeedInputRef::Tick { at_s: *at_s },
+            FeedInput::Note { at_s, text } => FeedInputRef::Note {
+                at_s: *at_s,
+                text: std::borrow::Cow::Borrowed(text),
+            },
+            FeedInput::End { at_s } => FeedInputRef::End { at_s: *at_s },
+        }
+    }
+}
+
 /// What one input changed.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Step {
@@ -136,24 +195,30 @@ impl Feed {
 
     /// Take one input; the state is not built (see [`Change`]).
     pub fn advance(&mut self, input: FeedInput) -> Change {
+        self.advance_ref(input.as_ref())
+    }
+
+    /// Take one borrowed input (see [`FeedInputRef`]); the state is not
+    /// built.
+    pub fn advance_ref(&mut self, input: FeedInputRef<'_>) -> Change {
         let mut detection = None;
         let mut note = None;
         let mut ended = false;
         match input {
-            FeedInput::Sample { at_s, sample } => {
-                self.tracker.update(&self.cage, at_s, &sample);
-                detection = self.detector.push(&sample);
+            FeedInputRef::Sample { at_s, sample } => {
+                self.tracker.update(&self.cage, at_s, sample);
+                detection = self.detector.push(sample);
             }
-            FeedInput::Counters { at_s, counters } => {
+            FeedInputRef::Counters { at_s, counters } => {
                 self.tracker.tick(at_s);
                 self.tracker.set_counters(counters);
             }
-            FeedInput::Tick { at_s } => self.tracker.tick(at_s),
-            FeedInput::Note { at_s, text } => {
+            FeedInputRef::Tick { at_s } => self.tracker.tick(at_s),
+            FeedInputRef::Note { at_s, text } => {
                 self.tracker.tick(at_s);
-                note = Some(text);
+                note = Some(text.into_owned());
             }
-            FeedInput::End { at_s } => {
+            FeedInputRef::End { at_s } => {
                 self.tracker.tick(at_s);
                 detection = self.detector.finish();
                 ended = true;
@@ -185,6 +250,11 @@ impl Feed {
         let p = self.detector.finish()?;
         self.detections += 1;
         Some(DetectionEvent::from_proposed(&p, &self.source))
+    }
+
+    /// The link clock now, s, unrounded (see [`Tracker::clock_s`]).
+    pub fn clock_s(&self) -> f64 {
+        self.tracker.clock_s()
     }
 
     /// The watch state now.

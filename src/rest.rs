@@ -59,9 +59,7 @@ pub fn fit_face(cage: &Cage, gravity_body: &Vector3<f64>) -> FaceFit {
     let mut best: Option<(usize, f64)> = None;
     let mut second: Option<(usize, f64)> = None;
     for (i, f) in cage.faces.iter().enumerate() {
-        let d = f.normal_body.dot(gravity_body);
-        // A non-finite gravity gives NaN; treat it as the worst fit.
-        let d = if d.is_finite() { d } else { f64::NEG_INFINITY };
+        let d = face_dot(&f.normal_body, gravity_body);
         match best {
             Some((_, bd)) if d <= bd => {
                 if second.is_none_or(|(_, sd)| d > sd) {
@@ -74,17 +72,133 @@ pub fn fit_face(cage: &Cage, gravity_body: &Vector3<f64>) -> FaceFit {
             }
         }
     }
-    let error = |i: usize| {
-        let e = angle_between_deg(&cage.faces[i].normal_body, gravity_body);
-        if e.is_finite() { e } else { 180.0 }
-    };
-    let (face, error_deg) = best.map_or((0, 180.0), |(i, _)| (i, error(i)));
-    let second = second.map(|(i, _)| (i, error(i)));
+    let (face, error_deg) = best.map_or((0, 180.0), |(i, _)| {
+        (i, fit_error_deg(cage, i, gravity_body))
+    });
+    let second = second.map(|(i, _)| (i, fit_error_deg(cage, i, gravity_body)));
     FaceFit {
         face,
         error_deg,
         runner_up: second.map(|(i, _)| i),
         margin_deg: second.map_or(180.0 - error_deg, |(_, e)| e - error_deg),
+    }
+}
+
+/// The dot product [`fit_face`] ranks faces by: a non-finite gravity gives
+/// NaN, taken as the worst fit.
+fn face_dot(normal: &Vector3<f64>, gravity_body: &Vector3<f64>) -> f64 {
+    let d = normal.dot(gravity_body);
+    if d.is_finite() { d } else { f64::NEG_INFINITY }
+}
+
+/// The best face alone, as [`fit_face`] picks it (the first of equal dot
+/// products), without any angle: what every sample needs.
+fn best_face(cage: &Cage, gravity_body: &Vector3<f64>, hint: Option<usize>) -> usize {
+    let packed = cage.face_normals_body();
+    if packed.len() != cage.faces.len() {
+        return best_of(cage.faces.iter().map(|f| &f.normal_body), gravity_body);
+    }
+    // The previous sample's best face keeps the answer while gravity stays
+    // well inside its share of directions (Cage::face_capture_tan2): then
+    // its dot product is the largest by far more than rounding, which is
+    // what the search below would find.
+    if let Some(b) = hint
+        && let (Some(n), Some(&c)) = (packed.get(b), cage.face_capture_tan2().get(b))
+    {
+        let d = n.dot(gravity_body);
+        let gg = gravity_body.norm_squared();
+        if d.is_finite() && gg.is_finite() && gg >= 1e-200 && d > 0.0 && gg - d * d < c * d * d {
+            return b;
+        }
+    }
+    best_of(packed.iter(), gravity_body)
+}
+
+fn best_of<'a>(
+    normals: impl Iterator<Item = &'a Vector3<f64>>,
+    gravity_body: &Vector3<f64>,
+) -> usize {
+    // Written without branches on the data (selects, not jumps): the
+    // comparisons follow the vehicle's attitude and predict badly.
+    let (mut best, mut best_dot) = (0, f64::NEG_INFINITY);
+    for (i, n) in normals.enumerate() {
+        let d = face_dot(n, gravity_body);
+        let take = i == 0 || d > best_dot;
+        best = if take { i } else { best };
+        best_dot = if take { d } else { best_dot };
+    }
+    best
+}
+
+/// A face's error as [`fit_face`] reports it (a non-finite angle as 180).
+fn fit_error_deg(cage: &Cage, face: usize, gravity_body: &Vector3<f64>) -> f64 {
+    let e = angle_between_deg(&cage.faces[face].normal_body, gravity_body);
+    if e.is_finite() { e } else { 180.0 }
+}
+
+/// "The angle between two vectors is at most `deg`", decided for every
+/// sample without an arc tangent where the answer is clear, and always
+/// the same answer as `angle_between_deg(a, b) <= deg`.
+///
+/// `angle_between_deg` is atan2(|a x b|, a . b) in degrees. For a limit
+/// between 1e-6 and 89 degrees and a dot product of at least 1e-200 (so
+/// the products below are normal numbers, rounded to the last place) the
+/// angle is below
+/// the limit exactly when |a x b| / (a . b) is below tan(limit); away from
+/// the boundary by a relative 1e-9 (some million times the rounding of
+/// atan2, tan and the degree conversion, which are within a few units in
+/// the last place) the comparison of the two products decides; within it,
+/// and for anything not finite, the angle itself is worked out as before.
+#[derive(Debug, Clone, Copy)]
+struct AngleLimit {
+    deg: f64,
+    /// tan(limit) shrunk and grown by the margin; None: always the angle.
+    tan_below_above: Option<(f64, f64)>,
+}
+
+impl AngleLimit {
+    const MARGIN: f64 = 1e-9;
+
+    fn new(deg: f64) -> AngleLimit {
+        let tan_below_above = (1e-6..=89.0).contains(&deg).then(|| {
+            let t = deg.to_radians().tan();
+            (t * (1.0 - Self::MARGIN), t * (1.0 + Self::MARGIN))
+        });
+        AngleLimit {
+            deg,
+            tan_below_above,
+        }
+    }
+
+    /// `angle_between_deg(a, b) <= self.deg`.
+    fn holds(&self, a: &Vector3<f64>, b: &Vector3<f64>) -> bool {
+        self.decide(a, b, |e| e)
+    }
+
+    /// The same for a face's error as [`fit_face`] reports it, where a
+    /// non-finite angle counts as 180 degrees.
+    fn holds_for_fit(&self, a: &Vector3<f64>, b: &Vector3<f64>) -> bool {
+        self.decide(a, b, |e| if e.is_finite() { e } else { 180.0 })
+    }
+
+    fn decide(&self, a: &Vector3<f64>, b: &Vector3<f64>, read: impl Fn(f64) -> f64) -> bool {
+        let cross = a.cross(b).norm();
+        let dot = a.dot(b);
+        if let Some((below, above)) = self.tan_below_above
+            && cross.is_finite()
+            && dot.is_finite()
+            && dot >= 1e-200
+        {
+            // Finite here, so the angle is finite too: `read` keeps it.
+            if cross < dot * below {
+                return true;
+            }
+            if cross > dot * above {
+                return false;
+            }
+        }
+        // The same expression as `angle_between_deg`.
+        read(cross.atan2(dot).to_degrees()) <= self.deg
     }
 }
 
@@ -115,12 +229,49 @@ pub struct RestStatus {
     pub fit: FaceFit,
 }
 
+/// The detector's answer for one sample without its angles: what the
+/// tracker keeps for every sample. The angles (the error, the fit's best
+/// and runner-up) are worked out by [`RestMark::status`] only when a
+/// state is shown, from the same gravity direction, so they are exactly
+/// what [`RestDetector::update`] reports.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub struct RestMark {
+    /// Resting, propped or moving.
+    pub state: RestState,
+    /// The resting face, or the nearest face (with hysteresis).
+    pub face: usize,
+    /// Body-frame gravity direction of the sample.
+    gravity_body: Vector3<f64>,
+}
+
+impl RestMark {
+    /// The full answer, angles included (as [`RestDetector::update`]
+    /// returns it).
+    pub fn status(&self, cage: &Cage) -> RestStatus {
+        let fit = fit_face(cage, &self.gravity_body);
+        let error_deg = if self.face == fit.face {
+            fit.error_deg
+        } else {
+            angle_between_deg(&cage.faces[self.face].normal_body, &self.gravity_body)
+        };
+        RestStatus {
+            state: self.state,
+            face: self.face,
+            error_deg,
+            fit,
+        }
+    }
+}
+
 /// Turns a stream of attitudes into resting / moving with a face, with the
 /// dwell time and hysteresis of the profile. Pure state, no clock of its
 /// own: the caller passes each sample's time.
 #[derive(Debug, Clone)]
 pub struct RestDetector {
-    tolerance_deg: f64,
+    tolerance: AngleLimit,
+    /// The tolerance widened by the hysteresis (while resting).
+    tolerance_held: AngleLimit,
+    steady: AngleLimit,
     dwell_s: f64,
     hysteresis_deg: f64,
     /// Face held by the hysteresis.
@@ -130,19 +281,25 @@ pub struct RestDetector {
     /// Time of the previous sample (to notice time running backwards).
     last_t_s: Option<f64>,
     resting: bool,
+    /// The previous sample's best face: where the next search starts (a
+    /// hint only; the answer never depends on it).
+    last_best: Option<usize>,
 }
 
 impl RestDetector {
     /// A detector with the profile's watch settings.
     pub fn new(settings: &WatchSettings) -> Self {
         RestDetector {
-            tolerance_deg: settings.rest_tolerance_deg,
+            tolerance: AngleLimit::new(settings.rest_tolerance_deg),
+            tolerance_held: AngleLimit::new(settings.rest_tolerance_deg + settings.hysteresis_deg),
+            steady: AngleLimit::new(STEADY_ANGLE_DEG),
             dwell_s: settings.dwell_s,
             hysteresis_deg: settings.hysteresis_deg,
             face: None,
             anchor: None,
             last_t_s: None,
             resting: false,
+            last_best: None,
         }
     }
 
@@ -156,48 +313,55 @@ impl RestDetector {
 
     /// Feed one attitude sample taken at `t_s` seconds.
     pub fn update(&mut self, cage: &Cage, t_s: f64, q: &UnitQuaternion<f64>) -> RestStatus {
+        self.advance(cage, t_s, q).status(cage)
+    }
+
+    /// Feed one attitude sample taken at `t_s` seconds; the angles are left
+    /// for [`RestMark::status`]. Runs for every live sample, so faces are
+    /// compared by dot products and the limits by [`AngleLimit`]: no arc
+    /// tangent unless the face held by the hysteresis is not the best one
+    /// or a comparison is too close to call without it.
+    pub fn advance(&mut self, cage: &Cage, t_s: f64, q: &UnitQuaternion<f64>) -> RestMark {
         let g = gravity_body(q);
-        let fit = fit_face(cage, &g);
+        let best = best_face(cage, &g, self.last_best);
+        self.last_best = Some(best);
         let valid = t_s.is_finite() && g.iter().all(|x| x.is_finite());
         if !valid || self.last_t_s.is_some_and(|last| t_s < last) {
             // Bad data or a clock that ran backwards: start over, say moving.
             self.reset();
             if !valid {
-                return RestStatus {
+                return RestMark {
                     state: RestState::Moving,
-                    face: fit.face,
-                    error_deg: fit.error_deg,
-                    fit,
+                    face: best,
+                    gravity_body: g,
                 };
             }
         }
         self.last_t_s = Some(t_s);
 
-        // Face with hysteresis.
+        // Face with hysteresis: the held face stays unless another is
+        // closer by more than the hysteresis (the held face being the best
+        // one, it stays).
         let face = match self.face {
-            Some(held) if held < cage.faces.len() => {
+            Some(held) if held < cage.faces.len() && held != best => {
                 let held_err = angle_between_deg(&cage.faces[held].normal_body, &g);
-                if held_err - fit.error_deg > self.hysteresis_deg {
-                    fit.face
+                if held_err - fit_error_deg(cage, best, &g) > self.hysteresis_deg {
+                    best
                 } else {
                     held
                 }
             }
-            _ => fit.face,
+            Some(held) if held < cage.faces.len() => held,
+            _ => best,
         };
         if self.face != Some(face) {
             self.resting = false;
         }
         self.face = Some(face);
-        let error_deg = if face == fit.face {
-            fit.error_deg
-        } else {
-            angle_between_deg(&cage.faces[face].normal_body, &g)
-        };
 
         // Steadiness against the anchor.
         let since = match self.anchor {
-            Some((a, t0)) if angle_between_deg(&a, &g) <= STEADY_ANGLE_DEG => t0,
+            Some((a, t0)) if self.steady.holds(&a, &g) => t0,
             _ => {
                 self.anchor = Some((g, t_s));
                 self.resting = false;
@@ -206,12 +370,12 @@ impl RestDetector {
         };
         let steady = t_s - since >= self.dwell_s;
         let limit = if self.resting {
-            self.tolerance_deg + self.hysteresis_deg
+            &self.tolerance_held
         } else {
-            self.tolerance_deg
+            &self.tolerance
         };
-        self.resting = steady && error_deg <= limit;
-        RestStatus {
+        self.resting = steady && self.within(cage, face, best, &g, limit);
+        RestMark {
             state: if self.resting {
                 RestState::Resting
             } else if steady {
@@ -220,8 +384,25 @@ impl RestDetector {
                 RestState::Moving
             },
             face,
-            error_deg,
-            fit,
+            gravity_body: g,
+        }
+    }
+
+    /// Whether `face`'s error (as [`RestMark::status`] reports it) is
+    /// within `limit`.
+    fn within(
+        &self,
+        cage: &Cage,
+        face: usize,
+        best: usize,
+        g: &Vector3<f64>,
+        limit: &AngleLimit,
+    ) -> bool {
+        match cage.faces.get(face) {
+            Some(f) if face == best => limit.holds_for_fit(&f.normal_body, g),
+            Some(f) => limit.holds(&f.normal_body, g),
+            // No faces at all: the fit's error is 180 degrees.
+            None => 180.0 <= limit.deg,
         }
     }
 }
@@ -459,12 +640,234 @@ mod tests {
         assert_eq!(s.state, RestState::Moving);
     }
 
+    /// The detector as it was written before the per-sample work was cut
+    /// down: every comparison by the angles themselves (the definitions of
+    /// docs/design.md), the full fit for every sample. The faster detector
+    /// must give exactly its answers.
+    struct ByAngles {
+        tolerance_deg: f64,
+        dwell_s: f64,
+        hysteresis_deg: f64,
+        face: Option<usize>,
+        anchor: Option<(Vector3<f64>, f64)>,
+        last_t_s: Option<f64>,
+        resting: bool,
+    }
+
+    impl ByAngles {
+        fn new(w: &WatchSettings) -> ByAngles {
+            ByAngles {
+                tolerance_deg: w.rest_tolerance_deg,
+                dwell_s: w.dwell_s,
+                hysteresis_deg: w.hysteresis_deg,
+                face: None,
+                anchor: None,
+                last_t_s: None,
+                resting: false,
+            }
+        }
+
+        fn update(&mut self, cage: &Cage, t_s: f64, q: &UnitQuaternion<f64>) -> RestStatus {
+            let g = gravity_body(q);
+            let fit = fit_face(cage, &g);
+            let valid = t_s.is_finite() && g.iter().all(|x| x.is_finite());
+            if !valid || self.last_t_s.is_some_and(|last| t_s < last) {
+                (self.face, self.anchor, self.last_t_s, self.resting) = (None, None, None, false);
+                if !valid {
+                    return RestStatus {
+                        state: RestState::Moving,
+                        face: fit.face,
+                        error_deg: fit.error_deg,
+                        fit,
+                    };
+                }
+            }
+            self.last_t_s = Some(t_s);
+            let face = match self.face {
+                Some(held) if held < cage.faces.len() => {
+                    let held_err = angle_between_deg(&cage.faces[held].normal_body, &g);
+                    if held_err - fit.error_deg > self.hysteresis_deg {
+                        fit.face
+                    } else {
+                        held
+                    }
+                }
+                _ => fit.face,
+            };
+            if self.face != Some(face) {
+                self.resting = false;
+            }
+            self.face = Some(face);
+            let error_deg = if face == fit.face {
+                fit.error_deg
+            } else {
+                angle_between_deg(&cage.faces[face].normal_body, &g)
+            };
+            let since = match self.anchor {
+                Some((a, t0)) if angle_between_deg(&a, &g) <= STEADY_ANGLE_DEG => t0,
+                _ => {
+                    self.anchor = Some((g, t_s));
+                    self.resting = false;
+                    t_s
+                }
+            };
+            let steady = t_s - since >= self.dwell_s;
+            let limit = if self.resting {
+                self.tolerance_deg + self.hysteresis_deg
+            } else {
+                self.tolerance_deg
+            };
+            self.resting = steady && error_deg <= limit;
+            RestStatus {
+                state: if self.resting {
+                    RestState::Resting
+                } else if steady {
+                    RestState::Propped
+                } else {
+                    RestState::Moving
+                },
+                face,
+                error_deg,
+                fit,
+            }
+        }
+    }
+
+    fn geodesic_cage(k: u32) -> Cage {
+        let p = Profile::parse(&crate::geodesic::profile_toml(k), "geodesic").unwrap();
+        Cage::from_profile(&p).unwrap()
+    }
+
+    #[test]
+    fn the_capture_shortcut_finds_the_nearest_face() {
+        // Directions near every face's normal, near the bisectors between
+        // faces and all round the sphere, with every face as the hint: the
+        // shortcut's face is the one of least angle (docs/design.md),
+        // found here by comparing every angle.
+        for cage in [demo().1, geodesic_cage(1), geodesic_cage(2)] {
+            assert!(
+                !cage.face_capture_tan2().is_empty(),
+                "bounds exist up to 512 faces"
+            );
+            let mut dirs: Vec<Vector3<f64>> = Vec::new();
+            for f in &cage.faces {
+                for e in [0.0, 1e-3, 0.05, 0.2, 0.4] {
+                    dirs.push(f.normal_body + Vector3::new(e, -0.7 * e, 0.3 * e));
+                }
+            }
+            for a in cage.faces.iter().take(12) {
+                for b in cage.faces.iter().take(12) {
+                    dirs.push((a.normal_body + b.normal_body) * 4.9);
+                }
+            }
+            for i in 0..30 {
+                for j in 0..60 {
+                    let (th, ph) = (i as f64 * 0.105 + 0.01, j as f64 * 0.105);
+                    dirs.push(Vector3::new(
+                        th.sin() * ph.cos(),
+                        th.sin() * ph.sin(),
+                        th.cos(),
+                    ));
+                }
+            }
+            for (k, g) in dirs.iter().enumerate() {
+                // fit_face is checked against the angles themselves above
+                // (dot_product_fit_agrees_with_the_smallest_angle); here the
+                // directions near a normal are checked against them too.
+                let want = fit_face(&cage, g).face;
+                if k < 5 * cage.faces.len() {
+                    let by_angle = (0..cage.faces.len())
+                        .map(|f| (angle_between_deg(&cage.faces[f].normal_body, g), f))
+                        .min_by(|x, y| x.0.total_cmp(&y.0))
+                        .map(|(_, f)| f);
+                    assert_eq!(Some(want), by_angle);
+                }
+                for hint in 0..cage.faces.len() {
+                    assert_eq!(
+                        best_face(&cage, g, Some(hint)),
+                        want,
+                        "hint {hint}, g {g:?}"
+                    );
+                }
+                assert_eq!(best_face(&cage, g, None), want);
+            }
+        }
+    }
+
+    #[test]
+    fn many_faces_have_no_capture_bounds_and_still_fit() {
+        let cage = geodesic_cage(3);
+        assert!(cage.faces.len() > crate::cage::CAPTURE_MAX_FACES);
+        assert!(cage.face_capture_tan2().is_empty());
+        let g = Vector3::new(0.3, -0.2, 0.9);
+        assert_eq!(best_face(&cage, &g, Some(0)), fit_face(&cage, &g).face);
+    }
+
     mod props {
         use super::*;
         use proptest::prelude::*;
 
         proptest! {
             #![proptest_config(ProptestConfig::with_cases(64))]
+
+            /// The angle limit decides as the angle itself does, for
+            /// directions drawn anywhere and right at the limit (within a
+            /// few 1e-12 of it, where only the angle can tell).
+            #[test]
+            fn angle_limit_agrees_with_the_angle(
+                limit in prop_oneof![Just(STEADY_ANGLE_DEG), Just(12.0), Just(15.0), Just(0.0),
+                    Just(89.0), Just(120.0), 0.0..90.0f64],
+                axis in proptest::array::uniform3(-1.0..1.0f64),
+                off in prop_oneof![Just(0.0), -1e-11..1e-11f64, -1.0..1.0f64, -90.0..90.0f64],
+                scale in prop_oneof![Just(1.0), Just(9.81), 1e-3..1e3f64],
+            ) {
+                let a = Vector3::new(axis[0], axis[1], axis[2] + 1.5);
+                prop_assume!(a.norm() > 1e-6);
+                let a = a.normalize();
+                // b at (limit + off) degrees from a, about some perpendicular.
+                let perp = a.cross(&Vector3::new(0.3, 1.0, -0.2)).normalize();
+                let rot = UnitQuaternion::from_axis_angle(
+                    &nalgebra::Unit::new_normalize(perp),
+                    (limit + off).to_radians(),
+                );
+                let b = rot * a * scale;
+                let l = AngleLimit::new(limit);
+                prop_assert_eq!(l.holds(&a, &b), angle_between_deg(&a, &b) <= limit);
+                let e = angle_between_deg(&a, &b);
+                let fit_e = if e.is_finite() { e } else { 180.0 };
+                prop_assert_eq!(l.holds_for_fit(&a, &b), fit_e <= limit);
+            }
+
+            /// Any walk of attitudes (rolls, rests, jumps, a clock that
+            /// sometimes runs back) gives, sample for sample, the answers
+            /// of the detector that compares angles throughout.
+            #[test]
+            fn the_detector_answers_as_the_angles_do(
+                steps in proptest::collection::vec(
+                    (0usize..20, -8.0..8.0f64, -8.0..8.0f64, 0.0..0.3f64, 0u8..10), 20..120),
+                hysteresis in prop_oneof![Just(0.0), Just(3.0), 0.0..10.0f64],
+            ) {
+                let (mut prof, c) = demo();
+                prof.watch.hysteresis_deg = hysteresis;
+                let mut fast = RestDetector::new(&prof.watch);
+                let mut slow = ByAngles::new(&prof.watch);
+                let mut t = 0.0;
+                for (face, dr, dp, dt, kind) in steps {
+                    t += if kind == 0 { -0.4 } else { dt };
+                    let base = resting_attitude(&c, face);
+                    let q = base * quat_from_rpy_deg(dr, dp, 0.0);
+                    let want = slow.update(&c, t, &q);
+                    let got = fast.update(&c, t, &q);
+                    prop_assert_eq!(got, want);
+                    // Held still a while: the dwell passes.
+                    if kind == 1 {
+                        for _ in 0..8 {
+                            t += 0.1;
+                            prop_assert_eq!(fast.update(&c, t, &q), slow.update(&c, t, &q));
+                        }
+                    }
+                }
+            }
 
             /// Held still at any attitude (yaw spinning freely), the detector
             /// rests after the dwell exactly when the nearest face is within

@@ -31,7 +31,7 @@ use crate::attitude::rpy_deg;
 use crate::cage::Cage;
 use crate::link::Counters;
 use crate::profile::WatchSettings;
-use crate::rest::{RestDetector, RestState, RestStatus};
+use crate::rest::{RestDetector, RestMark, RestState, RestStatus};
 use crate::sample::{STANDARD_GRAVITY_M_S2, Sample};
 use nalgebra::UnitQuaternion;
 use serde::Serialize;
@@ -154,7 +154,9 @@ pub struct Tracker {
 struct Attitude {
     at_s: f64,
     q: UnitQuaternion<f64>,
-    status: RestStatus,
+    /// The rest detector's answer; its angles are worked out only when a
+    /// state is built.
+    status: RestMark,
 }
 
 impl Tracker {
@@ -245,7 +247,7 @@ impl Tracker {
             }
             // The rest detector runs on the link clock: sender clocks restart
             // when a vehicle reboots, the link clock does not.
-            let st = self.rest.update(cage, at_s, &q);
+            let st = self.rest.advance(cage, at_s, &q);
             self.last = Some(Attitude {
                 at_s,
                 q,
@@ -285,9 +287,9 @@ impl Tracker {
     /// The latest attitude with the rest detector's answer for it, on the
     /// link clock; None before the first attitude and while stale. The
     /// righting stepper verifies each roll from this.
-    pub fn last_rest(&self) -> Option<(f64, UnitQuaternion<f64>, RestStatus)> {
+    pub fn last_rest(&self, cage: &Cage) -> Option<(f64, UnitQuaternion<f64>, RestStatus)> {
         match self.last {
-            Some(a) if !self.is_stale() => Some((a.at_s, a.q, a.status)),
+            Some(a) if !self.is_stale() => Some((a.at_s, a.q, a.status.status(cage))),
             _ => None,
         }
     }
@@ -303,6 +305,11 @@ impl Tracker {
             ),
             _ => (WatchStateKind::Stale, None),
         }
+    }
+
+    /// The link clock now, s, as the inputs set it (not rounded).
+    pub fn clock_s(&self) -> f64 {
+        self.now_s
     }
 
     /// The link clock now, s, rounded to the millisecond as
@@ -373,11 +380,12 @@ impl Tracker {
         match self.last {
             Some(a) if !stale => {
                 let state = self.kind_of(&a);
-                let face = cage.faces.get(a.status.face);
+                let status = a.status.status(cage);
+                let face = cage.faces.get(status.face);
                 let reason = match (state, face) {
                     (WatchStateKind::Propped, Some(f)) => Some(format!(
                         "still, {:.1} deg off {}: not flat on any face",
-                        a.status.error_deg, f.id
+                        status.error_deg, f.id
                     )),
                     _ => None,
                 };
@@ -388,8 +396,8 @@ impl Tracker {
                     armed: self.armed,
                     battery_v: self.battery_v,
                     face: face.map(|f| f.id.clone()),
-                    face_index: face.map(|_| a.status.face),
-                    error_deg: Some(round2(a.status.error_deg)),
+                    face_index: face.map(|_| status.face),
+                    error_deg: Some(round2(status.error_deg)),
                     rpy_deg: Some(r),
                     ..base
                 }

@@ -38,7 +38,6 @@ use cagehand::sample::Sample;
 use cagehand::sim::wire::Wire;
 use cagehand::sim::{Sim, SimCommand};
 use sink::Sink;
-use std::collections::VecDeque;
 use std::path::PathBuf;
 use std::sync::Arc;
 use std::sync::atomic::{AtomicBool, Ordering};
@@ -252,18 +251,55 @@ impl LinkError {
 /// The consumer's end of a link: the reader ships its messages in batches
 /// (everything one read produced goes in one channel send, so a fast link
 /// costs one hand-over per read rather than per sample); this hands them
-/// out one at a time, in order.
+/// out one at a time, in order, and hands each emptied batch back to the
+/// reader for reuse.
 #[derive(Debug)]
 pub struct LinkRx {
     rx: Receiver<Vec<LinkMsg>>,
-    queue: VecDeque<LinkMsg>,
+    /// The batch being handed out: its messages are taken where they lie
+    /// (not copied into a queue), `next` is the first not yet taken.
+    batch: Vec<LinkMsg>,
+    next: usize,
+    /// Where an emptied batch goes back to its reader for reuse (so a fast
+    /// replay writes into memory already mapped rather than fresh pages).
+    spare: Option<Sender<Vec<LinkMsg>>>,
 }
 
 impl LinkRx {
     pub(crate) fn new(rx: Receiver<Vec<LinkMsg>>) -> LinkRx {
         LinkRx {
             rx,
-            queue: VecDeque::new(),
+            batch: Vec::new(),
+            next: 0,
+            spare: None,
+        }
+    }
+
+    /// A receiver that hands emptied batches back through `spare`.
+    fn with_spare(rx: Receiver<Vec<LinkMsg>>, spare: Sender<Vec<LinkMsg>>) -> LinkRx {
+        LinkRx {
+            spare: Some(spare),
+            ..LinkRx::new(rx)
+        }
+    }
+
+    /// The next message of the batch in hand, if any is left.
+    fn take(&mut self) -> Option<LinkMsg> {
+        let slot = self.batch.get_mut(self.next)?;
+        self.next += 1;
+        Some(std::mem::replace(slot, LinkMsg::Tick { at_s: 0.0 }))
+    }
+
+    /// A new batch in hand; the emptied one goes back to the reader.
+    fn refill(&mut self, batch: Vec<LinkMsg>) {
+        let mut old = std::mem::replace(&mut self.batch, batch);
+        self.next = 0;
+        if let Some(spare) = &self.spare
+            && old.capacity() > 0
+        {
+            old.clear();
+            // A reader that has ended no longer wants it.
+            let _ = spare.send(old);
         }
     }
 
@@ -271,38 +307,54 @@ impl LinkRx {
     /// has ended and everything it sent was handed out.
     pub fn recv(&mut self) -> Result<LinkMsg, RecvError> {
         loop {
-            if let Some(m) = self.queue.pop_front() {
+            if let Some(m) = self.take() {
                 return Ok(m);
             }
             let batch = self.rx.recv()?;
-            self.queue.extend(batch);
+            self.refill(batch);
         }
     }
 
     /// The next message, waiting at most `timeout`.
     pub fn recv_timeout(&mut self, timeout: Duration) -> Result<LinkMsg, RecvTimeoutError> {
-        if let Some(m) = self.queue.pop_front() {
+        if let Some(m) = self.take() {
             return Ok(m); // the common case: no clock read
         }
         let deadline = Instant::now() + timeout;
         loop {
-            if let Some(m) = self.queue.pop_front() {
+            if let Some(m) = self.take() {
                 return Ok(m);
             }
             let left = deadline.saturating_duration_since(Instant::now());
             let batch = self.rx.recv_timeout(left)?;
-            self.queue.extend(batch);
+            self.refill(batch);
         }
+    }
+
+    /// The next message, borrowed where its batch holds it (no copy),
+    /// waiting at most `timeout`; valid until the next call.
+    pub fn recv_timeout_ref(&mut self, timeout: Duration) -> Result<&LinkMsg, RecvTimeoutError> {
+        if self.next >= self.batch.len() {
+            let deadline = Instant::now() + timeout;
+            while self.next >= self.batch.len() {
+                let left = deadline.saturating_duration_since(Instant::now());
+                let batch = self.rx.recv_timeout(left)?;
+                self.refill(batch);
+            }
+        }
+        let at = self.next;
+        self.next += 1;
+        Ok(&self.batch[at])
     }
 
     /// The next message if one is already here (not waiting).
     pub fn try_recv(&mut self) -> Result<LinkMsg, TryRecvError> {
         loop {
-            if let Some(m) = self.queue.pop_front() {
+            if let Some(m) = self.take() {
                 return Ok(m);
             }
             let batch = self.rx.try_recv()?;
-            self.queue.extend(batch);
+            self.refill(batch);
         }
     }
 }
@@ -359,6 +411,7 @@ fn sleep_until(t0: Instant, wall_s: f64, stop: &AtomicBool) {
 /// Open a link and start its reader thread.
 pub fn open(spec: &LinkSpec, opts: LinkOptions, mode: Mode) -> Result<Link, LinkError> {
     let (tx, rx) = mpsc::sync_channel(CHANNEL_CAP);
+    let (spare_tx, spare_rx) = mpsc::channel();
     let stop = Arc::new(AtomicBool::new(false));
     let max = opts.replay_speed == ReplaySpeed::Max;
     let blocking = mode == Mode::Raw
@@ -388,6 +441,7 @@ pub fn open(spec: &LinkSpec, opts: LinkOptions, mode: Mode) -> Result<Link, Link
         blocking,
         matches!(spec, LinkSpec::Raw(_)),
         floor,
+        spare_rx,
     );
     let st = stop.clone();
     let mut commands = None;
@@ -447,7 +501,7 @@ pub fn open(spec: &LinkSpec, opts: LinkOptions, mode: Mode) -> Result<Link, Link
         .spawn(body)
         .map_err(LinkError::Thread)?;
     Ok(Link {
-        rx: LinkRx::new(rx),
+        rx: LinkRx::with_spare(rx, spare_tx),
         source: spec.to_string(),
         commands,
         stop,

@@ -3,7 +3,8 @@
 //! headless watch and `preflight --link`.
 
 use crate::transport::{LinkEvent, LinkMsg, LinkRx};
-use cagehand::feed::{Feed, FeedInput, Step};
+use cagehand::feed::{Feed, FeedInput, FeedInputRef, Step};
+use std::borrow::Cow;
 
 /// Messages taken into one step at the most, so a consumer that is far
 /// behind still shows progress.
@@ -43,6 +44,31 @@ pub fn next_step(rx: &mut LinkRx, feed: &mut Feed) -> Option<Step> {
         note: None,
         ended: false,
     })
+}
+
+/// A reader's message as a borrowed feed input (the sample read where
+/// the reader's batch holds it).
+pub fn feed_input_ref(msg: &LinkMsg) -> FeedInputRef<'_> {
+    match msg {
+        LinkMsg::Sample { at_s, sample } => FeedInputRef::Sample {
+            at_s: *at_s,
+            sample,
+        },
+        LinkMsg::Health { at_s, counters } => FeedInputRef::Counters {
+            at_s: *at_s,
+            counters: *counters,
+        },
+        LinkMsg::Tick { at_s } | LinkMsg::Bytes { at_s, .. } => FeedInputRef::Tick { at_s: *at_s },
+        LinkMsg::Event { at_s, event } => FeedInputRef::Note {
+            at_s: *at_s,
+            text: match event {
+                LinkEvent::Lost(s) => Cow::Owned(format!("link lost: {s}")),
+                LinkEvent::Note(s) => Cow::Borrowed(s.as_str()),
+                LinkEvent::Reopened => Cow::Borrowed("link reopened"),
+            },
+        },
+        LinkMsg::End { at_s } => FeedInputRef::End { at_s: *at_s },
+    }
 }
 
 /// A reader's message as a feed input.

@@ -127,6 +127,7 @@ fn read_health(l: &Loaded, log: &LogOpts) -> (Option<cagehand::health::HealthRep
 fn live_view(
     st: &WatchState,
     tracker: &Tracker,
+    cage: &cagehand::cage::Cage,
     preflight: Option<preflight::Evaluation>,
     pending: Vec<cagehand::logbook::Pending>,
 ) -> LiveView {
@@ -153,7 +154,7 @@ fn live_view(
             errors,
         },
         rest: tracker
-            .last_rest()
+            .last_rest(cage)
             .map(|(t_s, attitude, status)| RestSample {
                 t_s,
                 attitude,
@@ -568,6 +569,7 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: 
             let live = Msg::Live(Box::new(live_view(
                 &step.state,
                 feed.tracker(),
+                feed.cage(),
                 Some(eval),
                 book.pending.clone(),
             )));

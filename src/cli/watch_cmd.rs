@@ -161,6 +161,18 @@ fn write_detection(
     Ok(writeln!(out, "{}", serde_json::to_string(&line)?).is_ok())
 }
 
+/// Whether the feed's clock as a line shows it ([`Feed::time_s`], rounded
+/// to the millisecond) has reached `mark_s`, a whole second. Asked for
+/// every message of a fast replay, so the rounding is done only near the
+/// mark: a clock more than a millisecond short of it cannot round up to it.
+fn reaches(feed: &Feed, mark_s: f64) -> bool {
+    let (clock_ms, mark_ms) = (feed.clock_s() * 1000.0, mark_s * 1000.0);
+    if mark_s.abs() < 1e9 && (mark_s as i64) as f64 == mark_s && clock_ms < mark_ms - 1.0 {
+        return false;
+    }
+    feed.time_s() >= mark_s
+}
+
 /// Run the watch.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     if !args.headless {
@@ -185,12 +197,12 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let mut lines = 0u64;
     let mut states = BTreeSet::new();
     loop {
-        let msg = match link.rx.recv_timeout(Duration::from_secs(2)) {
+        let msg = match link.rx.recv_timeout_ref(Duration::from_secs(2)) {
             Ok(m) => m,
             Err(RecvTimeoutError::Timeout) => continue,
             Err(RecvTimeoutError::Disconnected) => break,
         };
-        let step = feed.advance(super::live::feed_input(msg));
+        let step = feed.advance_ref(super::live::feed_input_ref(msg));
         if let Some(text) = &step.note {
             let _ = writeln!(
                 std::io::stderr().lock(),
@@ -200,8 +212,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
         // The state is built only when a line may be due: a change, a new
         // second of link time, or the end.
-        let t = feed.time_s();
-        if step.changed || t >= next_periodic || step.ended {
+        if step.changed || step.ended || reaches(&feed, next_periodic) {
             let st = feed.state();
             // At the end, a last line if the link's counters moved since the
             // last one, so the last line agrees with the summary.
@@ -225,7 +236,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         if step.ended {
             break;
         }
-        if args.duration_s.is_some_and(|d| t >= d) {
+        if args.duration_s.is_some_and(|d| feed.time_s() >= d) {
             // Stopping early: an impact in progress is still reported.
             if let Some(d) = feed.finish() {
                 write_detection(&mut out, &loaded, &args.log, &d)?;

@@ -23,7 +23,7 @@ pub mod signing;
 
 use crate::link::Counters;
 use crate::sample::{STANDARD_GRAVITY_M_S2, Sample};
-use crc::{CRC_16_MCRF4XX, Crc};
+use crc::{CRC_16_MCRF4XX, Crc, Table};
 pub use messages::Message;
 use nalgebra::{Quaternion, UnitQuaternion, Vector3};
 pub use signing::{ReplayFloor, SignatureVerdict, SigningKey, Verifier};
@@ -38,22 +38,73 @@ const HDR_V1: usize = 6;
 const HDR_V2: usize = 10;
 /// Longest possible frame: v2 header, 255 payload, CRC, signature.
 pub const MAX_FRAME_LEN: usize = HDR_V2 + 255 + 2 + signing::SIGNATURE_LEN;
-/// Bytes taken from the caller per parse pass (bounds the buffer).
+/// Bytes taken from the caller per parse pass, in the old framing of the
+/// bound below (the bytes are now read where they lie).
 const CHUNK: usize = 1024;
-/// Most bytes the decoder ever holds: one chunk, plus an unknown frame and
-/// a candidate inside it still waiting for its bytes.
+/// New bytes put behind held ones: more than any candidate needs from its
+/// start (an unknown frame, the byte after it and a candidate starting on
+/// its last byte).
+const BRIDGE: usize = 2 * MAX_FRAME_LEN + 2;
+/// Most bytes the decoder ever holds between pushes: an unknown frame and
+/// a candidate inside it still waiting for its bytes (bounded by one chunk
+/// plus that, as it always was).
 pub const MAX_BUFFERED: usize = CHUNK + 2 * MAX_FRAME_LEN;
 /// Frames kept for the caller before the oldest are dropped.
 const MAX_QUEUED: usize = 256;
 
-static X25: Crc<u16> = Crc::<u16>::new(&CRC_16_MCRF4XX);
+/// CRC-16/MCRF4XX with the crc crate's 16-lane table (slice-by-16);
+/// [`checksum`] uses its lanes for the short tails too. `tests` checks both
+/// against the crate's one-lane table and the published check value.
+static X25: Crc<u16, Table<16>> = Crc::<u16, Table<16>>::new(&CRC_16_MCRF4XX);
 
 /// CRC-16/MCRF4XX of `bytes` followed by `extra` (the MAVLink checksum).
+///
+/// Every frame is checked, and MAVLink frames are short (26 bytes on
+/// average in the simulator's telemetry), so the tail after the 16-byte
+/// blocks matters as much as the blocks: it goes in blocks of 8, 4 and 2
+/// with the same table's lanes (lane k is a byte followed by k zero
+/// bytes, the textbook slicing identity), one table step per block
+/// instead of one per byte.
 pub fn checksum(bytes: &[u8], extra: u8) -> u16 {
-    let mut d = X25.digest();
-    d.update(bytes);
-    d.update(&[extra]);
-    d.finalize()
+    let t = X25.table();
+    // MCRF4XX: reflected, initial value 0xFFFF (its own bit reversal), no
+    // final xor.
+    let mut crc: u16 = 0xFFFF;
+    let mut rest = bytes;
+    while let Some((block, tail)) = rest.split_first_chunk::<16>() {
+        crc = slice_step(t, crc, block);
+        rest = tail;
+    }
+    if let Some((block, tail)) = rest.split_first_chunk::<8>() {
+        crc = slice_step(t, crc, block);
+        rest = tail;
+    }
+    if let Some((block, tail)) = rest.split_first_chunk::<4>() {
+        crc = slice_step(t, crc, block);
+        rest = tail;
+    }
+    if let Some((block, tail)) = rest.split_first_chunk::<2>() {
+        crc = slice_step(t, crc, block);
+        rest = tail;
+    }
+    // At most one byte is left: it and the CRC_EXTRA byte go as one block.
+    match rest {
+        [b] => slice_step(t, crc, &[*b, extra]),
+        _ => t[0][usize::from((crc ^ u16::from(extra)) & 0xFF)] ^ (crc >> 8),
+    }
+}
+
+/// One slicing step of a reflected CRC-16 over `N` (2 to 16) bytes: the
+/// register folds into the first two bytes, and byte j goes through lane
+/// N - 1 - j.
+#[inline(always)]
+fn slice_step<const N: usize>(t: &[[u16; 256]; 16], crc: u16, block: &[u8; N]) -> u16 {
+    let [lo, hi] = crc.to_le_bytes();
+    let mut out = t[N - 1][usize::from(block[0] ^ lo)] ^ t[N - 2][usize::from(block[1] ^ hi)];
+    for (j, &b) in block.iter().enumerate().skip(2) {
+        out ^= t[N - 1 - j][usize::from(b)];
+    }
+    out
 }
 
 /// A frame that passed CRC, filters and signing.
@@ -138,11 +189,34 @@ impl MavDecoder {
         self.verifier.as_mut()
     }
 
-    /// Feed received bytes.
+    /// Feed received bytes. They are read where they lie: only the bytes
+    /// of a frame still waiting for the rest of it are kept (copied) for
+    /// the next push.
     pub fn push(&mut self, data: &[u8]) {
-        for chunk in data.chunks(CHUNK) {
-            self.buf.extend_from_slice(chunk);
-            self.parse();
+        let mut rest = data;
+        // Bytes held from an earlier push start a candidate that waits for
+        // more: read it (and whatever starts inside the held bytes) with
+        // enough new bytes behind it to decide, then go on in `rest`.
+        while !self.buf.is_empty() && !rest.is_empty() {
+            let held = self.buf.len();
+            let take = rest.len().min(BRIDGE);
+            let mut buf = std::mem::take(&mut self.buf);
+            buf.extend_from_slice(&rest[..take]);
+            let stop = self.scan(&buf, held, false);
+            if stop < held {
+                // Still waiting (all of `rest` is in `buf` by now, since
+                // a candidate never needs more than BRIDGE bytes).
+                buf.drain(..stop);
+                rest = &rest[take..];
+            } else {
+                buf.clear();
+                rest = &rest[stop - held..];
+            }
+            self.buf = buf;
+        }
+        if self.buf.is_empty() {
+            let stop = self.scan(rest, rest.len(), false);
+            self.buf.extend_from_slice(&rest[stop..]);
         }
     }
 
@@ -155,32 +229,32 @@ impl MavDecoder {
     /// for bytes is no frame. The search resumes one byte past it, so good
     /// frames it claimed are read after all.
     pub fn finish(&mut self) {
-        self.parse_with(true);
+        let mut buf = std::mem::take(&mut self.buf);
+        let stop = self.scan(&buf, buf.len(), true);
+        buf.drain(..stop.min(buf.len()));
+        self.buf = buf;
     }
 
-    fn parse(&mut self) {
-        self.parse_with(false);
-    }
-
-    fn parse_with(&mut self, at_end: bool) {
+    /// Read the candidates of `b` that start before `limit`, counting each
+    /// and queueing the good frames. Returns where the search stopped: the
+    /// start of a candidate that waits for more bytes (below `limit`), or
+    /// the first byte after `limit` not yet read (at or past it).
+    fn scan(&mut self, b: &[u8], limit: usize, at_end: bool) -> usize {
         let mut i = 0;
-        loop {
-            match self.buf[i..]
-                .iter()
-                .position(|&b| b == STX_V1 || b == STX_V2)
-            {
-                None => {
-                    i = self.buf.len();
-                    break;
-                }
+        while i < limit {
+            match b[i..].iter().position(|&c| c == STX_V1 || c == STX_V2) {
+                None => return b.len(),
                 Some(k) => i += k,
             }
-            match self.candidate(i, at_end) {
+            if i >= limit {
+                break;
+            }
+            match self.candidate(&b[i..], at_end) {
                 Candidate::Incomplete if at_end => {
                     self.counters.crc_errors += 1;
                     i += 1;
                 }
-                Candidate::Incomplete => break,
+                Candidate::Incomplete => return i,
                 Candidate::Bad => {
                     self.counters.crc_errors += 1;
                     i += 1;
@@ -204,11 +278,12 @@ impl MavDecoder {
                 }
             }
         }
-        self.buf.drain(..i.min(self.buf.len()));
+        i
     }
 
-    fn candidate(&mut self, i: usize, at_end: bool) -> Candidate {
-        let b = &self.buf[i..];
+    /// The candidate frame at the start of `b` (which begins with a start
+    /// byte).
+    fn candidate(&mut self, b: &[u8], at_end: bool) -> Candidate {
         let shape = match Shape::of(b) {
             ShapeOf::Incomplete => return Candidate::Incomplete,
             ShapeOf::Bad => return Candidate::Bad,
@@ -246,10 +321,11 @@ impl MavDecoder {
         {
             return Candidate::Rejected(total);
         }
-        let mut payload = [0u8; messages::MAX_FULL_LEN];
+        // Decoded where it lies; bytes a MAVLink 2 sender dropped (trailing
+        // zeros) read as zero, bytes past the fields we know are ignored.
         let n = shape.len.min(info.full_len);
-        payload[..n].copy_from_slice(&b[shape.hdr..shape.hdr + n]);
-        match Message::decode(shape.msgid, &payload) {
+        let carried = &b[shape.hdr..shape.hdr + n];
+        match Message::decode_carried(shape.msgid, carried) {
             Some(message) => Candidate::Good(
                 Frame {
                     version: if shape.v2 { 2 } else { 1 },
@@ -593,11 +669,13 @@ fn vec3(v: &[f32; 3]) -> Vector3<f64> {
 /// unit length (further off means a wrong field order or units, not noise).
 pub fn unit_quaternion(wxyz: [f64; 4]) -> Option<UnitQuaternion<f64>> {
     let q = Quaternion::new(wxyz[0], wxyz[1], wxyz[2], wxyz[3]);
-    let n = q.norm();
+    // The norm is worked out once: this is `from_quaternion` (q over its
+    // norm), with the norm it used handed back for the check.
+    let (unit, n) = UnitQuaternion::new_and_get(q);
     if !n.is_finite() || (n - 1.0).abs() > 0.1 {
         return None;
     }
-    Some(UnitQuaternion::from_quaternion(q))
+    Some(unit)
 }
 
 #[cfg(test)]

@@ -5,17 +5,23 @@ use super::floor::FloorStore;
 use super::{LinkEvent, LinkMsg};
 use cagehand::link::clock::{TICK_S, silence_ticks};
 use cagehand::link::{Counters, Decoder};
-use std::sync::mpsc::{SyncSender, TrySendError};
+use std::sync::mpsc::{Receiver, SyncSender, TrySendError};
+
+/// Messages a blocking link (a replay) ships at once at the most.
+const BLOCKING_BATCH: usize = 1024;
 
 /// The reader's side of the channel, with its decoder.
 ///
 /// What one read of bytes produces (samples, counters, ticks) is held and
 /// shipped as one batch when the read is done: one channel hand-over per
-/// read instead of two per sample. The order of the messages is unchanged.
+/// read instead of two per sample (a replay's long reads in parts of
+/// [`BLOCKING_BATCH`]). The order of the messages is unchanged.
 pub(super) struct Sink {
     pub(super) tx: SyncSender<Vec<LinkMsg>>,
     /// Messages of the read in progress, not yet shipped.
     held: Vec<LinkMsg>,
+    /// Emptied batches the consumer handed back, reused for the next ones.
+    spare: Receiver<Vec<LinkMsg>>,
     /// Inside a read: `send` holds instead of shipping.
     holding: bool,
     pub(super) decoder: Decoder,
@@ -42,10 +48,12 @@ impl Sink {
         blocking: bool,
         sample_clock: bool,
         floor: Option<FloorStore>,
+        spare: Receiver<Vec<LinkMsg>>,
     ) -> Sink {
         Sink {
             tx,
             held: Vec::new(),
+            spare,
             holding: false,
             decoder,
             raw,
@@ -64,9 +72,26 @@ impl Sink {
         self.last_sent_s = self.clock_s;
         if self.holding {
             self.held.push(msg);
+            if self.blocking && self.held.len() >= BLOCKING_BATCH {
+                // A replay's read gives thousands of messages: shipped in
+                // parts, the consumer takes them while they are still in
+                // the cache. Nothing is dropped on a blocking link, so the
+                // parts carry exactly what the whole batch would.
+                let next = self.fresh_batch();
+                let batch = std::mem::replace(&mut self.held, next);
+                return self.ship(batch);
+            }
             return true;
         }
-        self.ship(vec![msg])
+        let mut batch = self.fresh_batch();
+        batch.push(msg);
+        self.ship(batch)
+    }
+
+    /// An empty batch: one the consumer handed back, else a new one. Every
+    /// batch shipped takes one, so the spares never pile up.
+    fn fresh_batch(&mut self) -> Vec<LinkMsg> {
+        self.spare.try_recv().unwrap_or_default()
     }
 
     /// Hand a batch to the consumer. A live link whose consumer is behind
@@ -110,8 +135,12 @@ impl Sink {
     /// Ship what was held; false once the consumer is gone.
     pub(super) fn release(&mut self) -> bool {
         self.holding = false;
-        let batch = std::mem::take(&mut self.held);
-        batch.is_empty() || self.ship(batch)
+        if self.held.is_empty() {
+            return true;
+        }
+        let next = self.fresh_batch();
+        let batch = std::mem::replace(&mut self.held, next);
+        self.ship(batch)
     }
 
     /// Bytes that arrived at `at_s`: decoded, and everything they give
@@ -143,7 +172,13 @@ impl Sink {
         if self.sample_clock {
             // One line at a time, so each sample's counters are its own
             // (a captured line's frames count includes that line, no more).
-            for piece in bytes.split_inclusive(|&b| b == b'\n') {
+            // (The pieces of `split_inclusive` on b'\n', found by memchr's
+            // word-at-a-time search rather than byte by byte.)
+            let mut rest = bytes;
+            while !rest.is_empty() {
+                let end = memchr::memchr(b'\n', rest).map_or(rest.len(), |k| k + 1);
+                let (piece, tail) = rest.split_at(end);
+                rest = tail;
                 self.decoder.push(piece, self.clock_s);
                 if !self.flush() {
                     return false;

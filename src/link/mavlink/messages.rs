@@ -142,14 +142,35 @@ pub enum Message {
     },
 }
 
+/// `N` bytes of the payload from `o`; bytes past its end read as zero
+/// (MAVLink 2 drops trailing zeros, so a carried payload may be short).
+#[inline(always)]
+fn bytes_at<const N: usize>(p: &[u8], o: usize) -> [u8; N] {
+    match p.get(o..).and_then(|s| s.first_chunk::<N>()) {
+        Some(a) => *a,
+        None => {
+            let mut a = [0u8; N];
+            for (k, x) in a.iter_mut().enumerate() {
+                *x = p.get(o + k).copied().unwrap_or(0);
+            }
+            a
+        }
+    }
+}
+fn u8_at(p: &[u8], o: usize) -> u8 {
+    bytes_at::<1>(p, o)[0]
+}
 fn u16_at(p: &[u8], o: usize) -> u16 {
-    u16::from_le_bytes([p[o], p[o + 1]])
+    u16::from_le_bytes(bytes_at(p, o))
 }
 fn i16_at(p: &[u8], o: usize) -> i16 {
-    i16::from_le_bytes([p[o], p[o + 1]])
+    i16::from_le_bytes(bytes_at(p, o))
 }
 fn u32_at(p: &[u8], o: usize) -> u32 {
-    u32::from_le_bytes([p[o], p[o + 1], p[o + 2], p[o + 3]])
+    u32::from_le_bytes(bytes_at(p, o))
+}
+fn u64_at(p: &[u8], o: usize) -> u64 {
+    u64::from_le_bytes(bytes_at(p, o))
 }
 fn f32_at(p: &[u8], o: usize) -> f32 {
     f32::from_bits(u32_at(p, o))
@@ -167,18 +188,26 @@ impl Message {
         if p.len() < info.full_len {
             return None;
         }
+        Message::decode_carried(id, p)
+    }
+
+    /// Decode a payload as it was carried, straight from the frame: bytes
+    /// past its end read as zero (what MAVLink 2's truncation of trailing
+    /// zeros means), so the framer needs no zero-filled copy. `None` for
+    /// an id outside the subset.
+    pub fn decode_carried(id: u32, p: &[u8]) -> Option<Message> {
         Some(match id {
             0 => Message::Heartbeat {
                 custom_mode: u32_at(p, 0),
-                mav_type: p[4],
-                autopilot: p[5],
-                base_mode: p[6],
-                system_status: p[7],
+                mav_type: u8_at(p, 4),
+                autopilot: u8_at(p, 5),
+                base_mode: u8_at(p, 6),
+                system_status: u8_at(p, 7),
             },
             1 => Message::SysStatus {
                 voltage_battery_mv: u16_at(p, 14),
                 current_battery_ca: i16_at(p, 16),
-                battery_remaining_pct: p[30] as i8,
+                battery_remaining_pct: u8_at(p, 30) as i8,
             },
             26 => Message::ScaledImu {
                 time_boot_ms: u32_at(p, 0),
@@ -201,7 +230,7 @@ impl Message {
                 vel_m_s: f32x3(p, 16),
             },
             105 => Message::HighresImu {
-                time_usec: u64::from_le_bytes([p[0], p[1], p[2], p[3], p[4], p[5], p[6], p[7]]),
+                time_usec: u64_at(p, 0),
                 acc_m_s2: f32x3(p, 8),
                 gyro_rad_s: f32x3(p, 20),
             },
@@ -212,8 +241,8 @@ impl Message {
                 }
                 Message::BatteryStatus {
                     voltages_mv: v,
-                    id: p[32],
-                    battery_remaining_pct: p[35] as i8,
+                    id: u8_at(p, 32),
+                    battery_remaining_pct: u8_at(p, 35) as i8,
                 }
             }
             _ => return None,

@@ -46,6 +46,31 @@ fn crc_check_value() {
     // CRC catalogue, CRC-16/MCRF4XX: check value of "123456789" is 0x6F91
     // (docs/references.md). Our checksum appends CRC_EXTRA, so compare the plain CRC.
     assert_eq!(X25.checksum(b"123456789"), 0x6F91);
+    // The same through the frame checksum: "12345678" with '9' as the
+    // trailing CRC_EXTRA byte is the catalogue's "123456789".
+    assert_eq!(checksum(b"12345678", b'9'), 0x6F91);
+    // And through the crc crate's plain one-lane table.
+    let plain = crc::Crc::<u16>::new(&crc::CRC_16_MCRF4XX);
+    assert_eq!(plain.checksum(b"123456789"), 0x6F91);
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(512))]
+    /// The sliced frame checksum (16-lane table, tails in blocks of 8, 4
+    /// and 2) agrees with the crc crate's one-lane CRC-16/MCRF4XX, the
+    /// byte-at-a-time table the decoder used before, on any bytes of any
+    /// length (every block and tail size below 300 bytes).
+    #[test]
+    fn sliced_checksum_matches_the_one_lane_table(
+        bytes in proptest::collection::vec(any::<u8>(), 0..300),
+        extra in any::<u8>(),
+    ) {
+        let plain = crc::Crc::<u16>::new(&crc::CRC_16_MCRF4XX);
+        let mut d = plain.digest();
+        d.update(&bytes);
+        d.update(&[extra]);
+        prop_assert_eq!(checksum(&bytes, extra), d.finalize());
+    }
 }
 
 #[test]
@@ -527,4 +552,76 @@ fn signatures_are_held_to_the_saved_floor_and_the_new_stream_window() {
     assert_eq!((d.counters().frames, d.counters().rejected), (0, 2));
     d.push(&frame(0, wall + 200));
     assert_eq!(d.counters().frames, 1);
+}
+
+proptest! {
+    #![proptest_config(ProptestConfig::with_cases(256))]
+    /// The quaternion check hands back exactly nalgebra's
+    /// `UnitQuaternion::from_quaternion` (the reference library's
+    /// normalisation) for any quaternion it accepts, and refuses those
+    /// more than 10 % off unit length.
+    #[test]
+    fn unit_quaternion_is_nalgebras_normalisation(
+        w in -1.2..1.2f64, x in -1.2..1.2f64, y in -1.2..1.2f64, z in -1.2..1.2f64,
+    ) {
+        let q = nalgebra::Quaternion::new(w, x, y, z);
+        let n = q.norm();
+        match unit_quaternion([w, x, y, z]) {
+            Some(u) => {
+                prop_assert!((n - 1.0).abs() <= 0.1);
+                let want = UnitQuaternion::from_quaternion(q);
+                prop_assert_eq!(u.coords.as_slice(), want.coords.as_slice());
+            }
+            None => prop_assert!((n - 1.0).abs() > 0.1),
+        }
+    }
+}
+
+#[test]
+fn bytes_read_in_place_give_the_same_frames_at_any_split() {
+    // The pymavlink reference frames (docs/references.md) between noise, a
+    // stray start byte, a frame of an unknown id and a cut frame: pushed
+    // whole, then in two pieces cut at every byte, then a byte at a time,
+    // the frames and every counter agree, and the decoder never holds more
+    // than its bound between pushes.
+    let mut stream = Vec::new();
+    for (k, hex) in [REF_V1_ATTITUDE, REF_V2_ATTQ, REF_V2_HEARTBEAT]
+        .iter()
+        .cycle()
+        .take(9)
+        .enumerate()
+    {
+        stream.extend_from_slice(&[0x00, 0x55, STX_V2, 0x03][..k % 4]);
+        stream.extend_from_slice(&unhex(hex));
+        if k == 4 {
+            // An unknown id (9999), well formed, then a cut reference frame.
+            stream.extend_from_slice(&[STX_V2, 2, 0, 0, 7, 1, 1, 0x0f, 0x27, 0, 1, 2, 0xaa, 0xbb]);
+            stream.extend_from_slice(&unhex(REF_V2_ATTQ)[..20]);
+        }
+    }
+    let run = |pieces: &[&[u8]]| {
+        let mut d = MavDecoder::new(MavConfig::default());
+        let mut frames = Vec::new();
+        for p in pieces {
+            d.push(p);
+            assert!(d.buffered() <= MAX_BUFFERED);
+            while let Some(f) = d.pop() {
+                frames.push(f);
+            }
+        }
+        d.finish();
+        while let Some(f) = d.pop() {
+            frames.push(f);
+        }
+        (frames, d.counters())
+    };
+    let whole = run(&[&stream]);
+    assert_eq!(whole.0.len(), 9, "{:?}", whole.1);
+    assert_eq!(whole.1.unknown, 1);
+    for cut in 0..=stream.len() {
+        let (a, b) = stream.split_at(cut);
+        assert_eq!(run(&[a, b]), whole, "cut at {cut}");
+    }
+    let bytes: Vec<&[u8]> = stream.chunks(1).collect();
+    assert_eq!(run(&bytes), whole);
 }

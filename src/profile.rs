@@ -352,6 +352,43 @@ mod tests {
         assert_relative_eq!(rod.capacity_n(0.3), 1507.2, epsilon = 0.1);
     }
 
+    /// Two nodes closer than a nanometre are one node twice: refused at the
+    /// second one's `pos_m`, naming the first, whichever side of a grid
+    /// cell of the search they fall (here 0.1 nm either side of a cell
+    /// edge at 1 um); nodes a micrometre apart are two nodes (the rule of
+    /// this loader; common practice, no published source).
+    #[test]
+    fn a_node_at_another_nodes_position_is_refused() {
+        let text = include_str!("../profiles/prism-explicit.toml");
+        let moved = |n1: &str, n2: &str| {
+            text.replace("pos_m = [0.16, 0.0, 0.11]", n1)
+                .replace("pos_m = [-0.08, 0.13856, 0.11]", n2)
+        };
+        let e = Profile::parse(
+            &moved(
+                "pos_m = [0.0000009999, 0.0, 0.11]",
+                "pos_m = [0.0000010001, 0.0, 0.11]",
+            ),
+            "prism.toml",
+        )
+        .unwrap_err();
+        assert_eq!(e.key(), "cage.node[2].pos_m", "{e}");
+        assert!(e.to_string().contains("the position of N1"), "{e}");
+        // A micrometre apart: not the same node (the profile may still be
+        // refused for other reasons, but not for this one).
+        let far = Profile::parse(
+            &moved(
+                "pos_m = [0.000001, 0.0, 0.11]",
+                "pos_m = [0.000002, 0.0, 0.11]",
+            ),
+            "prism.toml",
+        );
+        match far {
+            Ok(p) => assert_eq!(p.cage.points_m().len(), 6),
+            Err(e) => assert!(!e.to_string().contains("the position of"), "{e}"),
+        }
+    }
+
     #[test]
     fn missing_fields_are_named_with_their_table() {
         let e = Profile::parse("", "empty.toml").unwrap_err();

@@ -394,6 +394,7 @@ fn cage_shape(t: &Table) -> Result<CageShape, ProfileError> {
     }
     let mut nodes: Vec<NodeSpec> = Vec::new();
     let mut index: HashMap<String, usize> = HashMap::new();
+    let mut near = Coincident::default();
     for n in t.tables("node", NODE_KEYS)? {
         let id = n
             .text("id")?
@@ -417,7 +418,7 @@ fn cage_shape(t: &Table) -> Result<CageShape, ProfileError> {
         let pos_m = n
             .vec3("pos_m", Bound::within(-MAX_COORD_M, MAX_COORD_M, "m"))?
             .ok_or_else(|| n.missing("pos_m", "three numbers [x, y, z] in metres, cage frame"))?;
-        if let Some(other) = nodes.iter().find(|o| dist(o.pos_m, pos_m) < 1e-9) {
+        if let Some(other) = near.first_within(&nodes, pos_m) {
             return Err(t.doc().invalid_key(
                 &n.path("pos_m"),
                 "a position no other node has",
@@ -425,6 +426,7 @@ fn cage_shape(t: &Table) -> Result<CageShape, ProfileError> {
             ));
         }
         index.insert(id.clone(), nodes.len());
+        near.add(pos_m, nodes.len());
         let tag = n.text("tag")?.map(|s| s.into_inner());
         nodes.push(NodeSpec { id, pos_m, tag });
     }
@@ -553,6 +555,53 @@ fn payload_nodes(t: &Table, shape: &CageShape) -> Result<Vec<String>, ProfileErr
         out.push(p.clone());
     }
     Ok(out)
+}
+
+/// Distance under which two nodes count as one, metres.
+const SAME_POSITION_M: f64 = 1e-9;
+
+/// Nodes by grid cell, to find a node at (nearly) the same position
+/// without comparing every pair: two positions closer than
+/// [`SAME_POSITION_M`] lie in the same or neighbouring cells, the cells
+/// being larger than that distance.
+#[derive(Default)]
+struct Coincident {
+    cells: HashMap<[i64; 3], Vec<usize>>,
+}
+
+impl Coincident {
+    /// Cell edge, metres (any size above [`SAME_POSITION_M`] is right; this
+    /// one keeps the cell indices small for the largest coordinates).
+    const CELL_M: f64 = 1e-6;
+
+    fn cell(p: [f64; 3]) -> [i64; 3] {
+        p.map(|x| (x / Self::CELL_M).floor() as i64)
+    }
+
+    fn add(&mut self, p: [f64; 3], i: usize) {
+        self.cells.entry(Self::cell(p)).or_default().push(i);
+    }
+
+    /// The first node (in file order) within [`SAME_POSITION_M`] of `p`.
+    fn first_within<'a>(&self, nodes: &'a [NodeSpec], p: [f64; 3]) -> Option<&'a NodeSpec> {
+        let [x, y, z] = Self::cell(p);
+        let mut best: Option<usize> = None;
+        for dx in -1..=1 {
+            for dy in -1..=1 {
+                for dz in -1..=1 {
+                    let Some(list) = self.cells.get(&[x + dx, y + dy, z + dz]) else {
+                        continue;
+                    };
+                    for &i in list {
+                        if dist(nodes[i].pos_m, p) < SAME_POSITION_M && best.is_none_or(|b| i < b) {
+                            best = Some(i);
+                        }
+                    }
+                }
+            }
+        }
+        best.map(|i| &nodes[i])
+    }
 }
 
 fn dist(a: [f64; 3], b: [f64; 3]) -> f64 {

@@ -216,6 +216,20 @@ pub enum RestState {
     Moving,
 }
 
+impl RestState {
+    /// The state from whether the vehicle is within tolerance of a face and
+    /// whether it has been steady for the dwell time.
+    fn of(resting: bool, steady: bool) -> RestState {
+        if resting {
+            RestState::Resting
+        } else if steady {
+            RestState::Propped
+        } else {
+            RestState::Moving
+        }
+    }
+}
+
 /// The detector's answer for one sample.
 #[derive(Debug, Clone, Copy, PartialEq, Serialize)]
 pub struct RestStatus {
@@ -376,13 +390,7 @@ impl RestDetector {
         };
         self.resting = steady && self.within(cage, face, best, &g, limit);
         RestMark {
-            state: if self.resting {
-                RestState::Resting
-            } else if steady {
-                RestState::Propped
-            } else {
-                RestState::Moving
-            },
+            state: RestState::of(self.resting, steady),
             face,
             gravity_body: g,
         }
@@ -719,13 +727,7 @@ mod tests {
             };
             self.resting = steady && error_deg <= limit;
             RestStatus {
-                state: if self.resting {
-                    RestState::Resting
-                } else if steady {
-                    RestState::Propped
-                } else {
-                    RestState::Moving
-                },
+                state: RestState::of(self.resting, steady),
                 face,
                 error_deg,
                 fit,

@@ -332,7 +332,7 @@ impl RestDetector {
 
     /// Feed one attitude sample taken at `t_s` seconds; the angles are left
     /// for [`RestMark::status`]. Runs for every live sample, so faces are
-    /// compared by dot products and the limits by [`AngleLimit`]: no arc
+    /// compared by dot products and the limits by `AngleLimit`: no arc
     /// tangent unless the face held by the hysteresis is not the best one
     /// or a comparison is too close to call without it.
     pub fn advance(&mut self, cage: &Cage, t_s: f64, q: &UnitQuaternion<f64>) -> RestMark {

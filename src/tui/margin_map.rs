@@ -248,15 +248,11 @@ pub fn draw(shared: &Shared, frame: &mut Frame, area: Rect) {
         ..NetMarks::default()
     };
     frame.render_widget(
-        NetView {
-            cage: &shared.cage,
-            net: &shared.net,
-            marks: &marks,
-            theme: t,
-            block: Block::default()
-                .borders(Borders::ALL)
-                .title(format!(" Margin map on {}, m/s ", m.table.surface)),
-        },
+        NetView::framed(
+            shared,
+            &marks,
+            format!(" Margin map on {}, m/s ", m.table.surface),
+        ),
         net_area,
     );
     let mut lines = legend(shared, m, long);

@@ -13,7 +13,7 @@ use ratatui::style::{Color, Modifier, Style};
 use ratatui::symbols::Marker;
 use ratatui::text::{Line, Span};
 use ratatui::widgets::canvas::{Canvas, Context, Line as CanvasLine, Points};
-use ratatui::widgets::{Block, Widget};
+use ratatui::widgets::{Block, Borders, Widget};
 
 /// What to mark on the net.
 #[derive(Debug, Clone, Default)]
@@ -78,6 +78,21 @@ pub struct NetView<'a> {
     pub theme: &'a Theme,
     /// Frame around the canvas.
     pub block: Block<'a>,
+}
+
+impl<'a> NetView<'a> {
+    /// The net of the watched vehicle's cage in the screens' theme, with
+    /// `marks`, in a bordered frame titled `title` (every screen that
+    /// draws the net draws it this way).
+    pub fn framed(shared: &'a Shared, marks: &'a NetMarks, title: impl Into<Line<'a>>) -> Self {
+        NetView {
+            cage: &shared.cage,
+            net: &shared.net,
+            marks,
+            theme: &shared.theme,
+            block: Block::default().borders(Borders::ALL).title(title),
+        }
+    }
 }
 
 /// Bounds padded so the net keeps its shape: a terminal cell is about twice

@@ -411,15 +411,11 @@ impl Component for RightingScreen {
                     .areas(net_area);
             self.draw_vehicle(shared, frame, lies);
             frame.render_widget(
-                NetView {
-                    cage: &shared.cage,
-                    net: &shared.net,
-                    marks: &marks,
-                    theme: t,
-                    block: Block::default()
-                        .borders(Borders::ALL)
-                        .title(" Net: numbered hinges are the planned rolls "),
-                },
+                NetView::framed(
+                    shared,
+                    &marks,
+                    " Net: numbered hinges are the planned rolls ",
+                ),
                 net_area,
             );
             side

@@ -66,15 +66,7 @@ impl Component for WatchScreen {
             Layout::horizontal([Constraint::Min(20), Constraint::Length(SIDE_W)]).areas(area);
         let marks = NetMarks::live(shared);
         frame.render_widget(
-            NetView {
-                cage: &shared.cage,
-                net: &shared.net,
-                marks: &marks,
-                theme: &shared.theme,
-                block: Block::default()
-                    .borders(Borders::ALL)
-                    .title(Line::from(" Net of the cage, seen from outside ")),
-            },
+            NetView::framed(shared, &marks, " Net of the cage, seen from outside "),
             net_area,
         );
         let [lies, attitude, link, legend] = Layout::vertical([

@@ -8,7 +8,8 @@
 //! - [`describe`]: a move in the vehicle's own terms (which side tips).
 //! - [`feasibility`]: the quasi-static moment check and the rotor commands.
 //! - [`plan`]: the graph of resting faces and feasible moves, the recovery
-//!   map (multi-goal Dijkstra) and single plans (A*).
+//!   map (multi-goal Dijkstra) and single plans (A*), checking a move only
+//!   when a search reaches it.
 //! - [`stepper`]: the state machine that walks the operator through a plan.
 
 pub mod contact;
@@ -26,7 +27,7 @@ use crate::cage::{Cage, CageError};
 use crate::profile::Profile;
 pub use feasibility::{Feasibility, Limits, RotorCommands, ScheduleEntry};
 pub use moves::{MoveKind, Roll};
-pub use plan::{Plan, Step};
+pub use plan::{MapDraft, Plan, Step};
 
 /// A commanded roll and what follows from it: the passive rolls until the
 /// vehicle settles, and whether the rotors can make it.
@@ -39,11 +40,10 @@ pub struct Move {
     pub settle: Vec<Roll>,
     /// Face the vehicle ends on.
     pub settles_on: usize,
-    /// Quasi-static verdict on the commanded roll. In a [`RightingModel`]
-    /// its `commands` are left out and `feasible` says only that the check
-    /// passed: [`RightingModel::commands`] and [`RightingModel::feasible`]
-    /// give the whole answer.
-    pub feasibility: Feasibility,
+    /// Quasi-static verdict on the commanded roll, without the commands,
+    /// checked on first use ([`RightingModel::check`]): a plan needs the
+    /// verdicts of only the moves that could lower some face's cost.
+    check: std::sync::OnceLock<Feasibility>,
     /// The rotor commands, worked out on first use: a move's check costs
     /// a fraction of its commands, and a plan takes few of the moves.
     commands: std::sync::OnceLock<Option<RotorCommands>>,
@@ -64,13 +64,19 @@ pub struct RightingModel {
     pub cage: Cage,
     /// Rotors, friction and margin.
     pub limits: Limits,
-    /// Every move from every resting face (feasible or not). Moves that
-    /// would only fall back to where they started are left out.
+    /// Every move from every resting face (feasible or not), ordered by the
+    /// face it starts from. Moves that would only fall back to where they
+    /// started are left out.
     pub moves: Vec<Move>,
     /// Take-off face indices.
     pub takeoff: Vec<usize>,
     /// Cost multiplier for vertex pivots (>= 1, so the heuristic stays admissible).
     pub vertex_pivot_weight: f64,
+    /// The moves that end on each face (indices into `moves`), for the
+    /// planner's search back from the goals.
+    into: Vec<Vec<usize>>,
+    /// Where each face's moves start in `moves` (one more entry than faces).
+    out_start: Vec<usize>,
 }
 
 impl RightingModel {
@@ -109,14 +115,27 @@ impl RightingModel {
             if settles_on == roll.from {
                 continue;
             }
-            let feasibility = feasibility::assess_check(&cage, &roll, &limits);
             moves.push(Move {
                 roll,
                 settle,
                 settles_on,
-                feasibility,
+                check: std::sync::OnceLock::new(),
                 commands: std::sync::OnceLock::new(),
             });
+        }
+        debug_assert!(moves.windows(2).all(|w| w[0].roll.from <= w[1].roll.from));
+        let faces = cage.faces.len();
+        let mut into = vec![Vec::new(); faces];
+        let mut out_start = vec![0; faces + 1];
+        for (k, m) in moves.iter().enumerate() {
+            if let Some(list) = into.get_mut(m.settles_on) {
+                list.push(k);
+            }
+            out_start[m.roll.from + 1] = k + 1;
+        }
+        // Faces without moves start where the previous face's moves end.
+        for f in 1..=faces {
+            out_start[f] = out_start[f].max(out_start[f - 1]);
         }
         RightingModel {
             cage,
@@ -124,7 +143,31 @@ impl RightingModel {
             moves,
             takeoff,
             vertex_pivot_weight: vertex_pivot_weight.max(1.0),
+            into,
+            out_start,
         }
+    }
+
+    /// The quasi-static verdict on move `k`, without its commands (checked
+    /// on first use): `feasible` says only that the check passed;
+    /// [`RightingModel::feasible`] also asks for the commands.
+    ///
+    /// Panics when `k` is not an index into `moves`, as indexing does.
+    pub fn check(&self, k: usize) -> &Feasibility {
+        let m = &self.moves[k];
+        m.check
+            .get_or_init(|| feasibility::assess_check(&self.cage, &m.roll, &self.limits))
+    }
+
+    /// The moves that start on `face` (indices into `moves`).
+    pub fn moves_from(&self, face: usize) -> std::ops::Range<usize> {
+        let at = |f: usize| self.out_start.get(f).copied().unwrap_or(self.moves.len());
+        at(face)..at(face + 1)
+    }
+
+    /// The moves that end on `face` (indices into `moves`).
+    pub fn moves_into(&self, face: usize) -> &[usize] {
+        self.into.get(face).map_or(&[], Vec::as_slice)
     }
 
     /// Planning cost of a move: its total rotation, weighted for vertex pivots.
@@ -141,7 +184,19 @@ impl RightingModel {
     /// it, which makes it infeasible (fail safe).
     pub fn commands(&self, k: usize) -> Option<&RotorCommands> {
         let m = self.moves.get(k)?;
-        if !m.feasibility.feasible {
+        if m.check.get().is_none() {
+            // Not checked yet: check and work out the commands from one
+            // table of angle rows. (Another thread may have set either
+            // first, with the same answer.)
+            let (check, commands) =
+                feasibility::check_then_commands(&self.cage, &m.roll, &self.limits);
+            let passed = check.feasible;
+            let _ = m.check.set(check);
+            if passed {
+                let _ = m.commands.set(commands);
+            }
+        }
+        if !self.check(k).feasible {
             return None;
         }
         m.commands
@@ -158,8 +213,7 @@ impl RightingModel {
     /// Whether move `k` may be planned with: the check passes and its
     /// commands, where already worked out, exist.
     fn plannable(&self, k: usize) -> bool {
-        let m = &self.moves[k];
-        m.feasibility.feasible && m.commands.get().is_none_or(|c| c.is_some())
+        self.check(k).feasible && self.moves[k].commands.get().is_none_or(|c| c.is_some())
     }
 
     /// Where the vehicle ends up if left lying on `face`.

@@ -112,15 +112,15 @@ struct Report<'a> {
     moves: Vec<MoveJson<'a>>,
 }
 
+/// The report, with the moves given (the JSON writes its moves itself:
+/// [`write_report_json`]).
 fn report<'a>(
     p: &'a Profile,
     c: &'a Cage,
     ss: &'a SelfStress,
-    model: &RightingModel,
+    moves: Vec<MoveJson<'a>>,
 ) -> Report<'a> {
     let nid = |i: usize| c.nodes[i].id.as_str();
-    let fid = |i: usize| c.faces[i].id.as_str();
-    let rotors = &model.limits.rotors;
     Report {
         schema: "cagehand.cage/1",
         vehicle: VehicleJson {
@@ -172,48 +172,91 @@ fn report<'a>(
             prestress_ok: ss.prestress_ok,
             message: &ss.message,
         },
-        moves: model
-            .moves
-            .iter()
-            .enumerate()
-            .map(|(k, m)| MoveJson {
-                from: fid(m.roll.from),
-                to: fid(m.roll.to),
-                kind: m.roll.kind,
-                pivot: m.roll.pivot.iter().map(|&i| nid(i)).collect(),
-                angle_deg: m.roll.angle_deg,
-                feasible: model.feasible(k),
-                thrust_fraction: m.feasibility.thrust_fraction,
-                settles_on: fid(m.settles_on),
-                rotors: model.commands(k).map(|c| rotors_json(rotors, &c.thrust_n)),
-                rotor_schedule: model.commands(k).and_then(|c| schedule_json(rotors, c)),
-            })
-            .collect(),
+        moves,
     }
 }
 
-/// Work out the rotor commands of every move the check passes (the JSON
-/// report lists them all), spread over the machine's cores: each move's
-/// commands are independent, and the model keeps each the first time it
-/// is asked, from whichever thread.
-fn commands_of_every_move(model: &RightingModel) {
-    let threads = std::thread::available_parallelism()
-        .map_or(1, |n| n.get())
-        .clamp(1, 8);
-    let next = std::sync::atomic::AtomicUsize::new(0);
-    std::thread::scope(|scope| {
-        for _ in 0..threads {
-            scope.spawn(|| {
-                loop {
-                    let k = next.fetch_add(1, std::sync::atomic::Ordering::Relaxed);
-                    if k >= model.moves.len() {
-                        break;
-                    }
-                    model.commands(k);
-                }
-            });
+/// Move `k` as the JSON report lists it (its commands worked out if need be).
+fn move_json<'a>(c: &'a Cage, model: &RightingModel, k: usize) -> MoveJson<'a> {
+    let nid = |i: usize| c.nodes[i].id.as_str();
+    let fid = |i: usize| c.faces[i].id.as_str();
+    let rotors = &model.limits.rotors;
+    let m = &model.moves[k];
+    let commands = model.commands(k);
+    MoveJson {
+        from: fid(m.roll.from),
+        to: fid(m.roll.to),
+        kind: m.roll.kind,
+        pivot: m.roll.pivot.iter().map(|&i| nid(i)).collect(),
+        angle_deg: m.roll.angle_deg,
+        feasible: commands.is_some(),
+        thrust_fraction: model.check(k).thrust_fraction,
+        settles_on: fid(m.settles_on),
+        rotors: commands.map(|c| rotors_json(rotors, &c.thrust_n)),
+        rotor_schedule: commands.and_then(|c| schedule_json(rotors, c)),
+    }
+}
+
+/// Moves checked, worked out and serialised at a time, on every core.
+const MOVES_PER_BLOCK: usize = 512;
+
+/// Write the JSON report `r` (its list of moves empty) with every move of
+/// `model` in that list: the moves are most of the report of a large cage
+/// (each feasible move's rotor commands), so they are checked, worked out
+/// and serialised on every core, a block at a time, and written in order.
+/// The bytes are those `serde_json` writes for the whole report at once.
+fn write_report_json(
+    out: impl Write,
+    r: &Report,
+    c: &Cage,
+    model: &RightingModel,
+) -> anyhow::Result<()> {
+    use rayon::prelude::*;
+    let head = serde_json::to_vec_pretty(r)?;
+    let mut w = std::io::BufWriter::with_capacity(1 << 16, out);
+    // The report ends with its moves: `"moves": []` and the closing brace.
+    let open = match head.strip_suffix(b"[]\n}") {
+        Some(open) if !model.moves.is_empty() => open,
+        _ => {
+            w.write_all(&head)?;
+            writeln!(w)?;
+            w.flush()?;
+            return Ok(());
         }
-    });
+    };
+    w.write_all(open)?;
+    w.write_all(b"[\n")?;
+    let ks: Vec<usize> = (0..model.moves.len()).collect();
+    for block in ks.chunks(MOVES_PER_BLOCK) {
+        let texts: Vec<Vec<u8>> = block
+            .par_iter()
+            .map(|&k| serde_json::to_vec_pretty(&move_json(c, model, k)).map(|js| nested(&js)))
+            .collect::<Result<_, _>>()?;
+        for (i, text) in texts.iter().enumerate() {
+            if block[i] > 0 {
+                w.write_all(b",\n")?;
+            }
+            w.write_all(text)?;
+        }
+    }
+    w.write_all(b"\n  ]\n}\n")?;
+    w.flush()?;
+    Ok(())
+}
+
+/// A pretty-printed value as it stands two levels down (in the report's
+/// list of moves): every line indented by four more spaces. A line break
+/// within a JSON string is escaped, so every newline byte is layout.
+fn nested(js: &[u8]) -> Vec<u8> {
+    let mut out = Vec::with_capacity(js.len() + js.len() / 4);
+    out.extend_from_slice(b"    ");
+    for (i, line) in js.split(|&b| b == b'\n').enumerate() {
+        if i > 0 {
+            out.extend_from_slice(b"\n    ");
+        }
+        out.extend_from_slice(line);
+    }
+    out
 }
 
 /// Run the cage command.
@@ -226,13 +269,10 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let ss = &l.statics.self_stress;
     let model = RightingModel::new(&l.profile, &l.cage)
         .map_err(|e| super::bad_input(format!("{}: {e}", l.profile.source)))?;
-    if args.json {
-        commands_of_every_move(&model);
-    }
-    let r = report(&l.profile, &l.cage, ss, &model);
+    let r = report(&l.profile, &l.cage, ss, Vec::new());
     let mut out = std::io::stdout().lock();
     if args.json {
-        super::write_json(&mut out, &r)?;
+        write_report_json(&mut out, &r, &l.cage, &model)?;
         return Ok(ExitCode::SUCCESS);
     }
     let t = cagehand::text::terminal;
@@ -304,4 +344,51 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         writeln!(out, "{line}")?;
     }
     Ok(ExitCode::SUCCESS)
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The report written a block of moves at a time is byte for byte what
+    /// `serde_json` writes for the whole report at once (the reference),
+    /// on the demo, on a cage with more moves than a block, and with no
+    /// moves at all.
+    #[test]
+    fn the_report_written_in_blocks_is_serde_jsons_own() {
+        let demo = cagehand::vehicle::demo().expect("demo");
+        let geodesic = cagehand::vehicle::load(
+            cagehand::geodesic::profile_toml_with(1, cagehand::geodesic::Rods::Hub).as_bytes(),
+            "geodesic-1",
+        )
+        .expect("geodesic");
+        for l in [&demo, &geodesic] {
+            let model = RightingModel::new(&l.profile, &l.cage).expect("model");
+            let ss = &l.statics.self_stress;
+            let moves = (0..model.moves.len())
+                .map(|k| move_json(&l.cage, &model, k))
+                .collect();
+            let whole = report(&l.profile, &l.cage, ss, moves);
+            let mut want = serde_json::to_vec_pretty(&whole).expect("serialises");
+            want.push(b'\n');
+            let mut got = Vec::new();
+            let r = report(&l.profile, &l.cage, ss, Vec::new());
+            write_report_json(&mut got, &r, &l.cage, &model).expect("writes");
+            assert_eq!(
+                String::from_utf8_lossy(&got),
+                String::from_utf8_lossy(&want)
+            );
+            if l.profile.vehicle.id.starts_with("geodesic") {
+                assert!(model.moves.len() > MOVES_PER_BLOCK, "{}", model.moves.len());
+            }
+            // No moves: the report as serde_json writes it.
+            let mut none = model.clone();
+            none.moves.clear();
+            let mut got = Vec::new();
+            write_report_json(&mut got, &r, &l.cage, &none).expect("writes");
+            let mut want = serde_json::to_vec_pretty(&r).expect("serialises");
+            want.push(b'\n');
+            assert_eq!(got, want);
+        }
+    }
 }

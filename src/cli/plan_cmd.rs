@@ -12,6 +12,7 @@ use cagehand::cage::Cage;
 use cagehand::rest::{fit_face, resting_attitude};
 use cagehand::righting::describe::step_words;
 use cagehand::righting::{MoveKind, Plan, RightingModel, Step};
+use rayon::prelude::*;
 use serde::Serialize;
 use std::io::Write;
 use std::process::ExitCode;
@@ -153,6 +154,21 @@ fn tips(model: &RightingModel, s: &Step) -> String {
         &s.start,
         &s.target,
     )
+}
+
+/// Every plan's text, written on every core (a map of a large cage is
+/// thousands of plans), in the plans' order.
+fn rendered(
+    plans: &[Plan],
+    write: impl Fn(&mut Vec<u8>, &Plan) -> std::io::Result<()> + Sync,
+) -> std::io::Result<Vec<Vec<u8>>> {
+    plans
+        .par_iter()
+        .map(|p| {
+            let mut buf = Vec::new();
+            write(&mut buf, p).map(|()| buf)
+        })
+        .collect()
 }
 
 /// Parse a face id such as `F7` (case-insensitive).
@@ -461,19 +477,28 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let model = RightingModel::new(&l.profile, &l.cage)
         .map_err(|e| bad_input(format!("{}: {e}", l.profile.source)))?;
     let cage = &model.cage;
-    let mut out = std::io::stdout().lock();
+    // A map of a large cage is megabytes of lines: written through a
+    // buffer, not a system call per line; flushed before returning, so a
+    // write error is still reported.
+    let mut out = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
     if args.all {
-        let plans = model.recovery_map();
+        // The map's moves' rotor commands are independent of each other:
+        // worked out on every core, then the map is assembled from them.
+        let draft = model.map_draft();
+        draft.moves().par_iter().for_each(|&k| {
+            model.commands(k);
+        });
+        let plans = model.recovery_map_from(draft);
         if args.json {
             let js = MapJson {
                 schema: SCHEMA,
-                faces: plans.iter().map(|p| plan_json(&model, p)).collect(),
+                faces: plans.par_iter().map(|p| plan_json(&model, p)).collect(),
             };
             super::write_json(&mut out, &js)?;
         } else if args.format == Format::Md {
             write_sheet_header(&mut out, &model, &l.profile.vehicle.name)?;
-            for p in &plans {
-                write_sheet(&mut out, &model, p)?;
+            for text in rendered(&plans, |buf, p| write_sheet(buf, &model, p))? {
+                out.write_all(&text)?;
             }
             write_caution(&mut out)?;
         } else {
@@ -483,12 +508,15 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 cagehand::text::terminal(&l.profile.vehicle.name),
                 cage.faces.len()
             )?;
-            for p in &plans {
-                write_plan(&mut out, &model, p)?;
-                writeln!(out)?;
+            for text in rendered(&plans, |buf, p| {
+                write_plan(buf, &model, p)?;
+                writeln!(buf)
+            })? {
+                out.write_all(&text)?;
             }
             write_caution(&mut out)?;
         }
+        out.flush()?;
         return Ok(ExitCode::SUCCESS);
     }
     let (face, attitude, fit_note) = match (&args.from, &args.attitude) {
@@ -540,5 +568,6 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         }
         write_caution(&mut out)?;
     }
+    out.flush()?;
     Ok(ExitCode::SUCCESS)
 }

@@ -100,6 +100,16 @@ fn build(toml: &str) -> (Profile, Cage, RightingModel) {
     (p, c, m)
 }
 
+/// The model's check of one of its moves (given by reference).
+fn verdict<'a>(m: &'a RightingModel, mv: &Move) -> &'a Feasibility {
+    let k = m
+        .moves
+        .iter()
+        .position(|x| std::ptr::eq(x, mv))
+        .expect("a move of this model");
+    m.check(k)
+}
+
 fn face_with_normal(c: &Cage, n: [f64; 3]) -> usize {
     let n = nalgebra::Vector3::from(n);
     (0..c.faces.len())
@@ -170,7 +180,7 @@ fn cube_with_one_rotor_needs_m_g_d_over_the_lever_arm() {
         .expect("bottom -> +x roll");
     let mg = 1.0 * STANDARD_GRAVITY_M_S2;
     let want = mg * 0.1 / (8.0 * 0.2);
-    let f = &mv.feasibility;
+    let f = verdict(&m, mv);
     assert_relative_eq!(f.thrust_fraction.unwrap(), want, epsilon = 1e-9);
     assert_relative_eq!(f.worst_angle_deg, 0.0, epsilon = 1e-9);
     assert_relative_eq!(f.needed_nm, mg * 0.1, epsilon = 1e-9);
@@ -186,19 +196,19 @@ fn cube_with_one_rotor_needs_m_g_d_over_the_lever_arm() {
         .iter()
         .find(|x| x.roll.from == bottom && x.roll.to == other)
         .unwrap();
-    assert!(!back.feasibility.feasible);
-    assert_eq!(back.feasibility.thrust_fraction, None);
+    assert!(!verdict(&m, back).feasible);
+    assert_eq!(verdict(&m, back).thrust_fraction, None);
     // Feasible exactly when max thrust >= margin m g / 2.
     let edge_n = 1.2 * mg / 2.0;
     let (_, lo, b, s) = one_rotor_cube(edge_n * 0.99, 1.2);
     let (_, hi, _, _) = one_rotor_cube(edge_n * 1.01, 1.2);
     let find = |m: &RightingModel| {
-        m.moves
+        let mv = m
+            .moves
             .iter()
             .find(|x| x.roll.from == b && x.roll.to == s)
-            .unwrap()
-            .feasibility
-            .feasible
+            .unwrap();
+        verdict(m, mv).feasible
     };
     assert!(!find(&lo));
     assert!(find(&hi));
@@ -276,7 +286,7 @@ fn octahedron_vertex_pivot_needs_the_sideways_balance() {
     assert_relative_eq!(avail, 0.21 * w / 6f64.sqrt(), epsilon = 1e-7);
     assert_relative_eq!(rows.needed_nm / avail, 11.0 / 7.0, epsilon = 1e-7);
     // The whole pivot can only be worse than its start.
-    let f = &mv.feasibility;
+    let f = verdict(&m, mv);
     assert!(!f.feasible);
     assert!(f.thrust_fraction.is_none_or(|x| x >= 11.0 / 7.0 - 1e-7));
     assert!(f.commands.is_none());
@@ -294,7 +304,7 @@ fn no_rotors_no_feasible_moves() {
     let (p0, _, m0) = build(&explicit_toml(&cube(0.1), [0.01, 0.0, 0.02], 1.0, extra));
     assert!(p0.rotors.is_empty());
     assert!(!m0.moves.is_empty());
-    assert!(m0.moves.iter().all(|x| !x.feasibility.feasible));
+    assert!((0..m0.moves.len()).all(|k| !m0.check(k).feasible));
     // The demo cage with its rotors taken away.
     let p = Profile::demo().unwrap();
     let c = Cage::from_profile(&p).unwrap();
@@ -305,7 +315,7 @@ fn no_rotors_no_feasible_moves() {
     };
     let m = RightingModel::with_limits(c, limits, vec![0], true, 1.5);
     assert!(!m.moves.is_empty());
-    assert!(m.moves.iter().all(|x| !x.feasibility.feasible));
+    assert!((0..m.moves.len()).all(|k| !m.check(k).feasible));
     assert!(m.graph().graph.edge_count() == 0);
     let plan = m.plan(5, &resting_attitude(&m.cage, 5));
     assert!(!plan.reachable);
@@ -407,6 +417,58 @@ fn plans_are_optimal_against_exhaustive_search_and_match_dijkstra() {
         }
     }
     assert!(reached > 10, "the small cages do have routes ({reached})");
+}
+
+/// The planner checks a move only when it could lower some face's cost,
+/// yet its costs are those of the whole graph of checked moves: the
+/// recovery map and every single plan cost what Dijkstra's algorithm
+/// (Dijkstra 1959, petgraph's implementation) gives on the graph of every
+/// move checked, on the small cages, the demo and a geodesic cage; on the
+/// geodesic cage the map checks under half of the moves.
+#[test]
+fn the_planner_checks_few_moves_and_costs_what_the_whole_graph_does() {
+    let geodesic = {
+        let p = Profile::parse(&crate::geodesic::profile_toml(1), "geodesic").expect("profile");
+        let c = Cage::from_profile(&p).expect("cage");
+        RightingModel::new(&p, &c).expect("model")
+    };
+    let demo = {
+        let p = Profile::demo().expect("demo");
+        let c = Cage::from_profile(&p).expect("cage");
+        RightingModel::new(&p, &c).expect("model")
+    };
+    let mut models = small_cages();
+    models.push(demo);
+    models.push(geodesic);
+    let last = models.len() - 1;
+    for (i, m) in models.into_iter().enumerate() {
+        let whole = m.clone();
+        let to_go = whole.cost_to_go();
+        let map = m.recovery_map();
+        let checked = m.moves.iter().filter(|x| x.check.get().is_some()).count();
+        if i == last {
+            assert!(
+                checked * 2 < m.moves.len(),
+                "the map checked {checked} of {} moves",
+                m.moves.len()
+            );
+        }
+        let single = m.clone();
+        for (f, plan) in map.iter().enumerate() {
+            let start = m.settle_face(f);
+            let by_astar = single.plan(f, &resting_attitude(&single.cage, f));
+            match to_go[start] {
+                Some(d) => {
+                    assert_relative_eq!(plan.cost_deg, d, epsilon = 1e-9);
+                    assert_relative_eq!(by_astar.cost_deg, d, epsilon = 1e-9);
+                }
+                None => assert!(!plan.reachable && !by_astar.reachable),
+            }
+            // The explanation of an unreachable face is the same whichever
+            // way it was worked out.
+            assert_eq!(plan.reason, by_astar.reason, "face {f}");
+        }
+    }
 }
 
 #[test]
@@ -577,7 +639,7 @@ mod props {
             let mu = m.limits.friction_coefficient;
             let tol = 1e-6 * (1.0 + w);
             let mut checked = 0;
-            for (k, mv) in m.moves.iter().enumerate().filter(|(_, x)| x.feasibility.feasible) {
+            for (k, mv) in m.moves.iter().enumerate().filter(|(k, _)| m.check(*k).feasible) {
                 let cmd = m.commands(k).expect("moves the check passes have commands");
                 prop_assert_eq!(cmd.thrust_n.len(), m.limits.rotors.len());
                 if let Some(first) = cmd.schedule.first() {
@@ -638,9 +700,10 @@ mod props {
             let a = demo_variant(dx, dy, 0.0, scale, rev, false);
             let b = demo_variant(dx, dy, 0.0, scale * extra, rev, false);
             prop_assert_eq!(a.moves.len(), b.moves.len());
-            for (x, y) in a.moves.iter().zip(&b.moves) {
-                prop_assert!(!x.feasibility.feasible || y.feasibility.feasible);
-                if let (Some(fx), Some(fy)) = (x.feasibility.thrust_fraction, y.feasibility.thrust_fraction) {
+            for k in 0..a.moves.len() {
+                let (x, y) = (a.check(k), b.check(k));
+                prop_assert!(!x.feasible || y.feasible);
+                if let (Some(fx), Some(fy)) = (x.thrust_fraction, y.thrust_fraction) {
                     prop_assert!(fy <= fx + 1e-9);
                 }
             }
@@ -671,7 +734,7 @@ fn forward_only_rotors_rarely_roll_an_inverted_vehicle() {
             .iter()
             .filter(|x| inverted.contains(&x.roll.from) && x.roll.kind == MoveKind::Edge)
             .collect();
-        let ok = from_inv.iter().filter(|x| x.feasibility.feasible).count();
+        let ok = from_inv.iter().filter(|x| verdict(m, x).feasible).count();
         (ok, from_inv.len())
     };
     let (fwd_ok, n) = count(&forward);
@@ -705,7 +768,7 @@ fn demo_profiles_show_what_reverse_thrust_buys() {
         for plan in &map {
             assert!(plan.reachable || plan.reason.as_deref().is_some_and(|r| !r.is_empty()));
         }
-        let feasible = m.moves.iter().filter(|x| x.feasibility.feasible).count();
+        let feasible = (0..m.moves.len()).filter(|&k| m.check(k).feasible).count();
         (
             map.iter().filter(|p| p.reachable).count(),
             feasible,
@@ -798,7 +861,7 @@ fn a_move_without_commands_is_routed_around() {
         .find_map(|(f, plan)| plan.steps.first().map(|s| (f, s.move_index)))
         .expect("some plan has a step");
     let fresh = RightingModel::new(&p, &c).expect("model");
-    assert!(fresh.moves[first].feasibility.feasible);
+    assert!(fresh.check(first).feasible);
     fresh.moves[first]
         .commands
         .set(None)

@@ -775,7 +775,37 @@ pub fn move_commands(cage: &Cage, roll: &Roll, limits: &Limits) -> Option<RotorC
     commands(&table(cage, roll, limits), limits, tolerance(cage))
 }
 
+/// [`assess_check`] and then, where the check passes, [`move_commands`],
+/// from one table of angle rows (the check builds the whole table of a
+/// move it passes; the commands need the same one).
+pub fn check_then_commands(
+    cage: &Cage,
+    roll: &Roll,
+    limits: &Limits,
+) -> (Feasibility, Option<RotorCommands>) {
+    let (check, table) = scan(cage, roll, limits, CommandsBy::Later);
+    if !check.feasible {
+        return (check, None);
+    }
+    let commands = match table {
+        Some(table) => commands(&table, limits, tolerance(cage)),
+        None => move_commands(cage, roll, limits),
+    };
+    (check, commands)
+}
+
 fn assess_with(cage: &Cage, roll: &Roll, limits: &Limits, by: CommandsBy) -> Feasibility {
+    scan(cage, roll, limits, by).0
+}
+
+/// The check (with commands as `by` says), and the table of every
+/// checked angle when the scan built all of it.
+fn scan(
+    cage: &Cage,
+    roll: &Roll,
+    limits: &Limits,
+    by: CommandsBy,
+) -> (Feasibility, Option<Vec<AngleRows>>) {
     let tol = tolerance(cage);
     let zero = vec![0.0; limits.rotors.len()];
     // (index, ratio lower bound, upper bound, LP moment when exact)
@@ -836,7 +866,7 @@ fn assess_with(cage: &Cage, roll: &Roll, limits: &Limits, by: CommandsBy) -> Fea
                             } else {
                                 CommandsBy::Lp
                             };
-                            return plain_with(cage, roll, limits, by);
+                            return (plain_with(cage, roll, limits, by), None);
                         }
                     },
                 };
@@ -848,7 +878,9 @@ fn assess_with(cage: &Cage, roll: &Roll, limits: &Limits, by: CommandsBy) -> Fea
             worst
         }
     };
-    finish(cage, roll, limits, &table, worst, blocked_by, by)
+    let verdict = finish(cage, roll, limits, &table, worst, blocked_by, by);
+    let whole = blocked.is_none();
+    (verdict, whole.then_some(table))
 }
 
 /// The verdict from the worst angle: feasible when carried with the

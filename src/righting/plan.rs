@@ -1,6 +1,13 @@
-//! Roll plans: a petgraph graph of resting faces and feasible moves, the
-//! recovery map from every face (multi-goal Dijkstra on the reversed graph)
-//! and single queries by A*.
+//! Roll plans: the recovery map from every face (multi-goal Dijkstra on
+//! the reversed moves) and single queries by A*, and the petgraph graph of
+//! resting faces and feasible moves they agree with.
+//!
+//! Both searches check a move only when the queue reaches it: a move is
+//! queued unchecked, and checked when it would settle a face that is still
+//! open (the lazy evaluation of edges: the first queued move into a face
+//! that passes is its cheapest, since every cheaper one was handed out
+//! first and refused). So the costs are the whole graph's, and a map of a
+//! 1280-face cage checks about one move in ten.
 //!
 //! Cost of a move = its rotation angle in degrees (commanded plus the
 //! passive rolls until it settles), times `vertex_pivot_weight` for vertex
@@ -70,13 +77,65 @@ pub struct Plan {
     pub steps: Vec<Step>,
 }
 
-/// What every plan of one map shares: the graph, the cost to go from every
-/// face and the goals, computed once per map (or per single plan) and
-/// handed to the plans and their explanations.
+/// What every plan of one map shares: the cost to go from every face
+/// (as far as the search went) and the goals, worked out once per map (or
+/// per single plan) and handed to the plans and their explanations.
 struct Routes {
-    pg: PlanGraph,
     to_go: Vec<Option<f64>>,
     goals: Vec<usize>,
+}
+
+/// The recovery map's routes before their rotor commands
+/// ([`RightingModel::map_draft`]).
+pub struct MapDraft {
+    routes: Routes,
+    /// Per face: the face it settles on and the moves from there.
+    hops: Vec<(usize, Vec<usize>)>,
+}
+
+impl MapDraft {
+    /// The moves the map takes, each once, in index order.
+    pub fn moves(&self) -> Vec<usize> {
+        let mut ks: Vec<usize> = self
+            .hops
+            .iter()
+            .flat_map(|(_, h)| h.iter().copied())
+            .collect();
+        ks.sort_unstable();
+        ks.dedup();
+        ks
+    }
+}
+
+/// A face reached by a search through move `via` (none where the search
+/// starts), at `cost_deg` from where it started; `key_deg` orders the
+/// queue (the cost itself, or the cost plus the heuristic in A*). Ordered
+/// so that a max-heap pops the least key first (ties: the lower move
+/// index, then the lower face).
+#[derive(Debug, PartialEq)]
+struct Reached {
+    key_deg: f64,
+    cost_deg: f64,
+    face: usize,
+    via: Option<usize>,
+}
+
+impl Eq for Reached {}
+
+impl Ord for Reached {
+    fn cmp(&self, other: &Self) -> std::cmp::Ordering {
+        other
+            .key_deg
+            .total_cmp(&self.key_deg)
+            .then_with(|| other.via.cmp(&self.via))
+            .then_with(|| other.face.cmp(&self.face))
+    }
+}
+
+impl PartialOrd for Reached {
+    fn partial_cmp(&self, other: &Self) -> Option<std::cmp::Ordering> {
+        Some(self.cmp(other))
+    }
 }
 
 /// The graph of resting faces (node weight: face index) and feasible moves
@@ -91,7 +150,9 @@ pub struct PlanGraph {
 }
 
 impl RightingModel {
-    /// Build the graph of feasible moves.
+    /// Build the graph of feasible moves. This checks every move; the
+    /// planner does not need it (its searches check moves as they reach
+    /// them) and the tests hold the planner's costs to this graph's.
     pub fn graph(&self) -> PlanGraph {
         let mut graph = DiGraph::new();
         let node: Vec<Option<NodeIndex>> = self
@@ -149,7 +210,7 @@ impl RightingModel {
 
     /// Cost to the nearest goal from every face (`None`: unreachable), by
     /// one Dijkstra run from a virtual source joined to every goal, on the
-    /// reversed graph.
+    /// reversed graph of [`RightingModel::graph`] (every move checked).
     pub fn cost_to_go(&self) -> Vec<Option<f64>> {
         self.cost_to_go_on(&self.graph(), &self.goals())
     }
@@ -175,6 +236,57 @@ impl RightingModel {
             .collect()
     }
 
+    /// Cost to the nearest goal from the faces the search reaches (`None`:
+    /// unreachable), by Dijkstra's search back from the goals along the
+    /// moves, in reverse.
+    ///
+    /// A move is checked only when it is the cheapest way yet to reach the
+    /// face it starts from: each move is queued, unchecked, when the face
+    /// it ends on is reached, and checked when the queue hands it out
+    /// while its start face is still open; only then, if it passes, is
+    /// that face settled at that cost. Every move cheaper than the one
+    /// that settles a face has been checked and refused, so the costs are
+    /// those of the whole graph ([`RightingModel::cost_to_go`]), but most
+    /// moves are never checked.
+    fn search_back(&self, goals: &[usize]) -> Vec<Option<f64>> {
+        let faces = self.cage.faces.len();
+        let mut to_go: Vec<Option<f64>> = vec![None; faces];
+        let mut queue = std::collections::BinaryHeap::new();
+        for &g in goals {
+            queue.push(Reached {
+                key_deg: 0.0,
+                cost_deg: 0.0,
+                face: g,
+                via: None,
+            });
+        }
+        while let Some(Reached {
+            cost_deg,
+            face,
+            via,
+            ..
+        }) = queue.pop()
+        {
+            if to_go[face].is_some() || via.is_some_and(|k| !self.plannable(k)) {
+                continue;
+            }
+            to_go[face] = Some(cost_deg);
+            for &k in self.moves_into(face) {
+                let from = self.moves[k].roll.from;
+                if to_go[from].is_none() {
+                    let cost_deg = cost_deg + self.cost_deg(&self.moves[k]);
+                    queue.push(Reached {
+                        key_deg: cost_deg,
+                        cost_deg,
+                        face: from,
+                        via: Some(k),
+                    });
+                }
+            }
+        }
+        to_go
+    }
+
     /// The recovery map: a plan from every face, each starting at the
     /// face's zero-yaw resting attitude.
     ///
@@ -183,55 +295,82 @@ impl RightingModel {
     /// some angle), that move leaves the graph and the map is worked out
     /// again, so every step shown has its commands.
     pub fn recovery_map(&self) -> Vec<Plan> {
-        loop {
-            let routes = self.routes();
-            let hops: Vec<(usize, Vec<usize>)> = (0..self.cage.faces.len())
-                .map(|face| {
-                    let start = self.settle_face(face);
-                    (start, self.next_hops(start, &routes))
-                })
-                .collect();
-            if !self.commands_found(hops.iter().flat_map(|(_, h)| h)) {
-                continue;
-            }
-            return hops
-                .iter()
-                .enumerate()
-                .map(|(face, (start, moves))| {
-                    let attitude = resting_attitude(&self.cage, face);
-                    self.assemble(face, *start, &attitude, moves, &routes)
-                })
-                .collect();
+        self.recovery_map_from(self.map_draft())
+    }
+
+    /// The routes of the recovery map before the rotor commands of its
+    /// moves are worked out: a caller with threads to spare works out
+    /// [`MapDraft::moves`]' commands ([`RightingModel::commands`]) in
+    /// parallel, then finishes with [`RightingModel::recovery_map_from`].
+    pub fn map_draft(&self) -> MapDraft {
+        let routes = self.routes();
+        let hops = (0..self.cage.faces.len())
+            .map(|face| {
+                let start = self.settle_face(face);
+                (start, self.next_hops(start, &routes))
+            })
+            .collect();
+        MapDraft { routes, hops }
+    }
+
+    /// [`RightingModel::recovery_map`] from a draft of this model's map
+    /// (worked out again while a move it takes has no commands).
+    pub fn recovery_map_from(&self, mut draft: MapDraft) -> Vec<Plan> {
+        while !self.commands_found(draft.hops.iter().flat_map(|(_, h)| h)) {
+            draft = self.map_draft();
         }
+        let MapDraft { routes, hops } = &draft;
+        hops.iter()
+            .enumerate()
+            .map(|(face, (start, moves))| {
+                let attitude = resting_attitude(&self.cage, face);
+                self.assemble(face, *start, &attitude, moves, &routes.goals, || {
+                    self.explain_on(*start, routes)
+                })
+            })
+            .collect()
     }
 
     /// The moves from `start` that follow the cost to go down to a goal.
+    ///
+    /// At each face the next move is the one the whole graph of
+    /// [`RightingModel::graph`] would give: among the moves that could
+    /// realise the cost to go, the cheapest that can be made, the face it
+    /// leads to deciding ties (the higher index, as the graph lists a
+    /// face's edges newest first). Only those few moves are checked.
     fn next_hops(&self, start: usize, routes: &Routes) -> Vec<usize> {
-        let (pg, to_go, goals) = (&routes.pg, &routes.to_go, &routes.goals);
+        let (to_go, goals) = (&routes.to_go, &routes.goals);
         let mut moves = Vec::new();
         let mut at = start;
-        if to_go[start].is_none() {
+        if to_go.get(start).copied().flatten().is_none() {
             return moves;
         }
-        // Follow the next hop that realises the cost to go.
+        // (cost through the move, face it leads to, its own cost, index)
+        let mut options: Vec<(f64, usize, f64, usize)> = Vec::new();
         while !goals.contains(&at) && moves.len() <= self.cage.faces.len() {
-            let Some(n) = pg.node[at] else { break };
             let here = to_go[at].unwrap_or(f64::INFINITY);
-            let next = pg
-                .graph
-                .edges(n)
-                .filter_map(|e| {
-                    let m = *e.weight();
-                    let to = pg.graph[e.target()];
-                    to_go[to].map(|d| (m, to, d + self.cost_deg(&self.moves[m])))
-                })
-                .min_by(|a, b| a.2.total_cmp(&b.2));
-            match next {
-                Some((m, to, c)) if c <= here + 1e-6 => {
-                    moves.push(m);
+            options.clear();
+            for k in self.moves_from(at) {
+                let m = &self.moves[k];
+                let cost = self.cost_deg(m);
+                if let Some(d) = to_go.get(m.settles_on).copied().flatten()
+                    && d + cost <= here + 1e-6
+                {
+                    options.push((d + cost, m.settles_on, cost, k));
+                }
+            }
+            options.sort_by(|a, b| {
+                a.0.total_cmp(&b.0)
+                    .then(b.1.cmp(&a.1))
+                    .then(a.2.total_cmp(&b.2))
+                    .then(a.3.cmp(&b.3))
+            });
+            match options.iter().find(|o| self.plannable(o.3)) {
+                Some(&(_, to, _, k)) => {
+                    moves.push(k);
                     at = to;
                 }
-                _ => break,
+                None => break,
             }
         }
         moves
@@ -241,16 +380,15 @@ impl RightingModel {
     /// (a move without them no longer counts as feasible).
     fn commands_found<'a>(&self, moves: impl Iterator<Item = &'a usize>) -> bool {
         // Every move is asked, not only up to the first without commands,
-        // so one pass removes all of them from the next graph.
+        // so one pass removes all of them from the next search.
         moves.filter(|&&k| self.commands(k).is_none()).count() == 0
     }
 
-    /// The graph, cost to go and goals, once.
+    /// The cost to go from every face, and the goals.
     fn routes(&self) -> Routes {
-        let pg = self.graph();
         let goals = self.goals();
-        let to_go = self.cost_to_go_on(&pg, &goals);
-        Routes { pg, to_go, goals }
+        let to_go = self.search_back(&goals);
+        Routes { to_go, goals }
     }
 
     /// One plan by A* from `face`, the steps' target attitudes starting from
@@ -273,34 +411,78 @@ impl RightingModel {
             };
         }
         let start = self.settle_face(face);
+        let goals = self.goals();
         loop {
-            let routes = self.routes();
-            let (pg, goals) = (&routes.pg, &routes.goals);
-            let heuristic: Vec<f64> = (0..self.cage.faces.len())
-                .map(|f| self.heuristic_to(f, goals))
-                .collect();
-            let moves = pg.node[start]
-                .and_then(|s| {
-                    petgraph::algo::astar(
-                        &pg.graph,
-                        s,
-                        |n| goals.contains(&pg.graph[n]),
-                        |e| self.cost_deg(&self.moves[*e.weight()]),
-                        |n| heuristic[pg.graph[n]],
-                    )
-                })
-                .map(|(_, path)| {
-                    path.windows(2)
-                        .filter_map(|w| pg.graph.find_edge(w[0], w[1]).map(|e| pg.graph[e]))
-                        .collect::<Vec<usize>>()
-                })
-                .unwrap_or_default();
+            let moves = self.search_forward(start, &goals);
             // As in the recovery map: a move without commands leaves the
             // graph and the plan is worked out again.
             if self.commands_found(moves.iter()) {
-                return self.assemble(face, start, attitude, &moves, &routes);
+                return self.assemble(face, start, attitude, &moves, &goals, || {
+                    self.explain_on(start, &self.routes())
+                });
             }
         }
+    }
+
+    /// The cheapest moves from `start` to a goal by A* (empty when there is
+    /// none, or `start` is a goal). As in [`RightingModel::search_back`], a
+    /// move is queued unchecked and checked only when the queue hands it
+    /// out while the face it leads to is still open; with a consistent
+    /// heuristic the first move that passes into a face is on its cheapest
+    /// route from `start`. Only the moves that could lie on a cheapest
+    /// route are checked, unless no goal can be reached: then every move
+    /// out of the faces the rotors can reach is.
+    fn search_forward(&self, start: usize, goals: &[usize]) -> Vec<usize> {
+        let faces = self.cage.faces.len();
+        let stable = |i: usize| self.cage.faces.get(i).is_some_and(|x| x.stable);
+        if !stable(start) {
+            return Vec::new();
+        }
+        let mut closed = vec![false; faces];
+        let mut via_move: Vec<Option<usize>> = vec![None; faces];
+        let mut queue = std::collections::BinaryHeap::new();
+        queue.push(Reached {
+            key_deg: self.heuristic_to(start, goals),
+            cost_deg: 0.0,
+            face: start,
+            via: None,
+        });
+        while let Some(Reached {
+            cost_deg,
+            face,
+            via,
+            ..
+        }) = queue.pop()
+        {
+            if closed[face] || via.is_some_and(|k| !self.plannable(k)) {
+                continue;
+            }
+            closed[face] = true;
+            via_move[face] = via;
+            if goals.contains(&face) {
+                let mut moves = Vec::new();
+                let mut at = face;
+                while let Some(k) = via_move[at] {
+                    moves.push(k);
+                    at = self.moves[k].roll.from;
+                }
+                moves.reverse();
+                return moves;
+            }
+            for k in self.moves_from(face) {
+                let to = self.moves[k].settles_on;
+                if stable(to) && !closed[to] {
+                    let cost_deg = cost_deg + self.cost_deg(&self.moves[k]);
+                    queue.push(Reached {
+                        key_deg: cost_deg + self.heuristic_to(to, goals),
+                        cost_deg,
+                        face: to,
+                        via: Some(k),
+                    });
+                }
+            }
+        }
+        Vec::new()
     }
 
     /// Turn a list of moves into a plan with target attitudes.
@@ -310,7 +492,8 @@ impl RightingModel {
         start: usize,
         attitude: &UnitQuaternion<f64>,
         moves: &[usize],
-        routes: &Routes,
+        goals: &[usize],
+        explain: impl FnOnce() -> String,
     ) -> Plan {
         let f = |i: usize| self.cage.faces[i].id.as_str();
         let note = (start != face).then(|| {
@@ -341,7 +524,7 @@ impl RightingModel {
                 kind: m.roll.kind,
                 pivot: m.roll.pivot.clone(),
                 angle_deg: m.roll.angle_deg,
-                thrust_fraction: m.feasibility.thrust_fraction.unwrap_or(0.0),
+                thrust_fraction: self.check(k).thrust_fraction.unwrap_or(0.0),
                 commands: self.commands(k).cloned().unwrap_or_default(),
                 start,
                 target: q,
@@ -349,12 +532,12 @@ impl RightingModel {
             });
         }
         let end = steps.last().map_or(start, |s| s.to);
-        let reachable = routes.goals.contains(&end);
+        let reachable = goals.contains(&end);
         Plan {
             from: face,
             goal: reachable.then_some(end),
             reachable,
-            reason: (!reachable).then(|| self.explain_on(start, routes)),
+            reason: (!reachable).then(explain),
             note,
             total_angle_deg: total,
             cost_deg: cost,
@@ -368,40 +551,56 @@ impl RightingModel {
         self.explain_on(face, &self.routes())
     }
 
-    /// [`RightingModel::explain`] with the map's routes already worked out.
+    /// [`RightingModel::explain`] with the map's routes already worked out
+    /// (the search back from the goals went everywhere: `face` has no cost
+    /// to go, so no search stopped at it).
     fn explain_on(&self, face: usize, routes: &Routes) -> String {
         let f = |i: usize| self.cage.faces[i].id.as_str();
-        let (pg, to_go) = (&routes.pg, &routes.to_go);
+        let to_go = &routes.to_go;
         if routes.goals.is_empty() {
             return "the profile's take-off faces include none this vehicle can rest on".into();
         }
+        // The faces the rotors can move it among, by the moves that can be
+        // made (every move out of them is checked on the way).
+        let stable = |i: usize| self.cage.faces.get(i).is_some_and(|x| x.stable);
         let mut reach = vec![false; self.cage.faces.len()];
-        if let Some(n) = pg.node.get(face).copied().flatten() {
-            let mut dfs = petgraph::visit::Dfs::new(&pg.graph, n);
-            while let Some(x) = dfs.next(&pg.graph) {
-                reach[pg.graph[x]] = true;
+        let mut stack = Vec::new();
+        if stable(face) {
+            reach[face] = true;
+            stack.push(face);
+        }
+        while let Some(at) = stack.pop() {
+            for k in self.moves_from(at) {
+                let to = self.moves[k].settles_on;
+                if stable(to) && !reach[to] && self.plannable(k) {
+                    reach[to] = true;
+                    stack.push(to);
+                }
             }
         }
         // Prefer a missing move after which a route exists (one move short);
         // otherwise any move out of the faces the rotors can reach.
-        let out: Vec<&Move> = self
-            .moves
-            .iter()
-            .enumerate()
-            .filter(|(k, m)| reach[m.roll.from] && !reach[m.settles_on] && !self.plannable(*k))
-            .map(|(_, m)| m)
+        let out: Vec<usize> = (0..self.moves.len())
+            .filter(|&k| {
+                let m = &self.moves[k];
+                reach[m.roll.from] && !reach[m.settles_on] && !self.plannable(k)
+            })
             .collect();
-        let short: Vec<&Move> = out
+        let short: Vec<usize> = out
             .iter()
             .copied()
-            .filter(|m| to_go[m.settles_on].is_some())
+            .filter(|&k| to_go[self.moves[k].settles_on].is_some())
             .collect();
         let pool = if short.is_empty() { out } else { short };
-        let candidate = pool.into_iter().min_by(|a, b| {
-            let fa = a.feasibility.thrust_fraction.unwrap_or(f64::INFINITY);
-            let fb = b.feasibility.thrust_fraction.unwrap_or(f64::INFINITY);
-            fa.total_cmp(&fb)
-                .then(a.roll.angle_deg.total_cmp(&b.roll.angle_deg))
+        let candidate = pool.into_iter().min_by(|&a, &b| {
+            let fa = self.check(a).thrust_fraction.unwrap_or(f64::INFINITY);
+            let fb = self.check(b).thrust_fraction.unwrap_or(f64::INFINITY);
+            fa.total_cmp(&fb).then(
+                self.moves[a]
+                    .roll
+                    .angle_deg
+                    .total_cmp(&self.moves[b].roll.angle_deg),
+            )
         });
         let count = reach.iter().filter(|r| **r).count();
         let within = if count > 1 {
@@ -409,9 +608,10 @@ impl RightingModel {
         } else {
             String::new()
         };
-        let Some(m) = candidate else {
+        let Some(k) = candidate else {
             return format!("no roll leads from {} to any other face{within}", f(face));
         };
+        let (m, check) = (&self.moves[k], self.check(k));
         let pivot: Vec<&str> = m
             .roll
             .pivot
@@ -429,29 +629,29 @@ impl RightingModel {
             pivot.join("-"),
             m.roll.angle_deg
         );
-        let lack = match m.feasibility.thrust_fraction {
+        let lack = match check.thrust_fraction {
             Some(frac) => format!(
                 "needs {:.0}% of the best rotor moment at {:.0} deg into the roll ({:.3} of {:.3} N m), more than the {:.0}% the torque margin of {} allows",
                 frac * 100.0,
-                m.feasibility.worst_angle_deg,
-                m.feasibility.needed_nm,
-                m.feasibility.available_nm,
+                check.worst_angle_deg,
+                check.needed_nm,
+                check.available_nm,
                 100.0 / self.limits.torque_margin,
                 self.limits.torque_margin
             ),
-            None if m.feasibility.blocked_by == Some(Condition::Sideways) => format!(
+            None if check.blocked_by == Some(Condition::Sideways) => format!(
                 "cannot be balanced: on its single node no thrust within the rotors' limits cancels gravity's sideways moment at {:.0} deg into the pivot while lifting the cage",
-                m.feasibility.worst_angle_deg
+                check.worst_angle_deg
             ),
-            None if m.feasibility.blocked_by == Some(Condition::Between) => format!(
+            None if check.blocked_by == Some(Condition::Between) => format!(
                 "cannot be made as an edge roll: at {:.0} deg into the roll no thrust within the rotors' limits keeps the ground's push between the two pivot nodes (the cage would turn about one node)",
-                m.feasibility.worst_angle_deg
+                check.worst_angle_deg
             ),
             None => {
                 let forward_only = self.limits.rotors.iter().all(|r| r.reverse_thrust_n <= 0.0);
                 format!(
                     "gets no helping moment from the rotors at {:.0} deg into the roll: their thrust turns the cage the other way, presses it into the ground, or would lift or slide it{}",
-                    m.feasibility.worst_angle_deg,
+                    check.worst_angle_deg,
                     if forward_only {
                         " (these motors cannot reverse; reversible motors may open this move)"
                     } else {

@@ -113,31 +113,58 @@ pub struct ProfileArg {
     pub profile: Option<PathBuf>,
 }
 
+use cagehand::profile::Profile;
 pub use cagehand::vehicle::Loaded;
+use cagehand::vehicle::{Built, LoadError};
 
 impl ProfileArg {
     /// Load and validate the profile, and build its cage.
     pub fn load(&self) -> anyhow::Result<Loaded> {
         load_profile(self.profile.as_deref())
     }
+
+    /// [`ProfileArg::load`], doing `work` on the built cage on one core
+    /// while the statics are worked out on another. A profile the statics
+    /// refuse is refused as by `load`, whatever `work` gave.
+    pub fn load_with<T: Send>(
+        &self,
+        work: impl FnOnce(&Built) -> T + Send,
+    ) -> anyhow::Result<(Loaded, T)> {
+        let built = Built::new(read_profile(self.profile.as_deref())?).map_err(refusal)?;
+        let (statics, done) = rayon::join(|| built.statics(), || work(&built));
+        let statics = statics.map_err(refusal)?;
+        Ok((built.finish(statics), done))
+    }
 }
 
 /// Load a profile file (or the demo) through the core's validated loader;
 /// a refused profile is bad input (exit 2).
 pub fn load_profile(path: Option<&Path>) -> anyhow::Result<Loaded> {
-    let loaded = match path {
-        None => cagehand::vehicle::demo(),
+    Loaded::new(read_profile(path)?).map_err(refusal)
+}
+
+/// Read and parse a profile file (or the demo's); a file that cannot be
+/// read, or is not a valid profile, is bad input.
+fn read_profile(path: Option<&Path>) -> anyhow::Result<Profile> {
+    let parsed = match path {
+        None => Profile::demo(),
         Some(p) => {
             let bytes = std::fs::read(p)
                 .with_context(|| format!("cannot read profile {}", p.display()))
                 .map_err(|e| bad_input(format!("{e:#}")))?;
-            cagehand::vehicle::load(&bytes, &p.display().to_string())
+            Profile::parse_bytes(&bytes, &p.display().to_string())
         }
     };
-    loaded.map_err(|e| match e {
-        cagehand::vehicle::LoadError::Profile(_) => bad_input(e.to_string()),
-        cagehand::vehicle::LoadError::Statics { .. } => anyhow::Error::new(e),
-    })
+    parsed.map_err(|e| refusal(LoadError::from(e)))
+}
+
+/// A refused profile is bad input (exit 2); statics that did not finish
+/// are not the file's fault.
+fn refusal(e: LoadError) -> anyhow::Error {
+    match e {
+        LoadError::Profile(_) => bad_input(e.to_string()),
+        LoadError::Statics { .. } => anyhow::Error::new(e),
+    }
 }
 
 /// `--duration-s`, when given, must be a positive number of seconds.

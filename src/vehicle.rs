@@ -73,20 +73,51 @@ pub fn demo() -> Result<Loaded, LoadError> {
 impl Loaded {
     /// Build the cage of a parsed profile and run every check on both.
     pub fn new(profile: Profile) -> Result<Loaded, LoadError> {
+        let built = Built::new(profile)?;
+        let statics = built.statics()?;
+        Ok(built.finish(statics))
+    }
+}
+
+/// A profile whose cage is built and has passed the checks that need only
+/// the cage ([`CAGE_CHECKS`]): [`Loaded::new`] up to the statics, for a
+/// caller with other work to do on the cage while they are worked out.
+#[derive(Debug, Clone)]
+pub struct Built {
+    /// The profile.
+    pub profile: Profile,
+    /// Its cage.
+    pub cage: Cage,
+}
+
+impl Built {
+    /// Build the cage and run the checks that need only the cage.
+    pub fn new(profile: Profile) -> Result<Built, LoadError> {
         let cage = Cage::from_profile(&profile).map_err(|e| cage_refusal(&profile, e))?;
         for check in CAGE_CHECKS {
             check(&profile, &cage)?;
         }
-        let statics = CageStatics::new(&cage, &profile).map_err(|source| LoadError::Statics {
-            file: profile.source.clone(),
-            source,
-        })?;
-        prestress_within_capacity(&profile, &statics)?;
-        Ok(Loaded {
-            profile,
-            cage,
+        Ok(Built { profile, cage })
+    }
+
+    /// The cage's statics, once the prestress check has passed on them.
+    pub fn statics(&self) -> Result<CageStatics, LoadError> {
+        let statics =
+            CageStatics::new(&self.cage, &self.profile).map_err(|source| LoadError::Statics {
+                file: self.profile.source.clone(),
+                source,
+            })?;
+        prestress_within_capacity(&self.profile, &statics)?;
+        Ok(statics)
+    }
+
+    /// The loaded vehicle, with the statics [`Built::statics`] gave.
+    pub fn finish(self, statics: CageStatics) -> Loaded {
+        Loaded {
+            profile: self.profile,
+            cage: self.cage,
             statics,
-        })
+        }
     }
 }
 

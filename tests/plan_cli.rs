@@ -276,3 +276,39 @@ fn node_tags_from_the_profile_are_shown() {
     assert_eq!(n1["tag"], "yellow cap");
     assert!(v["nodes"][1]["tag"].is_null());
 }
+
+/// `plan` works out the map while the statics are checked (on another
+/// core), but a profile the prestress check refuses is still refused: exit
+/// 2, the reason on stderr, and no plan on stdout (fail safe; the same
+/// refusal as `profile check`).
+#[test]
+fn a_profile_the_prestress_check_refuses_gets_no_plan() {
+    let text = std::fs::read_to_string(DEMO).expect("demo profile");
+    assert!(text.contains("pretension_n = 20.0"));
+    let dir = tempfile::tempdir().expect("temp dir");
+    let path = dir.path().join("overtight.toml");
+    std::fs::write(
+        &path,
+        text.replace("pretension_n = 20.0", "pretension_n = 5000.0"),
+    )
+    .expect("write");
+    let p = path.to_str().expect("utf-8 path");
+    for args in [
+        &["plan", "--all", "--profile", p][..],
+        &["plan", "--from", "F3", "--profile", p],
+    ] {
+        let (code, out, err) = run(args);
+        assert_eq!(code, 2, "{args:?}: {err}");
+        assert!(out.is_empty(), "{args:?}: {out}");
+        assert!(
+            err.contains("pretension") || err.contains("prestress"),
+            "{err}"
+        );
+    }
+    let (code, _, check) = run(&["profile", "check", p]);
+    assert_eq!(code, 2);
+    assert!(
+        check.contains("pretension") || check.contains("prestress"),
+        "{check}"
+    );
+}

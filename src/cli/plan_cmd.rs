@@ -156,6 +156,16 @@ fn tips(model: &RightingModel, s: &Step) -> String {
     )
 }
 
+/// The recovery map, the rotor commands of its moves (independent of each
+/// other) worked out on every core.
+fn recovery_map(model: &RightingModel) -> Vec<Plan> {
+    let draft = model.map_draft();
+    draft.moves().par_iter().for_each(|&k| {
+        model.commands(k);
+    });
+    model.recovery_map_from(draft)
+}
+
 /// Every plan's text, written on every core (a map of a large cage is
 /// thousands of plans), in the plans' order.
 fn rendered(
@@ -296,7 +306,51 @@ fn command_lines(model: &RightingModel, s: &Step) -> Vec<(String, String)> {
     out
 }
 
-fn write_plan(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io::Result<()> {
+/// Each move's rotor-command lines as [`write_plan`] prints them, written
+/// once per move however many plans of a map take it (they depend on the
+/// move alone).
+struct CommandText {
+    lines: Vec<std::sync::OnceLock<Vec<u8>>>,
+}
+
+impl CommandText {
+    fn new(model: &RightingModel) -> CommandText {
+        CommandText {
+            lines: (0..model.moves.len())
+                .map(|_| std::sync::OnceLock::new())
+                .collect(),
+        }
+    }
+
+    /// The lines of step `s` of a plan of `model`.
+    fn of(&self, model: &RightingModel, s: &Step) -> std::io::Result<std::borrow::Cow<'_, [u8]>> {
+        let kept = self.lines.get(s.move_index);
+        if let Some(text) = kept.and_then(|l| l.get()) {
+            return Ok(text.as_slice().into());
+        }
+        let mut text = Vec::new();
+        for (label, line) in command_lines(model, s) {
+            write_wrapped(&mut text, &format!("      {label} "), "        ", &line)?;
+        }
+        Ok(match kept {
+            Some(l) => l.get_or_init(|| text).as_slice().into(),
+            None => text.into(),
+        })
+    }
+}
+
+/// A whole number of degrees (from [`whole_deg`]) as an integer, which
+/// prints as `{:.0}` would, without the general float formatting.
+fn whole(x: f64) -> i64 {
+    whole_deg(x) as i64
+}
+
+fn write_plan(
+    out: &mut impl Write,
+    model: &RightingModel,
+    p: &Plan,
+    texts: &CommandText,
+) -> std::io::Result<()> {
     let cage = &model.cage;
     let fid = |i: usize| cage.faces[i].id.as_str();
     if let Some(n) = &p.note {
@@ -331,7 +385,7 @@ fn write_plan(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io:
         let [r, pi, y] = rpy_deg(&s.target);
         writeln!(
             out,
-            "{:>2}  {:<4} -> {:<4}  {:<9} {:<6} {:>4.0}    {:>5}  {:>4.0} {:>4.0} {:>4.0}",
+            "{:>2}  {:<4} -> {:<4}  {:<9} {:<6} {:>4.0}    {:>5}  {:>4} {:>4} {:>4}",
             k + 1,
             fid(s.from),
             fid(s.to),
@@ -342,18 +396,16 @@ fn write_plan(out: &mut impl Write, model: &RightingModel, p: &Plan) -> std::io:
             },
             s.angle_deg,
             pct(s.thrust_fraction),
-            whole_deg(r),
-            whole_deg(pi),
-            whole_deg(y)
+            whole(r),
+            whole(pi),
+            whole(y)
         )?;
         write_wrapped(out, "      ", "      ", &tips(model, s))?;
         if s.pivot.iter().any(|&i| cage.nodes[i].tag.is_some()) {
             let labels: Vec<String> = s.pivot.iter().map(|&i| cage.nodes[i].label()).collect();
             write_wrapped(out, "      pivot: ", "        ", &labels.join(" - "))?;
         }
-        for (label, text) in command_lines(model, s) {
-            write_wrapped(out, &format!("      {label} "), "        ", &text)?;
-        }
+        out.write_all(&texts.of(model, s)?)?;
     }
     Ok(())
 }
@@ -473,22 +525,21 @@ fn write_sheet_header(
 
 /// Run the plan command.
 pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
-    let l = args.profile.load()?;
-    let model = RightingModel::new(&l.profile, &l.cage)
-        .map_err(|e| bad_input(format!("{}: {e}", l.profile.source)))?;
+    // The model, and the recovery map when asked for, are worked out while
+    // the profile's statics are checked.
+    let (l, work) = args.profile.load_with(|b| {
+        RightingModel::new(&b.profile, &b.cage).map(|model| {
+            let map = args.all.then(|| recovery_map(&model));
+            (model, map)
+        })
+    })?;
+    let (model, map) = work.map_err(|e| bad_input(format!("{}: {e}", l.profile.source)))?;
     let cage = &model.cage;
     // A map of a large cage is megabytes of lines: written through a
     // buffer, not a system call per line; flushed before returning, so a
     // write error is still reported.
     let mut out = std::io::BufWriter::with_capacity(1 << 16, std::io::stdout().lock());
-    if args.all {
-        // The map's moves' rotor commands are independent of each other:
-        // worked out on every core, then the map is assembled from them.
-        let draft = model.map_draft();
-        draft.moves().par_iter().for_each(|&k| {
-            model.commands(k);
-        });
-        let plans = model.recovery_map_from(draft);
+    if let Some(plans) = map {
         if args.json {
             let js = MapJson {
                 schema: SCHEMA,
@@ -508,8 +559,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 cagehand::text::terminal(&l.profile.vehicle.name),
                 cage.faces.len()
             )?;
+            let texts = CommandText::new(&model);
             for text in rendered(&plans, |buf, p| {
-                write_plan(buf, &model, p)?;
+                write_plan(buf, &model, p, &texts)?;
                 writeln!(buf)
             })? {
                 out.write_all(&text)?;
@@ -558,7 +610,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         write_sheet(&mut out, &model, &plan)?;
         write_caution(&mut out)?;
     } else {
-        write_plan(&mut out, &model, &plan)?;
+        write_plan(&mut out, &model, &plan, &CommandText::new(&model))?;
         writeln!(out)?;
         if args.from.is_some() {
             writeln!(

@@ -159,6 +159,11 @@ impl RightingModel {
             .get_or_init(|| feasibility::assess_check(&self.cage, &m.roll, &self.limits))
     }
 
+    /// TEMP
+    pub fn checked(&self, k: usize) -> bool {
+        self.moves[k].check.get().is_some()
+    }
+
     /// The moves that start on `face` (indices into `moves`).
     pub fn moves_from(&self, face: usize) -> std::ops::Range<usize> {
         let at = |f: usize| self.out_start.get(f).copied().unwrap_or(self.moves.len());

@@ -163,6 +163,16 @@ fn recovery_map(model: &RightingModel) -> Vec<Plan> {
     draft.moves().par_iter().for_each(|&k| {
         model.commands(k);
     });
+    // The faces with no route are explained from every move out of them:
+    // checked on every core too.
+    let unreached: Vec<usize> = model
+        .unreached(&draft)
+        .into_iter()
+        .flat_map(|f| model.moves_from(f))
+        .collect();
+    unreached.par_iter().for_each(|&k| {
+        model.check(k);
+    });
     model.recovery_map_from(draft)
 }
 

@@ -70,12 +70,17 @@ pub enum Condition {
     Sideways,
 }
 
+/// One coefficient per rotor, kept inline for up to eight rotors: a roll's
+/// check builds a dozen rows at each of some thirty angles, and a heap
+/// allocation each was a fifth of its time.
+pub type Coeffs = smallvec::SmallVec<[f64; 8]>;
+
 /// One linear constraint on the thrusts: `coeffs . T <= rhs`, or
 /// `coeffs . T == rhs` when `equality`.
 #[derive(Debug, Clone, PartialEq)]
 pub struct Row {
     /// Coefficient per rotor.
-    pub coeffs: Vec<f64>,
+    pub coeffs: Coeffs,
     /// Right-hand side, newtons or newton metres.
     pub rhs: f64,
     /// An equality rather than an upper bound.
@@ -101,7 +106,7 @@ pub struct AngleRows {
     /// (negative once gravity helps).
     pub needed_nm: f64,
     /// The rotors' moment arms about the roll axis, c_k, metres.
-    pub arms_m: Vec<f64>,
+    pub arms_m: Coeffs,
     /// The contact conditions.
     pub rows: Vec<Row>,
 }
@@ -149,11 +154,11 @@ pub fn resisting_moment_nm(cage: &Cage, roll: &Roll, beta_rad: f64) -> f64 {
 
 /// Moment arms c_k = u . ((r_k - p) x t_k) of the rotors about a roll axis.
 pub fn moment_arms_m(roll: &Roll, rotors: &[Rotor]) -> Vec<f64> {
-    axis_arms(&roll.axis_body, &roll.point_body, rotors)
+    axis_arms(&roll.axis_body, &roll.point_body, rotors).to_vec()
 }
 
 /// Moment arms of the rotors about the axis `axis` through `point`.
-fn axis_arms(axis: &Vector3<f64>, point: &Vector3<f64>, rotors: &[Rotor]) -> Vec<f64> {
+fn axis_arms(axis: &Vector3<f64>, point: &Vector3<f64>, rotors: &[Rotor]) -> Coeffs {
     rotors
         .iter()
         .map(|r| {
@@ -177,8 +182,9 @@ pub fn shared_axis(rotors: &[Rotor]) -> Option<Vector3<f64>> {
 pub fn rows_at(cage: &Cage, roll: &Roll, rotors: &[Rotor], mu: f64, beta_rad: f64) -> AngleRows {
     let g = gravity_at(cage, roll, beta_rad);
     let w = cage.mass_kg * STANDARD_GRAVITY_M_S2;
-    let axes: Vec<Vector3<f64>> = rotors.iter().map(|r| Vector3::from(r.axis)).collect();
-    let normal: Vec<f64> = axes.iter().map(|t| t.dot(&g)).collect();
+    let axes: smallvec::SmallVec<[Vector3<f64>; 8]> =
+        rotors.iter().map(|r| Vector3::from(r.axis)).collect();
+    let normal: Coeffs = axes.iter().map(|t| t.dot(&g)).collect();
     let mut rows = vec![Row {
         // -sum a_k T_k <= W
         coeffs: normal.iter().map(|a| -a).collect(),
@@ -195,7 +201,7 @@ pub fn rows_at(cage: &Cage, roll: &Roll, rotors: &[Rotor], mu: f64, beta_rad: f6
             if s > 1e-12 {
                 for sign in [1.0, -1.0] {
                     rows.push(Row {
-                        coeffs: vec![sign * s - mu * a; rotors.len()],
+                        coeffs: smallvec::smallvec![sign * s - mu * a; rotors.len()],
                         rhs: mu * w,
                         equality: false,
                         condition: Condition::Friction,
@@ -204,7 +210,7 @@ pub fn rows_at(cage: &Cage, roll: &Roll, rotors: &[Rotor], mu: f64, beta_rad: f6
             }
         }
         None => {
-            let tang: Vec<Vector3<f64>> =
+            let tang: smallvec::SmallVec<[Vector3<f64>; 8]> =
                 axes.iter().zip(&normal).map(|(t, a)| t - g * *a).collect();
             let helper = if g.x.abs() < 0.9 {
                 Vector3::x()
@@ -276,7 +282,7 @@ pub fn rows_at(cage: &Cage, roll: &Roll, rotors: &[Rotor], mu: f64, beta_rad: f6
     AngleRows {
         angle_deg: beta_rad.to_degrees(),
         needed_nm: resisting_moment_nm(cage, roll, beta_rad),
-        arms_m: moment_arms_m(roll, rotors),
+        arms_m: axis_arms(&roll.axis_body, &roll.point_body, rotors),
         rows,
     }
 }

@@ -283,7 +283,7 @@ impl SplitLp {
                     .rows
                     .iter()
                     .map(|r| Row {
-                        coeffs: split(&r.coeffs, 1.0),
+                        coeffs: split(&r.coeffs, 1.0).into(),
                         rhs: if r.equality { r.rhs } else { r.rhs - inside },
                         equality: r.equality,
                         condition: r.condition,
@@ -292,7 +292,7 @@ impl SplitLp {
                 // moment >= required + inside
                 //   <=>  -arms . (P - Q) <= -(required + inside)
                 out.push(Row {
-                    coeffs: split(&ar.arms_m, -1.0),
+                    coeffs: split(&ar.arms_m, -1.0).into(),
                     rhs: -(required_nm(ar.needed_nm, limits.torque_margin) + inside),
                     equality: false,
                     condition: Condition::LiftOff,

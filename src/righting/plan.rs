@@ -85,6 +85,15 @@ struct Routes {
     goals: Vec<usize>,
 }
 
+/// What stands between a face and every take-off face: how many faces the
+/// rotors can move the vehicle among from it, and the move out of them
+/// that comes closest to being feasible.
+#[derive(Debug, Clone, Copy)]
+struct Shortfall {
+    faces: usize,
+    closest: Option<usize>,
+}
+
 /// The recovery map's routes before their rotor commands
 /// ([`RightingModel::map_draft`]).
 pub struct MapDraft {
@@ -320,14 +329,46 @@ impl RightingModel {
             draft = self.map_draft();
         }
         let MapDraft { routes, hops } = &draft;
+        // Faces without a route are explained once per group of faces that
+        // reach the same faces.
+        let stuck = routes.to_go.iter().any(Option::is_none);
+        let groups = if stuck && !routes.goals.is_empty() {
+            self.stuck_groups(routes)
+        } else {
+            Vec::new()
+        };
+        let mut shortfalls: std::collections::HashMap<usize, Shortfall> =
+            std::collections::HashMap::new();
         hops.iter()
             .enumerate()
             .map(|(face, (start, moves))| {
                 let attitude = resting_attitude(&self.cage, face);
-                self.assemble(face, *start, &attitude, moves, &routes.goals, || {
-                    self.explain_on(*start, routes)
-                })
+                self.assemble(
+                    face,
+                    *start,
+                    &attitude,
+                    moves,
+                    &routes.goals,
+                    || match groups.get(*start).copied().flatten() {
+                        Some(g) => {
+                            let s = *shortfalls
+                                .entry(g)
+                                .or_insert_with(|| self.shortfall(*start, routes));
+                            self.explain_shortfall(*start, &s)
+                        }
+                        None => self.explain_on(*start, routes),
+                    },
+                )
             })
+            .collect()
+    }
+
+    /// The faces of a draft from which no take-off face can be reached:
+    /// their plans say why, which needs every move out of them checked (a
+    /// caller with threads to spare checks them in parallel first).
+    pub fn unreached(&self, draft: &MapDraft) -> Vec<usize> {
+        (0..self.cage.faces.len())
+            .filter(|&f| self.cage.faces[f].stable && draft.routes.to_go[f].is_none())
             .collect()
     }
 
@@ -555,11 +596,16 @@ impl RightingModel {
     /// (the search back from the goals went everywhere: `face` has no cost
     /// to go, so no search stopped at it).
     fn explain_on(&self, face: usize, routes: &Routes) -> String {
-        let f = |i: usize| self.cage.faces[i].id.as_str();
-        let to_go = &routes.to_go;
         if routes.goals.is_empty() {
             return "the profile's take-off faces include none this vehicle can rest on".into();
         }
+        self.explain_shortfall(face, &self.shortfall(face, routes))
+    }
+
+    /// The faces the rotors can move the vehicle among from `face`, and
+    /// the move out of them that comes closest to being feasible.
+    fn shortfall(&self, face: usize, routes: &Routes) -> Shortfall {
+        let to_go = &routes.to_go;
         // The faces the rotors can move it among, by the moves that can be
         // made (every move out of them is checked on the way).
         let stable = |i: usize| self.cage.faces.get(i).is_some_and(|x| x.stable);
@@ -579,12 +625,12 @@ impl RightingModel {
             }
         }
         // Prefer a missing move after which a route exists (one move short);
-        // otherwise any move out of the faces the rotors can reach.
-        let out: Vec<usize> = (0..self.moves.len())
-            .filter(|&k| {
-                let m = &self.moves[k];
-                reach[m.roll.from] && !reach[m.settles_on] && !self.plannable(k)
-            })
+        // otherwise any move out of the faces the rotors can reach. (In
+        // index order: the moves are ordered by the face they start from.)
+        let out: Vec<usize> = (0..self.cage.faces.len())
+            .filter(|&f| reach[f])
+            .flat_map(|f| self.moves_from(f))
+            .filter(|&k| !reach[self.moves[k].settles_on] && !self.plannable(k))
             .collect();
         let short: Vec<usize> = out
             .iter()
@@ -592,7 +638,7 @@ impl RightingModel {
             .filter(|&k| to_go[self.moves[k].settles_on].is_some())
             .collect();
         let pool = if short.is_empty() { out } else { short };
-        let candidate = pool.into_iter().min_by(|&a, &b| {
+        let closest = pool.into_iter().min_by(|&a, &b| {
             let fa = self.check(a).thrust_fraction.unwrap_or(f64::INFINITY);
             let fb = self.check(b).thrust_fraction.unwrap_or(f64::INFINITY);
             fa.total_cmp(&fb).then(
@@ -602,13 +648,51 @@ impl RightingModel {
                     .total_cmp(&self.moves[b].roll.angle_deg),
             )
         });
-        let count = reach.iter().filter(|r| **r).count();
+        Shortfall {
+            faces: reach.iter().filter(|r| **r).count(),
+            closest,
+        }
+    }
+
+    /// The faces grouped by what the rotors can reach from them: faces
+    /// that can reach each other (a strongly connected component of the
+    /// moves that can be made among faces with no route; Tarjan 1972,
+    /// petgraph's implementation) reach the same faces, so their
+    /// explanations share one search. `None` for faces with a route.
+    fn stuck_groups(&self, routes: &Routes) -> Vec<Option<usize>> {
+        let faces = self.cage.faces.len();
+        let stuck = |f: usize| routes.to_go[f].is_none() && self.cage.faces[f].stable;
+        let mut graph: DiGraph<(), ()> = DiGraph::with_capacity(faces, 0);
+        let nodes: Vec<NodeIndex> = (0..faces).map(|_| graph.add_node(())).collect();
+        for f in (0..faces).filter(|&f| stuck(f)) {
+            for k in self.moves_from(f) {
+                let to = self.moves[k].settles_on;
+                if stuck(to) && self.plannable(k) {
+                    graph.add_edge(nodes[f], nodes[to], ());
+                }
+            }
+        }
+        let mut group = vec![None; faces];
+        for (g, members) in petgraph::algo::tarjan_scc(&graph).iter().enumerate() {
+            for n in members {
+                if stuck(n.index()) {
+                    group[n.index()] = Some(g);
+                }
+            }
+        }
+        group
+    }
+
+    /// The explanation of `face` from its shortfall.
+    fn explain_shortfall(&self, face: usize, shortfall: &Shortfall) -> String {
+        let f = |i: usize| self.cage.faces[i].id.as_str();
+        let count = shortfall.faces;
         let within = if count > 1 {
             format!(" (the rotors can move it among {count} faces, none of them a take-off face)")
         } else {
             String::new()
         };
-        let Some(k) = candidate else {
+        let Some(k) = shortfall.closest else {
             return format!("no roll leads from {} to any other face{within}", f(face));
         };
         let (m, check) = (&self.moves[k], self.check(k));

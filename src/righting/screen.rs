@@ -564,13 +564,17 @@ impl Simplex {
         // Columns: w (n), one slack per inequality and per bound row, then
         // artificials as needed.
         let slacks = orig.iter().filter(|r| !r.equality).count() + n;
-        let mut row_coef: Vec<Vec<f64>> = Vec::with_capacity(m);
+        // The rows' coefficients are read where they lie (the original rows,
+        // then the bound rows' unit vectors), not copied.
+        let coef = |i: usize, k: usize| match orig.get(i) {
+            Some(r) => r.coeffs.get(k).copied().unwrap_or(0.0),
+            None => f64::from(u8::from(i - orig.len() == k)),
+        };
         let mut row_rhs: Vec<f64> = Vec::with_capacity(m);
         let mut row_slack: Vec<Option<usize>> = Vec::with_capacity(m);
         let mut next_slack = n;
         for r in orig {
             let shift: f64 = r.coeffs.iter().zip(lo).map(|(a, l)| a * l).sum();
-            row_coef.push(r.coeffs.clone());
             row_rhs.push(r.rhs - shift);
             if r.equality {
                 row_slack.push(None);
@@ -580,9 +584,6 @@ impl Simplex {
             }
         }
         for k in 0..n {
-            let mut a = vec![0.0; n];
-            a[k] = 1.0;
-            row_coef.push(a);
             row_rhs.push(hi[k] - lo[k]);
             row_slack.push(Some(next_slack));
             next_slack += 1;
@@ -603,7 +604,7 @@ impl Simplex {
             let s = if row_rhs[i] < 0.0 { -1.0 } else { 1.0 };
             sign[i] = s;
             for k in 0..n {
-                t[i * w + k] = s * row_coef[i][k];
+                t[i * w + k] = s * coef(i, k);
             }
             if let Some(j) = row_slack[i] {
                 t[i * w + j] = s;
@@ -889,7 +890,7 @@ mod tests {
     #[test]
     fn tiny_programmes_by_hand() {
         let row = |coeffs: Vec<f64>, rhs: f64, equality: bool| Row {
-            coeffs,
+            coeffs: coeffs.into(),
             rhs,
             equality,
             condition: super::super::contact::Condition::LiftOff,
@@ -938,7 +939,7 @@ mod tests {
     #[test]
     fn unique_optima_by_hand() {
         let row = |coeffs: Vec<f64>, rhs: f64| Row {
-            coeffs,
+            coeffs: coeffs.into(),
             rhs,
             equality: false,
             condition: super::super::contact::Condition::LiftOff,
@@ -1000,7 +1001,7 @@ mod tests {
         let rows = super::super::contact::AngleRows {
             angle_deg: 0.0,
             needed_nm: 1.0,
-            arms_m: Vec::new(),
+            arms_m: Default::default(),
             rows: Vec::new(),
         };
         assert_eq!(best_moment(&rows, &[], 1e-7), Screen::Unknown);

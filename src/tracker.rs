@@ -230,8 +230,9 @@ impl Tracker {
             self.cue(at_s);
         }
         if let Some(f) = s.accel_body_m_s2 {
-            let off_g = (f.norm() / STANDARD_GRAVITY_M_S2 - 1.0).abs();
-            if armed && off_g >= AIRBORNE_FORCE_OFF_G {
+            // Only an armed vehicle's force is a cue: the norm is worked
+            // out only then (every IMU sample of a replay comes here).
+            if armed && (f.norm() / STANDARD_GRAVITY_M_S2 - 1.0).abs() >= AIRBORNE_FORCE_OFF_G {
                 let since = *self.force_off_since.get_or_insert(at_s);
                 if at_s - since >= AIRBORNE_FORCE_HOLD_S {
                     self.cue(at_s);

@@ -64,7 +64,9 @@ static X25: Crc<u16, Table<16>> = Crc::<u16, Table<16>>::new(&CRC_16_MCRF4XX);
 /// blocks matters as much as the blocks: it goes in blocks of 8, 4 and 2
 /// with the same table's lanes (lane k is a byte followed by k zero
 /// bytes, the textbook slicing identity), one table step per block
-/// instead of one per byte.
+/// instead of one per byte. Inlined into the frame check, its one caller
+/// on the live path.
+#[inline]
 pub fn checksum(bytes: &[u8], extra: u8) -> u16 {
     let t = X25.table();
     // MCRF4XX: reflected, initial value 0xFFFF (its own bit reversal), no
@@ -124,6 +126,16 @@ pub struct Frame {
     pub message: Message,
 }
 
+/// What [`MavDecoder::push_each_cut`] hands out, in the order of the bytes.
+#[derive(Debug, Clone, PartialEq)]
+pub enum Decoded<'a> {
+    /// A good frame.
+    Frame(&'a Frame),
+    /// The end of a piece (after a cut byte, or the end of the bytes),
+    /// with the counters after it.
+    Cut(Counters),
+}
+
 /// What the decoder accepts.
 #[derive(Debug, Clone, Default)]
 pub struct MavConfig {
@@ -155,8 +167,8 @@ enum Candidate {
     Unknown(usize),
     /// A frame that passed the CRC but a filter refused it.
     Rejected(usize),
-    /// A good frame of this many bytes.
-    Good(Frame, usize),
+    /// A good frame of this many bytes (handed out already).
+    Good(usize),
 }
 
 impl MavDecoder {
@@ -191,18 +203,95 @@ impl MavDecoder {
 
     /// Feed received bytes. They are read where they lie: only the bytes
     /// of a frame still waiting for the rest of it are kept (copied) for
-    /// the next push.
+    /// the next push. Good frames wait in a bounded queue for [`pop`](Self::pop).
     pub fn push(&mut self, data: &[u8]) {
+        let mut out = std::mem::take(&mut self.out);
+        let mut dropped = 0;
+        self.push_with(data, None, &mut |d| {
+            if let Decoded::Frame(f) = d {
+                if out.len() >= MAX_QUEUED {
+                    out.pop_front();
+                    dropped += 1;
+                }
+                out.push_back(f.clone());
+            }
+        });
+        self.out = out;
+        self.counters.dropped += dropped;
+    }
+
+    /// Feed received bytes and hand each good frame to `each` as it is
+    /// read, instead of queueing it: nothing is copied or dropped on the
+    /// way, which is what a fast link needs (every frame is checked
+    /// exactly as by [`push`](Self::push); frames already queued by it
+    /// stay queued).
+    pub fn push_each(&mut self, data: &[u8], mut each: impl FnMut(&Frame)) {
+        self.push_with(data, None, &mut |d| {
+            if let Decoded::Frame(f) = d {
+                each(f)
+            }
+        });
+    }
+
+    /// As [`push_each`](Self::push_each), with the bytes taken in pieces
+    /// that end after each byte equal to `cut` (the last piece at the end
+    /// of `data`), and a [`Decoded::Cut`] with the counters after each
+    /// piece: what pushing the pieces one by one would give,
+    /// frame for frame and count for count (a replay shows each line's
+    /// counters as of the end of its line), without cutting the bytes
+    /// apart: a frame the cut falls inside is read where it lies once its
+    /// bytes are all there, not copied aside.
+    pub fn push_each_cut(&mut self, data: &[u8], cut: u8, mut each: impl FnMut(Decoded<'_>)) {
+        self.push_with(data, Some(cut), &mut each);
+    }
+
+    /// The one push behind the others: `cut` marks where pieces end.
+    fn push_with<E: FnMut(Decoded<'_>)>(&mut self, data: &[u8], cut: Option<u8>, emit: &mut E) {
+        // `start`: the first byte of `data` not yet read, when nothing is
+        // held (held bytes are always read before it).
+        let mut start = 0;
+        let mut from = 0;
+        while from < data.len() {
+            let end = match cut {
+                Some(c) => memchr::memchr(c, &data[from..]).map_or(data.len(), |k| from + k + 1),
+                None => data.len(),
+            };
+            if !self.buf.is_empty() {
+                start = match self.bridge(&data[from..end], emit) {
+                    Some(used) => from + used,
+                    None => end,
+                };
+            }
+            if self.buf.is_empty() {
+                // A candidate that waited at `start` in the piece before is
+                // read again with the bytes now after it.
+                start += self.scan(&data[start..end], end - start, false, emit);
+            }
+            if cut.is_some() {
+                emit(Decoded::Cut(self.counters));
+            }
+            from = end;
+        }
+        if self.buf.is_empty() {
+            self.buf.extend_from_slice(&data[start..]);
+        }
+    }
+
+    /// Read the held bytes (a candidate that waited) with the first bytes
+    /// of `data` behind them. Returns how many bytes of `data` were read
+    /// once nothing is held any more, or None while a candidate still
+    /// waits (all of `data` is held then).
+    fn bridge<E: FnMut(Decoded<'_>)>(&mut self, data: &[u8], emit: &mut E) -> Option<usize> {
         let mut rest = data;
-        // Bytes held from an earlier push start a candidate that waits for
-        // more: read it (and whatever starts inside the held bytes) with
-        // enough new bytes behind it to decide, then go on in `rest`.
-        while !self.buf.is_empty() && !rest.is_empty() {
+        while !self.buf.is_empty() {
+            if rest.is_empty() {
+                return None;
+            }
             let held = self.buf.len();
             let take = rest.len().min(BRIDGE);
             let mut buf = std::mem::take(&mut self.buf);
             buf.extend_from_slice(&rest[..take]);
-            let stop = self.scan(&buf, held, false);
+            let stop = self.scan(&buf, held, false, emit);
             if stop < held {
                 // Still waiting (all of `rest` is in `buf` by now, since
                 // a candidate never needs more than BRIDGE bytes).
@@ -214,10 +303,7 @@ impl MavDecoder {
             }
             self.buf = buf;
         }
-        if self.buf.is_empty() {
-            let stop = self.scan(rest, rest.len(), false);
-            self.buf.extend_from_slice(&rest[stop..]);
-        }
+        Some(data.len() - rest.len())
     }
 
     /// Next decoded frame, oldest first.
@@ -230,16 +316,34 @@ impl MavDecoder {
     /// frames it claimed are read after all.
     pub fn finish(&mut self) {
         let mut buf = std::mem::take(&mut self.buf);
-        let stop = self.scan(&buf, buf.len(), true);
+        let mut out = std::mem::take(&mut self.out);
+        let mut dropped = 0;
+        let stop = self.scan(&buf, buf.len(), true, &mut |d| {
+            if let Decoded::Frame(f) = d {
+                if out.len() >= MAX_QUEUED {
+                    out.pop_front();
+                    dropped += 1;
+                }
+                out.push_back(f.clone());
+            }
+        });
         buf.drain(..stop.min(buf.len()));
         self.buf = buf;
+        self.out = out;
+        self.counters.dropped += dropped;
     }
 
     /// Read the candidates of `b` that start before `limit`, counting each
-    /// and queueing the good frames. Returns where the search stopped: the
+    /// and handing the good frames to `emit`. Returns where the search stopped: the
     /// start of a candidate that waits for more bytes (below `limit`), or
     /// the first byte after `limit` not yet read (at or past it).
-    fn scan(&mut self, b: &[u8], limit: usize, at_end: bool) -> usize {
+    fn scan<E: FnMut(Decoded<'_>)>(
+        &mut self,
+        b: &[u8],
+        limit: usize,
+        at_end: bool,
+        emit: &mut E,
+    ) -> usize {
         let mut i = 0;
         while i < limit {
             match b[i..].iter().position(|&c| c == STX_V1 || c == STX_V2) {
@@ -249,7 +353,7 @@ impl MavDecoder {
             if i >= limit {
                 break;
             }
-            match self.candidate(&b[i..], at_end) {
+            match self.candidate(&b[i..], at_end, emit) {
                 Candidate::Incomplete if at_end => {
                     self.counters.crc_errors += 1;
                     i += 1;
@@ -267,23 +371,23 @@ impl MavDecoder {
                     self.counters.rejected += 1;
                     i += n;
                 }
-                Candidate::Good(f, n) => {
-                    self.counters.frames += 1;
-                    if self.out.len() >= MAX_QUEUED {
-                        self.out.pop_front();
-                        self.counters.dropped += 1;
-                    }
-                    self.out.push_back(f);
-                    i += n;
-                }
+                Candidate::Good(n) => i += n,
             }
         }
         i
     }
 
     /// The candidate frame at the start of `b` (which begins with a start
-    /// byte).
-    fn candidate(&mut self, b: &[u8], at_end: bool) -> Candidate {
+    /// byte). A good frame is counted and handed to `emit` here, where it
+    /// was built: moved out through the return value, it would be copied
+    /// (and read back before its bytes were all written).
+    #[inline(always)]
+    fn candidate<E: FnMut(Decoded<'_>)>(
+        &mut self,
+        b: &[u8],
+        at_end: bool,
+        emit: &mut E,
+    ) -> Candidate {
         let shape = match Shape::of(b) {
             ShapeOf::Incomplete => return Candidate::Incomplete,
             ShapeOf::Bad => return Candidate::Bad,
@@ -326,17 +430,19 @@ impl MavDecoder {
         let n = shape.len.min(info.full_len);
         let carried = &b[shape.hdr..shape.hdr + n];
         match Message::decode_carried(shape.msgid, carried) {
-            Some(message) => Candidate::Good(
-                Frame {
+            Some(message) => {
+                let frame = Frame {
                     version: if shape.v2 { 2 } else { 1 },
                     seq: shape.seq,
                     sysid,
                     compid,
                     signed,
                     message,
-                },
-                total,
-            ),
+                };
+                self.counters.frames += 1;
+                emit(Decoded::Frame(&frame));
+                Candidate::Good(total)
+            }
             // ok-path for completeness: every id in the table decodes.
             None => Candidate::Unknown(total),
         }
@@ -404,6 +510,7 @@ impl Shape {
     /// The CRC matches, and a MAVLink 1 payload is not shorter than its
     /// message (only MAVLink 2 may drop trailing zeros; a short v1 payload
     /// is damaged or from a sender we cannot read).
+    #[inline]
     fn crc_ok(&self, b: &[u8], info: &messages::MessageInfo) -> bool {
         let crc_at = self.hdr + self.len;
         let crc = u16::from_le_bytes([b[crc_at], b[crc_at + 1]]);
@@ -540,6 +647,11 @@ impl SampleMaker {
     /// flight controller, an unknown battery voltage), or carries
     /// values that are not numbers (counted by the caller as malformed via
     /// [`SampleOutcome::Malformed`]).
+    ///
+    /// Inlined where it is called (the link decoder's one place), so the
+    /// frame just decoded is read from registers, not written out and
+    /// read back.
+    #[inline]
     pub fn sample(&mut self, frame: &Frame, arrival_s: f64) -> SampleOutcome {
         let mut s = Sample::default();
         let t = |ms: Option<f64>, this: &mut Self| -> f64 {
@@ -661,12 +773,14 @@ pub enum SampleOutcome {
     Malformed,
 }
 
+#[inline]
 fn vec3(v: &[f32; 3]) -> Vector3<f64> {
     Vector3::new(f64::from(v[0]), f64::from(v[1]), f64::from(v[2]))
 }
 
 /// A unit quaternion from (w, x, y, z) if it is finite and within 10 % of
 /// unit length (further off means a wrong field order or units, not noise).
+#[inline]
 pub fn unit_quaternion(wxyz: [f64; 4]) -> Option<UnitQuaternion<f64>> {
     let q = Quaternion::new(wxyz[0], wxyz[1], wxyz[2], wxyz[3]);
     // The norm is worked out once: this is `from_quaternion` (q over its

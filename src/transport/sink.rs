@@ -4,7 +4,7 @@
 use super::floor::FloorStore;
 use super::{LinkEvent, LinkMsg};
 use cagehand::link::clock::{TICK_S, silence_ticks};
-use cagehand::link::{Counters, Decoder};
+use cagehand::link::{Counters, Decoder, Delivery};
 use std::sync::mpsc::{Receiver, SyncSender, TrySendError};
 
 /// Messages a blocking link (a replay) ships at once at the most.
@@ -169,11 +169,12 @@ impl Sink {
         {
             v.set_wall_clock(super::floor::wall_timestamp());
         }
+        if self.sample_clock && self.blocking {
+            return self.data_in_lines(bytes);
+        }
         if self.sample_clock {
             // One line at a time, so each sample's counters are its own
             // (a captured line's frames count includes that line, no more).
-            // (The pieces of `split_inclusive` on b'\n', found by memchr's
-            // word-at-a-time search rather than byte by byte.)
             let mut rest = bytes;
             while !rest.is_empty() {
                 let end = memchr::memchr(b'\n', rest).map_or(rest.len(), |k| k + 1);
@@ -190,6 +191,86 @@ impl Sink {
         let ok = self.flush();
         self.keep_floor(false);
         ok
+    }
+
+    /// A capture on the sender's clock, replayed (blocking): the messages
+    /// are those of pushing it one line (up to and including a newline
+    /// byte) at a time and flushing after each, so each sample's counters
+    /// are its own (a captured line's frames count includes that line, no
+    /// more), in the same order: for each line its samples, each after
+    /// the ticks of the silence before it, the counters (when they
+    /// changed) before its first sample or, with none, after the line.
+    /// The decoder reads the bytes whole ([`Decoder::push_cut`]) and says
+    /// where each line ends with the counters there; the counters go into
+    /// a slot kept before the line's first sample. Nothing is shipped
+    /// while a slot is open.
+    fn data_in_lines(&mut self, bytes: &[u8]) -> bool {
+        let Sink {
+            tx,
+            held,
+            spare,
+            decoder,
+            clock_s,
+            last_sent_s,
+            health_sent,
+            clock_from_sample,
+            ..
+        } = self;
+        let advance = |clock_s: &mut f64, at_s: f64| {
+            if at_s.is_finite() && at_s > *clock_s {
+                *clock_s = at_s;
+            }
+        };
+        let mut gone = false;
+        // The line's counters slot: its index in `held` and its clock.
+        let mut slot: Option<(usize, f64)> = None;
+        decoder.push_cut(bytes, *clock_s, b'\n', |d| match d {
+            Delivery::Sample(sample) => {
+                if *clock_from_sample {
+                    for t in silence_ticks(*clock_s, sample.t_s) {
+                        advance(clock_s, t);
+                        held.push(LinkMsg::Tick { at_s: t });
+                    }
+                }
+                advance(clock_s, sample.t_s);
+                *clock_from_sample = true;
+                if slot.is_none() {
+                    slot = Some((held.len(), *clock_s));
+                    held.push(LinkMsg::Tick { at_s: *clock_s });
+                }
+                *last_sent_s = *clock_s;
+                held.push(LinkMsg::Sample {
+                    at_s: *clock_s,
+                    sample,
+                });
+            }
+            Delivery::Cut(counters) => {
+                let changed = *health_sent != Some(counters);
+                match slot.take() {
+                    Some((k, at_s)) if changed => held[k] = LinkMsg::Health { at_s, counters },
+                    Some((k, _)) => {
+                        held.remove(k);
+                    }
+                    None if changed => {
+                        *last_sent_s = *clock_s;
+                        held.push(LinkMsg::Health {
+                            at_s: *clock_s,
+                            counters,
+                        });
+                    }
+                    None => {}
+                }
+                if changed {
+                    *health_sent = Some(counters);
+                }
+                if held.len() >= BLOCKING_BATCH && !gone {
+                    // In parts, as `send` ships them (see there).
+                    let next = spare.try_recv().unwrap_or_default();
+                    gone = tx.send(std::mem::replace(held, next)).is_err();
+                }
+            }
+        });
+        !gone
     }
 
     /// Save the replay floor when it moved (at most every

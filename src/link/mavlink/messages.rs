@@ -44,10 +44,26 @@ const fn info(id: u32, name: &'static str, crc_extra: u8, base: usize, full: usi
 /// Longest full payload in the table, so a zero-filled copy fits a fixed buffer.
 pub const MAX_FULL_LEN: usize = 63;
 
-/// Look up a message id.
+/// Look up a message id. Every candidate frame asks, so it is one index
+/// into a table of the ids below 256 (all of the subset's) rather than a
+/// search of [`KNOWN`].
+#[inline]
 pub fn lookup(id: u32) -> Option<&'static MessageInfo> {
-    KNOWN.iter().find(|m| m.id == id)
+    let slot = *BY_ID.get(usize::try_from(id).ok()?)?;
+    KNOWN.get(usize::from(slot))
 }
+
+/// Position in [`KNOWN`] of each id below 256; `u8::MAX` for an id outside
+/// the subset.
+static BY_ID: [u8; 256] = {
+    let mut t = [u8::MAX; 256];
+    let mut k = 0;
+    while k < KNOWN.len() {
+        t[KNOWN[k].id as usize] = k as u8;
+        k += 1;
+    }
+    t
+};
 
 /// `base_mode` flag meaning the motors are armed (MAV_MODE_FLAG_SAFETY_ARMED).
 pub const MODE_FLAG_ARMED: u8 = 0x80;
@@ -157,24 +173,31 @@ fn bytes_at<const N: usize>(p: &[u8], o: usize) -> [u8; N] {
         }
     }
 }
+#[inline(always)]
 fn u8_at(p: &[u8], o: usize) -> u8 {
     bytes_at::<1>(p, o)[0]
 }
+#[inline(always)]
 fn u16_at(p: &[u8], o: usize) -> u16 {
     u16::from_le_bytes(bytes_at(p, o))
 }
+#[inline(always)]
 fn i16_at(p: &[u8], o: usize) -> i16 {
     i16::from_le_bytes(bytes_at(p, o))
 }
+#[inline(always)]
 fn u32_at(p: &[u8], o: usize) -> u32 {
     u32::from_le_bytes(bytes_at(p, o))
 }
+#[inline(always)]
 fn u64_at(p: &[u8], o: usize) -> u64 {
     u64::from_le_bytes(bytes_at(p, o))
 }
+#[inline(always)]
 fn f32_at(p: &[u8], o: usize) -> f32 {
     f32::from_bits(u32_at(p, o))
 }
+#[inline(always)]
 fn f32x3(p: &[u8], o: usize) -> [f32; 3] {
     [f32_at(p, o), f32_at(p, o + 4), f32_at(p, o + 8)]
 }
@@ -195,6 +218,7 @@ impl Message {
     /// past its end read as zero (what MAVLink 2's truncation of trailing
     /// zeros means), so the framer needs no zero-filled copy. `None` for
     /// an id outside the subset.
+    #[inline]
     pub fn decode_carried(id: u32, p: &[u8]) -> Option<Message> {
         Some(match id {
             0 => Message::Heartbeat {
@@ -364,6 +388,17 @@ impl Message {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn lookup_finds_each_known_id_and_nothing_else() {
+        // The ids of the subset are those of common.xml (docs/references.md);
+        // the table must agree with a plain search of KNOWN for every id.
+        for id in (0..600u32).chain([u32::MAX, 1 << 24]) {
+            let plain = KNOWN.iter().find(|m| m.id == id);
+            assert_eq!(lookup(id), plain, "id {id}");
+        }
+        assert_eq!(lookup(30).map(|m| m.name), Some("ATTITUDE"));
+    }
 
     #[test]
     fn encode_has_full_length_and_round_trips() {

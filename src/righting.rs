@@ -46,7 +46,9 @@ pub struct Move {
     check: std::sync::OnceLock<Feasibility>,
     /// The rotor commands, worked out on first use: a move's check costs
     /// a fraction of its commands, and a plan takes few of the moves.
-    commands: std::sync::OnceLock<Option<RotorCommands>>,
+    /// (Shared with the plans' steps that take the move: a map of a large
+    /// cage has thousands of steps, and a vertex pivot's schedule is long.)
+    commands: std::sync::OnceLock<Option<std::sync::Arc<RotorCommands>>>,
 }
 
 impl Move {
@@ -198,14 +200,26 @@ impl RightingModel {
             let passed = check.feasible;
             let _ = m.check.set(check);
             if passed {
-                let _ = m.commands.set(commands);
+                let _ = m.commands.set(commands.map(std::sync::Arc::new));
             }
         }
         if !self.check(k).feasible {
             return None;
         }
+        self.shared_commands(k).map(|c| &**c)
+    }
+
+    /// [`RightingModel::commands`], shared (for the steps of plans).
+    fn shared_commands(&self, k: usize) -> Option<&std::sync::Arc<RotorCommands>> {
+        let m = self.moves.get(k)?;
+        if !self.check(k).feasible {
+            return None;
+        }
         m.commands
-            .get_or_init(|| feasibility::move_commands(&self.cage, &m.roll, &self.limits))
+            .get_or_init(|| {
+                feasibility::move_commands(&self.cage, &m.roll, &self.limits)
+                    .map(std::sync::Arc::new)
+            })
             .as_ref()
     }
 

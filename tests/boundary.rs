@@ -132,7 +132,10 @@ fn core_modules_use_no_terminal_clap_sockets_serial_or_files() {
         ("eprintln!", "printing"),
         ("std::thread::spawn", "threads of its own"),
         ("thread::scope", "threads of its own"),
-        ("rayon", "threads of its own (the command line spreads work over cores)"),
+        (
+            "rayon",
+            "threads of its own (the command line spreads work over cores)",
+        ),
     ];
     let mut found = Vec::new();
     for (rel, text) in &files {

@@ -927,6 +927,6 @@ fn a_move_without_commands_is_routed_around() {
         }
     }
     for s in again.iter().flat_map(|plan| &plan.steps) {
-        assert_eq!(Some(&s.commands), fresh.commands(s.move_index));
+        assert_eq!(Some(&*s.commands), fresh.commands(s.move_index));
     }
 }

@@ -43,8 +43,9 @@ pub struct Step {
     /// Needed / available moment at the worst angle of the roll.
     pub thrust_fraction: f64,
     /// What to set the rotors to (from the feasibility LP): one setting,
-    /// or a schedule by roll angle.
-    pub commands: RotorCommands,
+    /// or a schedule by roll angle. Shared with the model's move and every
+    /// other step that takes it.
+    pub commands: std::sync::Arc<RotorCommands>,
     /// Attitude before the step (the previous step's target).
     pub start: UnitQuaternion<f64>,
     /// Attitude to expect after the step: the attitude before it, rotated
@@ -566,7 +567,7 @@ impl RightingModel {
                 pivot: m.roll.pivot.clone(),
                 angle_deg: m.roll.angle_deg,
                 thrust_fraction: self.check(k).thrust_fraction.unwrap_or(0.0),
-                commands: self.commands(k).cloned().unwrap_or_default(),
+                commands: self.shared_commands(k).cloned().unwrap_or_default(),
                 start,
                 target: q,
                 move_index: k,

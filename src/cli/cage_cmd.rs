@@ -272,6 +272,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     let r = report(&l.profile, &l.cage, ss, Vec::new());
     let mut out = std::io::stdout().lock();
     if args.json {
+        super::progress::Large::new(&l.cage).stage("rotor commands of every move");
         write_report_json(&mut out, &r, &l.cage, &model)?;
         return Ok(ExitCode::SUCCESS);
     }

@@ -538,6 +538,9 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
     // The model, and the recovery map when asked for, are worked out while
     // the profile's statics are checked.
     let (l, work) = args.profile.load_with(|b| {
+        if args.all {
+            super::progress::Large::new(&b.cage).stage("recovery map");
+        }
         RightingModel::new(&b.profile, &b.cage).map(|model| {
             let map = args.all.then(|| recovery_map(&model));
             (model, map)

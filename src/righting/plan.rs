@@ -270,16 +270,9 @@ impl RightingModel {
                 via: None,
             });
         }
-        while let Some(Reached {
-            cost_deg,
-            face,
-            via,
-            ..
-        }) = queue.pop()
+        while let Some(Reached { cost_deg, face, .. }) =
+            self.settle_next(&mut queue, |f| to_go[f].is_none())
         {
-            if to_go[face].is_some() || via.is_some_and(|k| !self.plannable(k)) {
-                continue;
-            }
             to_go[face] = Some(cost_deg);
             for &k in self.moves_into(face) {
                 let from = self.moves[k].roll.from;
@@ -295,6 +288,18 @@ impl RightingModel {
             }
         }
         to_go
+    }
+
+    /// The next entry of a search's queue that settles a face: the first
+    /// whose face is still `open` and whose move, if any, may be planned
+    /// with. The one place a search checks a move (see the module comment).
+    fn settle_next(
+        &self,
+        queue: &mut std::collections::BinaryHeap<Reached>,
+        open: impl Fn(usize) -> bool,
+    ) -> Option<Reached> {
+        std::iter::from_fn(|| queue.pop())
+            .find(|r| open(r.face) && r.via.is_none_or(|k| self.plannable(k)))
     }
 
     /// The recovery map: a plan from every face, each starting at the
@@ -494,11 +499,8 @@ impl RightingModel {
             face,
             via,
             ..
-        }) = queue.pop()
+        }) = self.settle_next(&mut queue, |f| !closed[f])
         {
-            if closed[face] || via.is_some_and(|k| !self.plannable(k)) {
-                continue;
-            }
             closed[face] = true;
             via_move[face] = via;
             if goals.contains(&face) {

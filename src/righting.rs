@@ -27,7 +27,7 @@ use crate::cage::{Cage, CageError};
 use crate::profile::Profile;
 pub use feasibility::{Feasibility, Limits, RotorCommands, ScheduleEntry};
 pub use moves::{MoveKind, Roll};
-pub use plan::{MapDraft, Plan, Step};
+pub use plan::{FinishedMap, MapDraft, Plan, Step};
 
 /// A commanded roll and what follows from it: the passive rolls until the
 /// vehicle settles, and whether the rotors can make it.

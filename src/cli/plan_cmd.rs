@@ -173,7 +173,12 @@ fn recovery_map(model: &RightingModel) -> Vec<Plan> {
     unreached.par_iter().for_each(|&k| {
         model.check(k);
     });
-    model.recovery_map_from(draft)
+    // Each face's plan is assembled on its own.
+    let map = model.finish_map(draft);
+    (0..model.cage.faces.len())
+        .into_par_iter()
+        .map(|face| model.map_plan(&map, face))
+        .collect()
 }
 
 /// Every plan's text, written on every core (a map of a large cage is

@@ -103,6 +103,17 @@ pub struct MapDraft {
     hops: Vec<(usize, Vec<usize>)>,
 }
 
+/// A recovery map whose moves all have their commands, ready to give each
+/// face's plan ([`RightingModel::map_plan`]).
+pub struct FinishedMap {
+    draft: MapDraft,
+    /// Per face without a route, its group of faces that reach the same
+    /// faces; each group's shortfall is worked out by whichever plan needs
+    /// it first.
+    groups: Vec<Option<usize>>,
+    shortfalls: Vec<std::sync::OnceLock<Shortfall>>,
+}
+
 impl MapDraft {
     /// The moves the map takes, each once, in index order.
     pub fn moves(&self) -> Vec<usize> {
@@ -330,43 +341,57 @@ impl RightingModel {
 
     /// [`RightingModel::recovery_map`] from a draft of this model's map
     /// (worked out again while a move it takes has no commands).
-    pub fn recovery_map_from(&self, mut draft: MapDraft) -> Vec<Plan> {
+    pub fn recovery_map_from(&self, draft: MapDraft) -> Vec<Plan> {
+        let map = self.finish_map(draft);
+        (0..self.cage.faces.len())
+            .map(|face| self.map_plan(&map, face))
+            .collect()
+    }
+
+    /// A draft whose moves all have their commands (worked out again while
+    /// one has none), with its faces without a route grouped, ready for
+    /// [`RightingModel::map_plan`] (a [`FinishedMap`]).
+    pub fn finish_map(&self, mut draft: MapDraft) -> FinishedMap {
         while !self.commands_found(draft.hops.iter().flat_map(|(_, h)| h)) {
             draft = self.map_draft();
         }
-        let MapDraft { routes, hops } = &draft;
         // Faces without a route are explained once per group of faces that
         // reach the same faces.
-        let stuck = routes.to_go.iter().any(Option::is_none);
-        let groups = if stuck && !routes.goals.is_empty() {
+        let routes = &draft.routes;
+        let groups = if routes.to_go.iter().any(Option::is_none) && !routes.goals.is_empty() {
             self.stuck_groups(routes)
         } else {
             Vec::new()
         };
-        let mut shortfalls: std::collections::HashMap<usize, Shortfall> =
-            std::collections::HashMap::new();
-        hops.iter()
-            .enumerate()
-            .map(|(face, (start, moves))| {
-                let attitude = resting_attitude(&self.cage, face);
-                self.assemble(
-                    face,
-                    *start,
-                    &attitude,
-                    moves,
-                    &routes.goals,
-                    || match groups.get(*start).copied().flatten() {
-                        Some(g) => {
-                            let s = *shortfalls
-                                .entry(g)
-                                .or_insert_with(|| self.shortfall(*start, routes));
-                            self.explain_shortfall(*start, &s)
-                        }
-                        None => self.explain_on(*start, routes),
-                    },
-                )
-            })
-            .collect()
+        let count = groups.iter().flatten().max().map_or(0, |g| g + 1);
+        FinishedMap {
+            draft,
+            groups,
+            shortfalls: (0..count).map(|_| std::sync::OnceLock::new()).collect(),
+        }
+    }
+
+    /// The plan of `face` in a finished map ([`RightingModel::finish_map`]):
+    /// the map's plans are independent, so a caller may assemble them on
+    /// every core. Panics when `face` is not a face of this model's cage.
+    pub fn map_plan(&self, map: &FinishedMap, face: usize) -> Plan {
+        let (routes, (start, moves)) = (&map.draft.routes, &map.draft.hops[face]);
+        let attitude = resting_attitude(&self.cage, face);
+        self.assemble(face, *start, &attitude, moves, &routes.goals, || match map
+            .groups
+            .get(*start)
+            .copied()
+            .flatten()
+        {
+            Some(g) => {
+                let s = match map.shortfalls.get(g) {
+                    Some(kept) => *kept.get_or_init(|| self.shortfall(*start, routes)),
+                    None => self.shortfall(*start, routes),
+                };
+                self.explain_shortfall(*start, &s)
+            }
+            None => self.explain_on(*start, routes),
+        })
     }
 
     /// The faces of a draft from which no take-off face can be reached:

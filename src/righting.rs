@@ -190,6 +190,11 @@ impl RightingModel {
     /// when the check refuses it, or when no setting carries some angle of
     /// it, which makes it infeasible (fail safe).
     pub fn commands(&self, k: usize) -> Option<&RotorCommands> {
+        self.shared_commands(k).map(|c| &**c)
+    }
+
+    /// [`RightingModel::commands`], shared (for the steps of plans).
+    fn shared_commands(&self, k: usize) -> Option<&std::sync::Arc<RotorCommands>> {
         let m = self.moves.get(k)?;
         if m.check.get().is_none() {
             // Not checked yet: check and work out the commands from one
@@ -203,15 +208,6 @@ impl RightingModel {
                 let _ = m.commands.set(commands.map(std::sync::Arc::new));
             }
         }
-        if !self.check(k).feasible {
-            return None;
-        }
-        self.shared_commands(k).map(|c| &**c)
-    }
-
-    /// [`RightingModel::commands`], shared (for the steps of plans).
-    fn shared_commands(&self, k: usize) -> Option<&std::sync::Arc<RotorCommands>> {
-        let m = self.moves.get(k)?;
         if !self.check(k).feasible {
             return None;
         }

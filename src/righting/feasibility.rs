@@ -698,8 +698,35 @@ fn angle_outcome(
                 exact: (hi - lo <= PROVED_EXACT * (1.0 + lo.abs())).then_some(lo),
             }
         }
+        // A proved optimum short of the LP's bar: blocked, as the LP would
+        // find (most often no thrust gives any helping moment at all, and
+        // the optimum is exactly zero).
+        Screen::Optimum { lo, hi, .. } if proved_below(lo, hi, lp_bar(needed, tol)) => {
+            // (+ 0.0: a zero moment reads 0, not -0)
+            AngleOutcome::Blocked { avail: lo + 0.0 }
+        }
         _ => angle_by_lp(rows, limits, tol),
     }
+}
+
+/// The least best moment the LP path counts as carrying an angle that
+/// needs `needed` (N m): a positive share of it where gravity resists,
+/// gravity's own help less the tolerance where it helps.
+fn lp_bar(needed: f64, tol: f64) -> f64 {
+    if needed > 0.0 {
+        1e-6 * needed
+    } else {
+        needed - tol
+    }
+}
+
+/// Whether the screen's bounds `lo..hi` on a best moment meet to
+/// round-off ([`PROVED_EXACT`]) and lie below `bar` by more than their
+/// width: the LP's optimum, the same number up to round-off, is below it
+/// too.
+fn proved_below(lo: f64, hi: f64, bar: f64) -> bool {
+    let width = PROVED_EXACT * (1.0 + lo.abs().max(bar.abs()));
+    hi - lo <= width && hi < bar - width
 }
 
 /// Which single condition, dropped, would let the rotors meet the rest
@@ -714,11 +741,7 @@ fn blocking_condition(
     let needed = rows.needed_nm;
     let slack = SCREEN_SLACK * (1.0 + needed.abs());
     // The threshold the LP's moment is held to.
-    let bar = if needed > 0.0 {
-        1e-6 * needed
-    } else {
-        needed - tol
-    };
+    let bar = lp_bar(needed, tol);
     [Condition::Sideways, Condition::Between]
         .into_iter()
         .find(|c| {
@@ -736,6 +759,7 @@ fn blocking_condition(
                 Screen::Infeasible => false,
                 Screen::Optimum { lo, .. } if lo > bar + slack => true,
                 Screen::Optimum { hi, .. } if hi < bar - slack => false,
+                Screen::Optimum { lo, hi, .. } if proved_below(lo, hi, bar) => false,
                 _ => best_moment(&relaxed, &limits.rotors, tol).is_some_and(|(m, _)| {
                     if needed > 0.0 {
                         m > 1e-6 * needed

@@ -852,6 +852,28 @@ mod tests {
         }
     }
 
+    /// With weak forward-only rotors most moves are blocked, many where no
+    /// thrust gives any helping moment (the screen proves a best moment of
+    /// exactly zero, short of what the LP path counts as carrying): the
+    /// fast check still gives the plain check's verdicts and reasons.
+    #[test]
+    fn fast_check_agrees_with_the_lp_where_the_rotors_are_weak() {
+        for k in [1, 2] {
+            let mut p = geodesic(k);
+            for r in &mut p.rotors {
+                r.max_thrust_n *= 0.15;
+                r.reverse_thrust_n = 0.0;
+            }
+            let m = model(&p);
+            let n = agree_on_every_move(&m);
+            let blocked = (0..m.moves.len())
+                .filter(|&i| m.check(i).thrust_fraction.is_none())
+                .count();
+            assert!(n >= 3 * 20 * 4usize.pow(k), "level {k}: {n} moves");
+            assert!(2 * blocked > n, "level {k}: {blocked} of {n} blocked");
+        }
+    }
+
     /// The screen's proofs hold against the general solver on every angle
     /// of every demo move, and it decides nearly all of them itself.
     #[test]

@@ -25,7 +25,7 @@ mod checks;
 
 use crate::cage::{Cage, CageError};
 use crate::profile::Profile;
-pub use feasibility::{Feasibility, Limits, RotorCommands, ScheduleEntry};
+pub use feasibility::{Feasibility, Limits, Outlook, RotorCommands, ScheduleEntry};
 pub use moves::{MoveKind, Roll};
 pub use plan::{FinishedMap, MapDraft, Plan, Step};
 
@@ -49,6 +49,10 @@ pub struct Move {
     /// (Shared with the plans' steps that take the move: a map of a large
     /// cage has thousands of steps, and a vertex pivot's schedule is long.)
     commands: std::sync::OnceLock<Option<std::sync::Arc<RotorCommands>>>,
+    /// What the roll's start says about its check, worked out on first
+    /// use ([`RightingModel::outlook`]): the explanations of faces with no
+    /// route ask it of every move out of them.
+    outlook: std::sync::OnceLock<Outlook>,
 }
 
 impl Move {
@@ -123,6 +127,7 @@ impl RightingModel {
                 settles_on,
                 check: std::sync::OnceLock::new(),
                 commands: std::sync::OnceLock::new(),
+                outlook: std::sync::OnceLock::new(),
             });
         }
         debug_assert!(moves.windows(2).all(|w| w[0].roll.from <= w[1].roll.from));
@@ -161,9 +166,19 @@ impl RightingModel {
             .get_or_init(|| feasibility::assess_check(&self.cage, &m.roll, &self.limits))
     }
 
-    /// TEMP
-    pub fn checked(&self, k: usize) -> bool {
-        self.moves[k].check.get().is_some()
+    /// What move `k`'s check gives or, before it is checked, what the
+    /// start of its roll says of it (worked out once): a fraction of a
+    /// check, enough to prove most moves out of a face with no route
+    /// refused, and to rank the rest. Panics as [`RightingModel::check`].
+    pub fn outlook(&self, k: usize) -> Outlook {
+        let m = &self.moves[k];
+        if let Some(check) = m.check.get() {
+            return check
+                .thrust_fraction
+                .map_or(Outlook::Blocked, Outlook::AtLeast);
+        }
+        *m.outlook
+            .get_or_init(|| feasibility::first_angle_outlook(&self.cage, &m.roll, &self.limits))
     }
 
     /// The moves that start on `face` (indices into `moves`).
@@ -229,6 +244,12 @@ impl RightingModel {
     /// commands, where already worked out, exist.
     fn plannable(&self, k: usize) -> bool {
         self.check(k).feasible && self.moves[k].commands.get().is_none_or(|c| c.is_some())
+    }
+
+    /// [`RightingModel::plannable`], without the whole check where the
+    /// start of the roll already proves it refused.
+    fn plannable_unless_refused(&self, k: usize) -> bool {
+        !self.outlook(k).refused(self.limits.torque_margin) && self.plannable(k)
     }
 
     /// Where the vehicle ends up if left lying on `face`.

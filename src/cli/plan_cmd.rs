@@ -163,15 +163,16 @@ fn recovery_map(model: &RightingModel) -> Vec<Plan> {
     draft.moves().par_iter().for_each(|&k| {
         model.commands(k);
     });
-    // The faces with no route are explained from every move out of them:
-    // checked on every core too.
+    // The faces with no route are explained from what the start of every
+    // move out of them says: worked out on every core too (the few moves
+    // checked whole are checked as each face's plan is assembled).
     let unreached: Vec<usize> = model
         .unreached(&draft)
         .into_iter()
         .flat_map(|f| model.moves_from(f))
         .collect();
     unreached.par_iter().for_each(|&k| {
-        model.check(k);
+        model.outlook(k);
     });
     // Each face's plan is assembled on its own.
     let map = model.finish_map(draft);

@@ -818,6 +818,62 @@ pub fn check_then_commands(
     (check, commands)
 }
 
+/// What the start of a roll (its first checked angle, 0 deg) says about
+/// its check, before the rest of the roll is scanned.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum Outlook {
+    /// No thrust carries the roll there: the check stops there too, and
+    /// its `thrust_fraction` is `None`.
+    Blocked,
+    /// The check's `thrust_fraction`, if it has one, is at least this
+    /// (the proved lower bound of the ratio there; 0 where gravity helps
+    /// or the screen proves nothing).
+    AtLeast(f64),
+}
+
+impl Outlook {
+    /// The least thrust fraction the check can give (infinite: blocked).
+    pub fn floor(self) -> f64 {
+        match self {
+            Outlook::Blocked => f64::INFINITY,
+            Outlook::AtLeast(f) => f,
+        }
+    }
+
+    /// Whether the check is sure to refuse the roll: blocked, or needing
+    /// more of the rotors at the start than the torque margin allows
+    /// (with room for the round-off between the bound and the check's
+    /// own ratio).
+    pub fn refused(self, torque_margin: f64) -> bool {
+        self.floor() * torque_margin > 1.0 + 1e-6
+    }
+}
+
+/// The [`Outlook`] of a roll from its first checked angle alone, as
+/// [`assess_check`]'s scan finds it there (a fraction of a whole check:
+/// most rolls out of a face with no route are refused at their start).
+pub fn first_angle_outlook(cage: &Cage, roll: &Roll, limits: &Limits) -> Outlook {
+    let tol = tolerance(cage);
+    let zero = vec![0.0; limits.rotors.len()];
+    let lo: Vec<f64> = limits.rotors.iter().map(|r| -r.reverse_thrust_n).collect();
+    let hi: Vec<f64> = limits.rotors.iter().map(|r| r.max_thrust_n).collect();
+    let Some(&first) = checked_angles_deg(cage, roll).first() else {
+        return Outlook::AtLeast(0.0);
+    };
+    let rows = rows_at(
+        cage,
+        roll,
+        &limits.rotors,
+        limits.friction_coefficient,
+        first.to_radians(),
+    );
+    match angle_outcome(&rows, limits, tol, &zero, (&lo, &hi), &mut Vec::new()) {
+        AngleOutcome::Blocked { .. } => Outlook::Blocked,
+        AngleOutcome::Finite { lo, .. } => Outlook::AtLeast(lo.max(0.0)),
+        AngleOutcome::Fine => Outlook::AtLeast(0.0),
+    }
+}
+
 fn assess_with(cage: &Cage, roll: &Roll, limits: &Limits, by: CommandsBy) -> Feasibility {
     scan(cage, roll, limits, by).0
 }

@@ -19,7 +19,7 @@
 //! only raise the cost. Admissible and consistent.
 
 use super::feasibility::Condition;
-use super::{Move, MoveKind, RightingModel, RotorCommands};
+use super::{Move, MoveKind, Outlook, RightingModel, RotorCommands};
 use crate::attitude::{angle_between_deg, rotate_about_world};
 use crate::rest::resting_attitude;
 use nalgebra::UnitQuaternion;
@@ -395,8 +395,9 @@ impl RightingModel {
     }
 
     /// The faces of a draft from which no take-off face can be reached:
-    /// their plans say why, which needs every move out of them checked (a
-    /// caller with threads to spare checks them in parallel first).
+    /// their plans say why, which needs the [`RightingModel::outlook`] of
+    /// every move out of them (a caller with threads to spare works them
+    /// out in parallel first) and the whole check of a few.
     pub fn unreached(&self, draft: &MapDraft) -> Vec<usize> {
         (0..self.cage.faces.len())
             .filter(|&f| self.cage.faces[f].stable && draft.routes.to_go[f].is_none())
@@ -638,27 +639,32 @@ impl RightingModel {
         // made (every move out of them is checked on the way).
         let stable = |i: usize| self.cage.faces.get(i).is_some_and(|x| x.stable);
         let mut reach = vec![false; self.cage.faces.len()];
-        let mut stack = Vec::new();
+        // The same faces listed (most groups are a face or a few, so the
+        // moves out are found without a pass over every face).
+        let mut reached = Vec::new();
         if stable(face) {
             reach[face] = true;
-            stack.push(face);
+            reached.push(face);
         }
-        while let Some(at) = stack.pop() {
+        let mut next = 0;
+        while let Some(&at) = reached.get(next) {
+            next += 1;
             for k in self.moves_from(at) {
                 let to = self.moves[k].settles_on;
-                if stable(to) && !reach[to] && self.plannable(k) {
+                if stable(to) && !reach[to] && self.plannable_unless_refused(k) {
                     reach[to] = true;
-                    stack.push(to);
+                    reached.push(to);
                 }
             }
         }
+        reached.sort_unstable();
         // Prefer a missing move after which a route exists (one move short);
         // otherwise any move out of the faces the rotors can reach. (In
         // index order: the moves are ordered by the face they start from.)
-        let out: Vec<usize> = (0..self.cage.faces.len())
-            .filter(|&f| reach[f])
-            .flat_map(|f| self.moves_from(f))
-            .filter(|&k| !reach[self.moves[k].settles_on] && !self.plannable(k))
+        let out: Vec<usize> = reached
+            .iter()
+            .flat_map(|&f| self.moves_from(f))
+            .filter(|&k| !reach[self.moves[k].settles_on] && !self.plannable_unless_refused(k))
             .collect();
         let short: Vec<usize> = out
             .iter()
@@ -666,20 +672,53 @@ impl RightingModel {
             .filter(|&k| to_go[self.moves[k].settles_on].is_some())
             .collect();
         let pool = if short.is_empty() { out } else { short };
-        let closest = pool.into_iter().min_by(|&a, &b| {
-            let fa = self.check(a).thrust_fraction.unwrap_or(f64::INFINITY);
-            let fb = self.check(b).thrust_fraction.unwrap_or(f64::INFINITY);
-            fa.total_cmp(&fb).then(
-                self.moves[a]
-                    .roll
-                    .angle_deg
-                    .total_cmp(&self.moves[b].roll.angle_deg),
-            )
-        });
         Shortfall {
-            faces: reach.iter().filter(|r| **r).count(),
-            closest,
+            faces: reached.len(),
+            closest: self.closest(&pool),
         }
+    }
+
+    /// The move of `pool` that comes closest to being feasible: the least
+    /// thrust fraction (blocked moves last), then the smallest roll, then
+    /// the first listed.
+    ///
+    /// Only the moves that could be it are checked whole: in order of the
+    /// least fraction the start of their roll allows, until that is more
+    /// than the best fraction found (branch and bound). A move blocked at
+    /// its start has no fraction and needs no check to say so.
+    fn closest(&self, pool: &[usize]) -> Option<usize> {
+        let mut by_floor: Vec<(f64, usize)> =
+            pool.iter().map(|&k| (self.outlook(k).floor(), k)).collect();
+        by_floor.sort_by(|a, b| a.0.total_cmp(&b.0));
+        // The exact fraction of a move known to have one, or none.
+        let exact = |k: usize| match self.outlook(k) {
+            Outlook::Blocked => Some(f64::INFINITY),
+            Outlook::AtLeast(_) => self.moves[k]
+                .check
+                .get()
+                .map(|c| c.thrust_fraction.unwrap_or(f64::INFINITY)),
+        };
+        let mut best = f64::INFINITY;
+        for &(floor, k) in &by_floor {
+            // (The bound and the check's ratio may differ by round-off.)
+            if floor.is_infinite() || floor * (1.0 - 1e-6) > best {
+                break;
+            }
+            let f = self.check(k).thrust_fraction.unwrap_or(f64::INFINITY);
+            best = best.min(f);
+        }
+        pool.iter()
+            .copied()
+            .filter_map(|k| exact(k).map(|f| (f, k)))
+            .min_by(|&(fa, a), &(fb, b)| {
+                fa.total_cmp(&fb).then(
+                    self.moves[a]
+                        .roll
+                        .angle_deg
+                        .total_cmp(&self.moves[b].roll.angle_deg),
+                )
+            })
+            .map(|(_, k)| k)
     }
 
     /// The faces grouped by what the rotors can reach from them: faces
@@ -695,7 +734,7 @@ impl RightingModel {
         for f in (0..faces).filter(|&f| stuck(f)) {
             for k in self.moves_from(f) {
                 let to = self.moves[k].settles_on;
-                if stuck(to) && self.plannable(k) {
+                if stuck(to) && self.plannable_unless_refused(k) {
                     graph.add_edge(nodes[f], nodes[to], ());
                 }
             }

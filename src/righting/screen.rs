@@ -750,7 +750,9 @@ mod tests {
     use super::*;
     use crate::cage::Cage;
     use crate::profile::Profile;
-    use crate::righting::feasibility::{self, Feasibility, assess, assess_plain, tolerance};
+    use crate::righting::feasibility::{
+        self, Feasibility, Outlook, assess, assess_plain, tolerance,
+    };
     use crate::righting::{RightingModel, moves};
 
     fn model(p: &Profile) -> RightingModel {
@@ -807,6 +809,20 @@ mod tests {
             }
             assert!(near(fast.needed_nm, plain.needed_nm), "{what}");
             assert!(near(fast.available_nm, plain.available_nm), "{what}");
+            // What the start of the roll says holds for the whole check by
+            // the LP: blocked there, no fraction at all; otherwise the
+            // fraction is at least the bound, and a refusal is one.
+            let outlook = feasibility::first_angle_outlook(&m.cage, &mv.roll, &m.limits);
+            match (outlook, plain.thrust_fraction) {
+                (Outlook::Blocked, f) => assert_eq!(f, None, "{what}: blocked at its start"),
+                (Outlook::AtLeast(floor), Some(f)) => {
+                    assert!(f >= floor * (1.0 - 1e-9), "{what}: {f} under {floor}")
+                }
+                (Outlook::AtLeast(_), None) => {}
+            }
+            if outlook.refused(m.limits.torque_margin) {
+                assert!(!plain.feasible, "{what}: refused at its start");
+            }
             match (&fast.commands, &plain.commands) {
                 (Some(x), Some(y)) => {
                     assert!(

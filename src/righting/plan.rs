@@ -636,7 +636,8 @@ impl RightingModel {
     fn shortfall(&self, face: usize, routes: &Routes) -> Shortfall {
         let to_go = &routes.to_go;
         // The faces the rotors can move it among, by the moves that can be
-        // made (every move out of them is checked on the way).
+        // made (every move out of them is asked on the way; one whose start
+        // proves it refused is not checked whole).
         let stable = |i: usize| self.cage.faces.get(i).is_some_and(|x| x.stable);
         let mut reach = vec![false; self.cage.faces.len()];
         // The same faces listed (most groups are a face or a few, so the

@@ -853,24 +853,63 @@ impl Outlook {
 /// [`assess_check`]'s scan finds it there (a fraction of a whole check:
 /// most rolls out of a face with no route are refused at their start).
 pub fn first_angle_outlook(cage: &Cage, roll: &Roll, limits: &Limits) -> Outlook {
-    let tol = tolerance(cage);
-    let zero = vec![0.0; limits.rotors.len()];
-    let lo: Vec<f64> = limits.rotors.iter().map(|r| -r.reverse_thrust_n).collect();
-    let hi: Vec<f64> = limits.rotors.iter().map(|r| r.max_thrust_n).collect();
     let Some(&first) = checked_angles_deg(cage, roll).first() else {
         return Outlook::AtLeast(0.0);
     };
-    let rows = rows_at(
-        cage,
-        roll,
-        &limits.rotors,
-        limits.friction_coefficient,
-        first.to_radians(),
-    );
-    match angle_outcome(&rows, limits, tol, &zero, (&lo, &hi), &mut Vec::new()) {
+    match AngleScanner::new(cage, roll, limits).at(first).1 {
         AngleOutcome::Blocked { .. } => Outlook::Blocked,
         AngleOutcome::Finite { lo, .. } => Outlook::AtLeast(lo.max(0.0)),
         AngleOutcome::Fine => Outlook::AtLeast(0.0),
+    }
+}
+
+/// A roll's angles as the check meets them, in order: the rows at each
+/// and the verdict there, with what every angle shares (the tolerance, the
+/// zero setting, the thrust limits as bounds) worked out once, and each
+/// angle's screen starting from the previous angle's tight set.
+struct AngleScanner<'a> {
+    cage: &'a Cage,
+    roll: &'a Roll,
+    limits: &'a Limits,
+    tol: f64,
+    zero: Vec<f64>,
+    lo: Vec<f64>,
+    hi: Vec<f64>,
+    hint: Vec<screen::Tight>,
+}
+
+impl<'a> AngleScanner<'a> {
+    fn new(cage: &'a Cage, roll: &'a Roll, limits: &'a Limits) -> AngleScanner<'a> {
+        AngleScanner {
+            cage,
+            roll,
+            limits,
+            tol: tolerance(cage),
+            zero: vec![0.0; limits.rotors.len()],
+            lo: limits.rotors.iter().map(|r| -r.reverse_thrust_n).collect(),
+            hi: limits.rotors.iter().map(|r| r.max_thrust_n).collect(),
+            hint: Vec::new(),
+        }
+    }
+
+    /// The rows `angle_deg` into the roll, and the verdict there.
+    fn at(&mut self, angle_deg: f64) -> (AngleRows, AngleOutcome) {
+        let rows = rows_at(
+            self.cage,
+            self.roll,
+            &self.limits.rotors,
+            self.limits.friction_coefficient,
+            angle_deg.to_radians(),
+        );
+        let outcome = angle_outcome(
+            &rows,
+            self.limits,
+            self.tol,
+            &self.zero,
+            (&self.lo, &self.hi),
+            &mut self.hint,
+        );
+        (rows, outcome)
     }
 }
 
@@ -886,26 +925,16 @@ fn scan(
     limits: &Limits,
     by: CommandsBy,
 ) -> (Feasibility, Option<Vec<AngleRows>>) {
-    let tol = tolerance(cage);
-    let zero = vec![0.0; limits.rotors.len()];
+    let mut angles = AngleScanner::new(cage, roll, limits);
+    let tol = angles.tol;
     // (index, ratio lower bound, upper bound, LP moment when exact)
     let mut carried: Vec<(usize, f64, f64, Option<f64>)> = Vec::new();
     let mut blocked: Option<(usize, f64)> = None;
     // The rows are built as the scan reaches them (a blocked roll often
     // stops at its first angle).
     let mut table: Vec<AngleRows> = Vec::new();
-    let mut hint = Vec::new();
-    let lo: Vec<f64> = limits.rotors.iter().map(|r| -r.reverse_thrust_n).collect();
-    let hi: Vec<f64> = limits.rotors.iter().map(|r| r.max_thrust_n).collect();
-    for (i, b) in checked_angles_deg(cage, roll).iter().enumerate() {
-        let rows = rows_at(
-            cage,
-            roll,
-            &limits.rotors,
-            limits.friction_coefficient,
-            b.to_radians(),
-        );
-        let outcome = angle_outcome(&rows, limits, tol, &zero, (&lo, &hi), &mut hint);
+    for (i, &b) in checked_angles_deg(cage, roll).iter().enumerate() {
+        let (rows, outcome) = angles.at(b);
         table.push(rows);
         match outcome {
             AngleOutcome::Fine => {}

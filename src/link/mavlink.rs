@@ -126,6 +126,24 @@ pub struct Frame {
     pub message: Message,
 }
 
+/// Where [`MavDecoder::push`] and [`MavDecoder::finish`] hand their good
+/// frames: into the queue `out` for [`MavDecoder::pop`], the oldest
+/// dropped (and counted in `dropped`) to keep it within [`MAX_QUEUED`].
+fn queue_into<'q>(
+    out: &'q mut VecDeque<Frame>,
+    dropped: &'q mut u64,
+) -> impl FnMut(Decoded<'_>) + 'q {
+    move |d| {
+        if let Decoded::Frame(f) = d {
+            if out.len() >= MAX_QUEUED {
+                out.pop_front();
+                *dropped += 1;
+            }
+            out.push_back(f.clone());
+        }
+    }
+}
+
 /// What [`MavDecoder::push_each_cut`] hands out, in the order of the bytes.
 #[derive(Debug, Clone, PartialEq)]
 pub enum Decoded<'a> {
@@ -207,15 +225,7 @@ impl MavDecoder {
     pub fn push(&mut self, data: &[u8]) {
         let mut out = std::mem::take(&mut self.out);
         let mut dropped = 0;
-        self.push_with(data, None, &mut |d| {
-            if let Decoded::Frame(f) = d {
-                if out.len() >= MAX_QUEUED {
-                    out.pop_front();
-                    dropped += 1;
-                }
-                out.push_back(f.clone());
-            }
-        });
+        self.push_with(data, None, &mut queue_into(&mut out, &mut dropped));
         self.out = out;
         self.counters.dropped += dropped;
     }
@@ -318,15 +328,12 @@ impl MavDecoder {
         let mut buf = std::mem::take(&mut self.buf);
         let mut out = std::mem::take(&mut self.out);
         let mut dropped = 0;
-        let stop = self.scan(&buf, buf.len(), true, &mut |d| {
-            if let Decoded::Frame(f) = d {
-                if out.len() >= MAX_QUEUED {
-                    out.pop_front();
-                    dropped += 1;
-                }
-                out.push_back(f.clone());
-            }
-        });
+        let stop = self.scan(
+            &buf,
+            buf.len(),
+            true,
+            &mut queue_into(&mut out, &mut dropped),
+        );
         buf.drain(..stop.min(buf.len()));
         self.buf = buf;
         self.out = out;

@@ -38,6 +38,14 @@ pub(super) struct Sink {
     pub(super) floor: Option<FloorStore>,
 }
 
+/// Move the link's clock on to `at_s`: never back, and never to a time
+/// that is not a number.
+fn advance_clock(clock_s: &mut f64, at_s: f64) {
+    if at_s.is_finite() && at_s > *clock_s {
+        *clock_s = at_s;
+    }
+}
+
 impl Sink {
     /// A sink for a reader: `blocking` waits for the consumer instead of
     /// dropping; `sample_clock` runs the link clock on sender time.
@@ -121,9 +129,7 @@ impl Sink {
     }
 
     pub(super) fn advance(&mut self, at_s: f64) {
-        if at_s.is_finite() && at_s > self.clock_s {
-            self.clock_s = at_s;
-        }
+        advance_clock(&mut self.clock_s, at_s);
     }
 
     /// Hold what follows until [`Sink::release`]: a reader that gathers
@@ -216,11 +222,6 @@ impl Sink {
             clock_from_sample,
             ..
         } = self;
-        let advance = |clock_s: &mut f64, at_s: f64| {
-            if at_s.is_finite() && at_s > *clock_s {
-                *clock_s = at_s;
-            }
-        };
         let mut gone = false;
         // The line's counters slot: its index in `held` and its clock.
         let mut slot: Option<(usize, f64)> = None;
@@ -228,11 +229,11 @@ impl Sink {
             Delivery::Sample(sample) => {
                 if *clock_from_sample {
                     for t in silence_ticks(*clock_s, sample.t_s) {
-                        advance(clock_s, t);
+                        advance_clock(clock_s, t);
                         held.push(LinkMsg::Tick { at_s: t });
                     }
                 }
-                advance(clock_s, sample.t_s);
+                advance_clock(clock_s, sample.t_s);
                 *clock_from_sample = true;
                 if slot.is_none() {
                     slot = Some((held.len(), *clock_s));

@@ -400,8 +400,14 @@ impl RightingModel {
     /// out in parallel first) and the whole check of a few.
     pub fn unreached(&self, draft: &MapDraft) -> Vec<usize> {
         (0..self.cage.faces.len())
-            .filter(|&f| self.cage.faces[f].stable && draft.routes.to_go[f].is_none())
+            .filter(|&f| self.stuck(&draft.routes, f))
             .collect()
+    }
+
+    /// Whether the vehicle can rest on face `f` and no take-off face can be
+    /// reached from it by `routes`.
+    fn stuck(&self, routes: &Routes, f: usize) -> bool {
+        routes.to_go[f].is_none() && self.cage.faces[f].stable
     }
 
     /// The moves from `start` that follow the cost to go down to a goal.
@@ -729,7 +735,7 @@ impl RightingModel {
     /// explanations share one search. `None` for faces with a route.
     fn stuck_groups(&self, routes: &Routes) -> Vec<Option<usize>> {
         let faces = self.cage.faces.len();
-        let stuck = |f: usize| routes.to_go[f].is_none() && self.cage.faces[f].stable;
+        let stuck = |f: usize| self.stuck(routes, f);
         let mut graph: DiGraph<(), ()> = DiGraph::with_capacity(faces, 0);
         let nodes: Vec<NodeIndex> = (0..faces).map(|_| graph.add_node(())).collect();
         for f in (0..faces).filter(|&f| stuck(f)) {

@@ -871,7 +871,9 @@ mod tests {
     /// With weak forward-only rotors most moves are blocked, many where no
     /// thrust gives any helping moment (the screen proves a best moment of
     /// exactly zero, short of what the LP path counts as carrying): the
-    /// fast check still gives the plain check's verdicts and reasons.
+    /// fast check still gives the verdicts and reasons of the plain check,
+    /// which solves every angle with the microlp solver (a general-purpose
+    /// LP library, the reference here).
     #[test]
     fn fast_check_agrees_with_the_lp_where_the_rotors_are_weak() {
         for k in [1, 2] {

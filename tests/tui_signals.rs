@@ -70,7 +70,7 @@ fn run_one(signal: &str, number: i32, dir: &Path) {
     let pidfile = dir.join(format!("{signal}.pid"));
     let bin = env!("CARGO_BIN_EXE_cagehand");
     let script = format!(
-        "echo $$ > '{}'; '{}'; echo \"EXIT=$?\"; stty -a; sleep 60",
+        "echo $$ > '{}'; '{}'; echo \"EXIT=$?\"; stty -a; echo STTY-DONE; sleep 60",
         pidfile.display(),
         bin
     );
@@ -114,9 +114,11 @@ fn run_one(signal: &str, number: i32, dir: &Path) {
         .output()
         .expect("run kill");
     assert!(kill.status.success(), "kill -s {signal}: {kill:?}");
-    let pane = wait_for("the exit line", || {
+    // `stty -a` prints several lines and the pane may be read between
+    // them, so wait for the marker echoed after it has finished.
+    let pane = wait_for("the exit line and the whole of stty -a", || {
         let pane = tmux_out(&sock, &["capture-pane", "-p", "-t", "t"]);
-        (pane.contains("EXIT=") && pane.contains("speed")).then_some(pane)
+        (pane.contains("EXIT=") && pane.contains("STTY-DONE")).then_some(pane)
     });
     assert!(
         pane.contains(&format!("EXIT={}", 128 + number)),

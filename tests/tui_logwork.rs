@@ -57,6 +57,19 @@ fn literal(sock: &str, text: &str) {
     std::thread::sleep(Duration::from_millis(300));
 }
 
+/// The numbers of the checklist rows still showing `[ ]` (hand items not
+/// yet ticked).
+fn hand_rows(pane: &str) -> Vec<usize> {
+    pane.lines()
+        .filter_map(|l| {
+            let row = l.trim_start_matches('│').trim_start();
+            let (n, rest) = row.split_once(' ')?;
+            let n: usize = n.parse().ok()?;
+            rest.trim_start().starts_with("[ ]").then_some(n)
+        })
+        .collect()
+}
+
 struct Server(String);
 
 impl Drop for Server {
@@ -213,17 +226,21 @@ fn the_demo_is_righted_and_its_preflight_signed_from_the_screens() {
     // Tick every hand item: the rows showing `[ ]`, each reached from the
     // top of the list.
     keys(&sock, &["4"]);
-    let p = wait_for(&sock, "Preflight checklist");
-    let hand: Vec<usize> = p
-        .lines()
-        .filter_map(|l| {
-            let row = l.trim_start_matches('│').trim_start();
-            let (n, rest) = row.split_once(' ')?;
-            let n: usize = n.parse().ok()?;
-            rest.trim_start().starts_with("[ ]").then_some(n)
-        })
-        .collect();
-    assert!(!hand.is_empty(), "the demo has hand items:\n{p}");
+    wait_for(&sock, "Preflight checklist");
+    // A frame can reach the pane in more than one write, so the rows are
+    // read once two captures in a row agree on them.
+    let t0 = Instant::now();
+    let mut last: Option<Vec<usize>> = None;
+    let hand = loop {
+        let p = pane(&sock);
+        let rows = hand_rows(&p);
+        if !rows.is_empty() && last.as_ref() == Some(&rows) {
+            break rows;
+        }
+        assert!(t0.elapsed() < WAIT, "the demo has hand items:\n{p}");
+        last = Some(rows);
+        std::thread::sleep(Duration::from_millis(300));
+    };
     for n in hand {
         for _ in 0..12 {
             keys(&sock, &["Up"]);

@@ -411,6 +411,11 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
                 // The margin shown was for other records: wait for the
                 // one worked out for these.
                 model.shared.margin = MarginState::Working;
+                if model.screens.preflight.log_changed() {
+                    // Said here, and on the Preflight screen until the
+                    // next tick (a write's message may follow at once).
+                    model.shared.notice = Some(crate::tui::preflight_view::CLEARED.to_string());
+                }
             }
             model.shared.records = records;
             true

@@ -22,8 +22,12 @@ pub struct PreflightScreen {
     pub selected: usize,
     /// First item row shown.
     pub offset: usize,
-    /// Hand items ticked and override reasons typed, kept until signed.
+    /// Hand items ticked, override reasons and the note typed: kept until
+    /// the cage log changes (a sign-off included), see [`Self::log_changed`].
     pub signoff: SignOff,
+    /// Ticks were dropped by a change to the log and none made since: the
+    /// verdict line says so.
+    pub cleared: bool,
 }
 
 /// What the Preflight screen's keys do.
@@ -66,6 +70,10 @@ const KEYS: &[Binding<PreflightAction>] = &[
         help: "sign off (written only when nothing blocks)",
     },
 ];
+
+/// What the screens say when a change to the log dropped the ticks.
+pub const CLEARED: &str =
+    "pre-flight ticks, overrides and note cleared (the cage log changed): check again";
 
 /// Rows around the table: its border and header, and the detail pane.
 const CHROME_ROWS: u16 = 3 + 4;
@@ -110,6 +118,7 @@ impl PreflightScreen {
         }
         let n = item.n;
         self.signoff.toggle(n);
+        self.cleared = false;
         let word = if self.signoff.ticked.contains(&n) {
             "ticked"
         } else {
@@ -131,9 +140,24 @@ impl PreflightScreen {
         } else if !item.can_override {
             shared.notice = Some(format!("item {n} cannot be overridden: {}", item.detail));
         } else {
+            self.cleared = false;
             let current = self.signoff.overrides.get(&n).map(String::as_str);
             shared.form = Some(Form::override_reason(n, current));
         }
+    }
+
+    /// The cage log gained records (a crash detected, a finding, a
+    /// replacement, a sign-off, another program's write): the ticks,
+    /// overrides and note were made against the log as it was, so they are
+    /// dropped and must be made again. Fail safe: a check made before a
+    /// crash must never go into the sign-off after it.
+    pub fn log_changed(&mut self) -> bool {
+        if self.signoff == SignOff::default() {
+            return false;
+        }
+        self.signoff = SignOff::default();
+        self.cleared = true;
+        true
     }
 
     /// Sign off (the key): refused here with every blocking reason, else
@@ -323,8 +347,13 @@ impl Component for PreflightScreen {
                 ),
                 Err(r) => Line::styled(
                     format!(
-                        "BLOCKED ({}): {}",
+                        "BLOCKED ({}): {}{}",
                         r.reasons.len(),
+                        if self.cleared {
+                            format!("{CLEARED}; ")
+                        } else {
+                            String::new()
+                        },
                         r.reasons.first().cloned().unwrap_or_default()
                     ),
                     t.alarm,
@@ -389,6 +418,48 @@ mod tests {
         let items = &m.shared.live.preflight.as_ref().unwrap().items;
         m.screens.preflight.selected = items.iter().position(|i| i.n == n).unwrap();
         m
+    }
+
+    /// The safety rule of `log_changed`: a tick made before the log changed
+    /// (here a crash detected while the crew ticked) is dropped, the
+    /// message line and the verdict say so, and a new tick ends the notice.
+    #[test]
+    fn a_change_to_the_log_drops_the_ticks_made_before_it() {
+        use cagehand::logbook::{DetectionEvent, Event, Record};
+        let m = on_item(1);
+        let hand = m.shared.live.preflight.clone().unwrap().hand_items();
+        let mut m = on_item(hand[0]);
+        update(&mut m, key(' '));
+        m.screens.preflight.signoff.note = Some("props spun by hand".into());
+        assert!(m.screens.preflight.signoff.ticked.contains(&hand[0]));
+        let mut records = m.shared.records.clone();
+        records.push(Record {
+            seq: 1,
+            time: "2026-12-02T05:40:00Z".into(),
+            operator: "ana".into(),
+            event: Event::Detection(DetectionEvent {
+                link_time_s: 3.0,
+                peak_g: 7.5,
+                direction_body: [0.0, 0.0, -1.0],
+                face: "F2".into(),
+                face_alignment: 1.0,
+                speed_m_per_s: None,
+                normal_speed_m_per_s: None,
+                source: "sim".into(),
+            }),
+        });
+        update(&mut m, Msg::Records(records.clone()));
+        assert_eq!(m.screens.preflight.signoff, super::SignOff::default());
+        assert_eq!(m.shared.notice.as_deref(), Some(super::CLEARED));
+        let s = render_text(&m, 160, 48);
+        assert!(s.contains("ticks, overrides and note cleared"), "{s}");
+        // The same log read again changes nothing; a new tick ends the notice.
+        update(&mut m, key(' '));
+        update(&mut m, Msg::Records(records));
+        assert!(m.screens.preflight.signoff.ticked.contains(&hand[0]));
+        assert!(!m.screens.preflight.cleared);
+        let s = render_text(&m, 160, 48);
+        assert!(!s.contains("note cleared"), "{s}");
     }
 
     #[test]

@@ -90,7 +90,7 @@ fn pending_confirm_dismiss_round_trip() {
     let h = ok(&cmd(d, &["log", "health"]));
     let pend = h.find("PENDING").expect("pending in health");
     assert!(pend < h.find("member  kind").unwrap());
-    // Confirm the first with the detected face and peak.
+    // Confirm the first with the detection's face and input.
     let c = json(&cmd(d, &["log", "confirm", "1", "--json"]));
     assert_eq!(c["detection"], 1);
     assert_eq!(c["record_seq"], 3);
@@ -192,6 +192,43 @@ fn a_confirmed_detection_loads_the_members_as_the_impact_command_does() {
         ],
     ));
     assert_eq!(c["members"], i["members"]);
+}
+
+/// `log confirm` with neither a peak nor a speed analyses the detection
+/// from the input the screens' form is filled with (the approach speed the
+/// link carried, else the peak), so the two never record different forces
+/// for one crash: the same members and force as `impact --speed` with that
+/// speed.
+#[test]
+fn a_confirmation_without_inputs_uses_the_speed_the_link_carried() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    watch_crash(d, 1);
+    let det = &records(d)[0];
+    assert_eq!(det["event"], "detection");
+    let normal = det["normal_speed_m_per_s"].as_f64();
+    let speed = normal
+        .map(|v| v.max(0.0))
+        .or(det["speed_m_per_s"].as_f64())
+        .filter(|v| *v > 0.0)
+        .expect("the simulated crash carries its approach speed");
+    let c = json(&cmd(d, &["log", "confirm", "1", "--json"]));
+    assert_eq!(c["method"], "energy_balance", "{c}");
+    let face = c["strike"].as_str().unwrap().to_string();
+    let i = json(&cmd(
+        d,
+        &[
+            "impact",
+            "--face",
+            &face,
+            "--speed",
+            &format!("{speed}"),
+            "--dry-run",
+            "--json",
+        ],
+    ));
+    assert_eq!(c["members"], i["members"]);
+    assert_eq!(c["force_n"], i["force_n"]);
 }
 
 fn item<'a>(eval: &'a Value, text_part: &str) -> &'a Value {

@@ -5,6 +5,7 @@
 use super::{Loaded, bad_input};
 use anyhow::Context;
 use cagehand::health::{self, HealthReport, StatusChange};
+use cagehand::logbook::detection::ConfirmInput;
 use cagehand::logbook::store::OpenReport;
 use cagehand::logbook::{
     Access, ChainHead, Event, FindingEvent, FindingKind, ImpactEvent, Integrity, Logbook,
@@ -316,7 +317,9 @@ enum Action {
         json: bool,
     },
     /// Confirm a detected impact: analyse it as `cagehand impact` does, with
-    /// the face and the measured peak taken from the detection unless given.
+    /// the face and the input taken from the detection unless given (the
+    /// approach speed when the link carried one, else the measured peak: the
+    /// screens' form is filled the same way).
     #[command(group(clap::ArgGroup::new("where").args(["face", "node"])))]
     #[command(group(clap::ArgGroup::new("how").args(["speed", "peak_accel_g"])))]
     Confirm {
@@ -328,10 +331,10 @@ enum Action {
         /// Struck node id (N1..), instead of the detected face.
         #[arg(long, value_name = "ID")]
         node: Option<String>,
-        /// Peak acceleration in g, instead of the detected peak.
+        /// Peak acceleration in g, instead of the detection's input.
         #[arg(long, value_name = "G", allow_negative_numbers = true)]
         peak_accel_g: Option<f64>,
-        /// Approach speed normal to the ground, instead of the peak.
+        /// Approach speed normal to the ground, instead of the detection's input.
         #[arg(long, value_name = "M_PER_S", allow_negative_numbers = true)]
         speed: Option<f64>,
         /// Ground surface preset (with --speed).
@@ -841,9 +844,14 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 (None, None) => (Some(d.face.clone()), None),
                 other => (other.0.clone(), other.1.clone()),
             };
-            let peak_accel_g = match (peak_accel_g, speed) {
-                (None, None) => Some(d.peak_g),
-                (g, _) => *g,
+            // Neither given: the detection's own input, by the rule the
+            // screens' form follows (`DetectionEvent::confirm_input`).
+            let (peak_accel_g, speed) = match (peak_accel_g, speed) {
+                (None, None) => match d.confirm_input() {
+                    ConfirmInput::Speed(v) => (None, Some(v)),
+                    ConfirmInput::PeakG(g) => (Some(g), None),
+                },
+                (g, v) => (*g, *v),
             };
             let impact_args = super::impact_cmd::Args {
                 profile: super::ProfileArg {
@@ -851,7 +859,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 },
                 face,
                 node,
-                speed: *speed,
+                speed,
                 peak_accel_g,
                 surface: surface.clone(),
                 contact_duration_s: None,

@@ -24,6 +24,15 @@ pub const SAME_LINK_TIME_S: f64 = 1e-3;
 /// Peaks closer than this, in g, are the same peak.
 pub const SAME_PEAK_G: f64 = 1e-3;
 
+/// The input a confirmation's impact analysis starts from.
+#[derive(Debug, Clone, Copy, PartialEq)]
+pub enum ConfirmInput {
+    /// Approach speed along the face normal, m/s (energy balance).
+    Speed(f64),
+    /// Measured peak acceleration, g (F = m a).
+    PeakG(f64),
+}
+
 /// An impact the live feed detected (the `detection` record).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DetectionEvent {
@@ -78,6 +87,19 @@ impl DetectionEvent {
         self.normal_speed_m_per_s
             .map(|v| v.max(0.0))
             .or(self.speed_m_per_s)
+    }
+
+    /// What a confirmation is analysed from when the crew gives neither a
+    /// peak nor a speed: one rule for the screens' form and `log confirm`,
+    /// so the same detection never gives two forces. The approach speed
+    /// (energy balance) when the link carried a positive one, because a
+    /// peak sampled at the link's rate can miss the top of a short impact
+    /// (common practice, no published source); else the measured peak.
+    pub fn confirm_input(&self) -> ConfirmInput {
+        match self.approach_speed_m_per_s() {
+            Some(v) if v > 0.0 => ConfirmInput::Speed(v),
+            _ => ConfirmInput::PeakG(self.peak_g),
+        }
     }
 
     /// One line for listings.
@@ -263,6 +285,22 @@ pub fn pending_warning(pending: &[Pending]) -> Option<String> {
 mod tests {
     use super::*;
     use crate::logbook::{ImpactEvent, NoteEvent, StrikeRef};
+
+    /// The confirmation's input: the approach speed along the normal when
+    /// positive, else the speed's magnitude, else the measured peak.
+    #[test]
+    fn a_confirmation_starts_from_the_speed_when_the_link_carried_one() {
+        let mut d = det(1.0, 7.5);
+        assert_eq!(d.confirm_input(), ConfirmInput::PeakG(7.5));
+        d.speed_m_per_s = Some(2.5);
+        assert_eq!(d.confirm_input(), ConfirmInput::Speed(2.5));
+        d.normal_speed_m_per_s = Some(1.5);
+        assert_eq!(d.confirm_input(), ConfirmInput::Speed(1.5));
+        // Moving away from the face along its normal: no approach to
+        // estimate from, so the measured peak.
+        d.normal_speed_m_per_s = Some(-0.5);
+        assert_eq!(d.confirm_input(), ConfirmInput::PeakG(7.5));
+    }
 
     fn det(t: f64, g: f64) -> DetectionEvent {
         DetectionEvent {

@@ -198,15 +198,18 @@ impl Form {
             .map(|d| d.face.clone())
             .or_else(|| pending.map(|p| p.face.clone()))
             .unwrap_or_default();
-        let peak = d.map(|d| d.peak_g).or_else(|| pending.map(|p| p.peak_g));
-        let speed = d
-            .and_then(|d| d.approach_speed_m_per_s())
-            .or_else(|| pending.and_then(|p| p.speed_m_per_s));
-        // Speed when the link carried it (the energy balance), else the
-        // measured peak: one of the two, as `log confirm` takes.
-        let (peak_text, speed_text) = match speed {
-            Some(v) => (String::new(), num(v)),
-            None => (peak.map(num).unwrap_or_default(), String::new()),
+        // The rule `log confirm` follows too (`DetectionEvent::confirm_input`).
+        use cagehand::logbook::detection::ConfirmInput;
+        let input = d.map(|d| d.confirm_input()).or_else(|| {
+            pending.map(|p| match p.speed_m_per_s {
+                Some(v) if v > 0.0 => ConfirmInput::Speed(v),
+                _ => ConfirmInput::PeakG(p.peak_g),
+            })
+        });
+        let (peak_text, speed_text) = match input {
+            Some(ConfirmInput::Speed(v)) => (String::new(), num(v)),
+            Some(ConfirmInput::PeakG(g)) => (num(g), String::new()),
+            None => (String::new(), String::new()),
         };
         let fields = vec![
             field("face or node", face, Check::Strike),

@@ -76,15 +76,32 @@ fn append(
 pub fn check_pending(book: &Logbook, seq: u64) -> Result<(), WorkError> {
     match resolution(book.records(), seq) {
         Resolution::Pending => Ok(()),
-        Resolution::NotADetection => Err(WorkError::Refused(format!(
-            "record #{seq} is not a detection"
-        ))),
+        Resolution::NotADetection => Err(WorkError::Refused(not_a_detection(book, seq))),
         Resolution::Confirmed(by) => Err(WorkError::Refused(format!(
             "detection #{seq} was already confirmed by impact #{by}"
         ))),
         Resolution::Dismissed(by) => Err(WorkError::Refused(format!(
             "detection #{seq} was already dismissed by #{by}"
         ))),
+    }
+}
+
+/// Why `seq` names no detection: no such record (with the numbers the log
+/// holds), or a record of another kind.
+fn not_a_detection(book: &Logbook, seq: u64) -> String {
+    let records = book.records();
+    match records.iter().find(|r| r.seq == seq) {
+        Some(r) => format!(
+            "record #{seq} is not a detection: its kind is `{}` (`log pending` lists the detections)",
+            r.event.name()
+        ),
+        None => match (records.first(), records.last()) {
+            (Some(first), Some(last)) => format!(
+                "there is no record #{seq}: the log holds #{} to #{} (`log pending` lists the detections)",
+                first.seq, last.seq
+            ),
+            _ => format!("there is no record #{seq}: the log is empty"),
+        },
     }
 }
 

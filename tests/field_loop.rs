@@ -123,6 +123,19 @@ fn pending_confirm_dismiss_round_trip() {
         let o = cmd(d, args);
         assert_eq!(o.status.code(), Some(2), "{args:?}");
     }
+    // A number that names no record says so, with the numbers there are;
+    // a record of another kind is named by its kind.
+    let err = |args: &[&str]| String::from_utf8_lossy(&cmd(d, args).stderr).to_string();
+    let e = err(&["log", "confirm", "99"]);
+    assert!(
+        e.contains("there is no record #99: the log holds #1 to #4"),
+        "{e}"
+    );
+    let e = err(&["log", "confirm", "3"]);
+    assert!(
+        e.contains("record #3 is not a detection: its kind is `impact`"),
+        "{e}"
+    );
     assert_eq!(log_bytes(d), before);
 }
 

@@ -128,13 +128,24 @@ pub fn build<'a>(
         .block(Block::default().borders(borders).title(title))
 }
 
-/// A row in `style`, reversed when it is the selected one (reverse carries
-/// the selection where colour cannot).
+/// A row in `style`; the selected one has its reverse video swapped and is
+/// underlined, so it stands out where colour cannot, even among rows that
+/// an alarm already shows reversed (a FAIL item, a member to REPLACE NOW).
 pub fn selectable(row: Row<'_>, style: Style, selected: bool) -> Row<'_> {
-    if selected {
-        row.style(style.add_modifier(ratatui::style::Modifier::REVERSED))
+    row.style(selected_style(style, selected))
+}
+
+/// The style of a row, selected or not (see [`selectable`]).
+pub fn selected_style(style: Style, selected: bool) -> Style {
+    use ratatui::style::Modifier;
+    if !selected {
+        style
+    } else if style.add_modifier.contains(Modifier::REVERSED) {
+        style
+            .remove_modifier(Modifier::REVERSED)
+            .add_modifier(Modifier::UNDERLINED)
     } else {
-        row.style(style)
+        style.add_modifier(Modifier::REVERSED | Modifier::UNDERLINED)
     }
 }
 
@@ -159,6 +170,21 @@ pub fn wrapped_height(lines: &[Line], width: u16) -> u16 {
 
 #[cfg(test)]
 mod tests {
+
+    /// The selection shows without colour, and differs from an alarm row
+    /// that is reversed already.
+    #[test]
+    fn a_selected_row_differs_from_every_unselected_one_without_colour() {
+        use ratatui::style::Modifier;
+        let plain = Style::default();
+        let alarm = Style::default().add_modifier(Modifier::BOLD | Modifier::REVERSED);
+        for style in [plain, alarm] {
+            let on = selected_style(style, true);
+            assert_ne!(on, selected_style(plain, false));
+            assert_ne!(on, selected_style(alarm, false));
+            assert!(on.add_modifier.contains(Modifier::UNDERLINED));
+        }
+    }
     use super::*;
 
     #[test]

@@ -318,6 +318,16 @@ impl Component for PreflightScreen {
             table_area,
         );
         let detail_text = match items.get(self.selected) {
+            Some(item) if item.kind == ItemKind::Hand && self.signoff.ticked.contains(&item.n) => {
+                Line::from(vec![
+                    Span::styled(format!("{} [x]: ", item.n), t.good),
+                    Span::styled(
+                        format!("{}. ", item.text),
+                        t.text.add_modifier(Modifier::BOLD),
+                    ),
+                    Span::styled("Ticked by hand on this screen; Space unticks.", t.text),
+                ])
+            }
             Some(item) => Line::from(vec![
                 Span::styled(
                     format!("{} {}: ", item.n, mark(item.result)),
@@ -432,6 +442,8 @@ mod tests {
         update(&mut m, key(' '));
         m.screens.preflight.signoff.note = Some("props spun by hand".into());
         assert!(m.screens.preflight.signoff.ticked.contains(&hand[0]));
+        let s = render_text(&m, 160, 48);
+        assert!(s.contains("Ticked by hand on this screen"), "{s}");
         let mut records = m.shared.records.clone();
         records.push(Record {
             seq: 1,

@@ -582,6 +582,21 @@ impl Cage {
         self.faces.iter().position(|f| f.id == id)
     }
 
+    /// A face as an operator types it: its id exactly, else in capitals
+    /// (`f7` is F7; ids are written in capitals).
+    pub fn face_named(&self, text: &str) -> Option<usize> {
+        let text = text.trim();
+        self.face_index(text)
+            .or_else(|| self.face_index(&text.to_ascii_uppercase()))
+    }
+
+    /// A node as an operator types it (see [`Cage::face_named`]).
+    pub fn node_named(&self, text: &str) -> Option<usize> {
+        let text = text.trim();
+        self.node_index(text)
+            .or_else(|| self.node_index(&text.to_ascii_uppercase()))
+    }
+
     /// Number of rods.
     pub fn rod_count(&self) -> usize {
         self.members
@@ -666,6 +681,19 @@ mod tests {
 
     fn demo() -> Cage {
         Cage::from_profile(&Profile::demo().unwrap()).unwrap()
+    }
+
+    /// Ids typed in lower case or with spaces name the same face or node;
+    /// what is no id stays unknown.
+    #[test]
+    fn faces_and_nodes_are_found_as_operators_type_them() {
+        let c = demo();
+        assert_eq!(c.face_named("f7"), c.face_index("F7"));
+        assert_eq!(c.face_named(" F7 "), c.face_index("F7"));
+        assert_eq!(c.node_named("n3"), c.node_index("N3"));
+        assert!(c.face_named("F7").is_some());
+        assert_eq!(c.face_named("f999"), None);
+        assert_eq!(c.node_named("x"), None);
     }
 
     /// The body-frame hull taken from the profile's hull (turned by the

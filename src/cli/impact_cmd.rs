@@ -80,23 +80,23 @@ pub fn resolve(args: &Args, l: &Loaded) -> anyhow::Result<Resolved> {
     let cage = &l.cage;
     let (strike, strike_id) = match (&args.face, &args.node) {
         (Some(id), _) => {
-            let i = cage.face_index(id).ok_or_else(|| {
+            let i = cage.face_named(id).ok_or_else(|| {
                 bad_input(format!(
                     "--face {id}: not a face of this cage; valid faces are F1..F{}",
                     cage.faces.len()
                 ))
             })?;
-            (Strike::Face(i), id.clone())
+            (Strike::Face(i), cage.faces[i].id.clone())
         }
         (None, Some(id)) => {
-            let i = cage.node_index(id).ok_or_else(|| {
+            let i = cage.node_named(id).ok_or_else(|| {
                 let ids: Vec<&str> = cage.nodes.iter().map(|n| n.id.as_str()).collect();
                 bad_input(format!(
                     "--node {id}: not a node of this cage; valid nodes are {}",
                     ids.join(", ")
                 ))
             })?;
-            (Strike::Node(i), id.clone())
+            (Strike::Node(i), cage.nodes[i].id.clone())
         }
         (None, None) => {
             return Err(bad_input(

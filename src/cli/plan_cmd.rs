@@ -199,8 +199,7 @@ fn rendered(
 
 /// Parse a face id such as `F7` (case-insensitive).
 pub fn parse_face(cage: &Cage, text: &str) -> anyhow::Result<usize> {
-    let t = text.trim().to_ascii_uppercase();
-    cage.face_index(&t).ok_or_else(|| {
+    cage.face_named(text).ok_or_else(|| {
         bad_input(format!(
             "--from {text:?}: expected a face id of this cage, F1..F{}",
             cage.faces.len()

@@ -297,6 +297,17 @@ impl Form {
         }
     }
 
+    /// The face or node `text` names, as the cage spells it (`f16` is
+    /// F16, as on the command line); None when it names neither.
+    fn strike_ref(cage: &cagehand::cage::Cage, text: &str) -> Option<StrikeRef> {
+        if let Some(i) = cage.face_named(text) {
+            Some(StrikeRef::Face(cage.faces[i].id.clone()))
+        } else {
+            cage.node_named(text)
+                .map(|i| StrikeRef::Node(cage.nodes[i].id.clone()))
+        }
+    }
+
     /// What is wrong with field `i`, in words, or None.
     pub fn problem(&self, i: usize, shared: &Shared) -> Option<String> {
         let f = self.fields.get(i)?;
@@ -309,7 +320,7 @@ impl Form {
                 let c = &shared.cage;
                 if v.is_empty() {
                     Some("required: a face (F1..) or node (N1..)".to_string())
-                } else if c.face_index(v).is_none() && c.node_index(v).is_none() {
+                } else if Self::strike_ref(c, v).is_none() {
                     Some(format!("{v:?} is no face or node of this cage"))
                 } else {
                     None
@@ -409,12 +420,8 @@ impl Form {
         let note = self.opt("note");
         Ok(match &self.purpose {
             Purpose::Confirm(seq) => {
-                let s = self.value("face or node");
-                let strike = if shared.cage.face_index(s).is_some() {
-                    StrikeRef::Face(s.to_string())
-                } else {
-                    StrikeRef::Node(s.to_string())
-                };
+                let strike = Self::strike_ref(&shared.cage, self.value("face or node"))
+                    .ok_or_else(|| "face or node: not of this cage".to_string())?;
                 let number = |l: &str| self.value(l).parse::<f64>().ok();
                 let input = match (number("peak g"), number("speed m/s")) {
                     (Some(g), _) => ImpactInput::PeakAccel { g },
@@ -542,6 +549,14 @@ mod tests {
                 note: None
             })
         );
+        // Lower case names the same face or node, as on the command line.
+        f.fields[0].value = " f2".into();
+        assert_eq!(f.problem(0, &m.shared), None);
+        f.fields[0].value = "n3".into();
+        match f.work(&m.shared).unwrap() {
+            Some(Work::Confirm { strike, .. }) => assert_eq!(strike, StrikeRef::Node("N3".into())),
+            other => panic!("a confirmation expected: {other:?}"),
+        }
     }
 
     #[test]

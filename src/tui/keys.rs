@@ -189,7 +189,7 @@ pub const GLOBAL_KEYS: &[Binding<GlobalAction>] = &[
     Binding {
         keys: &[Key::Char('?'), Key::F(1)],
         action: GlobalAction::Help,
-        help: "this help; any key closes it",
+        help: "this help; any other key closes it, q quits",
     },
     Binding {
         keys: &[Key::Char('q'), Key::Ctrl('c')],

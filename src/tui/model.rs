@@ -535,8 +535,21 @@ fn on_form_key(model: &mut Model, key: &KeyEvent) {
             }
         }
     }
+    // A refusal on the message line follows the fields as they are typed:
+    // it names what is still wrong, or goes once nothing is.
+    let sh = &mut model.shared;
+    if sh
+        .notice
+        .as_deref()
+        .is_some_and(|n| n.starts_with(NOT_WRITTEN))
+    {
+        sh.notice = form.work(sh).err().map(|why| format!("{NOT_WRITTEN}{why}"));
+    }
     model.shared.form = Some(form);
 }
+
+/// How the message line begins when a form was refused.
+const NOT_WRITTEN: &str = "not written: ";
 
 /// Enter in a form: write when every field is right, else keep the form
 /// open and say what is wrong.
@@ -545,7 +558,7 @@ fn submit(model: &mut Model, form: Form) {
     let work = match form.work(sh) {
         Ok(w) => w,
         Err(why) => {
-            sh.notice = Some(format!("not written: {why}"));
+            sh.notice = Some(format!("{NOT_WRITTEN}{why}"));
             sh.form = Some(form);
             return;
         }
@@ -983,6 +996,11 @@ mod tests {
         let f = m.shared.form.as_ref().expect("the form stays open");
         assert_eq!(f.value("note"), "bent");
         assert!(m.shared.notice.as_deref().unwrap().contains("part or lot"));
+        // The refusal follows the typing: it goes once the part is given.
+        update(&mut m, key(KeyCode::BackTab));
+        assert!(m.shared.notice.as_deref().unwrap().contains("part or lot"));
+        type_text(&mut m, "LOT-1");
+        assert_eq!(m.shared.notice, None, "nothing is wrong any more");
     }
 
     #[test]

@@ -59,6 +59,32 @@ pub struct Field {
     pub value: String,
     /// How it is checked.
     pub check: Check,
+    /// Where typing goes: how many characters of the value lie after the
+    /// cursor (0: at the end, where a field opens; counted from the end so
+    /// that a value set afresh keeps the cursor in it).
+    pub after_cursor: usize,
+}
+
+impl Field {
+    /// The cursor's byte offset in the value.
+    fn cursor_byte(&self) -> usize {
+        let n = self.value.chars().count();
+        let at = n - self.after_cursor.min(n);
+        self.value
+            .char_indices()
+            .nth(at)
+            .map_or(self.value.len(), |(b, _)| b)
+    }
+
+    /// The value split at the cursor: before it, the character under it
+    /// (None at the end), after it.
+    pub fn at_cursor(&self) -> (&str, Option<char>, &str) {
+        let b = self.cursor_byte();
+        let (before, rest) = self.value.split_at(b);
+        let mut chars = rest.chars();
+        let under = chars.next();
+        (before, under, chars.as_str())
+    }
 }
 
 /// A write the operator asked for, ready for the log.
@@ -130,8 +156,18 @@ pub enum FormAction {
     Next,
     /// Previous field.
     Previous,
-    /// Erase the last character.
+    /// Erase the character before the cursor.
     Erase,
+    /// Erase the character under the cursor.
+    Delete,
+    /// Cursor one character left.
+    Left,
+    /// Cursor one character right.
+    Right,
+    /// Cursor to the start of the field.
+    Start,
+    /// Cursor to the end of the field.
+    End,
 }
 
 /// The keys of every form; any other printable character is typed.
@@ -159,7 +195,32 @@ pub const FORM_KEYS: &[Binding<FormAction>] = &[
     Binding {
         keys: &[Key::Backspace],
         action: FormAction::Erase,
-        help: "erase a character",
+        help: "erase the character before the cursor",
+    },
+    Binding {
+        keys: &[Key::Delete],
+        action: FormAction::Delete,
+        help: "erase the character under the cursor",
+    },
+    Binding {
+        keys: &[Key::Left],
+        action: FormAction::Left,
+        help: "cursor left",
+    },
+    Binding {
+        keys: &[Key::Right],
+        action: FormAction::Right,
+        help: "cursor right",
+    },
+    Binding {
+        keys: &[Key::Home],
+        action: FormAction::Start,
+        help: "cursor to the start of the field",
+    },
+    Binding {
+        keys: &[Key::End],
+        action: FormAction::End,
+        help: "cursor to the end of the field",
     },
 ];
 
@@ -168,6 +229,7 @@ fn field(label: &'static str, value: impl Into<String>, check: Check) -> Field {
         label,
         value: value.into(),
         check,
+        after_cursor: 0,
     }
 }
 
@@ -380,10 +442,11 @@ impl Form {
         Some(self.value(label).to_string()).filter(|s| !s.is_empty())
     }
 
-    /// Type a character into the focused field.
+    /// Type a character into the focused field, at the cursor.
     pub fn type_char(&mut self, c: char) {
         if let Some(f) = self.fields.get_mut(self.focus) {
-            f.value.push(c);
+            let b = f.cursor_byte();
+            f.value.insert(b, c);
         }
     }
 
@@ -393,12 +456,36 @@ impl Form {
         match a {
             FormAction::Next => self.focus = (self.focus + 1) % n,
             FormAction::Previous => self.focus = (self.focus + n - 1) % n,
-            FormAction::Erase => {
+            FormAction::Submit | FormAction::Cancel => {}
+            edit => {
                 if let Some(f) = self.fields.get_mut(self.focus) {
-                    f.value.pop();
+                    Self::edit(f, edit);
                 }
             }
-            FormAction::Submit | FormAction::Cancel => {}
+        }
+    }
+
+    /// A key that moves the cursor or erases within the focused field.
+    fn edit(f: &mut Field, a: FormAction) {
+        let len = f.value.chars().count();
+        f.after_cursor = f.after_cursor.min(len);
+        match a {
+            FormAction::Erase if f.after_cursor < len => {
+                let b = f.cursor_byte();
+                let start = f.value[..b].char_indices().last().map_or(0, |(i, _)| i);
+                f.value.replace_range(start..b, "");
+            }
+            FormAction::Delete if f.after_cursor > 0 => {
+                let b = f.cursor_byte();
+                let end = f.value[b..].chars().next().map_or(b, |c| b + c.len_utf8());
+                f.value.replace_range(b..end, "");
+                f.after_cursor -= 1;
+            }
+            FormAction::Left => f.after_cursor = (f.after_cursor + 1).min(len),
+            FormAction::Right => f.after_cursor = f.after_cursor.saturating_sub(1),
+            FormAction::Start => f.after_cursor = len,
+            FormAction::End => f.after_cursor = 0,
+            _ => {}
         }
     }
 
@@ -464,12 +551,25 @@ impl Form {
         let w = area.width.saturating_sub(4).min(76);
         let mut lines = Vec::new();
         for (i, f) in self.fields.iter().enumerate() {
-            let cursor = if i == self.focus { "_" } else { "" };
             let marker = if i == self.focus { "> " } else { "  " };
-            lines.push(Line::from(vec![
-                Span::styled(format!("{marker}{:<13}", f.label), t.accent),
-                Span::styled(format!("{}{cursor}", f.value), t.text),
-            ]));
+            let mut spans = vec![Span::styled(format!("{marker}{:<13}", f.label), t.accent)];
+            if i == self.focus {
+                // The cursor: the character under it in reverse video, or
+                // `_` past the end (shows without colour).
+                let (before, under, after) = f.at_cursor();
+                spans.push(Span::styled(before.to_string(), t.text));
+                spans.push(match under {
+                    Some(c) => Span::styled(
+                        c.to_string(),
+                        t.text.add_modifier(ratatui::style::Modifier::REVERSED),
+                    ),
+                    None => Span::styled("_", t.text),
+                });
+                spans.push(Span::styled(after.to_string(), t.text));
+            } else {
+                spans.push(Span::styled(f.value.clone(), t.text));
+            }
+            lines.push(Line::from(spans));
             if let Some(p) = self.problem(i, shared) {
                 lines.push(Line::styled(format!("     ^ {p}"), t.alarm));
             }
@@ -478,7 +578,10 @@ impl Form {
             "Enter writes  Esc cancels  Tab next field",
             t.dim,
         ));
-        let h = (lines.len() as u16 + 2).min(area.height);
+        // Long values wrap: the height counts the wrapped rows, so the key
+        // line at the bottom stays in view.
+        let h =
+            (crate::tui::table::wrapped_height(&lines, w.saturating_sub(2)) + 2).min(area.height);
         let r = Rect {
             x: area.x + (area.width.saturating_sub(w)) / 2,
             y: area.y + (area.height.saturating_sub(h)) / 2,
@@ -557,6 +660,66 @@ mod tests {
             Some(Work::Confirm { strike, .. }) => assert_eq!(strike, StrikeRef::Node("N3".into())),
             other => panic!("a confirmation expected: {other:?}"),
         }
+    }
+
+    /// A field is edited where its cursor is: arrows, Home and End move it,
+    /// Backspace and Delete erase around it, characters go in at it, and
+    /// multi-byte characters count as one.
+    #[test]
+    fn a_field_is_edited_at_its_cursor() {
+        let m = demo_model();
+        let mut f = Form::note(&m.shared);
+        f.focus = f.fields.len() - 1;
+        let keys = |f: &mut Form, typed: &str, acts: &[FormAction]| {
+            for c in typed.chars() {
+                f.type_char(c);
+            }
+            for &a in acts {
+                f.act(a);
+            }
+        };
+        let value = |f: &Form| f.fields[f.focus].value.clone();
+        keys(&mut f, "12q?", &[FormAction::Left, FormAction::Left]);
+        keys(&mut f, "X", &[FormAction::Start]);
+        keys(&mut f, "Y", &[FormAction::End]);
+        keys(&mut f, "Z", &[]);
+        assert_eq!(value(&f), "Y12Xq?Z");
+        keys(&mut f, "", &[FormAction::Start, FormAction::Delete]);
+        assert_eq!(value(&f), "12Xq?Z");
+        keys(
+            &mut f,
+            "",
+            &[FormAction::Right, FormAction::Right, FormAction::Right],
+        );
+        keys(&mut f, "", &[FormAction::Erase]);
+        assert_eq!(value(&f), "12q?Z");
+        // Erasing at the start and deleting at the end change nothing.
+        keys(
+            &mut f,
+            "",
+            &[FormAction::Start, FormAction::Erase, FormAction::Left],
+        );
+        keys(
+            &mut f,
+            "",
+            &[FormAction::End, FormAction::Delete, FormAction::Right],
+        );
+        assert_eq!(value(&f), "12q?Z");
+        // Multi-byte characters: one step each.
+        let mut g = Form::note(&m.shared);
+        g.focus = g.fields.len() - 1;
+        keys(
+            &mut g,
+            "café✓",
+            &[FormAction::Left, FormAction::Left, FormAction::Erase],
+        );
+        assert_eq!(value(&g), "caé✓");
+        assert_eq!(g.fields[g.focus].at_cursor(), ("ca", Some('é'), "✓"));
+        keys(&mut g, "f", &[FormAction::Delete]);
+        assert_eq!(value(&g), "caf✓");
+        assert_eq!(g.fields[g.focus].at_cursor(), ("caf", Some('✓'), ""));
+        keys(&mut g, "", &[FormAction::End]);
+        assert_eq!(g.fields[g.focus].at_cursor(), ("caf✓", None, ""));
     }
 
     #[test]

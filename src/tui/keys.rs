@@ -35,6 +35,12 @@ pub enum Key {
     End,
     /// Backspace.
     Backspace,
+    /// Delete (the character under the cursor).
+    Delete,
+    /// Arrow left.
+    Left,
+    /// Arrow right.
+    Right,
 }
 
 impl Key {
@@ -58,6 +64,9 @@ impl Key {
             (Key::Home, KeyCode::Home) => true,
             (Key::End, KeyCode::End) => true,
             (Key::Backspace, KeyCode::Backspace) => true,
+            (Key::Delete, KeyCode::Delete) => true,
+            (Key::Left, KeyCode::Left) => true,
+            (Key::Right, KeyCode::Right) => true,
             _ => false,
         }
     }
@@ -80,6 +89,9 @@ impl Key {
             Key::Home => "Home".to_string(),
             Key::End => "End".to_string(),
             Key::Backspace => "Backspace".to_string(),
+            Key::Delete => "Delete".to_string(),
+            Key::Left => "Left".to_string(),
+            Key::Right => "Right".to_string(),
         }
     }
 }

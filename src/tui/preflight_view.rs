@@ -209,7 +209,7 @@ impl PreflightScreen {
                 "[ ]".to_string()
             }
         } else if item.blocks() && self.signoff.overrides.contains_key(&item.n) {
-            "OVERRID".to_string()
+            "OVERRIDE".to_string()
         } else {
             mark(item.result)
         }
@@ -270,7 +270,7 @@ impl Component for PreflightScreen {
             },
             Column {
                 header: "result",
-                width: 7,
+                width: 8,
                 rank: 0,
                 flex: false,
             },
@@ -292,11 +292,16 @@ impl Component for PreflightScreen {
             .filter_map(|i| {
                 let item = items.get(i)?;
                 let style = mark_style(shared, item.result);
+                let ticked = item.kind == ItemKind::Hand && self.signoff.ticked.contains(&item.n);
                 let cells = vec![
                     item.n.to_string(),
                     self.shown(item),
                     item.text.clone(),
-                    item.detail.clone(),
+                    if ticked {
+                        "ticked by hand".to_string()
+                    } else {
+                        item.detail.clone()
+                    },
                 ];
                 Some(table::selectable(
                     Row::new(table::pick(&cells, &kept)),

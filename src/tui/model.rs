@@ -868,6 +868,14 @@ mod tests {
             m.shared.outbox[0],
             Effect::SimRoll(m.shared.cage.faces[expected_roll].id.clone())
         );
+        // Enter again while the step is under way is refused, said on the
+        // message line until the stepper moves on.
+        update(&mut m, key(KeyCode::Enter));
+        assert_eq!(m.shared.outbox.len(), 1, "no second command");
+        assert_eq!(
+            m.shared.notice.as_deref(),
+            Some("a step is already under way")
+        );
         // Motion, then arrival on the step's face: the next step waits.
         let moving = resting_on(&m, start, 1.5, false);
         update(&mut m, moving);
@@ -884,6 +892,10 @@ mod tests {
             r.log
                 .iter()
                 .any(|l| l.contains("arrived as planned") || l.contains("complete"))
+        );
+        assert_eq!(
+            m.shared.notice, None,
+            "the refusal went when the step moved on"
         );
         // x abandons stepping.
         update(&mut m, key(KeyCode::Char('x')));

@@ -249,9 +249,9 @@ impl RightingScreen {
             }
             None => {
                 let why = match stepper.phase() {
-                    Phase::Done => "righting is complete",
-                    Phase::NoRoute => "there is no route to command",
-                    _ => "a step is already under way",
+                    Phase::Done => REFUSED[0],
+                    Phase::NoRoute => REFUSED[1],
+                    _ => REFUSED[2],
                 };
                 shared.notice = Some(why.to_string());
             }
@@ -268,6 +268,14 @@ impl RightingScreen {
         usize::from(body_h.saturating_sub(2 + 3 + 2 + 3 + foot_h + 2)).max(1)
     }
 }
+
+/// What Enter says when there is no step to command: done, no route, or a
+/// step under way (dropped from the message line when the stepper moves on).
+const REFUSED: [&str; 3] = [
+    "righting is complete",
+    "there is no route to command",
+    "a step is already under way",
+];
 
 /// The pivot's node ids joined, e.g. `N9-N6`.
 fn pivot_names(shared: &Shared, s: &Step) -> String {
@@ -371,6 +379,14 @@ impl Component for RightingScreen {
             self.push_log(text);
             if let Some(c) = self.current() {
                 self.selected = c;
+            }
+            // A refusal of Enter said before the stepper moved on is stale.
+            if shared
+                .notice
+                .as_deref()
+                .is_some_and(|t| REFUSED.contains(&t))
+            {
+                shared.notice = None;
             }
             return true;
         }

@@ -43,6 +43,9 @@ pub struct RightingScreen {
     pub log: VecDeque<String>,
     /// Plans followed since stepping began (1 until a replan).
     pub plans: usize,
+    /// Steps commanded since stepping began, over every plan (a step
+    /// commanded again after falling back counts again).
+    pub commanded: usize,
     /// Step whose detail line is shown.
     pub selected: usize,
     /// First step row shown.
@@ -160,6 +163,7 @@ impl RightingScreen {
                 stepper: None,
                 log: VecDeque::new(),
                 plans: 0,
+                commanded: 0,
                 selected: 0,
                 offset: 0,
                 view_azimuth_deg: 0.0,
@@ -225,6 +229,7 @@ impl RightingScreen {
             };
             self.stepper = Some(Stepper::new(model.clone(), plan, DEFAULT_MOTION_TIMEOUT_S));
             self.plans = 1;
+            self.commanded = 0;
             self.log.clear();
         }
         let Some(stepper) = self.stepper.as_mut() else {
@@ -237,6 +242,7 @@ impl RightingScreen {
         match stepper.command(t_s) {
             Some(n) => {
                 let text = describe(shared, stepper, n);
+                self.commanded += 1;
                 self.push_log(text);
                 if let Some(to) = roll_to {
                     shared
@@ -331,6 +337,7 @@ impl Component for RightingScreen {
                 self.stepper = None;
                 self.preview = None;
                 self.plans = 0;
+                self.commanded = 0;
                 self.log.clear();
                 self.selected = 0;
                 self.offset = 0;
@@ -519,9 +526,9 @@ impl RightingScreen {
         match phase {
             Some(Phase::Done) => vec![Line::styled(
                 format!(
-                    "Righting complete: on take-off face {} after {}{replanned}.",
+                    "Righting complete: on take-off face {} after {} commanded{replanned}.",
                     p.goal.map_or("?", |g| shared.face_id(g)),
-                    count(p.steps.len(), "step")
+                    count(self.commanded, "step")
                 ),
                 t.good,
             )],
@@ -772,6 +779,9 @@ mod tests {
         }
         let s = render_text(&m, 80, 24);
         assert!(s.contains("Righting complete"), "{s}");
+        // Every roll commanded is counted (over replans too).
+        let said = format!("after {} commanded", crate::tui::model::count(n, "step"));
+        assert!(s.contains(&said), "{said}:\n{s}");
         assert!(s.contains("done"), "finished steps are marked:\n{s}");
         assert!(!s.contains("now>"), "{s}");
     }

@@ -640,6 +640,27 @@ pub(crate) fn demo_model() -> Model {
 
 /// A live picture of the demo vehicle in `state` on (or near) `face` at
 /// `t_s`, as the tracker would send it (tests).
+/// A detection record (7.5 g on F2, no speed) numbered `seq`, for tests.
+#[cfg(test)]
+pub(crate) fn detection_record(seq: u64) -> cagehand::logbook::Record {
+    use cagehand::logbook::{DetectionEvent, Event, Record};
+    Record {
+        seq,
+        time: "2026-12-02T05:40:00Z".into(),
+        operator: "ana".into(),
+        event: Event::Detection(DetectionEvent {
+            link_time_s: 3.0,
+            peak_g: 7.5,
+            direction_body: [0.0, 0.0, -1.0],
+            face: "F2".into(),
+            face_alignment: 1.0,
+            speed_m_per_s: None,
+            normal_speed_m_per_s: None,
+            source: "sim".into(),
+        }),
+    }
+}
+
 #[cfg(test)]
 pub(crate) fn live_on(m: &Model, face: usize, t_s: f64, state: LiveState) -> LiveView {
     use cagehand::rest::RestState;
@@ -935,24 +956,8 @@ mod tests {
 
     /// The demo with detection #4 pending in its read log.
     fn with_pending_detection() -> Model {
-        use cagehand::logbook::{DetectionEvent, Event, Record};
         let mut m = model();
-        let d = Record {
-            seq: 4,
-            time: "2026-12-02T05:40:00Z".into(),
-            operator: "ana".into(),
-            event: Event::Detection(DetectionEvent {
-                link_time_s: 3.0,
-                peak_g: 7.5,
-                direction_body: [0.0, 0.0, -1.0],
-                face: "F2".into(),
-                face_alignment: 1.0,
-                speed_m_per_s: None,
-                normal_speed_m_per_s: None,
-                source: "sim".into(),
-            }),
-        };
-        update(&mut m, Msg::Records(vec![d]));
+        update(&mut m, Msg::Records(vec![super::detection_record(4)]));
         m.shared.operator = Some("ana".into());
         update(&mut m, key(KeyCode::Char('3')));
         m

@@ -440,7 +440,6 @@ mod tests {
     /// message line and the verdict say so, and a new tick ends the notice.
     #[test]
     fn a_change_to_the_log_drops_the_ticks_made_before_it() {
-        use cagehand::logbook::{DetectionEvent, Event, Record};
         let m = on_item(1);
         let hand = m.shared.live.preflight.clone().unwrap().hand_items();
         let mut m = on_item(hand[0]);
@@ -450,21 +449,7 @@ mod tests {
         let s = render_text(&m, 160, 48);
         assert!(s.contains("Ticked by hand on this screen"), "{s}");
         let mut records = m.shared.records.clone();
-        records.push(Record {
-            seq: 1,
-            time: "2026-12-02T05:40:00Z".into(),
-            operator: "ana".into(),
-            event: Event::Detection(DetectionEvent {
-                link_time_s: 3.0,
-                peak_g: 7.5,
-                direction_body: [0.0, 0.0, -1.0],
-                face: "F2".into(),
-                face_alignment: 1.0,
-                speed_m_per_s: None,
-                normal_speed_m_per_s: None,
-                source: "sim".into(),
-            }),
-        });
+        records.push(crate::tui::model::detection_record(1));
         update(&mut m, Msg::Records(records.clone()));
         assert_eq!(m.screens.preflight.signoff, super::SignOff::default());
         assert_eq!(m.shared.notice.as_deref(), Some(super::CLEARED));

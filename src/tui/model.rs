@@ -411,9 +411,11 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
                 // The margin shown was for other records: wait for the
                 // one worked out for these.
                 model.shared.margin = MarginState::Working;
-                if model.screens.preflight.log_changed() {
-                    // Said here, and on the Preflight screen until the
-                    // next tick (a write's message may follow at once).
+                if model.screens.preflight.log_changed(&records)
+                    && model.screens.preflight.signed_as.is_none()
+                {
+                    // Said here (a sign-off says itself), and on the
+                    // Preflight screen until the next tick.
                     model.shared.notice = Some(crate::tui::preflight_view::CLEARED.to_string());
                 }
             }

@@ -28,6 +28,9 @@ pub struct PreflightScreen {
     /// Ticks were dropped by a change to the log and none made since: the
     /// verdict line says so.
     pub cleared: bool,
+    /// The change that dropped them was a sign-off, this one: the verdict
+    /// line names it instead of a bare "the log changed".
+    pub signed_as: Option<u64>,
 }
 
 /// What the Preflight screen's keys do.
@@ -151,12 +154,16 @@ impl PreflightScreen {
     /// overrides and note were made against the log as it was, so they are
     /// dropped and must be made again. Fail safe: a check made before a
     /// crash must never go into the sign-off after it.
-    pub fn log_changed(&mut self) -> bool {
+    pub fn log_changed(&mut self, records: &[cagehand::logbook::Record]) -> bool {
         if self.signoff == SignOff::default() {
             return false;
         }
         self.signoff = SignOff::default();
         self.cleared = true;
+        self.signed_as = records
+            .last()
+            .filter(|r| matches!(r.event, cagehand::logbook::Event::Preflight(_)))
+            .map(|r| r.seq);
         true
     }
 
@@ -364,10 +371,12 @@ impl Component for PreflightScreen {
                     format!(
                         "BLOCKED ({}): {}{}",
                         r.reasons.len(),
-                        if self.cleared {
-                            format!("{CLEARED}; ")
-                        } else {
-                            String::new()
+                        match (self.cleared, self.signed_as) {
+                            (true, Some(seq)) => format!(
+                                "signed off as record #{seq}; a new sign-off needs every check again; "
+                            ),
+                            (true, None) => format!("{CLEARED}; "),
+                            (false, _) => String::new(),
                         },
                         r.reasons.first().cloned().unwrap_or_default()
                     ),
@@ -462,6 +471,39 @@ mod tests {
         assert!(!m.screens.preflight.cleared);
         let s = render_text(&m, 160, 48);
         assert!(!s.contains("note cleared"), "{s}");
+        // A sign-off is a record too: the ticks go, and the verdict names
+        // the sign-off rather than a bare change (its own message says it
+        // was written, so the message line is left to that).
+        m.shared.notice = None;
+        let mut signed = read_with_detection(&m, 2);
+        signed.push(cagehand::logbook::Record {
+            seq: 3,
+            time: "2026-12-02T05:50:00Z".into(),
+            operator: "ana".into(),
+            event: cagehand::logbook::Event::Preflight(cagehand::logbook::PreflightEvent {
+                items: Vec::new(),
+                signed_off: true,
+                note: None,
+            }),
+        });
+        update(&mut m, Msg::Records(signed));
+        assert_eq!(m.screens.preflight.signoff, super::SignOff::default());
+        assert_eq!(m.shared.notice, None);
+        let s = render_text(&m, 160, 48);
+        assert!(
+            s.contains("signed off as record #3; a new sign-off needs every"),
+            "{s}"
+        );
+    }
+
+    /// The records the model has read, with detection `seq` added.
+    fn read_with_detection(
+        m: &crate::tui::model::Model,
+        seq: u64,
+    ) -> Vec<cagehand::logbook::Record> {
+        let mut r = m.shared.records.clone();
+        r.push(crate::tui::model::detection_record(seq));
+        r
     }
 
     #[test]

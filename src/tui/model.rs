@@ -411,8 +411,8 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
                 // The margin shown was for other records: wait for the
                 // one worked out for these.
                 model.shared.margin = MarginState::Working;
-                if model.screens.preflight.log_changed(&records)
-                    && model.screens.preflight.signed_as.is_none()
+                if model.screens.preflight.log_changed()
+                    && crate::tui::preflight_view::newest_sign_off(&records).is_none()
                 {
                     // Said here (a sign-off says itself), and on the
                     // Preflight screen until the next tick.

@@ -28,9 +28,6 @@ pub struct PreflightScreen {
     /// Ticks were dropped by a change to the log and none made since: the
     /// verdict line says so.
     pub cleared: bool,
-    /// The change that dropped them was a sign-off, this one: the verdict
-    /// line names it instead of a bare "the log changed".
-    pub signed_as: Option<u64>,
 }
 
 /// What the Preflight screen's keys do.
@@ -77,6 +74,16 @@ const KEYS: &[Binding<PreflightAction>] = &[
 /// What the screens say when a change to the log dropped the ticks.
 pub const CLEARED: &str =
     "pre-flight ticks, overrides and note cleared (the cage log changed): check again";
+
+/// The sign-off the cage log ends with, if its newest record is one (the
+/// change that dropped the ticks was then that sign-off: it is named rather
+/// than a bare "the log changed").
+pub fn newest_sign_off(records: &[cagehand::logbook::Record]) -> Option<u64> {
+    records
+        .last()
+        .filter(|r| matches!(r.event, cagehand::logbook::Event::Preflight(_)))
+        .map(|r| r.seq)
+}
 
 /// Rows around the table: its border and header, and the detail pane.
 const CHROME_ROWS: u16 = 3 + 4;
@@ -154,17 +161,18 @@ impl PreflightScreen {
     /// overrides and note were made against the log as it was, so they are
     /// dropped and must be made again. Fail safe: a check made before a
     /// crash must never go into the sign-off after it.
-    pub fn log_changed(&mut self, records: &[cagehand::logbook::Record]) -> bool {
+    pub fn log_changed(&mut self) -> bool {
         if self.signoff == SignOff::default() {
             return false;
         }
         self.signoff = SignOff::default();
         self.cleared = true;
-        self.signed_as = records
-            .last()
-            .filter(|r| matches!(r.event, cagehand::logbook::Event::Preflight(_)))
-            .map(|r| r.seq);
         true
+    }
+
+    /// Whether `item` is a hand item ticked on this screen.
+    fn ticked(&self, item: &ItemEval) -> bool {
+        item.kind == ItemKind::Hand && self.signoff.ticked.contains(&item.n)
     }
 
     /// Sign off (the key): refused here with every blocking reason, else
@@ -209,12 +217,10 @@ impl PreflightScreen {
     /// The result shown for an item: a ticked hand item or an overridden
     /// automatic one says so.
     fn shown(&self, item: &ItemEval) -> String {
-        if item.kind == ItemKind::Hand {
-            if self.signoff.ticked.contains(&item.n) {
-                "[x]".to_string()
-            } else {
-                "[ ]".to_string()
-            }
+        if self.ticked(item) {
+            "[x]".to_string()
+        } else if item.kind == ItemKind::Hand {
+            "[ ]".to_string()
         } else if item.blocks() && self.signoff.overrides.contains_key(&item.n) {
             "OVERRIDE".to_string()
         } else {
@@ -299,7 +305,7 @@ impl Component for PreflightScreen {
             .filter_map(|i| {
                 let item = items.get(i)?;
                 let style = mark_style(shared, item.result);
-                let ticked = item.kind == ItemKind::Hand && self.signoff.ticked.contains(&item.n);
+                let ticked = self.ticked(item);
                 let cells = vec![
                     item.n.to_string(),
                     self.shown(item),
@@ -330,16 +336,14 @@ impl Component for PreflightScreen {
             table_area,
         );
         let detail_text = match items.get(self.selected) {
-            Some(item) if item.kind == ItemKind::Hand && self.signoff.ticked.contains(&item.n) => {
-                Line::from(vec![
-                    Span::styled(format!("{} [x]: ", item.n), t.good),
-                    Span::styled(
-                        format!("{}. ", item.text),
-                        t.text.add_modifier(Modifier::BOLD),
-                    ),
-                    Span::styled("Ticked by hand on this screen; Space unticks.", t.text),
-                ])
-            }
+            Some(item) if self.ticked(item) => Line::from(vec![
+                Span::styled(format!("{} [x]: ", item.n), t.good),
+                Span::styled(
+                    format!("{}. ", item.text),
+                    t.text.add_modifier(Modifier::BOLD),
+                ),
+                Span::styled("Ticked by hand on this screen; Space unticks.", t.text),
+            ]),
             Some(item) => Line::from(vec![
                 Span::styled(
                     format!("{} {}: ", item.n, mark(item.result)),
@@ -371,7 +375,7 @@ impl Component for PreflightScreen {
                     format!(
                         "BLOCKED ({}): {}{}",
                         r.reasons.len(),
-                        match (self.cleared, self.signed_as) {
+                        match (self.cleared, newest_sign_off(&shared.records)) {
                             (true, Some(seq)) => format!(
                                 "signed off as record #{seq}; a new sign-off needs every check again; "
                             ),

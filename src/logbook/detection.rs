@@ -33,6 +33,17 @@ pub enum ConfirmInput {
     PeakG(f64),
 }
 
+impl ConfirmInput {
+    /// The rule of [`DetectionEvent::confirm_input`] on a peak and an
+    /// approach speed: the speed when positive, else the peak.
+    pub fn from_readings(peak_g: f64, approach_speed_m_per_s: Option<f64>) -> ConfirmInput {
+        match approach_speed_m_per_s {
+            Some(v) if v > 0.0 => ConfirmInput::Speed(v),
+            _ => ConfirmInput::PeakG(peak_g),
+        }
+    }
+}
+
 /// An impact the live feed detected (the `detection` record).
 #[derive(Debug, Clone, PartialEq, Serialize, Deserialize)]
 pub struct DetectionEvent {
@@ -96,10 +107,7 @@ impl DetectionEvent {
     /// peak sampled at the link's rate can miss the top of a short impact
     /// (common practice, no published source); else the measured peak.
     pub fn confirm_input(&self) -> ConfirmInput {
-        match self.approach_speed_m_per_s() {
-            Some(v) if v > 0.0 => ConfirmInput::Speed(v),
-            _ => ConfirmInput::PeakG(self.peak_g),
-        }
+        ConfirmInput::from_readings(self.peak_g, self.approach_speed_m_per_s())
     }
 
     /// One line for listings.

@@ -262,12 +262,9 @@ impl Form {
             .unwrap_or_default();
         // The rule `log confirm` follows too (`DetectionEvent::confirm_input`).
         use cagehand::logbook::detection::ConfirmInput;
-        let input = d.map(|d| d.confirm_input()).or_else(|| {
-            pending.map(|p| match p.speed_m_per_s {
-                Some(v) if v > 0.0 => ConfirmInput::Speed(v),
-                _ => ConfirmInput::PeakG(p.peak_g),
-            })
-        });
+        let input = d
+            .map(|d| d.confirm_input())
+            .or_else(|| pending.map(|p| ConfirmInput::from_readings(p.peak_g, p.speed_m_per_s)));
         let (peak_text, speed_text) = match input {
             Some(ConfirmInput::Speed(v)) => (String::new(), num(v)),
             Some(ConfirmInput::PeakG(g)) => (num(g), String::new()),

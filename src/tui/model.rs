@@ -591,7 +591,7 @@ pub(crate) fn ask_write(
     eval: Option<Box<cagehand::preflight::Evaluation>>,
 ) {
     let Some(operator) = sh.operator.clone() else {
-        sh.notice = Some("not written: no operator name".to_string());
+        sh.notice = Some(format!("{NOT_WRITTEN}no operator name"));
         return;
     };
     let work_kind = match &work {

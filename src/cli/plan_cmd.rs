@@ -174,6 +174,11 @@ fn recovery_map(model: &RightingModel) -> Vec<Plan> {
     unreached.par_iter().for_each(|&k| {
         model.outlook(k);
     });
+    // The moves among those faces that their start does not refuse are
+    // checked whole when the faces are grouped: checked on every core here.
+    model.unreached_links(&draft).par_iter().for_each(|&k| {
+        model.check(k);
+    });
     // Each face's plan is assembled on its own.
     let map = model.finish_map(draft);
     (0..model.cage.faces.len())

@@ -533,6 +533,80 @@ fn the_planner_checks_few_moves_and_costs_what_the_whole_graph_does() {
     assert!(unreached[0] < 80, "the weak geodesic cage has routes too");
 }
 
+/// The moves a caller checks ahead on every core ([`RightingModel::unreached_links`])
+/// are the moves grouping the faces with no route checks whole: checking
+/// them first changes no plan and checks no move the map would not.
+/// (An invariant of our own, on the forward-only demo and a geodesic
+/// cage whose rotors are too weak for most rolls.)
+#[test]
+fn the_links_checked_ahead_are_those_the_map_checks() {
+    let weak = crate::geodesic::profile_toml(1)
+        .replace(
+            "takeoff_faces = \"auto\"",
+            "takeoff_faces = [\"F1\", \"F40\"]",
+        )
+        .lines()
+        .map(|l| match l.split_once(" = ") {
+            Some(("max_thrust_n", v)) => {
+                format!(
+                    "max_thrust_n = {}",
+                    v.parse::<f64>().expect("a number") * 0.25
+                )
+            }
+            Some(("reverse_thrust_n", _)) => "reverse_thrust_n = 0.0".to_string(),
+            _ => l.to_string(),
+        })
+        .collect::<Vec<_>>()
+        .join("\n");
+    let texts = [
+        include_str!("../../profiles/demo-forward-only.toml").to_string(),
+        weak,
+    ];
+    for text in &texts {
+        let p = Profile::parse(text, "test").expect("profile");
+        let c = Cage::from_profile(&p).expect("cage");
+        let model = RightingModel::new(&p, &c).expect("model");
+        let checked = |m: &RightingModel| -> Vec<usize> {
+            (0..m.moves.len())
+                .filter(|&k| m.moves[k].check.get().is_some())
+                .collect()
+        };
+        let plain = model.clone();
+        let plain_map = plain.recovery_map();
+        let ahead = model.clone();
+        let draft = ahead.map_draft();
+        for k in draft.moves() {
+            ahead.commands(k);
+        }
+        for k in ahead
+            .unreached(&draft)
+            .into_iter()
+            .flat_map(|f| ahead.moves_from(f))
+        {
+            ahead.outlook(k);
+        }
+        let links = ahead.unreached_links(&draft);
+        assert!(
+            !links.is_empty(),
+            "{}: no links to check ahead",
+            p.vehicle.name
+        );
+        for &k in &links {
+            ahead.check(k);
+        }
+        let finished = ahead.finish_map(draft);
+        let ahead_map: Vec<Plan> = (0..c.faces.len())
+            .map(|f| ahead.map_plan(&finished, f))
+            .collect();
+        assert_eq!(checked(&ahead), checked(&plain), "{}", p.vehicle.name);
+        for (a, b) in ahead_map.iter().zip(&plain_map) {
+            assert_eq!(a.reason, b.reason);
+            assert_eq!(a.reachable, b.reachable);
+            assert_eq!(a.cost_deg.to_bits(), b.cost_deg.to_bits());
+        }
+    }
+}
+
 #[test]
 fn astar_equals_dijkstra_on_every_demo_face() {
     let p = Profile::demo().unwrap();

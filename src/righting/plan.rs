@@ -404,6 +404,27 @@ impl RightingModel {
             .collect()
     }
 
+    /// The moves among the faces of a draft with no route whose start does
+    /// not already refuse them (call after the [`RightingModel::outlook`]
+    /// of every move out of [`RightingModel::unreached`]): the moves that
+    /// grouping those faces checks whole, which a caller with threads to
+    /// spare checks in parallel first ([`RightingModel::check`]).
+    pub fn unreached_links(&self, draft: &MapDraft) -> Vec<usize> {
+        let routes = &draft.routes;
+        if routes.goals.is_empty() {
+            return Vec::new();
+        }
+        let torque_margin = self.limits.torque_margin;
+        self.unreached(draft)
+            .into_iter()
+            .flat_map(|f| self.moves_from(f))
+            .filter(|&k| {
+                self.stuck(routes, self.moves[k].settles_on)
+                    && !self.outlook(k).refused(torque_margin)
+            })
+            .collect()
+    }
+
     /// Whether the vehicle can rest on face `f` and no take-off face can be
     /// reached from it by `routes`.
     fn stuck(&self, routes: &Routes, f: usize) -> bool {

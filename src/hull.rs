@@ -8,12 +8,14 @@
 //! textbook incremental hull (add a point, delete the faces it sees, close
 //! the horizon with new triangles). The directed-edge map that finds the
 //! horizon is kept up to date as triangles come and go rather than rebuilt
-//! for every point, so each point costs one pass of dot products over the
-//! live triangles plus work in proportion to the triangles it changes: a
-//! few milliseconds for the 2562 nodes of a large geodesic cage.
+//! for every point, and the triangles a point sees come from conflict lists
+//! (Clarkson and Shor 1989: the points not added yet that see each
+//! triangle) rather than a test of every live triangle, so each point costs
+//! work in proportion to the triangles it changes and the points they had.
 
+use foldhash::HashMap;
+use foldhash::HashMapExt;
 use nalgebra::Vector3;
-use std::collections::HashMap;
 
 /// Why no hull could be built.
 #[derive(Debug, Clone, PartialEq, thiserror::Error)]
@@ -63,9 +65,23 @@ fn tri(p: &[Vector3<f64>], a: usize, b: usize, c: usize) -> Tri {
     }
 }
 
+/// How the triangles a new point sees are found.
+#[derive(Clone, Copy, PartialEq, Eq)]
+enum Search {
+    /// From conflict lists: near n log n for points in general order.
+    Conflicts,
+    /// By testing every live triangle (the tests' reference).
+    #[cfg_attr(not(test), allow(dead_code))]
+    Exhaustive,
+}
+
 impl Hull {
     /// Build the hull of `points`.
     pub fn new(points: &[[f64; 3]]) -> Result<Hull, HullError> {
+        Hull::build(points, Search::Conflicts)
+    }
+
+    fn build(points: &[[f64; 3]], search: Search) -> Result<Hull, HullError> {
         let p: Vec<Vector3<f64>> = points.iter().map(|q| Vector3::from(*q)).collect();
         if p.len() < 4 {
             return Err(HullError::TooFew(p.len()));
@@ -113,29 +129,65 @@ impl Hull {
             ]
         };
 
-        // Triangles live in creation order with a flag (so the survivors
-        // keep their order and new ones go at the end, as a rebuilt list
-        // would have them); the owner of every directed edge is kept up to
-        // date as triangles are added and removed.
+        // Triangles live in creation order with a flag (the survivors keep
+        // their order and new ones go at the end, as a rebuilt list would
+        // have them); the owner of every directed edge is kept up to date
+        // as triangles are added and removed.
         let mut alive = vec![true; tris.len()];
-        let mut live = tris.len();
         let mut owner: HashMap<(usize, usize), usize> = HashMap::new();
         for (ti, t) in tris.iter().enumerate() {
             for e in 0..3 {
                 owner.insert((t.v[e], t.v[(e + 1) % 3]), ti);
             }
         }
+        let initial = [i0, i1, i2, i3];
+        let above = |t: &Tri, q: &Vector3<f64>| t.n.dot(q) - t.d > eps;
+        // Conflict lists (Clarkson and Shor 1989): the points not added yet
+        // that see each triangle, and the triangles each such point sees
+        // (some of them since removed). A new triangle on the horizon edge
+        // a-b can only be seen by a point that saw one of the two
+        // triangles that shared a-b, so only their points are tested.
+        let conflicts_kept = search == Search::Conflicts;
+        let mut conflicts: Vec<Vec<usize>> = vec![Vec::new(); tris.len()];
+        let mut sees: Vec<Vec<usize>> = vec![Vec::new(); p.len()];
+        if conflicts_kept {
+            for (k, q) in p.iter().enumerate() {
+                if initial.contains(&k) {
+                    continue;
+                }
+                for (ti, t) in tris.iter().enumerate() {
+                    if above(t, q) {
+                        conflicts[ti].push(k);
+                        sees[k].push(ti);
+                    }
+                }
+            }
+        }
+        // The last new triangle each point was tested against.
+        let mut tested: Vec<usize> = vec![usize::MAX; p.len()];
         let mut visible: Vec<usize> = Vec::new();
         let mut is_visible: Vec<bool> = vec![false; tris.len()];
-        let mut horizon: Vec<(usize, usize)> = Vec::new();
+        // Horizon edges a-b with the visible triangle that had a-b and the
+        // kept one that has b-a.
+        let mut horizon: Vec<(usize, usize, usize, usize)> = Vec::new();
         for (k, q) in p.iter().enumerate() {
-            if [i0, i1, i2, i3].contains(&k) {
+            if initial.contains(&k) {
                 continue;
             }
             visible.clear();
-            visible.extend(
-                (0..tris.len()).filter(|&ti| alive[ti] && tris[ti].n.dot(q) - tris[ti].d > eps),
-            );
+            match search {
+                Search::Conflicts => {
+                    visible.extend(
+                        std::mem::take(&mut sees[k])
+                            .into_iter()
+                            .filter(|&ti| alive[ti]),
+                    );
+                    visible.sort_unstable();
+                }
+                Search::Exhaustive => {
+                    visible.extend((0..tris.len()).filter(|&ti| alive[ti] && above(&tris[ti], q)))
+                }
+            }
             if visible.is_empty() {
                 continue;
             }
@@ -147,8 +199,10 @@ impl Hull {
                 let t = tris[ti];
                 for e in 0..3 {
                     let (a, b) = (t.v[e], t.v[(e + 1) % 3]);
-                    if owner.get(&(b, a)).is_some_and(|&o| !is_visible[o]) {
-                        horizon.push((a, b));
+                    if let Some(&o) = owner.get(&(b, a))
+                        && !is_visible[o]
+                    {
+                        horizon.push((a, b, ti, o));
                     }
                 }
             }
@@ -163,29 +217,31 @@ impl Hull {
                     }
                 }
             }
-            live -= visible.len();
-            for &(a, b) in &horizon {
+            for &(a, b, gone, kept) in &horizon {
                 let ti = tris.len();
-                tris.push(tri(&p, a, b, k));
+                let t = tri(&p, a, b, k);
+                let mut seen_by = Vec::new();
+                if conflicts_kept {
+                    for &j in conflicts[gone].iter().chain(&conflicts[kept]) {
+                        if j > k && tested[j] != ti {
+                            tested[j] = ti;
+                            if above(&t, &p[j]) {
+                                seen_by.push(j);
+                                sees[j].push(ti);
+                            }
+                        }
+                    }
+                }
+                tris.push(t);
+                conflicts.push(seen_by);
                 alive.push(true);
                 is_visible.push(false);
                 for (x, y) in [(a, b), (b, k), (k, a)] {
                     owner.insert((x, y), ti);
                 }
             }
-            live += horizon.len();
-            // Drop the dead once they outnumber the living, keeping order.
-            if tris.len() > 2 * live + 64 {
-                let mut keep = alive.iter();
-                tris.retain(|_| *keep.next().unwrap_or(&false));
-                alive = vec![true; tris.len()];
-                is_visible = vec![false; tris.len()];
-                owner.clear();
-                for (ti, t) in tris.iter().enumerate() {
-                    for e in 0..3 {
-                        owner.insert((t.v[e], t.v[(e + 1) % 3]), ti);
-                    }
-                }
+            for &ti in &visible {
+                conflicts[ti] = Vec::new();
             }
         }
         let tris: Vec<Tri> = tris
@@ -266,39 +322,49 @@ fn merge_coplanar(p: &[Vector3<f64>], tris: &[Tri], eps: f64) -> Vec<HullFace> {
             }
         }
     }
-    let mut groups: Vec<(usize, Vec<usize>)> = Vec::new();
-    let mut group_of: HashMap<usize, usize> = HashMap::new();
-    for ti in 0..tris.len() {
-        let r = find(&mut parent, ti);
-        match group_of.get(&r) {
-            Some(&gi) => groups[gi].1.push(ti),
-            None => {
-                group_of.insert(r, groups.len());
-                groups.push((r, vec![ti]));
+    // Groups in the order of their first triangle; a triangle is in a
+    // group when its root is the group's.
+    let root: Vec<usize> = (0..tris.len()).map(|ti| find(&mut parent, ti)).collect();
+    let mut groups: Vec<Vec<usize>> = Vec::new();
+    let mut group_of: Vec<usize> = vec![usize::MAX; tris.len()];
+    for (ti, &r) in root.iter().enumerate() {
+        match group_of[r] {
+            usize::MAX => {
+                group_of[r] = groups.len();
+                groups.push(vec![ti]);
             }
+            gi => groups[gi].push(ti),
         }
     }
     let mut faces = Vec::new();
-    for (_, g) in groups {
+    // The group's boundary, as (from, to) pairs: a few per face, so a list
+    // is quicker than a map (a later edge from the same vertex replaces
+    // the earlier, as a map's insert would).
+    let mut next: Vec<(usize, usize)> = Vec::new();
+    for g in groups {
         // Boundary edges: directed edges of the group whose twin is not in it.
-        let in_group: std::collections::HashSet<usize> = g.iter().copied().collect();
-        let mut next: HashMap<usize, usize> = HashMap::new();
+        let r = root[g[0]];
+        next.clear();
         for &ti in &g {
             let t = &tris[ti];
             for e in 0..3 {
                 let (a, b) = (t.v[e], t.v[(e + 1) % 3]);
-                let twin_inside = owner.get(&(b, a)).is_some_and(|o| in_group.contains(o));
+                let twin_inside = owner.get(&(b, a)).is_some_and(|&o| root[o] == r);
                 if !twin_inside {
-                    next.insert(a, b);
+                    match next.iter_mut().find(|(from, _)| *from == a) {
+                        Some(edge) => edge.1 = b,
+                        None => next.push((a, b)),
+                    }
                 }
             }
         }
-        let Some(&start) = next.keys().min() else {
+        let Some(start) = next.iter().map(|&(from, _)| from).min() else {
             continue;
         };
+        let after = |v: usize| next.iter().find(|(from, _)| *from == v).map(|&(_, to)| to);
         let mut loop_v = vec![start];
         let mut cur = start;
-        while let Some(&n) = next.get(&cur) {
+        while let Some(n) = after(cur) {
             if n == start || loop_v.len() > next.len() {
                 break;
             }
@@ -374,6 +440,64 @@ mod tests {
         ];
         assert_eq!(Hull::new(&pts), Err(HullError::Flat));
         assert_eq!(Hull::new(&pts[..3]), Err(HullError::TooFew(3)));
+    }
+
+    /// Both searches give the same hull, face for face and vertex for
+    /// vertex (the same face ids), with the exhaustive one as the
+    /// reference: conflict lists are an established method (Clarkson and
+    /// Shor 1989), and this checks our use of them.
+    fn same_as_exhaustive(points: &[[f64; 3]]) {
+        let fast = Hull::new(points);
+        let slow = Hull::build(points, Search::Exhaustive);
+        assert_eq!(fast, slow, "{} points", points.len());
+    }
+
+    #[test]
+    fn conflict_lists_give_the_exhaustive_hull_on_spheres_and_grids() {
+        for k in 0..=4 {
+            let (nodes, _) = crate::geodesic::sphere(k);
+            let pts: Vec<[f64; 3]> = nodes.iter().map(|v| [v.x, v.y, v.z]).collect();
+            same_as_exhaustive(&pts);
+        }
+        // A 5x5x5 grid: many points on each face plane and inside.
+        let mut grid = Vec::new();
+        for x in 0..5 {
+            for y in 0..5 {
+                for z in 0..5 {
+                    grid.push([f64::from(x), f64::from(y), f64::from(z)]);
+                }
+            }
+        }
+        same_as_exhaustive(&grid);
+        let mut pts = cube();
+        pts.push([0.0, 0.0, 0.0]);
+        same_as_exhaustive(&pts);
+    }
+
+    mod props {
+        use super::*;
+        use proptest::prelude::*;
+
+        proptest! {
+            #[test]
+            fn conflict_lists_give_the_exhaustive_hull(
+                points in proptest::collection::vec(
+                    prop_oneof![
+                        // Anywhere in a box, or on a few planes (coplanar runs).
+                        proptest::array::uniform3(-1.0f64..1.0),
+                        (proptest::array::uniform2(-1.0f64..1.0), prop_oneof![Just(-1.0), Just(1.0)])
+                            .prop_map(|([a, b], c)| [a, b, c]),
+                        (-3i32..=3, -3i32..=3, -3i32..=3)
+                            .prop_map(|(a, b, c)| [f64::from(a), f64::from(b), f64::from(c)]),
+                    ],
+                    4..80,
+                ),
+            ) {
+                let fast = Hull::new(&points);
+                let slow = Hull::build(&points, Search::Exhaustive);
+                prop_assert_eq!(fast, slow);
+            }
+        }
     }
 
     #[test]

@@ -38,7 +38,6 @@ pub use shape::{
 pub use vehicle::{Vehicle, is_valid_vehicle_id, vehicle_id_rule, vehicle_key};
 
 use read::Doc;
-use std::collections::BTreeMap;
 
 /// The profile bundled with the program: an invented demo vehicle.
 pub const DEMO_PROFILE_TOML: &str = include_str!("../profiles/demo.toml");
@@ -128,18 +127,22 @@ pub struct Location {
 /// Where each key the file wrote sits (tables at their header, list items
 /// as `key[i]`), so checks made after validation still point at the key.
 #[derive(Debug, Clone, PartialEq, Default)]
-pub struct Locations(BTreeMap<KeyPath, Location>);
+///
+/// Kept in the order read (a large cage has tens of thousands of keys, and
+/// they are looked up only to place a refusal); a key read twice is where
+/// it was read last.
+pub struct Locations(Vec<(KeyPath, Location)>);
 
 impl Locations {
     fn insert(&mut self, key: KeyPath, at: Location) {
-        self.0.insert(key, at);
+        self.0.push((key, at));
     }
     /// Where `key` is written; a key the file left out is located at the
     /// nearest enclosing table it does write, else at the top of the file.
     pub fn of(&self, key: &KeyPath) -> Location {
         let mut k = Some(key.clone());
         while let Some(p) = k {
-            if let Some(at) = self.0.get(&p) {
+            if let Some((_, at)) = self.0.iter().rev().find(|(q, _)| *q == p) {
                 return *at;
             }
             k = p.parent();

@@ -30,15 +30,29 @@ impl KeyPath {
     }
     /// A key inside this table.
     pub fn key(&self, name: &str) -> KeyPath {
+        // Joined by hand rather than by `format!`: a large cage's file has
+        // tens of thousands of keys, and the formatting machinery was an
+        // eighth of reading it.
         if self.0.is_empty() {
             KeyPath(name.to_string())
         } else {
-            KeyPath(format!("{}.{name}", self.0))
+            let mut path = String::with_capacity(self.0.len() + 1 + name.len());
+            path.push_str(&self.0);
+            path.push('.');
+            path.push_str(name);
+            KeyPath(path)
         }
     }
     /// Item `index` (0-based) of this list, written 1-based.
     pub fn index(&self, index: usize) -> KeyPath {
-        KeyPath(format!("{}[{}]", self.0, index + 1))
+        let mut digits = itoa::Buffer::new();
+        let number = digits.format(index + 1);
+        let mut path = String::with_capacity(self.0.len() + number.len() + 2);
+        path.push_str(&self.0);
+        path.push('[');
+        path.push_str(number);
+        path.push(']');
+        KeyPath(path)
     }
     /// The path as written in messages.
     pub fn as_str(&self) -> &str {

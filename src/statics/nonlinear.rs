@@ -16,7 +16,7 @@ use super::{StaticsError, Structure, remove_rigid, rigid_modes, stack};
 use crate::cage::MemberKind;
 use faer::linalg::solvers::Solve;
 use faer::sparse::linalg::solvers::{Llt, Lu, SymbolicLlt, SymbolicLu};
-use faer::sparse::{SparseColMat, Triplet};
+use faer::sparse::{Argsort, Pair, SparseColMat, SymbolicSparseColMat, Triplet};
 use nalgebra::{DMatrix, DVector, Matrix3, Vector3};
 
 /// A load that may depend on the current node positions: writes the
@@ -398,6 +398,13 @@ struct SparseTangent {
     anchors: Vec<usize>,
     /// Triplets of B, in a fixed order so the pattern never changes.
     triplets: Vec<Triplet<usize, usize, f64>>,
+    /// B's pattern and where each triplet goes in it, worked out on first
+    /// use: later iterations fill in the values without sorting the
+    /// triplets again (faer's `new_from_argsort`; the same matrix as
+    /// `try_new_from_triplets`, which is these two steps).
+    pattern: Option<(SymbolicSparseColMat<usize>, Argsort<usize>)>,
+    /// The triplets' values, in their order.
+    values: Vec<f64>,
     /// Symbolic LU of B's pattern, computed on first use.
     symbolic: Option<SymbolicLu<usize>>,
     /// Symbolic Cholesky of B's pattern, computed on first use: B is
@@ -433,6 +440,8 @@ impl SparseTangent {
                 .flat_map(|&i| [3 * i, 3 * i + 1, 3 * i + 2])
                 .collect(),
             triplets: Vec::new(),
+            pattern: None,
+            values: Vec::new(),
             symbolic: None,
             symbolic_llt: None,
         }
@@ -472,8 +481,20 @@ impl SparseTangent {
             let spring = if self.anchors.contains(&i) { s } else { 0.0 };
             self.triplets.push(Triplet::new(i, i, spring));
         }
+        if self.pattern.is_none() {
+            let pairs: Vec<Pair<usize, usize>> = self
+                .triplets
+                .iter()
+                .map(|t| Pair::new(t.row, t.col))
+                .collect();
+            self.pattern = SymbolicSparseColMat::try_new_from_indices(dim, dim, &pairs).ok();
+        }
+        let (pattern, order) = self.pattern.as_ref()?;
+        self.values.clear();
+        self.values.extend(self.triplets.iter().map(|t| t.val));
         let bmat =
-            SparseColMat::<usize, f64>::try_new_from_triplets(dim, dim, &self.triplets).ok()?;
+            SparseColMat::<usize, f64>::new_from_argsort(pattern.clone(), order, &self.values)
+                .ok()?;
         if self.symbolic_llt.is_none() {
             self.symbolic_llt = SymbolicLlt::try_new(bmat.symbolic(), faer::Side::Lower).ok();
         }

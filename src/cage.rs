@@ -222,7 +222,7 @@ fn layout(profile: &Profile, mount: &Rotation3<f64>) -> Result<Layout, CageError
             // Renumber nodes by the documented rule.
             let size = rod_length_m.max(1e-9);
             let mut order: Vec<usize> = (0..pos.len()).collect();
-            order.sort_by_key(|&i| {
+            order.sort_by_cached_key(|&i| {
                 let b = *mount * pos[i];
                 (quantise(b.z, 1e-6 * size), quantise(azimuth_deg(&b), 1e-6))
             });
@@ -383,8 +383,8 @@ impl Cage {
             .fold(0.0_f64, f64::max);
         // The first member on each node pair, found by hashing rather than
         // a scan of every member for every face edge.
-        let mut by_nodes: std::collections::HashMap<[usize; 2], usize> =
-            std::collections::HashMap::with_capacity(members.len());
+        let mut by_nodes: foldhash::HashMap<[usize; 2], usize> =
+            foldhash::HashMapExt::with_capacity(members.len());
         for (j, m) in members.iter().enumerate() {
             by_nodes.entry(m.nodes).or_insert(j);
         }
@@ -437,7 +437,9 @@ impl Cage {
                 }
             })
             .collect();
-        faces.sort_by_key(|f| {
+        // The key has an arc tangent: worked out once per face, not per
+        // comparison (a stable sort either way).
+        faces.sort_by_cached_key(|f| {
             (
                 quantise(f.tilt_deg, 1e-6),
                 quantise(azimuth_deg(&f.normal_body), 1e-6),

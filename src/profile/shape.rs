@@ -7,7 +7,7 @@
 use super::read::{Bound, KeyPath, Table, clip, num};
 use super::vehicle::{MAX_COORD_M, vehicle_key};
 use super::{ProfileError, Vehicle};
-use std::collections::HashMap;
+use foldhash::{HashMap, HashMapExt};
 
 /// The cage geometry as the profile gives it.
 #[derive(Debug, Clone, PartialEq)]

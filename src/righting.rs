@@ -112,11 +112,19 @@ impl RightingModel {
         vertex_pivot_weight: f64,
     ) -> RightingModel {
         let mut moves = Vec::new();
+        // Where the vehicle settles from each face, worked out once per
+        // face rather than once per move into it (a face has several).
+        let mut settled: Vec<Option<Vec<moves::Roll>>> = vec![None; cage.faces.len()];
         for roll in moves::candidate_rolls(&cage, vertex_pivots) {
             if !cage.faces[roll.from].stable {
                 continue;
             }
-            let settle = moves::settle(&cage, roll.to);
+            let settle = match settled.get_mut(roll.to) {
+                Some(kept) => kept
+                    .get_or_insert_with(|| moves::settle(&cage, roll.to))
+                    .clone(),
+                None => moves::settle(&cage, roll.to),
+            };
             let settles_on = settle.last().map_or(roll.to, |r| r.to);
             if settles_on == roll.from {
                 continue;

@@ -187,6 +187,9 @@ fn recovery_map(model: &RightingModel) -> Vec<Plan> {
         .collect()
 }
 
+/// A plan's text buffer starts with this much room.
+const PLAN_TEXT_BYTES: usize = 4096;
+
 /// Every plan's text, written on every core (a map of a large cage is
 /// thousands of plans), in the plans' order.
 fn rendered(
@@ -196,7 +199,9 @@ fn rendered(
     plans
         .par_iter()
         .map(|p| {
-            let mut buf = Vec::new();
+            // Room for a typical plan's text (3 kB on hub-3): grown from
+            // empty, each buffer was copied a dozen times on the way.
+            let mut buf = Vec::with_capacity(PLAN_TEXT_BYTES);
             write(&mut buf, p).map(|()| buf)
         })
         .collect()

@@ -185,13 +185,16 @@ pub fn rows_at(cage: &Cage, roll: &Roll, rotors: &[Rotor], mu: f64, beta_rad: f6
     let axes: smallvec::SmallVec<[Vector3<f64>; 8]> =
         rotors.iter().map(|r| Vector3::from(r.axis)).collect();
     let normal: Coeffs = axes.iter().map(|t| t.dot(&g)).collect();
-    let mut rows = vec![Row {
+    // Lift-off, the friction rows and at most two more: room for all of
+    // them at once (this runs for every angle of every move checked).
+    let mut rows = Vec::with_capacity(1 + FRICTION_SIDES + 2);
+    rows.push(Row {
         // -sum a_k T_k <= W
         coeffs: normal.iter().map(|a| -a).collect(),
         rhs: w,
         equality: false,
         condition: Condition::LiftOff,
-    }];
+    });
     match shared_axis(rotors) {
         Some(t) => {
             // Tangential force along a fixed direction, size |S| s:

@@ -472,6 +472,21 @@ mod tests {
         let mut pts = cube();
         pts.push([0.0, 0.0, 0.0]);
         same_as_exhaustive(&pts);
+        // The case the property test below shrank to when the new
+        // triangles' candidates were taken from one side of the horizon
+        // edge only (a fault put in on purpose, to see the test catch it).
+        same_as_exhaustive(&[
+            [
+                -0.21166519765429553,
+                -0.7108149874864792,
+                -0.6635754581390547,
+            ],
+            [-0.6082650908632915, 0.0, -1.0],
+            [-0.6006765384496323, -0.4120925817830636, 0.8188627643545844],
+            [0.12556137101905854, 0.39260517783206833, 1.0],
+            [0.0, -0.9607336988902186, 0.0],
+            [0.28611885852323554, 0.0, -1.0],
+        ]);
     }
 
     mod props {

@@ -126,11 +126,11 @@ pub struct Location {
 
 /// Where each key the file wrote sits (tables at their header, list items
 /// as `key[i]`), so checks made after validation still point at the key.
-#[derive(Debug, Clone, PartialEq, Default)]
 ///
 /// Kept in the order read (a large cage has tens of thousands of keys, and
 /// they are looked up only to place a refusal); a key read twice is where
 /// it was read last.
+#[derive(Debug, Clone, PartialEq, Default)]
 pub struct Locations(Vec<(KeyPath, Location)>);
 
 impl Locations {

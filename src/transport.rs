@@ -23,6 +23,7 @@
 
 mod file;
 pub mod floor;
+mod parcel;
 mod raw;
 mod serial;
 mod sim;
@@ -37,6 +38,7 @@ use cagehand::link::{Counters, Decoder, Proto, ProtoError};
 use cagehand::sample::Sample;
 use cagehand::sim::wire::Wire;
 use cagehand::sim::{Sim, SimCommand};
+pub use parcel::Parcel;
 use sink::Sink;
 use std::path::PathBuf;
 use std::sync::Arc;
@@ -250,33 +252,36 @@ impl LinkError {
 
 /// The consumer's end of a link: the reader ships its messages in batches
 /// (everything one read produced goes in one channel send, so a fast link
-/// costs one hand-over per read rather than per sample); this hands them
-/// out one at a time, in order, and hands each emptied batch back to the
-/// reader for reuse.
+/// costs one hand-over per read rather than per sample), packed small
+/// ([`Parcel`]); this hands them out one at a time, in order, unpacked,
+/// and hands each emptied batch back to the reader for reuse.
 #[derive(Debug)]
 pub struct LinkRx {
-    rx: Receiver<Vec<LinkMsg>>,
-    /// The batch being handed out: its messages are taken where they lie
+    rx: Receiver<Vec<Parcel>>,
+    /// The batch being handed out: its parcels are taken where they lie
     /// (not copied into a queue), `next` is the first not yet taken.
-    batch: Vec<LinkMsg>,
+    batch: Vec<Parcel>,
     next: usize,
+    /// The message [`LinkRx::recv_timeout_ref`] lends, unpacked here.
+    lent: LinkMsg,
     /// Where an emptied batch goes back to its reader for reuse (so a fast
     /// replay writes into memory already mapped rather than fresh pages).
-    spare: Option<Sender<Vec<LinkMsg>>>,
+    spare: Option<Sender<Vec<Parcel>>>,
 }
 
 impl LinkRx {
-    pub(crate) fn new(rx: Receiver<Vec<LinkMsg>>) -> LinkRx {
+    pub(crate) fn new(rx: Receiver<Vec<Parcel>>) -> LinkRx {
         LinkRx {
             rx,
             batch: Vec::new(),
             next: 0,
+            lent: LinkMsg::Tick { at_s: 0.0 },
             spare: None,
         }
     }
 
     /// A receiver that hands emptied batches back through `spare`.
-    fn with_spare(rx: Receiver<Vec<LinkMsg>>, spare: Sender<Vec<LinkMsg>>) -> LinkRx {
+    fn with_spare(rx: Receiver<Vec<Parcel>>, spare: Sender<Vec<Parcel>>) -> LinkRx {
         LinkRx {
             spare: Some(spare),
             ..LinkRx::new(rx)
@@ -284,14 +289,15 @@ impl LinkRx {
     }
 
     /// The next message of the batch in hand, if any is left.
+    #[inline]
     fn take(&mut self) -> Option<LinkMsg> {
         let slot = self.batch.get_mut(self.next)?;
         self.next += 1;
-        Some(std::mem::replace(slot, LinkMsg::Tick { at_s: 0.0 }))
+        Some(std::mem::replace(slot, Parcel::Tick { at_s: 0.0 }).unpack())
     }
 
     /// A new batch in hand; the emptied one goes back to the reader.
-    fn refill(&mut self, batch: Vec<LinkMsg>) {
+    fn refill(&mut self, batch: Vec<Parcel>) {
         let mut old = std::mem::replace(&mut self.batch, batch);
         self.next = 0;
         if let Some(spare) = &self.spare
@@ -331,8 +337,8 @@ impl LinkRx {
         }
     }
 
-    /// The next message, borrowed where its batch holds it (no copy),
-    /// waiting at most `timeout`; valid until the next call.
+    /// The next message, lent (unpacked into the receiver's own slot, not
+    /// handed over), waiting at most `timeout`; valid until the next call.
     pub fn recv_timeout_ref(&mut self, timeout: Duration) -> Result<&LinkMsg, RecvTimeoutError> {
         if self.next >= self.batch.len() {
             let deadline = Instant::now() + timeout;
@@ -342,9 +348,10 @@ impl LinkRx {
                 self.refill(batch);
             }
         }
-        let at = self.next;
-        self.next += 1;
-        Ok(&self.batch[at])
+        if let Some(m) = self.take() {
+            self.lent = m;
+        }
+        Ok(&self.lent)
     }
 
     /// The next message if one is already here (not waiting).

@@ -92,6 +92,7 @@ pub fn feed_input(msg: LinkMsg) -> FeedInput {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::transport::Parcel;
     use cagehand::cage::Cage;
     use cagehand::profile::Profile;
     use cagehand::sample::{STANDARD_GRAVITY_M_S2, Sample};
@@ -138,7 +139,8 @@ mod tests {
         let mut msgs = drop_messages();
         msgs.push(LinkMsg::End { at_s: 5.0 });
         for chunk in msgs.chunks(50) {
-            tx.send(chunk.to_vec()).expect("send");
+            tx.send(chunk.iter().cloned().map(Parcel::pack).collect())
+                .expect("send");
         }
         drop(tx);
         let mut rx = LinkRx::new(rx);

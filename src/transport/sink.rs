@@ -2,7 +2,7 @@
 //! last sent, and the replay floor it keeps for live links with a key.
 
 use super::floor::FloorStore;
-use super::{LinkEvent, LinkMsg};
+use super::{LinkEvent, LinkMsg, Parcel};
 use cagehand::link::clock::{TICK_S, silence_ticks};
 use cagehand::link::{Counters, Decoder, Delivery};
 use std::sync::mpsc::{Receiver, SyncSender, TrySendError};
@@ -17,11 +17,11 @@ const BLOCKING_BATCH: usize = 1024;
 /// read instead of two per sample (a replay's long reads in parts of
 /// [`BLOCKING_BATCH`]). The order of the messages is unchanged.
 pub(super) struct Sink {
-    pub(super) tx: SyncSender<Vec<LinkMsg>>,
+    pub(super) tx: SyncSender<Vec<Parcel>>,
     /// Messages of the read in progress, not yet shipped.
-    held: Vec<LinkMsg>,
+    held: Vec<Parcel>,
     /// Emptied batches the consumer handed back, reused for the next ones.
-    spare: Receiver<Vec<LinkMsg>>,
+    spare: Receiver<Vec<Parcel>>,
     /// Inside a read: `send` holds instead of shipping.
     holding: bool,
     pub(super) decoder: Decoder,
@@ -50,13 +50,13 @@ impl Sink {
     /// A sink for a reader: `blocking` waits for the consumer instead of
     /// dropping; `sample_clock` runs the link clock on sender time.
     pub(super) fn new(
-        tx: SyncSender<Vec<LinkMsg>>,
+        tx: SyncSender<Vec<Parcel>>,
         decoder: Decoder,
         raw: bool,
         blocking: bool,
         sample_clock: bool,
         floor: Option<FloorStore>,
-        spare: Receiver<Vec<LinkMsg>>,
+        spare: Receiver<Vec<Parcel>>,
     ) -> Sink {
         Sink {
             tx,
@@ -79,7 +79,7 @@ impl Sink {
     pub(super) fn send(&mut self, msg: LinkMsg) -> bool {
         self.last_sent_s = self.clock_s;
         if self.holding {
-            self.held.push(msg);
+            self.held.push(Parcel::pack(msg));
             if self.blocking && self.held.len() >= BLOCKING_BATCH {
                 // A replay's read gives thousands of messages: shipped in
                 // parts, the consumer takes them while they are still in
@@ -92,34 +92,31 @@ impl Sink {
             return true;
         }
         let mut batch = self.fresh_batch();
-        batch.push(msg);
+        batch.push(Parcel::pack(msg));
         self.ship(batch)
     }
 
     /// An empty batch: one the consumer handed back, else a new one. Every
     /// batch shipped takes one, so the spares never pile up.
-    fn fresh_batch(&mut self) -> Vec<LinkMsg> {
+    fn fresh_batch(&mut self) -> Vec<Parcel> {
         self.spare.try_recv().unwrap_or_default()
     }
 
     /// Hand a batch to the consumer. A live link whose consumer is behind
     /// drops the batch rather than wait: its samples count as dropped and
     /// its counters go again with the next batch.
-    fn ship(&mut self, batch: Vec<LinkMsg>) -> bool {
+    fn ship(&mut self, batch: Vec<Parcel>) -> bool {
         if self.blocking {
             return self.tx.send(batch).is_ok();
         }
         match self.tx.try_send(batch) {
             Ok(()) => true,
             Err(TrySendError::Full(batch)) => {
-                let samples = batch
-                    .iter()
-                    .filter(|m| matches!(m, LinkMsg::Sample { .. }))
-                    .count();
+                let samples = batch.iter().filter(|m| m.is_sample()).count();
                 if samples > 0 {
                     self.decoder.count_dropped(samples as u64);
                 }
-                if batch.iter().any(|m| matches!(m, LinkMsg::Health { .. })) {
+                if batch.iter().any(Parcel::is_health) {
                     self.health_sent = None;
                 }
                 true
@@ -230,31 +227,28 @@ impl Sink {
                 if *clock_from_sample {
                     for t in silence_ticks(*clock_s, sample.t_s) {
                         advance_clock(clock_s, t);
-                        held.push(LinkMsg::Tick { at_s: t });
+                        held.push(Parcel::Tick { at_s: t });
                     }
                 }
                 advance_clock(clock_s, sample.t_s);
                 *clock_from_sample = true;
                 if slot.is_none() {
                     slot = Some((held.len(), *clock_s));
-                    held.push(LinkMsg::Tick { at_s: *clock_s });
+                    held.push(Parcel::Tick { at_s: *clock_s });
                 }
                 *last_sent_s = *clock_s;
-                held.push(LinkMsg::Sample {
-                    at_s: *clock_s,
-                    sample,
-                });
+                held.push(Parcel::sample(*clock_s, sample));
             }
             Delivery::Cut(counters) => {
                 let changed = *health_sent != Some(counters);
                 match slot.take() {
-                    Some((k, at_s)) if changed => held[k] = LinkMsg::Health { at_s, counters },
+                    Some((k, at_s)) if changed => held[k] = Parcel::Health { at_s, counters },
                     Some((k, _)) => {
                         held.remove(k);
                     }
                     None if changed => {
                         *last_sent_s = *clock_s;
-                        held.push(LinkMsg::Health {
+                        held.push(Parcel::Health {
                             at_s: *clock_s,
                             counters,
                         });
@@ -364,7 +358,7 @@ impl Sink {
         self.decoder.finish(self.clock_s);
         self.flush();
         let at_s = self.clock_s;
-        let _ = self.tx.send(vec![LinkMsg::End { at_s }]);
+        let _ = self.tx.send(vec![Parcel::pack(LinkMsg::End { at_s })]);
     }
 }
 

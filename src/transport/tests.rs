@@ -177,7 +177,7 @@ fn sink_messages(blocking: bool, reads: &[&[u8]]) -> Vec<LinkMsg> {
     }
     sink.end();
     drop(sink);
-    rx.iter().flatten().collect()
+    rx.iter().flatten().map(Parcel::unpack).collect()
 }
 
 #[test]

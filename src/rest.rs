@@ -141,14 +141,14 @@ fn fit_error_deg(cage: &Cage, face: usize, gravity_body: &Vector3<f64>) -> f64 {
 /// the same answer as `angle_between_deg(a, b) <= deg`.
 ///
 /// `angle_between_deg` is atan2(|a x b|, a . b) in degrees. For a limit
-/// between 1e-6 and 89 degrees and a dot product of at least 1e-200 (so
-/// the products below are normal numbers, rounded to the last place) the
-/// angle is below
-/// the limit exactly when |a x b| / (a . b) is below tan(limit); away from
-/// the boundary by a relative 1e-9 (some million times the rounding of
-/// atan2, tan and the degree conversion, which are within a few units in
-/// the last place) the comparison of the two products decides; within it,
-/// and for anything not finite, the angle itself is worked out as before.
+/// between 1e-6 and 89 degrees and a dot product of at least 1e-100 (so
+/// the products and their squares below are normal numbers, rounded to the
+/// last place) the angle is below the limit exactly when |a x b|^2 is below
+/// ((a . b) tan(limit))^2; away from the boundary by a relative 1e-9 (some
+/// million times the rounding of atan2, tan, the squares and the degree
+/// conversion, which are within a few units in the last place) the
+/// comparison of the two squares decides; within it, and for anything not
+/// finite, the angle itself is worked out as before.
 #[derive(Debug, Clone, Copy)]
 struct AngleLimit {
     deg: f64,
@@ -182,23 +182,29 @@ impl AngleLimit {
     }
 
     fn decide(&self, a: &Vector3<f64>, b: &Vector3<f64>, read: impl Fn(f64) -> f64) -> bool {
-        let cross = a.cross(b).norm();
+        let cross = a.cross(b);
+        let cross2 = cross.norm_squared();
         let dot = a.dot(b);
         if let Some((below, above)) = self.tan_below_above
-            && cross.is_finite()
+            && cross2.is_finite()
             && dot.is_finite()
-            && dot >= 1e-200
+            && dot >= 1e-100
         {
-            // Finite here, so the angle is finite too: `read` keeps it.
-            if cross < dot * below {
+            // Squares against squares, so no square root waits in the way:
+            // each side is rounded a few times more, still a million times
+            // inside the margin, and with the dot product at least 1e-100
+            // the squares stay normal numbers. Finite here, so the angle is
+            // finite too: `read` keeps it.
+            let (lo, hi) = (dot * below, dot * above);
+            if cross2 < lo * lo {
                 return true;
             }
-            if cross > dot * above {
+            if cross2 > hi * hi {
                 return false;
             }
         }
         // The same expression as `angle_between_deg`.
-        read(cross.atan2(dot).to_degrees()) <= self.deg
+        read(cross.norm().atan2(dot).to_degrees()) <= self.deg
     }
 }
 

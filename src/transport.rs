@@ -456,7 +456,6 @@ pub fn open(spec: &LinkSpec, opts: LinkOptions, mode: Mode) -> Result<Link, Link
         LinkSpec::Udp(addr) => {
             let sock = std::net::UdpSocket::bind(addr)
                 .map_err(|source| LinkError::Bind { addr, source })?;
-            let _ = sock.set_read_timeout(Some(Duration::from_millis(100)));
             let allow = opts.allow.clone();
             Box::new(move || udp::read_udp(sock, &allow, &mut sink, &st))
         }

@@ -13,7 +13,8 @@ use crate::tui::model::{Effect, LinkView, LiveState, LiveView, Model, Msg, RestS
 use crate::tui::theme::{ColourDepth, Theme};
 use cagehand::feed::Feed;
 use cagehand::health::assess;
-use cagehand::logbook::store::{Access, Logbook};
+use cagehand::logbook::follow::Follower;
+use cagehand::logbook::store::{Access, Logbook, log_file_name};
 use cagehand::logbook::{Record, detection};
 use cagehand::margin::MarginTable;
 use cagehand::preflight;
@@ -24,8 +25,8 @@ use std::sync::mpsc::{self, Sender};
 use std::sync::{Arc, Mutex};
 use std::time::{Duration, Instant};
 
-/// How often the feed thread reads the cage log again, to pick up records
-/// other processes wrote.
+/// How often the feed thread looks whether the cage log changed, to pick
+/// up records other processes wrote.
 const LOG_REREAD: Duration = Duration::from_secs(1);
 
 /// Open the screens on a loaded profile, fed by the link `link_args` names.
@@ -177,10 +178,21 @@ struct LogView {
     error: Option<String>,
     /// Detections not yet confirmed or dismissed.
     pending: Vec<cagehand::logbook::Pending>,
+    /// The pre-flight checks that look only at the log, worked out from
+    /// this reading (None until [`LogView::read`] has).
+    checks: Option<preflight::LogChecks>,
 }
 
 impl LogView {
+    /// Read the log, and work out its pre-flight checks once.
     fn read(l: &Loaded, log: &LogOpts) -> LogView {
+        let mut view = LogView::read_records(l, log);
+        let checks = preflight::LogChecks::of(&view.inputs(l, None, None));
+        view.checks = Some(checks);
+        view
+    }
+
+    fn read_records(l: &Loaded, log: &LogOpts) -> LogView {
         let opened = log
             .data_dir()
             .map_err(|e| format!("{e:#}"))
@@ -196,6 +208,7 @@ impl LogView {
                 trouble: report.integrity.headline(),
                 error: None,
                 pending: detection::pending(book.records()),
+                checks: None,
             },
             Err(e) => LogView {
                 records: Vec::new(),
@@ -204,6 +217,7 @@ impl LogView {
                 trouble: None,
                 error: Some(e),
                 pending: Vec::new(),
+                checks: None,
             },
         }
     }
@@ -226,12 +240,13 @@ impl LogView {
         }
     }
 
-    fn evaluate(
-        &self,
-        l: &Loaded,
-        st: &WatchState,
-        margin: Option<&preflight::MarginSummary>,
-    ) -> preflight::Evaluation {
+    /// The pre-flight's inputs from this reading of the log.
+    fn inputs<'a>(
+        &'a self,
+        l: &'a Loaded,
+        st: Option<&'a WatchState>,
+        margin: Option<&'a preflight::MarginSummary>,
+    ) -> preflight::Inputs<'a> {
         let log = match &self.error {
             Some(e) => preflight::LogInput::Unreadable(e),
             None => preflight::LogInput::Read {
@@ -241,14 +256,27 @@ impl LogView {
                 trouble: self.trouble.as_deref(),
             },
         };
-        preflight::evaluate(&preflight::Inputs {
+        preflight::Inputs {
             profile: &l.profile,
             cage: &l.cage,
-            live: Some(st),
+            live: st,
             log,
             signing: None,
             margin,
-        })
+        }
+    }
+
+    fn evaluate(
+        &self,
+        l: &Loaded,
+        st: &WatchState,
+        margin: Option<&preflight::MarginSummary>,
+    ) -> preflight::Evaluation {
+        let inputs = self.inputs(l, Some(st), margin);
+        match &self.checks {
+            Some(checks) => preflight::evaluate_with(&inputs, checks),
+            None => preflight::evaluate(&inputs),
+        }
     }
 }
 
@@ -523,12 +551,23 @@ fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEv
     }
 }
 
+/// Watches the cage log's file for writes by other programs; none when the
+/// data folder or the vehicle id gives no path (the log is then read every
+/// second, as its reading reports the trouble).
+fn log_follower(l: &Loaded, log: &LogOpts) -> Option<Follower> {
+    let dir = log.data_dir().ok()?;
+    let name = log_file_name(&l.profile.vehicle.id).ok()?;
+    Some(Follower::new(&dir.join(name)))
+}
+
 /// The link's reader messages through the core feed into the screens'
 /// channel; detections are written to the log as they come. Ends when the
 /// link ends or the screens close.
 fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: MarginWorker) {
     std::thread::spawn(move || {
         let mut feed = Feed::new(l.cage.clone(), &l.profile, &link.source);
+        // Stamped before each reading, so a write during it shows next time.
+        let mut follower = log_follower(&l, &log);
         let mut book = LogView::read(&l, &log);
         // The screens start from this reading, and its margin is asked for.
         if tx.send(Msg::Records(book.records.clone())).is_err() || !margin.ask(book.margin_job()) {
@@ -537,17 +576,25 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: 
         let mut last_read = Instant::now();
         while let Some(step) = super::live::next_step(&mut link.rx, &mut feed) {
             let mut extra = step.note.clone().map(Msg::Notice);
-            let mut reread = last_read.elapsed() >= LOG_REREAD;
+            let mut reread = false;
+            if last_read.elapsed() >= LOG_REREAD {
+                // Records written by another program (a `cagehand log
+                // confirm` in a second terminal) show within about a
+                // second: the file is looked at (its size and time) every
+                // second and read only when it changed.
+                last_read = Instant::now();
+                reread = follower.as_mut().is_none_or(Follower::changed);
+            }
             if let Some(d) = &step.detection {
                 extra = Some(Msg::Notice(write_detection(&l, &log, d)));
+                if let Some(f) = follower.as_mut() {
+                    f.changed();
+                }
                 reread = true;
             }
             if reread {
-                // Records written by this program or by another one (a
-                // `cagehand log confirm` in a second terminal) show within
-                // about a second; the screens keep their own state.
+                // The screens keep their own state.
                 let fresh = LogView::read(&l, &log);
-                last_read = Instant::now();
                 if fresh.mark() != book.mark() {
                     if !margin.ask(fresh.margin_job())
                         || tx.send(Msg::Records(fresh.records.clone())).is_err()

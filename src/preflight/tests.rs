@@ -486,3 +486,54 @@ fn the_margin_item_when_the_profile_asks() {
     let (p2, _) = demo();
     assert!(p2.preflight.min_margin_speed_m_per_s.is_none());
 }
+
+#[test]
+fn log_checks_worked_out_once_give_every_live_state_the_same_list() {
+    // The screens work the log checks out once per reading of the log and
+    // evaluate the list with them at every step (`evaluate_with`): that is
+    // only right if those checks never look at the live state. Logs that
+    // pass, fail on a pending detection, on a member DUE and on a member
+    // at INSPECT, against no link, fresh data, a low battery and stale data.
+    let (p, c) = demo();
+    let logs = [
+        log(vec![]),
+        log(vec![detection_event(7.9)]),
+        log(vec![detection_event(7.9), impact("R1", 0.95, Some(1))]),
+        log(vec![impact("S3", 0.5, None)]),
+        log(vec![
+            impact("S3", 0.5, None),
+            finding("S3", FindingKind::Ok),
+        ]),
+    ];
+    let states = [
+        live_state(2.0, Some(12.6), 0.0),
+        live_state(2.0, Some(9.0), 0.0),
+        live_state(2.0, Some(12.6), 30.0),
+    ];
+    for records in &logs {
+        let inputs = |live| Inputs {
+            profile: &p,
+            cage: &c,
+            live,
+            log: LogInput::Read {
+                records,
+                path: "/d/v.cagelog",
+                new_file: records.is_empty(),
+                trouble: None,
+            },
+            signing: None,
+            margin: None,
+        };
+        let once = LogChecks::of(&inputs(None));
+        assert_eq!(evaluate_with(&inputs(None), &once), evaluate(&inputs(None)));
+        for st in &states {
+            let each = evaluate(&inputs(Some(st)));
+            assert_eq!(evaluate_with(&inputs(Some(st)), &once), each);
+        }
+    }
+    // The lists differ from log to log, so the comparison can tell.
+    let cage_log = |r: &[Record]| item(&eval(r, None), Check::CageLog).result;
+    assert_eq!(cage_log(&logs[0]), Outcome::Pass);
+    assert_eq!(cage_log(&logs[1]), Outcome::Fail);
+    assert_eq!(cage_log(&logs[2]), Outcome::Fail);
+}

@@ -103,11 +103,15 @@ fn log(events: Vec<Event>) -> Vec<Record> {
         .collect()
 }
 
-fn eval(records: &[Record], live: Option<&WatchState>) -> Evaluation {
-    let (p, c) = demo();
-    evaluate(&Inputs {
-        profile: &p,
-        cage: &c,
+/// The inputs of a readable log at a made-up path, no signing, no margin.
+fn inputs<'a>(
+    (p, c): (&'a Profile, &'a Cage),
+    records: &'a [Record],
+    live: Option<&'a WatchState>,
+) -> Inputs<'a> {
+    Inputs {
+        profile: p,
+        cage: c,
         live,
         log: LogInput::Read {
             records,
@@ -117,7 +121,12 @@ fn eval(records: &[Record], live: Option<&WatchState>) -> Evaluation {
         },
         signing: None,
         margin: None,
-    })
+    }
+}
+
+fn eval(records: &[Record], live: Option<&WatchState>) -> Evaluation {
+    let (p, c) = demo();
+    evaluate(&inputs((&p, &c), records, live))
 }
 
 fn item(e: &Evaluation, c: Check) -> &ItemEval {
@@ -511,19 +520,7 @@ fn log_checks_worked_out_once_give_every_live_state_the_same_list() {
         live_state(2.0, Some(12.6), 30.0),
     ];
     for records in &logs {
-        let inputs = |live| Inputs {
-            profile: &p,
-            cage: &c,
-            live,
-            log: LogInput::Read {
-                records,
-                path: "/d/v.cagelog",
-                new_file: records.is_empty(),
-                trouble: None,
-            },
-            signing: None,
-            margin: None,
-        };
+        let inputs = |live| inputs((&p, &c), records, live);
         let once = LogChecks::of(&inputs(None));
         assert_eq!(evaluate_with(&inputs(None), &once), evaluate(&inputs(None)));
         for st in &states {

@@ -72,7 +72,8 @@ impl Parcel {
             velocity_ned_m_s,
             battery_v,
             armed,
-        } = sample;
+        } = &sample;
+        let t_s = *t_s;
         match (
             attitude,
             accel_body_m_s2,
@@ -80,65 +81,24 @@ impl Parcel {
             battery_v,
             armed,
         ) {
-            (Some(q), None, None, None, None) => Parcel::Attitude { at_s, t_s, q },
-            (None, Some(f), None, None, None) => Parcel::Accel { at_s, t_s, f },
-            (None, None, Some(v), None, None) => Parcel::Velocity { at_s, t_s, v },
-            (None, None, None, Some(volts), None) => Parcel::Battery { at_s, t_s, volts },
-            (None, None, None, None, Some(armed)) => Parcel::Armed { at_s, t_s, armed },
-            (attitude, accel_body_m_s2, velocity_ned_m_s, battery_v, armed) => {
-                Parcel::Other(Box::new(LinkMsg::Sample {
-                    at_s,
-                    sample: Sample {
-                        t_s,
-                        attitude,
-                        accel_body_m_s2,
-                        velocity_ned_m_s,
-                        battery_v,
-                        armed,
-                    },
-                }))
-            }
+            (&Some(q), None, None, None, None) => Parcel::Attitude { at_s, t_s, q },
+            (None, &Some(f), None, None, None) => Parcel::Accel { at_s, t_s, f },
+            (None, None, &Some(v), None, None) => Parcel::Velocity { at_s, t_s, v },
+            (None, None, None, &Some(volts), None) => Parcel::Battery { at_s, t_s, volts },
+            (None, None, None, None, &Some(armed)) => Parcel::Armed { at_s, t_s, armed },
+            _ => Parcel::Other(Box::new(LinkMsg::Sample { at_s, sample })),
         }
     }
 
     /// The message it carries.
     #[inline]
     pub fn unpack(self) -> LinkMsg {
-        let only = |at_s, t_s| {
-            (
-                at_s,
-                Sample {
-                    t_s,
-                    ..Sample::default()
-                },
-            )
-        };
         let (at_s, sample) = match self {
-            Parcel::Attitude { at_s, t_s, q } => {
-                let (at_s, mut s) = only(at_s, t_s);
-                s.attitude = Some(q);
-                (at_s, s)
-            }
-            Parcel::Accel { at_s, t_s, f } => {
-                let (at_s, mut s) = only(at_s, t_s);
-                s.accel_body_m_s2 = Some(f);
-                (at_s, s)
-            }
-            Parcel::Velocity { at_s, t_s, v } => {
-                let (at_s, mut s) = only(at_s, t_s);
-                s.velocity_ned_m_s = Some(v);
-                (at_s, s)
-            }
-            Parcel::Battery { at_s, t_s, volts } => {
-                let (at_s, mut s) = only(at_s, t_s);
-                s.battery_v = Some(volts);
-                (at_s, s)
-            }
-            Parcel::Armed { at_s, t_s, armed } => {
-                let (at_s, mut s) = only(at_s, t_s);
-                s.armed = Some(armed);
-                (at_s, s)
-            }
+            Parcel::Attitude { at_s, t_s, q } => (at_s, one(t_s, |s| s.attitude = Some(q))),
+            Parcel::Accel { at_s, t_s, f } => (at_s, one(t_s, |s| s.accel_body_m_s2 = Some(f))),
+            Parcel::Velocity { at_s, t_s, v } => (at_s, one(t_s, |s| s.velocity_ned_m_s = Some(v))),
+            Parcel::Battery { at_s, t_s, volts } => (at_s, one(t_s, |s| s.battery_v = Some(volts))),
+            Parcel::Armed { at_s, t_s, armed } => (at_s, one(t_s, |s| s.armed = Some(armed))),
             Parcel::Health { at_s, counters } => return LinkMsg::Health { at_s, counters },
             Parcel::Tick { at_s } => return LinkMsg::Tick { at_s },
             Parcel::Other(msg) => return *msg,
@@ -167,6 +127,17 @@ impl Parcel {
             _ => false,
         }
     }
+}
+
+/// A sample at `t_s` with the one field `set` fills.
+#[inline(always)]
+fn one(t_s: f64, set: impl FnOnce(&mut Sample)) -> Sample {
+    let mut s = Sample {
+        t_s,
+        ..Sample::default()
+    };
+    set(&mut s);
+    s
 }
 
 #[cfg(test)]

@@ -267,6 +267,21 @@ impl LogChecks {
             last_preflight: last_preflight(inp),
         }
     }
+
+    /// Whether `eval`, a checklist shown from some earlier reading of the
+    /// log, gives its cage log item the verdict these checks give (its
+    /// result and whether it may be overridden; the wording may differ,
+    /// such as a record count). A sign-off is refused when it does not: a
+    /// record written since that reading (a finding that made a member
+    /// REPLACE NOW) must not be signed over by a checklist that still says
+    /// the log is clear.
+    pub fn agree_with(&self, eval: &Evaluation) -> bool {
+        let (result, _, can_override) = &self.cage_log;
+        eval.items
+            .iter()
+            .find(|i| i.check == Some(Check::CageLog))
+            .is_some_and(|i| i.result == *result && i.can_override == *can_override)
+    }
 }
 
 /// [`evaluate`], with the log checks already worked out by

@@ -29,6 +29,10 @@ use std::time::{Duration, Instant};
 /// up records other processes wrote.
 const LOG_REREAD: Duration = Duration::from_secs(1);
 
+/// How often the feed thread reads the cage log whether or not its file
+/// seems to have changed.
+const LOG_FULL_REREAD: Duration = Duration::from_secs(10);
+
 /// Open the screens on a loaded profile, fed by the link `link_args` names.
 pub fn run(loaded: Loaded, link_args: &LinkArgs, log: &LogOpts) -> anyhow::Result<ExitCode> {
     use std::io::IsTerminal;
@@ -269,10 +273,10 @@ impl LogView {
     fn evaluate(
         &self,
         l: &Loaded,
-        st: &WatchState,
+        st: Option<&WatchState>,
         margin: Option<&preflight::MarginSummary>,
     ) -> preflight::Evaluation {
-        let inputs = self.inputs(l, Some(st), margin);
+        let inputs = self.inputs(l, st, margin);
         match &self.checks {
             Some(checks) => preflight::evaluate_with(&inputs, checks),
             None => preflight::evaluate(&inputs),
@@ -422,8 +426,8 @@ fn carry_out(
         Ok(d) => d,
         Err(e) => return format!("NOT written for {vehicle}: {e:#}"),
     };
-    let mut book = match Logbook::open(&dir, vehicle, Access::Write, lock_wait()) {
-        Ok((b, _)) => b,
+    let (mut book, report) = match Logbook::open(&dir, vehicle, Access::Write, lock_wait()) {
+        Ok(opened) => opened,
         Err(e) => return format!("NOT written for {vehicle}: cannot open its cage log: {e}"),
     };
     let path = book.path().display().to_string();
@@ -459,8 +463,32 @@ fn carry_out(
         }
         Work::Note(text) => logwork::note(v, &mut book, operator, now, text),
         Work::Sign(signoff) => {
+            // The log as it is now, under the write lock, against the
+            // checklist the operator saw.
+            let trouble = report.integrity.headline();
+            let now_checks = preflight::LogChecks::of(&preflight::Inputs {
+                profile: &l.profile,
+                cage: &l.cage,
+                live: None,
+                log: preflight::LogInput::Read {
+                    records: book.records(),
+                    path: &path,
+                    new_file: report.new_file,
+                    trouble: trouble.as_deref(),
+                },
+                signing: None,
+                margin: None,
+            });
             return sign(
-                &mut book, operator, now, seen_seq, eval, signoff, vehicle, &path,
+                &mut book,
+                operator,
+                now,
+                seen_seq,
+                eval,
+                &now_checks,
+                signoff,
+                vehicle,
+                &path,
             );
         }
     };
@@ -491,8 +519,9 @@ fn carry_out(
 }
 
 /// Sign the pre-flight, refused when the log changed since the checklist
-/// shown was evaluated (a record slipped in: evaluate again first) or a
-/// detection is pending in the log as it is now.
+/// shown was evaluated (a record slipped in, or the checklist was worked
+/// out from an older reading than the records shown: evaluate again
+/// first) or a detection is pending in the log as it is now.
 #[allow(clippy::too_many_arguments)]
 fn sign(
     book: &mut Logbook,
@@ -500,6 +529,7 @@ fn sign(
     now: jiff::Timestamp,
     seen_seq: Option<u64>,
     eval: Option<&preflight::Evaluation>,
+    now_checks: &preflight::LogChecks,
     signoff: &preflight::SignOff,
     vehicle: &str,
     path: &str,
@@ -507,7 +537,7 @@ fn sign(
     let Some(eval) = eval else {
         return "NOT signed: the checklist was not evaluated".to_string();
     };
-    if book.records().last().map(|r| r.seq) != seen_seq {
+    if book.records().last().map(|r| r.seq) != seen_seq || !now_checks.agree_with(eval) {
         return format!(
             "NOT signed: the cage log of {vehicle} changed since the checklist was shown; wait a second and sign again"
         );
@@ -574,6 +604,7 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: 
             return;
         }
         let mut last_read = Instant::now();
+        let mut last_full = Instant::now();
         while let Some(step) = super::live::next_step(&mut link.rx, &mut feed) {
             let mut extra = step.note.clone().map(Msg::Notice);
             let mut reread = false;
@@ -583,7 +614,11 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: 
                 // second: the file is looked at (its size and time) every
                 // second and read only when it changed.
                 last_read = Instant::now();
-                reread = follower.as_mut().is_none_or(Follower::changed);
+                // Read anyway after a failed reading (the file may not
+                // change again) and every LOG_FULL_REREAD (a network
+                // folder may report a file's size and time late).
+                let full = last_full.elapsed() >= LOG_FULL_REREAD || book.error.is_some();
+                reread = follower.as_mut().is_none_or(Follower::changed) || full;
             }
             if let Some(d) = &step.detection {
                 extra = Some(Msg::Notice(write_detection(&l, &log, d)));
@@ -594,6 +629,7 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: 
             }
             if reread {
                 // The screens keep their own state.
+                last_full = Instant::now();
                 let fresh = LogView::read(&l, &log);
                 if fresh.mark() != book.mark() {
                     if !margin.ask(fresh.margin_job())
@@ -612,7 +648,7 @@ fn spawn_feed(mut link: Link, l: Loaded, log: LogOpts, tx: Sender<Msg>, margin: 
                 None => margin.summary_for(log_mark(&book.records)),
                 Some(_) => None,
             };
-            let eval = book.evaluate(&l, &step.state, summary.as_ref());
+            let eval = book.evaluate(&l, Some(&step.state), summary.as_ref());
             let live = Msg::Live(Box::new(live_view(
                 &step.state,
                 feed.tracker(),
@@ -713,6 +749,82 @@ mod tests {
             }
             other => panic!("records, health, written expected: {other:?}"),
         }
+    }
+
+    #[test]
+    fn a_checklist_from_an_older_reading_is_not_signed_over_a_failing_log() {
+        // The writer's records run ahead of the checklist the feed thread
+        // evaluated (it reads the log again within a second): a sign-off
+        // in between must not record a clear log that is no longer clear.
+        // This project's rule (common practice, no published source): a
+        // pre-flight never passes over a member at REPLACE NOW or DUE.
+        let dir = tempfile::tempdir().expect("temp dir");
+        let log = LogOpts {
+            data: Some(dir.path().to_path_buf()),
+            operator: Some("ana".into()),
+        };
+        let l = cagehand::vehicle::demo().expect("the demo loads");
+        let write = |work: Work, seen_seq, eval: Option<&preflight::Evaluation>| {
+            carry_out(&l, &log, "ana", &work, seen_seq, eval)
+        };
+        let said = write(Work::Note("day 1 (invented)".into()), None, None);
+        assert!(said.contains("#1 note"), "{said}");
+        let shown = |view: &LogView| view.evaluate(&l, None, None);
+        let clear = shown(&LogView::read(&l, &log));
+        let cage_log = |e: &preflight::Evaluation| {
+            e.items
+                .iter()
+                .find(|i| i.check == Some(preflight::Check::CageLog))
+                .map(|i| i.result)
+        };
+        assert_eq!(cage_log(&clear), Some(preflight::Outcome::Pass));
+        let member = l.cage.members[0].id.clone();
+        let said = write(
+            Work::Finding {
+                member,
+                kind: cagehand::logbook::FindingKind::Crack,
+                note: None,
+            },
+            Some(1),
+            None,
+        );
+        assert!(said.contains("#2 finding"), "{said}");
+        let failing = shown(&LogView::read(&l, &log));
+        assert_eq!(cage_log(&failing), Some(preflight::Outcome::Fail));
+        // Every hand item ticked and every other item overridden, as a
+        // crew in a hurry would: only the log's state can refuse it.
+        let sign = |eval: &preflight::Evaluation, seen_seq| {
+            let mut s = preflight::SignOff::tick_all(eval);
+            for i in eval.items.iter().filter(|i| {
+                i.can_override
+                    && !matches!(
+                        i.result,
+                        preflight::Outcome::Pass | preflight::Outcome::Hand
+                    )
+            }) {
+                s.overrides.insert(i.n, "no link in this test".into());
+            }
+            write(Work::Sign(s), Some(seen_seq), Some(eval))
+        };
+        // The records shown are the writer's (#2), the checklist the older
+        // one: refused, and nothing written.
+        let said = sign(&clear, 2);
+        assert!(
+            said.contains("changed since the checklist was shown"),
+            "{said}"
+        );
+        assert_eq!(LogView::read(&l, &log).records.len(), 2);
+        // The checklist of the newest reading is signed, its failing cage
+        // log item overridden with the reason on record (the design).
+        let said = sign(&failing, 2);
+        assert!(said.contains("signed off by ana: record #3"), "{said}");
+        // A record that changes no verdict (a note) does not stop the next.
+        let said = write(Work::Note("day 2 (invented)".into()), Some(3), None);
+        assert!(said.contains("#4 note"), "{said}");
+        let said = sign(&shown(&LogView::read(&l, &log)), 4);
+        assert!(said.contains("record #5"), "{said}");
+        let said = sign(&failing, 5);
+        assert!(said.contains("record #6"), "{said}");
     }
 
     #[test]

@@ -534,3 +534,33 @@ fn log_checks_worked_out_once_give_every_live_state_the_same_list() {
     assert_eq!(cage_log(&logs[1]), Outcome::Fail);
     assert_eq!(cage_log(&logs[2]), Outcome::Fail);
 }
+
+#[test]
+fn log_checks_refuse_a_checklist_whose_cage_log_verdict_is_out_of_date() {
+    // A checklist shown from an older reading of the log agrees with the
+    // log as it is now only when its cage log item has the same verdict.
+    let (p, c) = demo();
+    let clear = log(vec![impact("S3", 0.1, None)]);
+    let mut due = clear.clone();
+    due.push(rec(2, finding("S3", FindingKind::Crack)));
+    let mut noted = clear.clone();
+    noted.push(rec(
+        2,
+        Event::Note(crate::logbook::NoteEvent {
+            text: "day 2".into(),
+        }),
+    ));
+    let checks = |r: &[Record]| LogChecks::of(&inputs((&p, &c), r, None));
+    let shown_clear = eval(&clear, None);
+    assert_eq!(
+        item(&eval(&due, None), Check::CageLog).result,
+        Outcome::Fail
+    );
+    assert!(checks(&clear).agree_with(&shown_clear));
+    assert!(!checks(&due).agree_with(&shown_clear), "a crack since");
+    assert!(
+        checks(&noted).agree_with(&shown_clear),
+        "a note changes no verdict"
+    );
+    assert!(checks(&due).agree_with(&eval(&due, None)));
+}

@@ -14,7 +14,7 @@ use crate::tui::theme::{ColourDepth, Theme};
 use cagehand::feed::Feed;
 use cagehand::health::assess;
 use cagehand::logbook::follow::Follower;
-use cagehand::logbook::store::{Access, Logbook, log_file_name};
+use cagehand::logbook::store::{Access, Logbook, OpenReport, log_file_name};
 use cagehand::logbook::{Record, detection};
 use cagehand::margin::MarginTable;
 use cagehand::preflight;
@@ -190,13 +190,6 @@ struct LogView {
 impl LogView {
     /// Read the log, and work out its pre-flight checks once.
     fn read(l: &Loaded, log: &LogOpts) -> LogView {
-        let mut view = LogView::read_records(l, log);
-        let checks = preflight::LogChecks::of(&view.inputs(l, None, None));
-        view.checks = Some(checks);
-        view
-    }
-
-    fn read_records(l: &Loaded, log: &LogOpts) -> LogView {
         let opened = log
             .data_dir()
             .map_err(|e| format!("{e:#}"))
@@ -204,16 +197,8 @@ impl LogView {
                 Logbook::open(&dir, &l.profile.vehicle.id, Access::Read, lock_wait())
                     .map_err(|e| e.to_string())
             });
-        match opened {
-            Ok((book, report)) => LogView {
-                records: book.records().to_vec(),
-                path: book.path().display().to_string(),
-                new_file: report.new_file,
-                trouble: report.integrity.headline(),
-                error: None,
-                pending: detection::pending(book.records()),
-                checks: None,
-            },
+        let mut view = match opened {
+            Ok((book, report)) => LogView::of_open(&book, &report),
             Err(e) => LogView {
                 records: Vec::new(),
                 path: String::new(),
@@ -223,7 +208,27 @@ impl LogView {
                 pending: Vec::new(),
                 checks: None,
             },
+        };
+        view.checks = Some(view.log_checks(l));
+        view
+    }
+
+    /// The view of a log opened by the caller (its checks not worked out).
+    fn of_open(book: &Logbook, report: &OpenReport) -> LogView {
+        LogView {
+            records: book.records().to_vec(),
+            path: book.path().display().to_string(),
+            new_file: report.new_file,
+            trouble: report.integrity.headline(),
+            error: None,
+            pending: detection::pending(book.records()),
+            checks: None,
         }
+    }
+
+    /// The pre-flight checks that look only at this reading of the log.
+    fn log_checks(&self, l: &Loaded) -> preflight::LogChecks {
+        preflight::LogChecks::of(&self.inputs(l, None, None))
     }
 
     /// What tells one reading of the log from another: the record count and
@@ -465,20 +470,7 @@ fn carry_out(
         Work::Sign(signoff) => {
             // The log as it is now, under the write lock, against the
             // checklist the operator saw.
-            let trouble = report.integrity.headline();
-            let now_checks = preflight::LogChecks::of(&preflight::Inputs {
-                profile: &l.profile,
-                cage: &l.cage,
-                live: None,
-                log: preflight::LogInput::Read {
-                    records: book.records(),
-                    path: &path,
-                    new_file: report.new_file,
-                    trouble: trouble.as_deref(),
-                },
-                signing: None,
-                margin: None,
-            });
+            let now_checks = LogView::of_open(&book, &report).log_checks(l);
             return sign(
                 &mut book,
                 operator,
@@ -679,6 +671,18 @@ mod tests {
 
     const WAIT: Duration = Duration::from_secs(120);
 
+    /// A cage log in a temporary folder written as "ana", and the demo
+    /// vehicle (the folder goes when the first value is dropped).
+    fn demo_log() -> (tempfile::TempDir, LogOpts, Loaded) {
+        let dir = tempfile::tempdir().expect("temp dir");
+        let log = LogOpts {
+            data: Some(dir.path().to_path_buf()),
+            operator: Some("ana".into()),
+        };
+        let l = cagehand::vehicle::demo().expect("the demo loads");
+        (dir, log, l)
+    }
+
     /// The messages the writer sends, up to and with `Written`.
     fn until_written(rx: &mpsc::Receiver<Msg>) -> Vec<Msg> {
         let mut msgs = Vec::new();
@@ -694,12 +698,7 @@ mod tests {
 
     #[test]
     fn writes_are_carried_out_off_the_asking_thread_and_refusals_change_nothing() {
-        let dir = tempfile::tempdir().expect("temp dir");
-        let log = LogOpts {
-            data: Some(dir.path().to_path_buf()),
-            operator: Some("ana".into()),
-        };
-        let l = cagehand::vehicle::demo().expect("the demo loads");
+        let (_dir, log, l) = demo_log();
         let (tx, rx) = mpsc::channel::<Msg>();
         // The margin worker's end is held here: the test sees what the
         // writer asks of it without working the margin out.
@@ -758,12 +757,7 @@ mod tests {
         // in between must not record a clear log that is no longer clear.
         // This project's rule (common practice, no published source): a
         // pre-flight never passes over a member at REPLACE NOW or DUE.
-        let dir = tempfile::tempdir().expect("temp dir");
-        let log = LogOpts {
-            data: Some(dir.path().to_path_buf()),
-            operator: Some("ana".into()),
-        };
-        let l = cagehand::vehicle::demo().expect("the demo loads");
+        let (_dir, log, l) = demo_log();
         let write = |work: Work, seen_seq, eval: Option<&preflight::Evaluation>| {
             carry_out(&l, &log, "ana", &work, seen_seq, eval)
         };

@@ -25,6 +25,11 @@ use divan::counter::{BytesCount, ItemsCount};
 use divan::{Bencher, black_box};
 use nalgebra::Vector3;
 
+/// The program's own allocator (src/main.rs), so the figures are the
+/// program's.
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 fn main() {
     divan::main();
 }

@@ -20,6 +20,11 @@ use ratatui::Terminal;
 use ratatui::backend::TestBackend;
 use tui::model::{LiveState, LiveView, Model, Msg, RestSample, update};
 
+/// The program's own allocator (src/main.rs), so the figures are the
+/// program's.
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 fn main() {
     divan::main();
 }

@@ -27,6 +27,10 @@ use nalgebra::Vector3;
 
 /// The program's own allocator (src/main.rs), so the figures are the
 /// program's.
+#[cfg(all(
+    target_os = "linux",
+    any(target_arch = "x86_64", target_arch = "aarch64")
+))]
 #[global_allocator]
 static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
 

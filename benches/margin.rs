@@ -8,6 +8,15 @@ use cagehand::profile::Profile;
 use criterion::{Criterion, criterion_group, criterion_main};
 use std::hint::black_box;
 
+/// The program's own allocator (src/main.rs), so the figure is the
+/// program's.
+#[cfg(all(
+    target_os = "linux",
+    any(target_arch = "x86_64", target_arch = "aarch64")
+))]
+#[global_allocator]
+static ALLOCATOR: mimalloc::MiMalloc = mimalloc::MiMalloc;
+
 fn demo_margin(c: &mut Criterion) {
     let profile = match Profile::demo() {
         Ok(p) => p,

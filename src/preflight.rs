@@ -239,6 +239,11 @@ impl Evaluation {
     pub fn item(&self, n: u32) -> Option<&ItemEval> {
         self.items.iter().find(|i| i.n == n)
     }
+
+    /// The item this automatic check decides, if the list has one.
+    pub fn checked(&self, check: Check) -> Option<&ItemEval> {
+        self.items.iter().find(|i| i.check == Some(check))
+    }
 }
 
 /// Evaluate the checklist.
@@ -277,9 +282,7 @@ impl LogChecks {
     /// the log is clear.
     pub fn agree_with(&self, eval: &Evaluation) -> bool {
         let (result, _, can_override) = &self.cage_log;
-        eval.items
-            .iter()
-            .find(|i| i.check == Some(Check::CageLog))
+        eval.checked(Check::CageLog)
             .is_some_and(|i| i.result == *result && i.can_override == *can_override)
     }
 }

@@ -10,6 +10,7 @@
 set -eu
 idle=$1; cap=$2; bin=$(realpath "$3")
 here=$(dirname "$0")
+. "$here/ticks.sh"
 sock=cagehand-share-$$
 data=$(mktemp -d)
 tmux -L "$sock" new -d -s s -x 120 -y 36 "exec env CAGEHAND_DATA=$data $bin watch --link udp:127.0.0.1:14550"
@@ -17,21 +18,15 @@ trap 'tmux -L "$sock" kill-server 2>/dev/null || true; rm -rf "$data"' EXIT
 sleep 2
 pid=$(tmux -L "$sock" display -p -t s '#{pane_pid}')
 [ "$(readlink "/proc/$pid/exe")" = "$bin" ] || { echo "pane runs $(readlink "/proc/$pid/exe"), not $bin" >&2; exit 1; }
-hz=$(getconf CLK_TCK)
-share() { # ticks seconds
-    awk -v t="$1" -v s="$2" -v h="$hz" 'BEGIN { printf "%.2f%% of a core", 100 * t / (s * h) }'
-}
-read -r a b < <(awk '{print $14, $15}' "/proc/$pid/stat")
+start=$(ticks_of "$pid")
 sleep "$idle"
-read -r c d < <(awk '{print $14, $15}' "/proc/$pid/stat")
-t=$(( (c - a) + (d - b) ))
+t=$(( $(ticks_of "$pid") - start ))
 echo "idle: $t ticks in $idle s: $(share "$t" "$idle")"
 python3 "$here/udp_1khz.py" "$cap" 14550 22 > /dev/null &
 sender=$!
 sleep 2
-read -r a b < <(awk '{print $14, $15}' "/proc/$pid/stat")
+start=$(ticks_of "$pid")
 sleep 20
-read -r c d < <(awk '{print $14, $15}' "/proc/$pid/stat")
-t=$(( (c - a) + (d - b) ))
+t=$(( $(ticks_of "$pid") - start ))
 echo "under the feed: $t ticks in 20 s: $(share "$t" 20); header: $(tmux -L "$sock" capture-pane -p -t s | sed -n 2p | grep -o '[0-9]*Hz' || echo '?')"
 wait "$sender"

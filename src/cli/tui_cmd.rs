@@ -765,12 +765,8 @@ mod tests {
         assert!(said.contains("#1 note"), "{said}");
         let shown = |view: &LogView| view.evaluate(&l, None, None);
         let clear = shown(&LogView::read(&l, &log));
-        let cage_log = |e: &preflight::Evaluation| {
-            e.items
-                .iter()
-                .find(|i| i.check == Some(preflight::Check::CageLog))
-                .map(|i| i.result)
-        };
+        let cage_log =
+            |e: &preflight::Evaluation| e.checked(preflight::Check::CageLog).map(|i| i.result);
         assert_eq!(cage_log(&clear), Some(preflight::Outcome::Pass));
         let member = l.cage.members[0].id.clone();
         let said = write(

@@ -130,7 +130,7 @@ fn eval(records: &[Record], live: Option<&WatchState>) -> Evaluation {
 }
 
 fn item(e: &Evaluation, c: Check) -> &ItemEval {
-    e.items.iter().find(|i| i.check == Some(c)).unwrap()
+    e.checked(c).unwrap()
 }
 
 #[test]

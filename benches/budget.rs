@@ -88,6 +88,25 @@ mod live {
         });
     }
 
+    /// MAVLink decoding alone, bytes per second: every frame found, checked
+    /// and decoded into its message, no sample made (the difference from
+    /// `decode_mavlink` is what making the samples costs).
+    #[divan::bench(sample_count = 20)]
+    fn decode_mavlink_frames(b: Bencher) {
+        let data = stream(Proto::Mavlink, 1 << 20);
+        b.counter(BytesCount::new(data.len())).bench(|| {
+            let mut d = MavDecoder::new(MavConfig::default());
+            let mut n = 0usize;
+            for chunk in data.chunks(4096) {
+                d.push_each(chunk, |f| {
+                    black_box(f);
+                    n += 1;
+                });
+            }
+            n
+        });
+    }
+
     /// Line protocol parsing, samples per second.
     #[divan::bench(sample_count = 20)]
     fn parse_lines(b: Bencher) {

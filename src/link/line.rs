@@ -63,10 +63,35 @@ pub enum LineError {
     NotText,
 }
 
-const KEYS: [&str; 16] = [
-    "t", "roll", "pitch", "yaw", "qw", "qx", "qy", "qz", "ax", "ay", "az", "vn", "ve", "vd",
-    "vbat", "armed",
-];
+/// The places of `t` and `armed` in a sample's table of values (see
+/// [`key_index`]): both are read apart from the other keys.
+const TIME: usize = 0;
+const ARMED: usize = 15;
+
+/// The place of a known key in a sample's table of values (16 places): a
+/// `match`, which compiles to a few length and byte comparisons instead of
+/// a string comparison per key (`tests` checks it against the key list).
+fn key_index(key: &str) -> Option<usize> {
+    Some(match key {
+        "t" => TIME,
+        "roll" => 1,
+        "pitch" => 2,
+        "yaw" => 3,
+        "qw" => 4,
+        "qx" => 5,
+        "qy" => 6,
+        "qz" => 7,
+        "ax" => 8,
+        "ay" => 9,
+        "az" => 10,
+        "vn" => 11,
+        "ve" => 12,
+        "vd" => 13,
+        "vbat" => 14,
+        "armed" => ARMED,
+        _ => return None,
+    })
+}
 
 /// Parse one line (without its newline). `Ok(None)` for blank or comment lines.
 pub fn parse_line(line: &str, arrival_s: f64) -> Result<Option<Sample>, LineError> {
@@ -76,16 +101,18 @@ pub fn parse_line(line: &str, arrival_s: f64) -> Result<Option<Sample>, LineErro
     }
     let mut vals: [Option<f64>; 16] = [None; 16];
     for tok in line.split_whitespace() {
-        let (k, v) = tok
-            .split_once('=')
-            .ok_or_else(|| LineError::NotPair(tok.chars().take(40).collect()))?;
-        let Some(idx) = KEYS.iter().position(|&x| x == k) else {
+        // `=` is one byte, so the token splits on a character boundary.
+        let Some(eq) = tok.bytes().position(|b| b == b'=') else {
+            return Err(LineError::NotPair(tok.chars().take(40).collect()));
+        };
+        let (k, v) = (&tok[..eq], &tok[eq + 1..]);
+        let Some(idx) = key_index(k) else {
             continue; // unknown keys are ignored
         };
         if vals[idx].is_some() {
             return Err(LineError::Duplicate(k.to_string()));
         }
-        let x = if k == "armed" {
+        let x = if idx == ARMED {
             match v {
                 "0" => 0.0,
                 "1" => 1.0,
@@ -102,7 +129,7 @@ pub fn parse_line(line: &str, arrival_s: f64) -> Result<Option<Sample>, LineErro
                 }
             }
         };
-        if k == "t" && !crate::link::clock::time_in_range(x) {
+        if idx == TIME && !crate::link::clock::time_in_range(x) {
             return Err(LineError::TimeRange(v.chars().take(40).collect()));
         }
         vals[idx] = Some(x);
@@ -160,16 +187,33 @@ impl LineDecoder {
         self.counters
     }
 
-    /// Feed bytes that arrived at `arrival_s`.
+    /// Feed bytes that arrived at `arrival_s`. Whole lines are parsed where
+    /// they lie in `data` (found with `memchr`); only the start of a line
+    /// still waiting for its newline is copied, up to [`MAX_LINE_LEN`].
     pub fn push(&mut self, data: &[u8], arrival_s: f64) {
-        for &b in data {
-            if b == b'\n' {
-                self.end_line(arrival_s);
-            } else if self.line.len() < MAX_LINE_LEN {
-                self.line.push(b);
+        let mut rest = data;
+        while let Some(k) = memchr::memchr(b'\n', rest) {
+            let piece = &rest[..k];
+            if self.line.is_empty() && !self.overflow {
+                self.take_line(piece, piece.len() > MAX_LINE_LEN, arrival_s);
             } else {
-                self.overflow = true;
+                self.hold(piece);
+                self.end_line(arrival_s);
             }
+            rest = &rest[k + 1..];
+        }
+        self.hold(rest);
+    }
+
+    /// Keep the bytes of a line still waiting for its newline: at most
+    /// [`MAX_LINE_LEN`] of them, the line marked too long past that.
+    fn hold(&mut self, bytes: &[u8]) {
+        let room = MAX_LINE_LEN - self.line.len();
+        if bytes.len() > room {
+            self.line.extend_from_slice(&bytes[..room]);
+            self.overflow = true;
+        } else {
+            self.line.extend_from_slice(bytes);
         }
     }
 
@@ -186,16 +230,24 @@ impl LineDecoder {
     }
 
     fn end_line(&mut self, arrival_s: f64) {
-        let res = if self.overflow {
+        let line = std::mem::take(&mut self.line);
+        self.take_line(&line, self.overflow, arrival_s);
+        self.line = line;
+        self.line.clear();
+        self.overflow = false;
+    }
+
+    /// Parse one line (without its newline) and count it: `too_long` when
+    /// it ran past [`MAX_LINE_LEN`].
+    fn take_line(&mut self, line: &[u8], too_long: bool, arrival_s: f64) {
+        let res = if too_long {
             Err(LineError::NotText)
         } else {
-            match std::str::from_utf8(&self.line) {
+            match std::str::from_utf8(line) {
                 Ok(s) => parse_line(s, arrival_s),
                 Err(_) => Err(LineError::NotText),
             }
         };
-        self.line.clear();
-        self.overflow = false;
         match res {
             Ok(Some(s)) => {
                 self.counters.frames += 1;
@@ -217,6 +269,22 @@ mod tests {
     use crate::attitude::rpy_deg;
     use approx::assert_relative_eq;
     use proptest::prelude::*;
+
+    /// The keys of the module's documentation, in their places.
+    const KEYS: [&str; 16] = [
+        "t", "roll", "pitch", "yaw", "qw", "qx", "qy", "qz", "ax", "ay", "az", "vn", "ve", "vd",
+        "vbat", "armed",
+    ];
+
+    #[test]
+    fn every_key_has_its_own_place() {
+        for (i, k) in KEYS.iter().enumerate() {
+            assert_eq!(key_index(k), Some(i), "{k}");
+        }
+        for k in ["", "T", "rol", "rolls", "q", "vbatt", "armed ", "x"] {
+            assert_eq!(key_index(k), None, "{k:?}");
+        }
+    }
 
     #[test]
     fn full_line_parses_in_degrees() {
@@ -310,6 +378,97 @@ mod tests {
         assert_eq!(c.malformed, 3); // "bad line", the long line, the non-text line
         assert_eq!(d.pop().map(|s| s.t_s), Some(1.0));
         assert_eq!(d.pop().and_then(|s| s.battery_v), Some(12.0));
+    }
+
+    /// The reading the decoder had before lines were read where they lie,
+    /// kept as the model: one byte at a time into a bounded line, the
+    /// line parsed at its newline. Returns the samples and the counters.
+    fn bytewise(pieces: &[&[u8]]) -> (Vec<Sample>, Counters) {
+        let (mut line, mut overflow) = (Vec::new(), false);
+        let (mut out, mut c) = (Vec::new(), Counters::default());
+        let mut end = |line: &mut Vec<u8>, overflow: &mut bool| {
+            let res = match std::str::from_utf8(line) {
+                Ok(s) if !*overflow => parse_line(s, 0.0),
+                _ => Err(LineError::NotText),
+            };
+            match res {
+                Ok(Some(s)) => {
+                    c.frames += 1;
+                    out.push(s);
+                }
+                Ok(None) => {}
+                Err(_) => c.malformed += 1,
+            }
+            line.clear();
+            *overflow = false;
+        };
+        for &b in pieces.iter().flat_map(|p| p.iter()) {
+            if b == b'\n' {
+                end(&mut line, &mut overflow);
+            } else if line.len() < MAX_LINE_LEN {
+                line.push(b);
+            } else {
+                overflow = true;
+            }
+        }
+        if !line.is_empty() || overflow {
+            end(&mut line, &mut overflow);
+        }
+        (out, c)
+    }
+
+    /// Pieces of a stream: good lines, bad ones, lines at and around the
+    /// length bound, blank and comment lines, stray bytes.
+    fn stream_piece() -> impl Strategy<Value = Vec<u8>> {
+        prop_oneof![
+            Just(b"t=1.5 qw=1 qx=0 qy=0 qz=0 vbat=12.1 armed=1\n".to_vec()),
+            Just(b"t=2 roll=10 pitch=-5 yaw=90 ax=0 ay=0 az=-9.8\r\n".to_vec()),
+            Just(b"bad line\n# comment\n\n".to_vec()),
+            // Good lines of about the bound's length: spaces between two
+            // pairs, so only the length decides.
+            (MAX_LINE_LEN - 8..MAX_LINE_LEN + 8).prop_map(|n| {
+                let mut l = b"vbat=11".to_vec();
+                l.resize(n - 7, b' ');
+                l.extend_from_slice(b"armed=1\n");
+                l
+            }),
+            proptest::collection::vec(any::<u8>(), 0..40),
+            proptest::collection::vec(prop_oneof![Just(b'\n'), Just(b'='), Just(b' ')], 0..6),
+        ]
+    }
+
+    proptest! {
+        #![proptest_config(ProptestConfig::with_cases(256))]
+        #[test]
+        fn lines_read_where_they_lie_give_what_bytewise_reading_gave(
+            parts in proptest::collection::vec(stream_piece(), 0..30),
+            cuts in proptest::collection::vec(0usize..2000, 0..8),
+        ) {
+            let data = parts.concat();
+            let mut at: Vec<usize> = cuts.into_iter().map(|c| c.min(data.len())).collect();
+            at.sort_unstable();
+            let mut pieces = Vec::new();
+            let mut from = 0;
+            for c in at {
+                pieces.push(&data[from..c]);
+                from = c;
+            }
+            pieces.push(&data[from..]);
+            let (want, want_c) = bytewise(&pieces);
+            let mut d = LineDecoder::new();
+            for p in &pieces {
+                d.push(p, 0.0);
+                prop_assert!(d.line.len() <= MAX_LINE_LEN);
+            }
+            d.finish(0.0);
+            let mut got = Vec::new();
+            while let Some(s) = d.pop() {
+                got.push(s);
+            }
+            prop_assert_eq!(d.counters(), want_c);
+            // The queue keeps the newest MAX_QUEUED.
+            prop_assert_eq!(&got[..], &want[want.len().saturating_sub(MAX_QUEUED)..]);
+        }
     }
 
     proptest! {

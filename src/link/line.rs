@@ -63,9 +63,10 @@ pub enum LineError {
     NotText,
 }
 
-/// The places of `t` and `armed` in a sample's table of values (see
-/// [`key_index`]): both are read apart from the other keys.
+/// The place of `t` in a sample's table of values (see [`key_index`]): it
+/// is range-checked apart from the other keys.
 const TIME: usize = 0;
+/// The place of `armed`: it is read as 0 or 1, not as a number.
 const ARMED: usize = 15;
 
 /// The place of a known key in a sample's table of values (16 places): a
@@ -188,8 +189,9 @@ impl LineDecoder {
     }
 
     /// Feed bytes that arrived at `arrival_s`. Whole lines are parsed where
-    /// they lie in `data` (found with `memchr`); only the start of a line
-    /// still waiting for its newline is copied, up to [`MAX_LINE_LEN`].
+    /// they lie in `data` (found with `memchr`); only a line split across
+    /// pushes is copied (up to [`MAX_LINE_LEN`] bytes of it), its start
+    /// while it waits and then its end.
     pub fn push(&mut self, data: &[u8], arrival_s: f64) {
         let mut rest = data;
         while let Some(k) = memchr::memchr(b'\n', rest) {
@@ -382,13 +384,15 @@ mod tests {
 
     /// The reading the decoder had before lines were read where they lie,
     /// kept as the model: one byte at a time into a bounded line, the
-    /// line parsed at its newline. Returns the samples and the counters.
-    fn bytewise(pieces: &[&[u8]]) -> (Vec<Sample>, Counters) {
+    /// line parsed at its newline with the arrival time of the push that
+    /// brought the newline (or of the finish). Returns the samples and the
+    /// counters.
+    fn bytewise(pieces: &[(&[u8], f64)], finish_s: f64) -> (Vec<Sample>, Counters) {
         let (mut line, mut overflow) = (Vec::new(), false);
         let (mut out, mut c) = (Vec::new(), Counters::default());
-        let mut end = |line: &mut Vec<u8>, overflow: &mut bool| {
+        let mut end = |line: &mut Vec<u8>, overflow: &mut bool, at_s: f64| {
             let res = match std::str::from_utf8(line) {
-                Ok(s) if !*overflow => parse_line(s, 0.0),
+                Ok(s) if !*overflow => parse_line(s, at_s),
                 _ => Err(LineError::NotText),
             };
             match res {
@@ -402,31 +406,40 @@ mod tests {
             line.clear();
             *overflow = false;
         };
-        for &b in pieces.iter().flat_map(|p| p.iter()) {
-            if b == b'\n' {
-                end(&mut line, &mut overflow);
-            } else if line.len() < MAX_LINE_LEN {
-                line.push(b);
-            } else {
-                overflow = true;
+        for &(piece, at_s) in pieces {
+            for &b in piece {
+                if b == b'\n' {
+                    end(&mut line, &mut overflow, at_s);
+                } else if line.len() < MAX_LINE_LEN {
+                    line.push(b);
+                } else {
+                    overflow = true;
+                }
             }
         }
         if !line.is_empty() || overflow {
-            end(&mut line, &mut overflow);
+            end(&mut line, &mut overflow, finish_s);
         }
         (out, c)
     }
 
-    /// Pieces of a stream: good lines, bad ones, lines at and around the
-    /// length bound, blank and comment lines, stray bytes.
+    /// Pieces of a stream: good lines (with and without a time, so the
+    /// arrival time counts), bad ones, lines from just under the length
+    /// bound to twice past it, blank and comment lines, stray bytes.
     fn stream_piece() -> impl Strategy<Value = Vec<u8>> {
         prop_oneof![
             Just(b"t=1.5 qw=1 qx=0 qy=0 qz=0 vbat=12.1 armed=1\n".to_vec()),
             Just(b"t=2 roll=10 pitch=-5 yaw=90 ax=0 ay=0 az=-9.8\r\n".to_vec()),
+            Just(b"vbat=12.0 armed=0\n".to_vec()),
             Just(b"bad line\n# comment\n\n".to_vec()),
-            // Good lines of about the bound's length: spaces between two
-            // pairs, so only the length decides.
-            (MAX_LINE_LEN - 8..MAX_LINE_LEN + 8).prop_map(|n| {
+            // Good lines without a time, at the bound's length give or
+            // take two bytes, or anywhere up to twice past it: spaces
+            // between two pairs, so only the length decides.
+            prop_oneof![
+                MAX_LINE_LEN - 2..MAX_LINE_LEN + 3,
+                MAX_LINE_LEN - 8..2 * MAX_LINE_LEN + 8
+            ]
+            .prop_map(|n| {
                 let mut l = b"vbat=11".to_vec();
                 l.resize(n - 7, b' ');
                 l.extend_from_slice(b"armed=1\n");
@@ -442,32 +455,37 @@ mod tests {
         #[test]
         fn lines_read_where_they_lie_give_what_bytewise_reading_gave(
             parts in proptest::collection::vec(stream_piece(), 0..30),
-            cuts in proptest::collection::vec(0usize..2000, 0..8),
+            cuts in proptest::collection::vec(any::<proptest::sample::Index>(), 0..12),
         ) {
             let data = parts.concat();
-            let mut at: Vec<usize> = cuts.into_iter().map(|c| c.min(data.len())).collect();
+            let mut at: Vec<usize> = cuts.iter().map(|c| c.index(data.len() + 1)).collect();
             at.sort_unstable();
+            at.push(data.len());
+            // Each push arrives at its own time, so a line ended by a
+            // later push must take that push's time.
             let mut pieces = Vec::new();
             let mut from = 0;
-            for c in at {
-                pieces.push(&data[from..c]);
+            for (k, c) in at.into_iter().enumerate() {
+                pieces.push((&data[from..c], 100.0 + k as f64));
                 from = c;
             }
-            pieces.push(&data[from..]);
-            let (want, want_c) = bytewise(&pieces);
+            let finish_s = 1000.0;
+            let (want, want_c) = bytewise(&pieces, finish_s);
             let mut d = LineDecoder::new();
-            for p in &pieces {
-                d.push(p, 0.0);
+            for &(p, at_s) in &pieces {
+                d.push(p, at_s);
                 prop_assert!(d.line.len() <= MAX_LINE_LEN);
             }
-            d.finish(0.0);
+            d.finish(finish_s);
             let mut got = Vec::new();
             while let Some(s) = d.pop() {
                 got.push(s);
             }
+            // At most 30 pieces make far fewer samples than the queue
+            // holds, so none is dropped and all are compared.
+            prop_assert!(want.len() < MAX_QUEUED);
             prop_assert_eq!(d.counters(), want_c);
-            // The queue keeps the newest MAX_QUEUED.
-            prop_assert_eq!(&got[..], &want[want.len().saturating_sub(MAX_QUEUED)..]);
+            prop_assert_eq!(got, want);
         }
     }
 

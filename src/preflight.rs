@@ -11,7 +11,8 @@
 //!   nobody, dismissed by nobody), while a member is DUE or REPLACE NOW, and
 //!   while a member is at INSPECT (an `ok` finding after the event that put
 //!   it there returns it to OK, src/health.rs). A log that cannot be read,
-//!   or has damaged records, fails it too. A pending detection or an
+//!   or has damaged records, fails it too. A pending detection, a member at
+//!   REPLACE NOW (the cage is grounded until it is replaced) or an
 //!   unreadable log cannot be overridden.
 //! - Live items (take-off face, link fresh, battery, signing) are
 //!   *waiting*, never passing, while there is no data.
@@ -397,7 +398,7 @@ fn cage_log(inp: &Inputs) -> (Outcome, String, bool) {
         ));
     }
     for (status, words) in [
-        (Status::ReplaceNow, "REPLACE NOW"),
+        (Status::ReplaceNow, "REPLACE NOW (grounded until replaced)"),
         (Status::Due, "DUE"),
         (Status::Inspect, "at INSPECT with no ok finding since"),
     ] {
@@ -415,7 +416,15 @@ fn cage_log(inp: &Inputs) -> (Outcome, String, bool) {
         problems.push(t.to_string());
     }
     if !problems.is_empty() {
-        return (Outcome::Fail, problems.join("; "), pending.is_empty());
+        // A pending detection must be confirmed or dismissed, and a member
+        // at REPLACE NOW grounds the cage until it is replaced: no reason
+        // typed at the sign-off stands in for either.
+        let grounded = h.members.iter().any(|m| m.status == Status::ReplaceNow);
+        return (
+            Outcome::Fail,
+            problems.join("; "),
+            pending.is_empty() && !grounded,
+        );
     }
     if new_file {
         return (

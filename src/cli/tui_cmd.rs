@@ -772,7 +772,9 @@ mod tests {
         let said = write(
             Work::Finding {
                 member,
-                kind: cagehand::logbook::FindingKind::Crack,
+                // A fray puts the member at DUE: a failing item a reason
+                // may override (a crack, at REPLACE NOW, could not be).
+                kind: cagehand::logbook::FindingKind::Fray,
                 note: None,
             },
             Some(1),

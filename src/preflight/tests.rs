@@ -176,6 +176,54 @@ fn a_pending_detection_fails_the_cage_log_and_cannot_be_overridden() {
 }
 
 #[test]
+fn a_member_at_replace_now_grounds_the_sign_off_whatever_the_reasons() {
+    // A crack puts a member at REPLACE NOW (src/health.rs): the cage must
+    // not fly until it is replaced, so no override reason lets it sign
+    // (this project's own rule, common practice, no published source).
+    let (p, c) = demo();
+    let cracked = log(vec![finding("R3", FindingKind::Crack)]);
+    let h = health::assess(&cracked, &c, &p.inspection);
+    let r3 = h.members.iter().find(|m| m.id == "R3").unwrap();
+    assert_eq!(r3.status, Status::ReplaceNow);
+    let e = eval(&cracked, None);
+    let it = item(&e, Check::CageLog).clone();
+    assert_eq!(it.result, Outcome::Fail);
+    assert!(!it.can_override);
+    assert!(it.detail.contains("R3 REPLACE NOW"), "{}", it.detail);
+    let mut s = SignOff::tick_all(&e);
+    for i in e.items.iter().filter(|i| i.blocks()) {
+        s.overrides.insert(i.n, "looked fine to us".into());
+    }
+    let refused = sign(&e, &s).unwrap_err();
+    assert!(
+        refused
+            .reasons
+            .iter()
+            .any(|r| r.contains("R3 REPLACE NOW") && r.contains("cannot be overridden")),
+        "{:?}",
+        refused.reasons
+    );
+    // Replaced, the same overrides (for the live items, still waiting)
+    // sign, since the cage log item passes and needs none.
+    let mut replaced = cracked.clone();
+    replaced.push(rec(
+        2,
+        Event::Replacement(crate::logbook::ReplacementEvent {
+            member: "R3".into(),
+            part: Some("rod lot 12".into()),
+            note: None,
+        }),
+    ));
+    let e = eval(&replaced, None);
+    assert_eq!(item(&e, Check::CageLog).result, Outcome::Pass);
+    let mut s = SignOff::tick_all(&e);
+    for i in e.items.iter().filter(|i| i.blocks()) {
+        s.overrides.insert(i.n, "no link on the bench".into());
+    }
+    assert!(sign(&e, &s).is_ok());
+}
+
+#[test]
 fn a_due_member_fails_and_an_override_is_stored_with_its_reason() {
     // S1 at u = 0.99 once: 0.99^k is past the demo's due level (by hand
     // for the demo's string exponent; checked through health).

@@ -8,6 +8,16 @@ use clap::{Parser, Subcommand};
 use std::path::{Path, PathBuf};
 use std::process::ExitCode;
 
+/// `eprintln!` that cannot panic: when standard error is closed (a script
+/// that closed the pipe, `2>&-`), the message is lost, not the exit status
+/// of a command that may already have written its record.
+macro_rules! say_err {
+    ($($arg:tt)*) => {{
+        use std::io::Write as _;
+        let _ = writeln!(std::io::stderr(), $($arg)*);
+    }};
+}
+
 mod cage_cmd;
 pub mod impact_cmd;
 pub mod link_args;
@@ -202,7 +212,7 @@ pub fn main() -> ExitCode {
         Err(e) if is_broken_pipe(&e) => ExitCode::SUCCESS,
         Err(e) => {
             // Errors quote files and arguments: escaped, lines kept.
-            eprintln!(
+            say_err!(
                 "cagehand: {}",
                 cagehand::text::terminal_lines(&format!("{e:#}"))
             );

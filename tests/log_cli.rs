@@ -141,6 +141,13 @@ fn unknown_member_or_kind_is_bad_input_listing_valid_values() {
     assert!(e.contains("ok, fray, cut, crack, slack, loose_end"), "{e}");
     let o = cmd(dir.path(), &["log", "replace", "X1"]);
     assert_eq!(o.status.code(), Some(2));
+    // A part given empty is a mistake, not a lot number.
+    for part in ["", "   "] {
+        let o = cmd(dir.path(), &["log", "replace", "S1", "--part", part]);
+        assert_eq!(o.status.code(), Some(2), "{part:?}");
+        let e = String::from_utf8_lossy(&o.stderr);
+        assert!(e.contains("--part is empty"), "{e}");
+    }
     // Nothing was written by any of them.
     assert!(!dir.path().join("kestrel-demo.cagelog").exists());
 }
@@ -395,4 +402,47 @@ fn operator_is_offered_only_where_a_record_is_written() {
         );
     }
     assert!(ok(&cmd(d, &["impact", "--help"])).contains("--operator"));
+}
+
+#[test]
+fn a_replacement_without_a_part_is_recorded_with_a_warning() {
+    let dir = tempfile::tempdir().unwrap();
+    let o = cmd(dir.path(), &["log", "replace", "S3"]);
+    ok(&o);
+    let e = String::from_utf8_lossy(&o.stderr);
+    assert!(e.contains("record #1 names no part or lot"), "{e}");
+    let o = cmd(
+        dir.path(),
+        &["log", "replace", "S3", "--part", "HMPE lot 12"],
+    );
+    ok(&o);
+    assert!(!String::from_utf8_lossy(&o.stderr).contains("no part or lot"));
+}
+
+/// Standard error closed before the program starts (a script that closed
+/// the pipe): the record is written and the command still exits 0, with no
+/// panic (exit 101) that would make a script write it a second time.
+#[test]
+fn a_closed_standard_error_does_not_turn_a_written_record_into_a_failure() {
+    let dir = tempfile::tempdir().unwrap();
+    for (args, want) in [
+        (&["log", "note", "hello"][..], Some(0)),
+        (&["log", "replace", "S3"][..], Some(0)),
+        // Refused: exit 2, its message lost with standard error.
+        (&["log", "finding", "S99", "cut"][..], Some(2)),
+    ] {
+        let (reader, writer) = std::io::pipe().unwrap();
+        drop(reader);
+        let o = Command::new(BIN)
+            .args(args)
+            .env("CAGEHAND_DATA", dir.path())
+            .env("CAGEHAND_OPERATOR", "ana")
+            .stderr(writer)
+            .output()
+            .unwrap();
+        assert_eq!(o.status.code(), want, "{args:?}");
+    }
+    let show: serde_json::Value =
+        serde_json::from_str(&ok(&cmd(dir.path(), &["log", "show", "--json"]))).unwrap();
+    assert_eq!(show["records"].as_array().unwrap().len(), 2);
 }

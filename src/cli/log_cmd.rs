@@ -160,7 +160,7 @@ impl LogOpts {
         let (book, report) =
             Logbook::open(&dir, &l.profile.vehicle.id, access, lock_wait()).map_err(store_err)?;
         for m in report.messages(book.path()) {
-            eprintln!("cagehand: warning: {}", terminal(&m));
+            say_err!("cagehand: warning: {}", terminal(&m));
         }
         Ok((book, report))
     }
@@ -290,7 +290,8 @@ enum Action {
     Replace {
         /// Member id (R1.., S1..).
         member: String,
-        /// Part number or lot of the new member.
+        /// Part number or lot of the new member (left out, the record names
+        /// none and a warning says so; given empty, refused).
         #[arg(long)]
         part: Option<String>,
         /// Free text.
@@ -613,7 +614,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         Action::Show { json } => {
             let (book, report) = opts.open_reporting(&l, Access::Read)?;
             if let Some(n) = trust_note(&report, &book) {
-                eprintln!("cagehand: warning: {n}");
+                say_err!("cagehand: warning: {n}");
             }
             if *json {
                 let j = ShowJson {
@@ -648,13 +649,13 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             let note = trust_note(&report, &book);
             let h = assess(&l, book.records());
             for w in &h.warnings {
-                eprintln!("cagehand: warning: {}", terminal(w));
+                say_err!("cagehand: warning: {}", terminal(w));
             }
             let pending = cagehand::logbook::detection::pending_warning(
                 &cagehand::logbook::pending(book.records()),
             );
             if *json && let Some(p) = &pending {
-                eprintln!("cagehand: warning: PENDING: {p}");
+                say_err!("cagehand: warning: PENDING: {p}");
             }
             if *json {
                 let j = HealthJson {
@@ -736,6 +737,16 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             member, part, note, ..
         } => {
             let member = member_id(&l, member)?;
+            // `--part` may be left out (the command's contract), but a part
+            // given empty is a mistake, not a lot number.
+            let part = match part.as_deref().map(str::trim) {
+                Some("") => {
+                    return Err(bad_input(
+                        "--part is empty: give the part number or lot that went in, or leave --part out",
+                    ));
+                }
+                p => p.map(str::to_string),
+            };
             let mut book = opts.open(&l, Access::Write)?;
             let ev = Event::Replacement(ReplacementEvent {
                 member,
@@ -752,6 +763,12 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 terminal(&rec.event.summary())
             )?;
             write_changes(&mut out, &ch)?;
+            if part.is_none() {
+                say_err!(
+                    "cagehand: warning: record #{} names no part or lot: an inspector will ask which lot went in (give --part; the screens require it)",
+                    rec.seq
+                );
+            }
         }
         Action::Note { text, repeat, .. } => {
             if text.trim().is_empty() {
@@ -775,7 +792,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                     .context("nothing was recorded")?;
                 writeln!(out, "recorded #{}", rec.seq)?;
             }
-            eprintln!(
+            say_err!(
                 "cagehand: written to the cage log of {} ({})",
                 l.profile.vehicle.id,
                 book.path().display()

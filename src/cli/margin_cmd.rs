@@ -153,7 +153,7 @@ pub fn run(args: &Args, parent: &ProfileArg) -> anyhow::Result<ExitCode> {
     super::check_surface_arg(&l.profile.impact, args.surface.as_deref())?;
     let (book, open) = args.log.open_reporting(&l, Access::Read)?;
     if let Some(n) = trust_note(&open, &book) {
-        eprintln!("cagehand: warning: {n}");
+        say_err!("cagehand: warning: {n}");
     }
     // A pending detection is a crash the margin does not include yet: say
     // so on every output (stderr for JSON, the table too).
@@ -161,7 +161,7 @@ pub fn run(args: &Args, parent: &ProfileArg) -> anyhow::Result<ExitCode> {
         &cagehand::logbook::detection::pending(book.records()),
     );
     if let Some(w) = &pending {
-        eprintln!("cagehand: warning: {w} (the margin below does not include it)");
+        say_err!("cagehand: warning: {w} (the margin below does not include it)");
     }
     let strikes = if args.nodes {
         Strikes::FacesAndNodes

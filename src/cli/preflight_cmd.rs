@@ -143,7 +143,7 @@ fn listen(args: &Args, l: &Loaded) -> anyhow::Result<Option<(WatchState, bool)>>
             d.clone(),
         )
         .map_err(store_err)?;
-        eprintln!(
+        say_err!(
             "cagehand: impact detected while listening: {:.1} g on {}; detection #{} in the cage log of {} ({})",
             d.peak_g,
             d.face,
@@ -334,7 +334,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         super::write_json(&mut out, &j)?;
                     } else {
                         writeln!(out, "{}", rec.seq)?;
-                        eprintln!(
+                        say_err!(
                             "cagehand: pre-flight of {vehicle} signed off by {operator}: record #{} in {path}",
                             rec.seq
                         );
@@ -354,11 +354,11 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                         };
                         super::write_json(&mut out, &j)?;
                     }
-                    eprintln!(
+                    say_err!(
                         "cagehand: pre-flight of {vehicle} NOT signed; nothing was written to {path}:"
                     );
                     for reason in &r.reasons {
-                        eprintln!("  {}", terminal(reason));
+                        say_err!("  {}", terminal(reason));
                     }
                     Ok(ExitCode::from(1))
                 }

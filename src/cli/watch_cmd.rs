@@ -114,14 +114,17 @@ fn log_detection(
                 format!("already in the log as #{} (a replay)", logged.seq)
             };
             let args = super::log_cmd::same_log_args(l, opts);
-            eprintln!(
+            say_err!(
                 "cagehand: impact detected: {:.1} g, likely on {}; {what} in the cage log of {vehicle} ({path}); confirm or dismiss it with `cagehand log confirm {}{args}` or `cagehand log dismiss {} --reason TEXT{args}`",
-                d.peak_g, d.face, logged.seq, logged.seq,
+                d.peak_g,
+                d.face,
+                logged.seq,
+                logged.seq,
             );
             (Some(logged), Some(path))
         }
         Err(e) => {
-            eprintln!(
+            say_err!(
                 "cagehand: impact detected: {:.1} g, likely on {}, but NOT written to the cage log of {vehicle}: {e:#}; record it by hand with `cagehand impact --face {} --peak-accel-g {:.1}{}`",
                 d.peak_g,
                 d.face,

@@ -3,14 +3,12 @@
 //! contract; the readable form is a short table an operator can read off
 //! a phone photo.
 
-use super::rotor_out::{
-    RotorJson, ScheduleJson, rotors_json, schedule_json, setting_text, thinned,
-};
+use super::rotor_out::{RotorJson, ScheduleJson, rotors_json, schedule_json, thinned};
 use super::{ProfileArg, bad_input};
 use cagehand::attitude::{gravity_body, quat_from_rpy_deg, rpy_deg, whole_deg};
 use cagehand::cage::Cage;
 use cagehand::rest::{fit_face, resting_attitude};
-use cagehand::righting::describe::step_words;
+use cagehand::righting::describe::{setting_text, step_words};
 use cagehand::righting::{MoveKind, Plan, RightingModel, Step};
 use rayon::prelude::*;
 use serde::Serialize;

@@ -1,7 +1,8 @@
 //! Rotor commands as the outputs show them: the JSON list (a contract:
 //! `rotor` is the 1-based index in profile order, every rotor listed, 0 N
 //! when off, `share` the thrust over that rotor's limit in its direction,
-//! negative when reversed) and the short text form for tables and sheets.
+//! negative when reversed). The short text form for tables, sheets and the
+//! screens is `cagehand::righting::describe::setting_text`.
 
 use cagehand::profile::Rotor;
 use cagehand::righting::RotorCommands;
@@ -55,30 +56,6 @@ pub fn schedule_json(rotors: &[Rotor], c: &RotorCommands) -> Option<Vec<Schedule
             })
             .collect()
     })
-}
-
-/// One rotor's command in words, e.g. `#2 fwd 1.20 N (40%)`, `#3 off`.
-pub fn rotor_text(k: usize, thrust_n: f64, rotor: &Rotor) -> String {
-    if thrust_n.abs() < 0.005 {
-        return format!("#{} off", k + 1);
-    }
-    let dir = if thrust_n > 0.0 { "fwd" } else { "REV" };
-    format!(
-        "#{} {dir} {:.2} N ({:.0}%)",
-        k + 1,
-        thrust_n.abs(),
-        share(thrust_n, rotor).abs() * 100.0
-    )
-}
-
-/// A whole setting in words, rotors separated by two spaces.
-pub fn setting_text(rotors: &[Rotor], thrust_n: &[f64]) -> String {
-    rotors
-        .iter()
-        .enumerate()
-        .map(|(k, r)| rotor_text(k, thrust_n.get(k).copied().unwrap_or(0.0), r))
-        .collect::<Vec<_>>()
-        .join("  ")
 }
 
 /// Schedule entries to print: at most about one every `every_deg`

@@ -2,10 +2,14 @@
 //! it tips toward (body frame FRD: x forward, y right, z down) and where
 //! the nose points after it (from the expected attitude). Computed from the
 //! pivot, the centre of mass and the attitude, so a crew can match the
-//! words to the vehicle in front of them.
+//! words to the vehicle in front of them; and the rotor commands in short
+//! words (`#2 REV 1.12 N (75%)`), as the plan sheets and the screens give
+//! them.
 
+use super::feasibility::share;
 use super::moves::Roll;
 use crate::cage::Cage;
+use crate::profile::Rotor;
 use nalgebra::{UnitQuaternion, Vector3};
 
 /// Share of a unit direction above which a body axis is named (about
@@ -83,6 +87,30 @@ pub fn step_words(
     } else {
         format!("tips toward the {}, {nose}", side_words(&d))
     }
+}
+
+/// One rotor's command in words, e.g. `#2 fwd 1.20 N (40%)`, `#3 off`.
+pub fn rotor_text(k: usize, thrust_n: f64, rotor: &Rotor) -> String {
+    if thrust_n.abs() < 0.005 {
+        return format!("#{} off", k + 1);
+    }
+    let dir = if thrust_n > 0.0 { "fwd" } else { "REV" };
+    format!(
+        "#{} {dir} {:.2} N ({:.0}%)",
+        k + 1,
+        thrust_n.abs(),
+        share(thrust_n, rotor).abs() * 100.0
+    )
+}
+
+/// A whole setting in words, rotors separated by two spaces.
+pub fn setting_text(rotors: &[Rotor], thrust_n: &[f64]) -> String {
+    rotors
+        .iter()
+        .enumerate()
+        .map(|(k, r)| rotor_text(k, thrust_n.get(k).copied().unwrap_or(0.0), r))
+        .collect::<Vec<_>>()
+        .join("  ")
 }
 
 #[cfg(test)]

@@ -271,7 +271,19 @@ impl RightingScreen {
         // lines, and the table's own title and header rows.
         let body_h = shared.size.1.saturating_sub(3);
         let foot_h = 2 + self.log.len() as u16;
-        usize::from(body_h.saturating_sub(2 + 3 + 2 + 3 + foot_h + 2)).max(1)
+        let panel_w = if shared.size.0 >= NET_FROM_W {
+            PANEL_W
+        } else {
+            shared.size.0
+        };
+        let detail_h = self.detail_height(shared, panel_w.saturating_sub(2));
+        usize::from(body_h.saturating_sub(2 + 3 + 2 + detail_h + foot_h + 2)).max(1)
+    }
+
+    /// Rows of the selected step's detail at an inner width: all of it
+    /// where the terminal allows, between 3 and 5 rows.
+    fn detail_height(&self, shared: &Shared, width: u16) -> u16 {
+        wrapped_height(&self.detail_lines(shared), width).clamp(3, 5)
     }
 }
 
@@ -352,6 +364,13 @@ impl Component for RightingScreen {
             RightingAction::Turn(dir) => {
                 let turn = crate::tui::vehicle_view::TURN_STEP_DEG * f64::from(dir);
                 self.view_azimuth_deg = (self.view_azimuth_deg + turn).rem_euclid(360.0);
+                if shared.size.0 < NET_FROM_W {
+                    // The key would seem to do nothing: say where the view is.
+                    shared.notice = Some(format!(
+                        "the vehicle view is drawn from {NET_FROM_W} columns (this terminal: {}); turned to {:.0} deg",
+                        shared.size.0, self.view_azimuth_deg
+                    ));
+                }
                 true
             }
             RightingAction::Select(m) => {
@@ -455,11 +474,12 @@ impl Component for RightingScreen {
         let foot_h = 2 + self.log.len() as u16;
         let head_lines = self.head_lines(shared);
         let head_h = wrapped_height(&head_lines, inner.width).clamp(1, 4);
+        let detail_h = self.detail_height(shared, inner.width);
         let [caution, head, steps, detail, foot] = Layout::vertical([
             Constraint::Length(caution_h),
             Constraint::Length(head_h),
             Constraint::Min(3),
-            Constraint::Length(3),
+            Constraint::Length(detail_h),
             Constraint::Length(foot_h),
         ])
         .areas(inner);
@@ -714,8 +734,34 @@ impl RightingScreen {
                 ),
                 t.text,
             ),
+            Line::styled(self.rotor_words(s), t.accent),
             legend,
         ]
+    }
+
+    /// The selected step's rotor setting and which way it tips the
+    /// vehicle, in the plan sheet's words, so the crew has the commands at
+    /// any width (the vehicle view shows them from [`NET_FROM_W`] columns).
+    fn rotor_words(&self, s: &cagehand::righting::Step) -> String {
+        use cagehand::righting::describe::{setting_text, step_words};
+        let Some(model) = self.model.as_ref() else {
+            return String::new();
+        };
+        let tips = step_words(
+            &model.cage,
+            &model.moves[s.move_index].roll,
+            &s.start,
+            &s.target,
+        );
+        let setting = if s.commands.schedule.is_empty() {
+            setting_text(&model.limits.rotors, &s.commands.thrust_n)
+        } else {
+            format!(
+                "{} at the start, changing during the roll (`cagehand plan` lists the schedule)",
+                setting_text(&model.limits.rotors, &s.commands.thrust_n)
+            )
+        };
+        format!("rotors: {setting}; {tips}")
     }
 
     fn foot_lines(&self, shared: &Shared) -> Vec<Line<'static>> {
@@ -764,6 +810,10 @@ mod tests {
         let plan = m.screens.righting.shown_plan().unwrap().clone();
         let s = render_text(&m, 80, 24);
         assert!(s.contains("share of the best rotor moment"), "{s}");
+        // The selected step's rotor setting, in the plan sheet's words, at
+        // 80 columns too (where the vehicle view is not drawn).
+        assert!(s.contains("rotors: #1 "), "{s}");
+        assert!(s.contains("tips toward the "), "{s}");
         let n = plan.steps.len();
         assert!(s.contains(&crate::tui::model::count(n, "step")), "{s}");
         // Step through every roll: command, move, arrive.
@@ -784,6 +834,22 @@ mod tests {
         assert!(s.contains(&said), "{said}:\n{s}");
         assert!(s.contains("done"), "finished steps are marked:\n{s}");
         assert!(!s.contains("now>"), "{s}");
+    }
+
+    #[test]
+    fn turning_the_view_where_it_is_not_drawn_says_so() {
+        let mut m = demo_model();
+        update(&mut m, key(KeyCode::Char('2')));
+        update(&mut m, Msg::Resize(80, 24));
+        update(&mut m, key(KeyCode::Char('>')));
+        let s = render_text(&m, 80, 24);
+        assert!(s.contains("drawn from 120 columns"), "{s}");
+        update(&mut m, Msg::Resize(140, 40));
+        m.shared.notice = None;
+        update(&mut m, key(KeyCode::Char('>')));
+        let s = render_text(&m, 140, 40);
+        assert!(s.contains("As it lies"), "{s}");
+        assert!(!s.contains("drawn from 120 columns"), "{s}");
     }
 
     #[test]

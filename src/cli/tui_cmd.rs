@@ -562,8 +562,10 @@ fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEv
         Ok((logged, book.path().display().to_string()))
     });
     match written {
+        // The screen's own keys first (the message line is cut at the
+        // terminal's width), then the file and the commands from elsewhere.
         Ok((logged, path)) => format!(
-            "impact {:.1} g on {}: detection #{} in the log of {vehicle} ({path}); pending until `cagehand log confirm {}{args}` or `log dismiss {} --reason TEXT`",
+            "impact {:.1} g on {}: detection #{} pending for {vehicle}; confirm (y) or dismiss (x) it on the Cage screen (3); log {path}, or `cagehand log confirm {}{args}` / `cagehand log dismiss {} --reason TEXT{args}`",
             d.peak_g, d.face, logged.seq, logged.seq, logged.seq
         ),
         Err(e) => format!(

@@ -37,7 +37,7 @@ pub fn view(model: &Model, frame: &mut Frame) {
     ])
     .areas(area);
     frame.render_widget(tab_line(model), tabs);
-    frame.render_widget(vehicle_line(&model.shared), vehicle);
+    frame.render_widget(vehicle_line(&model.shared, vehicle.width), vehicle);
     if let Some(line) = pending_line(&model.shared) {
         frame.render_widget(Paragraph::new(line), pending);
     }
@@ -145,9 +145,10 @@ pub fn state_words(shared: &Shared, long: bool) -> String {
     }
 }
 
-/// One line under the tabs: vehicle, state, link, battery, in that order of
-/// importance; it fits in 80 columns.
-fn vehicle_line(shared: &Shared) -> Paragraph<'static> {
+/// One line under the tabs: vehicle, state, link, battery. Where it does
+/// not fit `width`, the link's details give way first (its age, then the
+/// end of its source), so the state and the battery always show.
+fn vehicle_line(shared: &Shared, width: u16) -> Paragraph<'static> {
     let t = &shared.theme;
     let l = &shared.live.link;
     let age = l.age_s.map_or("-".to_string(), |a| format!("{a:.1}s"));
@@ -158,16 +159,34 @@ fn vehicle_line(shared: &Shared) -> Paragraph<'static> {
         Some(v) => Span::styled(format!("{v:.2}V"), t.text),
         None => Span::styled("batt -", t.dim),
     };
+    let head = format!("{} ", shared.profile.vehicle.id);
+    let state = state_words(shared, false);
+    let room = usize::from(width)
+        .saturating_sub(head.chars().count() + state.chars().count() + battery.width());
+    let full = format!(
+        "  link {} {:.0}Hz age {age} err {}  ",
+        l.source, l.rate_hz, l.errors
+    );
+    let link = if full.chars().count() <= room {
+        full
+    } else {
+        // Without the age; the source cut at its end, marked with `~`.
+        let rest = format!(" {:.0}Hz err {}  ", l.rate_hz, l.errors);
+        let fixed = "  link ".len() + rest.chars().count();
+        let source: String = if l.source.chars().count() + fixed <= room {
+            l.source.clone()
+        } else {
+            let keep = room.saturating_sub(fixed + 1);
+            let mut cut: String = l.source.chars().take(keep).collect();
+            cut.push('~');
+            cut
+        };
+        format!("  link {source}{rest}")
+    };
     Paragraph::new(Line::from(vec![
-        Span::styled(format!("{} ", shared.profile.vehicle.id), t.accent),
-        Span::styled(state_words(shared, false), state_style(shared)),
-        Span::styled(
-            format!(
-                "  link {} {:.0}Hz age {age} err {}  ",
-                l.source, l.rate_hz, l.errors
-            ),
-            t.dim,
-        ),
+        Span::styled(head, t.accent),
+        Span::styled(state, state_style(shared)),
+        Span::styled(link, t.dim),
         battery,
     ]))
 }
@@ -289,6 +308,42 @@ mod tests {
 
     fn key(c: KeyCode) -> Msg {
         Msg::Key(KeyEvent::new(c, KeyModifiers::NONE))
+    }
+
+    #[test]
+    fn the_vehicle_line_keeps_the_battery_when_the_link_is_long() {
+        let mut m = demo_model();
+        m.shared.live.battery_v = Some(11.92);
+        m.shared.live.link.rate_hz = 1012.0;
+        m.shared.live.link.age_s = Some(0.8);
+        m.shared.live.link.errors = 31;
+        for source in [
+            "sim",
+            "udp:127.0.0.1:14550",
+            "serial:/dev/serial/by-id/usb-a-very-long-adapter-name-if00:921600",
+        ] {
+            m.shared.live.link.source = source.to_string();
+            for w in [80, 100] {
+                let line = render_text(&m, w, 24)
+                    .lines()
+                    .nth(1)
+                    .unwrap_or("")
+                    .to_string();
+                assert!(
+                    line.trim_end().ends_with("11.92V"),
+                    "{source} at {w}: {line:?}"
+                );
+                assert!(line.contains("err 31"), "{source} at {w}: {line:?}");
+            }
+        }
+        // Where it fits, the whole link line shows.
+        m.shared.live.link.source = "sim".to_string();
+        let line = render_text(&m, 80, 24)
+            .lines()
+            .nth(1)
+            .unwrap_or("")
+            .to_string();
+        assert!(line.contains("link sim 1012Hz age 0.8s err 31"), "{line:?}");
     }
 
     #[test]

@@ -133,16 +133,17 @@ pub fn headline(shared: &Shared) -> Span<'static> {
         MarginState::Ready(m) => match m.table.weakest_face() {
             Some(w) => Span::styled(
                 format!(
-                    "weakest {} takes {:.1} m/s ({} first){}",
-                    w.id,
-                    w.failure.speed_m_per_s,
-                    w.first_member.as_deref().unwrap_or("no member"),
-                    // A pending crash is not in the log's damage yet.
+                    "{}weakest {} takes {:.1} m/s ({} first)",
+                    // A pending crash is not in the log's damage yet: said
+                    // first, so a narrow line cuts the figures, not this.
                     if shared.live.pending.is_empty() {
                         ""
                     } else {
-                        ", pending crash not in it"
-                    }
+                        "before the pending crash: "
+                    },
+                    w.id,
+                    w.failure.speed_m_per_s,
+                    w.first_member.as_deref().unwrap_or("no member"),
                 ),
                 speed_style(shared, w.failure.speed_m_per_s, true),
             ),

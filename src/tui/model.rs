@@ -411,7 +411,16 @@ pub fn update(model: &mut Model, msg: Msg) -> bool {
                 // The margin shown was for other records: wait for the
                 // one worked out for these.
                 model.shared.margin = MarginState::Working;
-                if model.screens.preflight.log_changed()
+                // An override or sign-off form open on the checklist as
+                // it was is closed: what it would sign no longer holds.
+                let stale_form = matches!(
+                    model.shared.form.as_ref().map(|f| &f.purpose),
+                    Some(Purpose::Sign | Purpose::Override(_))
+                );
+                if stale_form {
+                    model.shared.form = None;
+                }
+                if (model.screens.preflight.log_changed() || stale_form)
                     && crate::tui::preflight_view::newest_sign_off(&records).is_none()
                 {
                     // Said here (a sign-off says itself), and on the

@@ -448,6 +448,19 @@ mod tests {
         m
     }
 
+    /// A sign-off form left open while the log changes (another program
+    /// wrote a detection) is closed, so keys typed next do not go into it.
+    #[test]
+    fn a_change_to_the_log_closes_an_open_sign_off_form() {
+        let mut m = on_item(1);
+        m.shared.form = Some(crate::tui::form::Form::sign(Some("ana"), None));
+        let mut records = m.shared.records.clone();
+        records.push(crate::tui::model::detection_record(1));
+        update(&mut m, Msg::Records(records));
+        assert!(m.shared.form.is_none());
+        assert_eq!(m.shared.notice.as_deref(), Some(super::CLEARED));
+    }
+
     /// The safety rule of `log_changed`: a tick made before the log changed
     /// (here a crash detected while the crew ticked) is dropped, the
     /// message line and the verdict say so, and a new tick ends the notice.

@@ -90,10 +90,12 @@ fn too_small(model: &Model, frame: &mut Frame, (w, h): (u16, u16)) {
         area.width,
         area.height
     );
-    frame.render_widget(
-        Paragraph::new(Line::styled(text, t.warn)).wrap(Wrap { trim: true }),
-        area,
-    );
+    // A pending crash is said on every screen, this one too, and first.
+    let lines: Vec<Line> = pending_line(&model.shared)
+        .into_iter()
+        .chain([Line::styled(text, t.warn)])
+        .collect();
+    frame.render_widget(Paragraph::new(lines).wrap(Wrap { trim: true }), area);
 }
 
 fn tab_line(model: &Model) -> Paragraph<'static> {
@@ -308,6 +310,16 @@ mod tests {
 
     fn key(c: KeyCode) -> Msg {
         Msg::Key(KeyEvent::new(c, KeyModifiers::NONE))
+    }
+
+    #[test]
+    fn a_terminal_too_small_still_shows_a_pending_crash() {
+        let mut m = demo_model();
+        let records = vec![crate::tui::model::detection_record(1)];
+        update(&mut m, Msg::Records(records));
+        let s = render_text(&m, 40, 10);
+        assert!(s.contains("needs"), "{s}");
+        assert!(s.contains("PENDING"), "{s}");
     }
 
     #[test]

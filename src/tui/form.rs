@@ -571,8 +571,13 @@ impl Form {
                 lines.push(Line::styled(format!("     ^ {p}"), t.alarm));
             }
         }
+        // An override reason is kept for the sign-off, not written yet.
+        let enter = match self.purpose {
+            Purpose::Override(_) => "Enter keeps the reason for the sign-off",
+            _ => "Enter writes",
+        };
         lines.push(Line::styled(
-            "Enter writes  Esc cancels  Tab next field",
+            format!("{enter}  Esc cancels  Tab next field"),
             t.dim,
         ));
         // Long values wrap: the height counts the wrapped rows, so the key

@@ -448,6 +448,17 @@ mod tests {
         m
     }
 
+    #[test]
+    fn the_override_form_says_enter_keeps_the_reason_not_writes_it() {
+        let mut m = on_item(1);
+        m.shared.form = Some(crate::tui::form::Form::override_reason(2, None));
+        let s = render_text(&m, 80, 24);
+        assert!(s.contains("Enter keeps the reason"), "{s}");
+        assert!(!s.contains("Enter writes"), "{s}");
+        m.shared.form = Some(crate::tui::form::Form::sign(Some("ana"), None));
+        assert!(render_text(&m, 80, 24).contains("Enter writes"));
+    }
+
     /// A sign-off form left open while the log changes (another program
     /// wrote a detection) is closed, so keys typed next do not go into it.
     #[test]

@@ -253,6 +253,40 @@ fn item<'a>(eval: &'a Value, text_part: &str) -> &'a Value {
         .unwrap()
 }
 
+/// A cut member is at REPLACE NOW: the cage is grounded, and no override
+/// reason signs the pre-flight until the member is replaced (this
+/// project's own rule, common practice, no published source).
+#[test]
+fn preflight_cannot_be_signed_over_a_member_at_replace_now() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    ok(&cmd(d, &["log", "finding", "R6", "cut"]));
+    let e = json(&cmd(d, &["preflight", "--json"]));
+    let cage = item(&e, "Cage log");
+    assert_eq!(cage["result"], "fail");
+    assert!(cage["detail"].as_str().unwrap().contains("R6 REPLACE NOW"));
+    let before = log_bytes(d);
+    let mut args = vec!["preflight", "sign", "--tick", "all"];
+    for k in ["1", "2", "3", "4"] {
+        args.extend(["--override", k, "--reason", "x"]);
+    }
+    let o = cmd(d, &args);
+    assert_eq!(o.status.code(), Some(1));
+    let err = String::from_utf8_lossy(&o.stderr);
+    assert!(
+        err.contains("R6 REPLACE NOW") && err.contains("cannot be overridden"),
+        "{err}"
+    );
+    assert_eq!(log_bytes(d), before);
+    // Replaced: the same overrides (for the waiting live items) sign.
+    ok(&cmd(d, &["log", "replace", "R6", "--part", "rod lot 7"]));
+    let mut args = vec!["preflight", "sign", "--tick", "all"];
+    for k in ["2", "3", "4"] {
+        args.extend(["--override", k, "--reason", "on the bench"]);
+    }
+    assert_eq!(ok(&cmd(d, &args)).trim(), "3");
+}
+
 #[test]
 fn preflight_cannot_be_signed_over_a_pending_crash() {
     let dir = tempfile::tempdir().unwrap();

@@ -266,8 +266,12 @@ fn run(cli: Cli) -> anyhow::Result<ExitCode> {
         Some(Command::Completions(a)) => {
             use clap::CommandFactory;
             let mut cmd = Cli::command();
-            let mut out = std::io::stdout().lock();
-            clap_complete::generate(a.shell, &mut cmd, "cagehand", &mut out);
+            // Generated into memory first: the generator panics on a
+            // write error, and a closed stdout (`| head`) is no failure.
+            let mut script = Vec::new();
+            clap_complete::generate(a.shell, &mut cmd, "cagehand", &mut script);
+            use std::io::Write as _;
+            std::io::stdout().lock().write_all(&script)?;
             Ok(ExitCode::SUCCESS)
         }
         Some(Command::Manual) => {

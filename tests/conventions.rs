@@ -23,6 +23,27 @@ fn completions_name_every_subcommand() {
     }
 }
 
+/// A reader that closes early (`cagehand completions bash | head -1`):
+/// exit 0, no panic (exit 101). The pipe is closed before the program
+/// starts, so every write fails.
+#[test]
+fn completions_and_the_manual_to_a_closed_pipe_exit_0() {
+    for args in [
+        &["completions", "bash"][..],
+        &["completions", "powershell"][..],
+        &["manual"][..],
+    ] {
+        let (reader, writer) = std::io::pipe().unwrap();
+        drop(reader);
+        let out = Command::new(env!("CARGO_BIN_EXE_cagehand"))
+            .args(args)
+            .stdout(writer)
+            .output()
+            .expect("the binary runs");
+        assert_eq!(out.status.code(), Some(0), "{args:?}: {out:?}");
+    }
+}
+
 #[test]
 fn completions_refuse_an_unknown_shell() {
     let out = cagehand(&["completions", "teletype"]);

@@ -446,3 +446,54 @@ fn a_closed_standard_error_does_not_turn_a_written_record_into_a_failure() {
         serde_json::from_str(&ok(&cmd(dir.path(), &["log", "show", "--json"]))).unwrap();
     assert_eq!(show["records"].as_array().unwrap().len(), 2);
 }
+
+/// `log export --out` aimed at a cage log is refused and writes nothing:
+/// the log itself, any `.cagelog` name or side file, or any file that
+/// starts with a log's header (a copy kept under another name).
+#[test]
+fn an_export_never_writes_over_a_cage_log() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    ok(&cmd(d, &["log", "note", "day 1 (invented)"]));
+    let log = d.join("kestrel-demo.cagelog");
+    let before = std::fs::read(&log).unwrap();
+    let copy = d.join("backup.txt");
+    std::fs::write(&copy, &before).unwrap();
+    for target in [
+        log.clone(),
+        d.join("other.cagelog"),
+        d.join("kestrel-demo.cagelog.set-aside"),
+        copy.clone(),
+    ] {
+        for format in ["csv", "md"] {
+            let t = target.to_str().unwrap();
+            let o = cmd(d, &["log", "export", "--format", format, "--out", t]);
+            assert_eq!(o.status.code(), Some(2), "{t}");
+            let e = String::from_utf8_lossy(&o.stderr);
+            assert!(e.contains("never writes over a log"), "{e}");
+        }
+    }
+    assert_eq!(std::fs::read(&log).unwrap(), before);
+    assert_eq!(std::fs::read(&copy).unwrap(), before);
+    assert!(!d.join("other.cagelog").exists());
+    // A report's own name is written, and written again.
+    let report = d.join("report.csv");
+    for _ in 0..2 {
+        ok(&cmd(
+            d,
+            &[
+                "log",
+                "export",
+                "--format",
+                "csv",
+                "--out",
+                report.to_str().unwrap(),
+            ],
+        ));
+    }
+    assert!(
+        std::fs::read_to_string(&report)
+            .unwrap()
+            .starts_with("id,kind,status")
+    );
+}

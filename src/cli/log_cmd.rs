@@ -981,6 +981,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             };
             match path {
                 Some(p) => {
+                    refuse_log_as_output(p, book.path())?;
                     write_file(p, text.as_bytes())?;
                     writeln!(out, "wrote {}", p.display())?;
                 }
@@ -1066,6 +1067,45 @@ fn verify(
     } else {
         ExitCode::from(1)
     })
+}
+
+/// An export never writes over a cage log: not the vehicle's own (by
+/// name or as the same file through a link), not any `.cagelog` file or
+/// its side files, and not any file that starts with a log's header. A
+/// slip of `--out` would otherwise replace the records with a report.
+fn refuse_log_as_output(out: &Path, log: &Path) -> anyhow::Result<()> {
+    let name = out
+        .file_name()
+        .map(|n| n.to_string_lossy().into_owned())
+        .unwrap_or_default();
+    let same_file = match (std::fs::canonicalize(out), std::fs::canonicalize(log)) {
+        (Ok(a), Ok(b)) => a == b,
+        _ => false,
+    };
+    // Only a regular file is read (a FIFO would block the open).
+    let regular = std::fs::metadata(out).is_ok_and(|m| m.is_file());
+    let log_header = regular
+        && std::fs::File::open(out)
+            .and_then(|f| {
+                use std::io::Read as _;
+                let mut start = Vec::new();
+                f.take(cagehand::logbook::format::MAGIC.len() as u64)
+                    .read_to_end(&mut start)
+                    .map(|_| start)
+            })
+            .is_ok_and(|start| start == cagehand::logbook::format::MAGIC.as_bytes());
+    if same_file || log_header || name.ends_with(".cagelog") || name.contains(".cagelog.") {
+        return Err(bad_input(format!(
+            "--out {}: that is a cage log{}; an export never writes over a log (nothing was written): give the report another name",
+            terminal(&out.display().to_string()),
+            if same_file {
+                " (the one this report is read from)"
+            } else {
+                ""
+            }
+        )));
+    }
+    Ok(())
 }
 
 fn write_file(p: &Path, bytes: &[u8]) -> anyhow::Result<()> {

@@ -338,8 +338,14 @@ fn a_set_aside_interrupted_before_the_cut_is_not_copied_twice() {
     // file and before cutting it from the log.
     std::fs::write(log_path(d), torn).unwrap();
     ok(&cmd(d, &["log", "note", "after the second crash"]));
-    let side = std::fs::read_to_string(d.join("kestrel-demo.cagelog.set-aside")).unwrap();
+    let side_path = d.join("kestrel-demo.cagelog.set-aside");
+    let side = std::fs::read_to_string(&side_path).unwrap();
     assert_eq!(side.matches("bytes follow").count(), 1, "{side}");
+    // The side file is reported at every reading until it is moved away.
+    let (code, out) = verify(d, &[]);
+    assert_eq!(code, 1, "{out}");
+    assert!(out.contains("torn records set aside"), "{out}");
+    std::fs::rename(&side_path, d.join("entered-again.txt")).unwrap();
     assert_eq!(verify(d, &[]).0, 0);
 }
 
@@ -424,4 +430,42 @@ fn outside_text_cannot_steer_the_terminal_or_the_report() {
             &["log", "export", "--format", "md", "--profile", pf],
         )),
     );
+}
+
+/// A grounding record torn at its end (its text whole, its line end and
+/// the last hash digits lost) is set aside by the next write. From then on
+/// the log must not read as sound: health, verify and the pre-flight keep
+/// saying that records wait in the side file, until it is moved away.
+#[test]
+fn a_set_aside_grounding_record_keeps_the_log_from_reading_as_sound() {
+    let dir = tempfile::tempdir().unwrap();
+    let d = dir.path();
+    ok(&cmd(d, &["log", "finding", "R6", "cut"]));
+    let full = std::fs::read(log_path(d)).unwrap();
+    std::fs::write(log_path(d), &full[..full.len() - 3]).unwrap();
+    ok(&cmd(d, &["log", "note", "next day (invented)"]));
+    // The cut member's record is gone from the count...
+    let health = ok(&cmd(d, &["log", "health"]));
+    assert!(health.contains("set aside"), "{health}");
+    assert_eq!(verify(d, &[]).0, 1);
+    // ...so the pre-flight's cage-log item fails, and says why.
+    let e: serde_json::Value =
+        serde_json::from_str(&ok(&cmd(d, &["preflight", "--json"]))).unwrap();
+    let cage = e["items"]
+        .as_array()
+        .unwrap()
+        .iter()
+        .find(|i| i["text"].as_str().unwrap().starts_with("Cage log"))
+        .unwrap();
+    assert_eq!(cage["result"], "fail", "{cage}");
+    assert!(
+        cage["detail"].as_str().unwrap().contains("integrity"),
+        "{cage}"
+    );
+    std::fs::rename(
+        d.join("kestrel-demo.cagelog.set-aside"),
+        d.join("read-and-entered-again.txt"),
+    )
+    .unwrap();
+    assert_eq!(verify(d, &[]).0, 0);
 }

@@ -158,8 +158,17 @@ fn torn_tail_is_set_aside_and_reported() {
     assert_eq!(text(&o.stdout).trim(), "recorded #3");
     let side = std::fs::read_to_string(dir.path().join(format!("{LOG}.set-aside"))).unwrap();
     assert!(side.contains("charlie"), "{side}");
+    // Every later reading says the side file holds records (a torn
+    // record may have been an impact), until it is moved away.
     let (seqs, stderr) = shown(dir.path());
     assert_eq!(seqs, vec![1, 2, 3]);
+    assert!(stderr.contains("torn records set aside"), "{stderr}");
+    std::fs::rename(
+        dir.path().join(format!("{LOG}.set-aside")),
+        dir.path().join("read.txt"),
+    )
+    .unwrap();
+    let (_, stderr) = shown(dir.path());
     assert!(stderr.is_empty(), "{stderr}");
 }
 

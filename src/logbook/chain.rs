@@ -234,6 +234,10 @@ pub enum IssueKind {
     SequenceOrder,
     /// The header names another vehicle.
     OtherVehicle,
+    /// Torn records were moved to the side file by an earlier write and
+    /// are still there: what they held (an impact, perhaps) is in no
+    /// count until someone reads them and records it again.
+    SetAside,
 }
 
 impl IssueKind {
@@ -242,6 +246,9 @@ impl IssueKind {
         match self {
             IssueKind::Duplicate => "the repeat is counted once",
             IssueKind::OtherVehicle => "the records may be another vehicle's",
+            IssueKind::SetAside => {
+                "records in the side file are not counted: damage may be understated"
+            }
             _ => "damage may be understated",
         }
     }

@@ -194,6 +194,30 @@ fn lock(file: &File, path: &Path, access: Access, wait: Duration) -> Result<(), 
     }
 }
 
+/// Where the torn records of the log at `path` are set aside.
+fn side_path(path: &Path) -> PathBuf {
+    let mut side_name = path.as_os_str().to_owned();
+    side_name.push(".set-aside");
+    PathBuf::from(side_name)
+}
+
+/// The side file of `path`, when an earlier write set torn records aside
+/// in it and it still holds them: an issue at the end of the log (`lines`
+/// lines), said every time the log is read until the file is moved away,
+/// so a set-aside impact cannot drop out of sight after one warning.
+fn held_aside(path: &Path, lines: usize) -> Option<Issue> {
+    let side = side_path(path);
+    let len = std::fs::metadata(&side).ok().filter(|m| m.is_file())?.len();
+    (len > 0).then(|| Issue {
+        line: lines.max(1),
+        kind: IssueKind::SetAside,
+        detail: format!(
+            "{} holds {len} bytes of torn records set aside by an earlier write; read it, record again what it held (an impact may be among it), then move it away",
+            side.display()
+        ),
+    })
+}
+
 /// Read exactly the file's current length (never more: a device that reads
 /// forever must not hang us).
 fn read_all(file: &mut File, path: &Path) -> Result<Vec<u8>, StoreError> {
@@ -317,6 +341,11 @@ impl Logbook {
                 }
             }
         }
+        if report.set_aside.is_none()
+            && let Some(issue) = held_aside(&path, bytes.split(|&b| b == b'\n').count())
+        {
+            integrity.issues.push(issue);
+        }
         report.integrity = integrity;
         book.file = file;
         Ok((book, report))
@@ -327,9 +356,7 @@ impl Logbook {
     /// it already in the side file and only cuts, so it is never copied
     /// twice.
     fn set_aside(&self, file: &File, tail: &TornTail) -> Result<SetAside, StoreError> {
-        let mut side_name = self.path.as_os_str().to_owned();
-        side_name.push(".set-aside");
-        let side_path = PathBuf::from(side_name);
+        let side_path = side_path(&self.path);
         let mut side = OpenOptions::new()
             .read(true)
             .append(true)
@@ -532,6 +559,16 @@ mod tests {
         );
         assert_eq!(b.append("ana", now, note("three")).unwrap().seq, 2);
         drop(b);
+        // While the side file holds the torn record, every reading says
+        // so (it may have been an impact), and nothing else is wrong.
+        let (b, r) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
+        assert_eq!(b.records().len(), 2);
+        let kinds: Vec<IssueKind> = r.integrity.issues.iter().map(|i| i.kind).collect();
+        assert_eq!(kinds, vec![IssueKind::SetAside], "{r:?}");
+        assert!(r.integrity.issues[0].detail.contains(".set-aside"));
+        drop(b);
+        // Read, recorded again and moved away: the log is clean.
+        std::fs::rename(&s.side_path, dir.path().join("read-and-entered.txt")).unwrap();
         let (b, r) = Logbook::open(dir.path(), "v", Access::Read, WAIT).unwrap();
         assert!(clean(&r), "{r:?}");
         assert_eq!(b.records().len(), 2);

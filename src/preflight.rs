@@ -12,8 +12,9 @@
 //!   while a member is at INSPECT (an `ok` finding after the event that put
 //!   it there returns it to OK, src/health.rs). A log that cannot be read,
 //!   or has damaged records, fails it too. A pending detection, a member at
-//!   REPLACE NOW (the cage is grounded until it is replaced) or an
-//!   unreadable log cannot be overridden.
+//!   REPLACE NOW (the cage is grounded until it is replaced), torn records
+//!   waiting in the side file (they may be either) or an unreadable log
+//!   cannot be overridden.
 //! - Live items (take-off face, link fresh, battery, signing) are
 //!   *waiting*, never passing, while there is no data.
 //! - Sign-off is refused while a hand item is unticked, or an automatic item
@@ -131,7 +132,8 @@ pub struct ItemEval {
     /// Why, in words.
     pub detail: String,
     /// Whether an override reason may let it sign while it does not pass
-    /// (false for a pending detection and an unreadable log).
+    /// (false for a pending detection, a member at REPLACE NOW, records
+    /// set aside and an unreadable log).
     #[serde(skip)]
     pub can_override: bool,
 }
@@ -156,6 +158,9 @@ pub enum LogInput<'a> {
         new_file: bool,
         /// Damaged records skipped, in words (damage may be understated).
         trouble: Option<&'a str>,
+        /// Torn records wait in the side file: one may be a crash or a
+        /// cut member, so this trouble cannot be overridden.
+        held_aside: bool,
     },
     /// The log could not be read, with the reason.
     Unreadable(&'a str),
@@ -364,7 +369,7 @@ fn evaluate_check(c: Check, inp: &Inputs, log_checks: &LogChecks) -> (Outcome, S
 }
 
 fn cage_log(inp: &Inputs) -> (Outcome, String, bool) {
-    let (records, path, new_file, trouble) = match inp.log {
+    let (records, path, new_file, trouble, held_aside) = match inp.log {
         LogInput::Unreadable(why) => {
             return (
                 Outcome::Fail,
@@ -377,7 +382,8 @@ fn cage_log(inp: &Inputs) -> (Outcome, String, bool) {
             path,
             new_file,
             trouble,
-        } => (records, path, new_file, trouble),
+            held_aside,
+        } => (records, path, new_file, trouble, held_aside),
     };
     let pending = detection::pending(records);
     let h = health::assess(records, inp.cage, &inp.profile.inspection);
@@ -416,14 +422,15 @@ fn cage_log(inp: &Inputs) -> (Outcome, String, bool) {
         problems.push(t.to_string());
     }
     if !problems.is_empty() {
-        // A pending detection must be confirmed or dismissed, and a member
-        // at REPLACE NOW grounds the cage until it is replaced: no reason
-        // typed at the sign-off stands in for either.
+        // A pending detection must be confirmed or dismissed, a member at
+        // REPLACE NOW grounds the cage until it is replaced, and records
+        // set aside may hold either: no reason typed at the sign-off
+        // stands in for any of them.
         let grounded = h.members.iter().any(|m| m.status == Status::ReplaceNow);
         return (
             Outcome::Fail,
             problems.join("; "),
-            pending.is_empty() && !grounded,
+            pending.is_empty() && !grounded && !held_aside,
         );
     }
     if new_file {

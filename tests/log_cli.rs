@@ -476,6 +476,48 @@ fn an_export_never_writes_over_a_cage_log() {
     assert_eq!(std::fs::read(&log).unwrap(), before);
     assert_eq!(std::fs::read(&copy).unwrap(), before);
     assert!(!d.join("other.cagelog").exists());
+    #[cfg(unix)]
+    {
+        // Links are judged by what they point at: the log itself (same file),
+        // or a log not written yet (by its name).
+        let to_log = d.join("report-link.csv");
+        std::os::unix::fs::symlink(&log, &to_log).unwrap();
+        let to_new_log = d.join("another-link.md");
+        std::os::unix::fs::symlink(d.join("spare.cagelog"), &to_new_log).unwrap();
+        for (link, says) in [
+            (&to_log, "the one this report is read from"),
+            (&to_new_log, "cage log"),
+        ] {
+            let o = cmd(
+                d,
+                &[
+                    "log",
+                    "export",
+                    "--format",
+                    "md",
+                    "--out",
+                    link.to_str().unwrap(),
+                ],
+            );
+            assert_eq!(o.status.code(), Some(2));
+            assert!(String::from_utf8_lossy(&o.stderr).contains(says));
+        }
+        assert_eq!(std::fs::read(&log).unwrap(), before);
+        assert!(!d.join("spare.cagelog").exists());
+    }
+    // A report may carry the log's name in its own.
+    let named = d.join("kestrel-demo.cagelog.md");
+    ok(&cmd(
+        d,
+        &[
+            "log",
+            "export",
+            "--format",
+            "md",
+            "--out",
+            named.to_str().unwrap(),
+        ],
+    ));
     // A report's own name is written, and written again.
     let report = d.join("report.csv");
     for _ in 0..2 {

@@ -462,6 +462,16 @@ fn a_set_aside_grounding_record_keeps_the_log_from_reading_as_sound() {
         cage["detail"].as_str().unwrap().contains("integrity"),
         "{cage}"
     );
+    // No reason signs over it: the torn record may be the cut member.
+    let before = std::fs::read(log_path(d)).unwrap();
+    let mut args = vec!["preflight", "sign", "--tick", "all"];
+    for k in ["1", "2", "3", "4"] {
+        args.extend(["--override", k, "--reason", "x"]);
+    }
+    let o = cmd(d, &args);
+    assert_eq!(o.status.code(), Some(1));
+    assert!(String::from_utf8_lossy(&o.stderr).contains("cannot be overridden"));
+    assert_eq!(std::fs::read(log_path(d)).unwrap(), before);
     std::fs::rename(
         d.join("kestrel-demo.cagelog.set-aside"),
         d.join("read-and-entered-again.txt"),

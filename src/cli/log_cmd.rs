@@ -1094,7 +1094,12 @@ fn refuse_log_as_output(out: &Path, log: &Path) -> anyhow::Result<()> {
                     .map(|_| start)
             })
             .is_ok_and(|start| start == cagehand::logbook::format::MAGIC.as_bytes());
-    if same_file || log_header || name.ends_with(".cagelog") || name.contains(".cagelog.") {
+    // A link (even one to a log not written yet) is judged by its target.
+    let target_name = std::fs::read_link(out)
+        .ok()
+        .and_then(|t| t.file_name().map(|n| n.to_string_lossy().into_owned()));
+    let log_name = |n: &str| n.ends_with(".cagelog") || n.ends_with(".cagelog.set-aside");
+    if same_file || log_header || log_name(&name) || target_name.as_deref().is_some_and(log_name) {
         return Err(bad_input(format!(
             "--out {}: that is a cage log{}; an export never writes over a log (nothing was written): give the report another name",
             terminal(&out.display().to_string()),

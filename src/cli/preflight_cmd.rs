@@ -4,7 +4,7 @@
 //! nothing.
 
 use super::link_args::LinkArgs;
-use super::log_cmd::{LogOpts, same_log_args, store_err, trust_note};
+use super::log_cmd::{LogOpts, same_log_args, store_err};
 use super::{Loaded, bad_input};
 use crate::transport::Mode;
 use cagehand::feed::Feed;
@@ -155,6 +155,16 @@ fn listen(args: &Args, l: &Loaded) -> anyhow::Result<Option<(WatchState, bool)>>
     Ok(Some((feed.state(), args.signing_key.is_some())))
 }
 
+/// The log's integrity problems in one line, for the cage-log item: said
+/// whether or not the log file exists (records set aside from a log that
+/// is gone still count).
+fn integrity_trouble(report: &cagehand::logbook::OpenReport) -> Option<String> {
+    report
+        .integrity
+        .headline()
+        .map(|h| format!("{h}; see `cagehand log verify`"))
+}
+
 fn evaluate(
     l: &Loaded,
     live: Option<&(WatchState, bool)>,
@@ -162,6 +172,7 @@ fn evaluate(
     path: &str,
     new_file: bool,
     trouble: Option<&str>,
+    held_aside: bool,
 ) -> Evaluation {
     // The margin item's figure, computed only when the profile asks for it;
     // no answer leaves the item waiting (it blocks), never passing.
@@ -179,6 +190,7 @@ fn evaluate(
             path,
             new_file,
             trouble,
+            held_aside,
         },
         signing: live.and_then(|(_, key)| key.then_some(true)),
         margin: margin.as_ref(),
@@ -246,7 +258,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
         None => {
             let (book, report) = args.log.open_reporting(&l, Access::Read)?;
             let path = book.path().display().to_string();
-            let trouble = trust_note(&report, &book).filter(|_| !report.new_file);
+            let trouble = integrity_trouble(&report);
             let e = evaluate(
                 &l,
                 live.as_ref(),
@@ -254,6 +266,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 &path,
                 report.new_file,
                 trouble.as_deref(),
+                report.integrity.holds_set_aside(),
             );
             if args.json {
                 let j = EvalJson {
@@ -300,7 +313,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
             // Evaluate under the write lock, so no record slips in between.
             let (mut book, report) = args.log.open_reporting(&l, Access::Write)?;
             let path = book.path().display().to_string();
-            let trouble = trust_note(&report, &book).filter(|_| !report.new_file);
+            let trouble = integrity_trouble(&report);
             let records = book.records().to_vec();
             let e = evaluate(
                 &l,
@@ -309,6 +322,7 @@ pub fn run(args: &Args) -> anyhow::Result<ExitCode> {
                 &path,
                 report.new_file,
                 trouble.as_deref(),
+                report.integrity.holds_set_aside(),
             );
             let s = SignOff {
                 ticked: parse_ticks(tick.as_deref(), &e)?.into_iter().collect(),

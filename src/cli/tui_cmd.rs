@@ -179,6 +179,9 @@ struct LogView {
     /// The log's integrity problems in one line (damage may be
     /// understated): fails the pre-flight as `log health` warns of it.
     trouble: Option<String>,
+    /// Torn records wait in the side file (the trouble cannot be
+    /// overridden then).
+    held_aside: bool,
     error: Option<String>,
     /// Detections not yet confirmed or dismissed.
     pending: Vec<cagehand::logbook::Pending>,
@@ -204,6 +207,7 @@ impl LogView {
                 path: String::new(),
                 new_file: false,
                 trouble: None,
+                held_aside: false,
                 error: Some(e),
                 pending: Vec::new(),
                 checks: None,
@@ -220,6 +224,7 @@ impl LogView {
             path: book.path().display().to_string(),
             new_file: report.new_file,
             trouble: report.integrity.headline(),
+            held_aside: report.integrity.holds_set_aside(),
             error: None,
             pending: detection::pending(book.records()),
             checks: None,
@@ -263,6 +268,7 @@ impl LogView {
                 path: &self.path,
                 new_file: self.new_file,
                 trouble: self.trouble.as_deref(),
+                held_aside: self.held_aside,
             },
         };
         preflight::Inputs {
@@ -565,7 +571,7 @@ fn write_detection(l: &Loaded, log: &LogOpts, d: &cagehand::logbook::DetectionEv
         // The screen's own keys first (the message line is cut at the
         // terminal's width), then the file and the commands from elsewhere.
         Ok((logged, path)) => format!(
-            "impact {:.1} g on {}: detection #{} pending for {vehicle}; confirm (y) or dismiss (x) it on the Cage screen (3); log {path}, or `cagehand log confirm {}{args}` / `cagehand log dismiss {} --reason TEXT{args}`",
+            "impact {:.1} g on {}: detection #{} pending for {vehicle}; on the Cage screen (3) y confirms and x dismisses the oldest pending detection; log {path}, or `cagehand log confirm {}{args}` / `cagehand log dismiss {} --reason TEXT{args}`",
             d.peak_g, d.face, logged.seq, logged.seq, logged.seq
         ),
         Err(e) => format!(

@@ -310,6 +310,11 @@ pub struct Integrity {
 }
 
 impl Integrity {
+    /// Whether torn records wait in the side file ([`IssueKind::SetAside`]).
+    pub fn holds_set_aside(&self) -> bool {
+        self.issues.iter().any(|i| i.kind == IssueKind::SetAside)
+    }
+
     /// No problem found.
     pub fn is_sound(&self) -> bool {
         self.issues.is_empty()

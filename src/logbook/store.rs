@@ -194,6 +194,12 @@ fn lock(file: &File, path: &Path, access: Access, wait: Duration) -> Result<(), 
     }
 }
 
+/// Lines in a log's bytes (a last line without its line end counts).
+fn line_count(bytes: &[u8]) -> usize {
+    bytes.iter().filter(|&&b| b == b'\n').count()
+        + usize::from(!bytes.is_empty() && !bytes.ends_with(b"\n"))
+}
+
 /// Where the torn records of the log at `path` are set aside.
 fn side_path(path: &Path) -> PathBuf {
     let mut side_name = path.as_os_str().to_owned();
@@ -275,6 +281,8 @@ impl Logbook {
         };
         let Some(f) = file.as_mut() else {
             report.new_file = true;
+            // No log, yet records set aside from one: still said.
+            report.integrity.issues.extend(held_aside(&path, 1));
             return Ok((book, report));
         };
         lock(f, &path, access, lock_wait)?;
@@ -342,7 +350,7 @@ impl Logbook {
             }
         }
         if report.set_aside.is_none()
-            && let Some(issue) = held_aside(&path, bytes.split(|&b| b == b'\n').count())
+            && let Some(issue) = held_aside(&path, line_count(&bytes))
         {
             integrity.issues.push(issue);
         }

@@ -118,6 +118,7 @@ fn inputs<'a>(
             path: "/d/v.cagelog",
             new_file: records.is_empty(),
             trouble: None,
+            held_aside: false,
         },
         signing: None,
         margin: None,
@@ -221,6 +222,32 @@ fn a_member_at_replace_now_grounds_the_sign_off_whatever_the_reasons() {
         s.overrides.insert(i.n, "no link on the bench".into());
     }
     assert!(sign(&e, &s).is_ok());
+}
+
+#[test]
+fn records_set_aside_fail_the_cage_log_and_cannot_be_overridden() {
+    // Torn records in the side file may be a crash or a cut member: the
+    // log's trouble then cannot be signed over (this project's own rule).
+    let (p, c) = demo();
+    let recs = log(vec![Event::Note(crate::logbook::NoteEvent {
+        text: "day 1 (invented)".into(),
+    })]);
+    let trouble = "the cage log has 1 integrity problem: records in the side file are not counted";
+    for (held_aside, overridable) in [(true, false), (false, true)] {
+        let mut inp = inputs((&p, &c), &recs, None);
+        inp.log = LogInput::Read {
+            records: &recs,
+            path: "/d/v.cagelog",
+            new_file: false,
+            trouble: Some(trouble),
+            held_aside,
+        };
+        let e = evaluate(&inp);
+        let it = item(&e, Check::CageLog);
+        assert_eq!(it.result, Outcome::Fail);
+        assert!(it.detail.contains("side file"), "{}", it.detail);
+        assert_eq!(it.can_override, overridable, "held aside: {held_aside}");
+    }
 }
 
 #[test]
@@ -353,6 +380,7 @@ fn signing_when_asked() {
                 path: "x",
                 new_file: true,
                 trouble: None,
+                held_aside: false,
             },
             signing: Some(key),
             margin: None,
@@ -515,6 +543,7 @@ fn the_margin_item_when_the_profile_asks() {
                 path: "x",
                 new_file: true,
                 trouble: None,
+                held_aside: false,
             },
             signing: None,
             margin: m,

@@ -753,6 +753,7 @@ pub(crate) fn with_preflight(mut m: Model, st: &cagehand::tracker::WatchState) -
             path: "(invented demo log)",
             new_file: true,
             trouble: None,
+            held_aside: false,
         },
         signing: None,
         margin: None,

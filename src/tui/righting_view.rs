@@ -280,10 +280,19 @@ impl RightingScreen {
         usize::from(body_h.saturating_sub(2 + 3 + 2 + detail_h + foot_h + 2)).max(1)
     }
 
-    /// Rows of the selected step's detail at an inner width: all of it
-    /// where the terminal allows, between 3 and 5 rows.
+    /// Rows of the selected step's detail at an inner width: all of it,
+    /// between 3 and 8 rows (the rotor commands of a cage with many rotors
+    /// take more than one row; the step table keeps at least 3).
     fn detail_height(&self, shared: &Shared, width: u16) -> u16 {
-        wrapped_height(&self.detail_lines(shared), width).clamp(3, 5)
+        // Word wrapping loses at most a word's length a row; the words here
+        // (ids, figures, `(100%)`) are under 12 characters.
+        let row = usize::from(width.saturating_sub(12).max(1));
+        let rows: usize = self
+            .detail_lines(shared)
+            .iter()
+            .map(|l| l.width().div_ceil(row).max(1))
+            .sum();
+        u16::try_from(rows).unwrap_or(u16::MAX).clamp(3, 8)
     }
 }
 

@@ -64,7 +64,9 @@ pub mod store;
 pub use chain::{ChainHead, Integrity, Issue, IssueKind};
 pub use detection::{DetectionEvent, DismissalEvent, Pending, pending};
 pub use format::{FormatError, Parsed, TornTail, encode_header, encode_log, encode_record, parse};
-pub use store::{Access, Logbook, OpenReport, SetAside, StoreError, log_file_name};
+pub use store::{
+    Access, Logbook, OpenReport, SIDE_FILE_SUFFIX, SetAside, StoreError, log_file_name,
+};
 
 /// The format version this program writes, and the highest it reads
 /// (format 1 logs are read and continued; see docs/logbook.md).

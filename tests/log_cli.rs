@@ -15,6 +15,12 @@ fn health(data: &Path) -> Vec<serde_json::Value> {
     h["members"].as_array().unwrap().clone()
 }
 
+/// `log export --format FORMAT --out OUT` on the log in `data`.
+fn export_to(data: &Path, format: &str, out: &Path) -> std::process::Output {
+    let out = out.to_str().expect("a UTF-8 temporary path");
+    cmd(data, &["log", "export", "--format", format, "--out", out])
+}
+
 fn member<'a>(h: &'a [serde_json::Value], id: &str) -> &'a serde_json::Value {
     h.iter().find(|m| m["id"] == id).unwrap()
 }
@@ -201,17 +207,7 @@ fn health_is_the_same_every_time_and_exports_carry_it() {
     let b = ok(&cmd(d, &["log", "health", "--json"]));
     assert_eq!(a, b);
     let md_path = d.join("report.md");
-    ok(&cmd(
-        d,
-        &[
-            "log",
-            "export",
-            "--format",
-            "md",
-            "--out",
-            md_path.to_str().unwrap(),
-        ],
-    ));
+    ok(&export_to(d, "md", &md_path));
     let md = std::fs::read_to_string(&md_path).unwrap();
     assert!(md.contains("# Cage maintenance report: Kestrel trainer"));
     assert!(
@@ -466,9 +462,8 @@ fn an_export_never_writes_over_a_cage_log() {
         copy.clone(),
     ] {
         for format in ["csv", "md"] {
-            let t = target.to_str().unwrap();
-            let o = cmd(d, &["log", "export", "--format", format, "--out", t]);
-            assert_eq!(o.status.code(), Some(2), "{t}");
+            let o = export_to(d, format, &target);
+            assert_eq!(o.status.code(), Some(2), "{}", target.display());
             let e = String::from_utf8_lossy(&o.stderr);
             assert!(e.contains("never writes over a log"), "{e}");
         }
@@ -488,17 +483,7 @@ fn an_export_never_writes_over_a_cage_log() {
             (&to_log, "the one this report is read from"),
             (&to_new_log, "cage log"),
         ] {
-            let o = cmd(
-                d,
-                &[
-                    "log",
-                    "export",
-                    "--format",
-                    "md",
-                    "--out",
-                    link.to_str().unwrap(),
-                ],
-            );
+            let o = export_to(d, "md", link);
             assert_eq!(o.status.code(), Some(2));
             assert!(String::from_utf8_lossy(&o.stderr).contains(says));
         }
@@ -507,31 +492,11 @@ fn an_export_never_writes_over_a_cage_log() {
     }
     // A report may carry the log's name in its own.
     let named = d.join("kestrel-demo.cagelog.md");
-    ok(&cmd(
-        d,
-        &[
-            "log",
-            "export",
-            "--format",
-            "md",
-            "--out",
-            named.to_str().unwrap(),
-        ],
-    ));
+    ok(&export_to(d, "md", &named));
     // A report's own name is written, and written again.
     let report = d.join("report.csv");
     for _ in 0..2 {
-        ok(&cmd(
-            d,
-            &[
-                "log",
-                "export",
-                "--format",
-                "csv",
-                "--out",
-                report.to_str().unwrap(),
-            ],
-        ));
+        ok(&export_to(d, "csv", &report));
     }
     assert!(
         std::fs::read_to_string(&report)

@@ -1098,7 +1098,11 @@ fn refuse_log_as_output(out: &Path, log: &Path) -> anyhow::Result<()> {
     let target_name = std::fs::read_link(out)
         .ok()
         .and_then(|t| t.file_name().map(|n| n.to_string_lossy().into_owned()));
-    let log_name = |n: &str| n.ends_with(".cagelog") || n.ends_with(".cagelog.set-aside");
+    let log_name = |n: &str| {
+        n.strip_suffix(cagehand::logbook::SIDE_FILE_SUFFIX)
+            .unwrap_or(n)
+            .ends_with(".cagelog")
+    };
     if same_file || log_header || log_name(&name) || target_name.as_deref().is_some_and(log_name) {
         return Err(bad_input(format!(
             "--out {}: that is a cage log{}; an export never writes over a log (nothing was written): give the report another name",

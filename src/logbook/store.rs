@@ -200,22 +200,26 @@ fn line_count(bytes: &[u8]) -> usize {
         + usize::from(!bytes.is_empty() && !bytes.ends_with(b"\n"))
 }
 
+/// What the side file adds to the log's name.
+pub const SIDE_FILE_SUFFIX: &str = ".set-aside";
+
 /// Where the torn records of the log at `path` are set aside.
 fn side_path(path: &Path) -> PathBuf {
     let mut side_name = path.as_os_str().to_owned();
-    side_name.push(".set-aside");
+    side_name.push(SIDE_FILE_SUFFIX);
     PathBuf::from(side_name)
 }
 
 /// The side file of `path`, when an earlier write set torn records aside
-/// in it and it still holds them: an issue at the end of the log (`lines`
-/// lines), said every time the log is read until the file is moved away,
-/// so a set-aside impact cannot drop out of sight after one warning.
-fn held_aside(path: &Path, lines: usize) -> Option<Issue> {
+/// in it and it still holds them: an issue at the end of the log (its
+/// `bytes`), said every time the log is read until the file is moved away,
+/// so a set-aside impact cannot drop out of sight after one warning. The
+/// lines are counted only then, not at every reading.
+fn held_aside(path: &Path, bytes: &[u8]) -> Option<Issue> {
     let side = side_path(path);
     let len = std::fs::metadata(&side).ok().filter(|m| m.is_file())?.len();
     (len > 0).then(|| Issue {
-        line: lines.max(1),
+        line: line_count(bytes).max(1),
         kind: IssueKind::SetAside,
         detail: format!(
             "{} holds {len} bytes of torn records set aside by an earlier write; read it, record again what it held (an impact may be among it), then move it away",
@@ -282,7 +286,7 @@ impl Logbook {
         let Some(f) = file.as_mut() else {
             report.new_file = true;
             // No log, yet records set aside from one: still said.
-            report.integrity.issues.extend(held_aside(&path, 1));
+            report.integrity.issues.extend(held_aside(&path, &[]));
             return Ok((book, report));
         };
         lock(f, &path, access, lock_wait)?;
@@ -350,7 +354,7 @@ impl Logbook {
             }
         }
         if report.set_aside.is_none()
-            && let Some(issue) = held_aside(&path, line_count(&bytes))
+            && let Some(issue) = held_aside(&path, &bytes)
         {
             integrity.issues.push(issue);
         }
